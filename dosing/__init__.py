@@ -1,0 +1,34 @@
+"""Wastewater neutralisation dosing planner: the engine.
+
+The public API, in the order a plan is made:
+
+* :func:`infer_water` - measured pH, temperature, alkalinity or acidity and
+  known solutes to a :class:`Water`.
+* :func:`get_reagent` / :func:`custom_reagent` - the product dosed.
+* :class:`Target`, :class:`Batch`, :class:`Flow` - the window and the amount
+  of water.
+* :func:`plan_dose` - the :class:`Plan`: dose, window band, sensitivity, pH
+  after, titration curve, warnings and cautions.
+* :func:`titration_curve` - pH and buffer intensity against dose.
+* :func:`speciate`, :func:`solve_ph`, :func:`dose_to_ph` - the vectorised
+  core on :class:`Mixture` arrays, for many waters at once.
+
+The engine is pure: no printing, no files. Every error is a
+:class:`DosingError`.
+"""
+
+from .effluent import Water, infer_water
+from .equilibrium import Mixture, dose_to_ph, solve_ph, speciate
+from .errors import (DosingError, InputError, ModelError, ScenarioError,
+                     UnreachableError)
+from .plan import Batch, Flow, Plan, Target, plan_dose, titration_curve
+from .reagents import CATALOGUE, Reagent, custom_reagent, get_reagent
+
+__version__ = "0.1.0"
+
+__all__ = [
+    "Water", "infer_water", "Mixture", "dose_to_ph", "solve_ph", "speciate",
+    "DosingError", "InputError", "ModelError", "ScenarioError", "UnreachableError",
+    "Batch", "Flow", "Plan", "Target", "plan_dose", "titration_curve",
+    "CATALOGUE", "Reagent", "custom_reagent", "get_reagent", "__version__",
+]

@@ -1,0 +1,503 @@
+"""The vectorised acid-base core: speciation, charge balance and solvers.
+
+Every function here works on numpy arrays of *n* waters at once; the scalar
+API elsewhere wraps these with n = 1, so there is one implementation of the
+chemistry.
+
+The model
+---------
+A water is described by a :class:`Mixture`:
+
+* the total of each weak-acid system of :data:`dosing.species.SYSTEMS`
+  ``T_j`` [mol/L];
+* the strong-ion balance ``S`` [eq/L]: strong cations (Na+, K+, Ca2+ ...)
+  minus strong anions (Cl-, NO3- ...), in equivalents;
+* the ionic strength carried by those strong ions [mol/L], for the Davies
+  correction;
+* the temperature, and optionally a fixed dissolved CO2 (a tank open to air).
+
+At a given activity of H+ (``a_H = 10^-pH``), every species fraction is fixed,
+and the charge balance
+
+.. math::
+    R(pH) = S + [H^+] - [OH^-] + \\sum_j T_j\\,\\bar z_j(pH) = 0
+
+is linear in every total, in ``S`` and in a reagent dose. Here ``z̄_j`` is the
+mean charge of system *j*. This gives direct solutions for the strong-ion
+balance from a measured pH (:func:`strong_balance_at_ph`) and for the dose
+that reaches a target pH (:func:`dose_to_ph`); only the ionic strength needs
+a short fixed-point iteration. The forward problem, the pH of a given
+mixture (:func:`solve_ph`), is a safeguarded Newton iteration on pH over the
+whole array, with a bracket that shrinks every step; R is strictly
+decreasing in pH so the root is unique.
+
+For one monoprotic acid HA with total C and sodium salt at Na, R = 0 reads
+``Na + [H+] - Kw/[H+] - C·Ka/(Ka + [H+]) = 0``: the textbook general
+equation is the special case of one system.
+
+Activity
+--------
+pH is the activity pH. With ``davies=True`` each ion's activity coefficient
+comes from :func:`dosing.activity.davies_log_gamma` at the ionic strength of
+the solution itself; with ``davies=False`` the solution is ideal.
+Concentrations are mol/L, taken equal to mol/kg (dilute water).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from .activity import davies_log_gamma, debye_huckel_a
+from .errors import ModelError
+from .species import SYSTEMS, SYSTEM_IDS
+from .water import carbonate_pk, henry_co2, pkw, vant_hoff_pk
+
+__all__ = [
+    "N_SYSTEMS", "CARBONATE", "system_index", "Mixture", "Speciation",
+    "constants_at", "speciate", "charge_residual", "solve_ph",
+    "strong_balance_at_ph", "carbonate_for_alkalinity", "dose_to_ph",
+    "ReagentVector", "add_dose", "co2_in_air_mol_l",
+]
+
+N_SYSTEMS = len(SYSTEMS)
+_MAXSTEP = 3
+CARBONATE = SYSTEM_IDS.index("carbonate")
+_LN10 = np.log(10.0)
+
+# Charge of each form (most protonated first), shape (m, 4).
+_Z = np.array([[s.top_charge - k for k in range(_MAXSTEP + 1)] for s in SYSTEMS],
+              dtype=float)
+_PK25 = np.full((N_SYSTEMS, _MAXSTEP), np.inf)
+_DH = np.zeros((N_SYSTEMS, _MAXSTEP))
+for _j, _s in enumerate(SYSTEMS):
+    _PK25[_j, :_s.steps] = _s.pka25
+    _DH[_j, :_s.steps] = _s.enthalpy_kj_mol
+
+
+def system_index(system_id: str) -> int:
+    """Column of ``system_id`` in the totals arrays."""
+    return SYSTEM_IDS.index(system_id)
+
+
+def co2_in_air_mol_l(temperature_c, pco2_atm):
+    """Dissolved CO2* in equilibrium with a gas at ``pco2_atm`` [mol/L]."""
+    return henry_co2(temperature_c) * np.asarray(pco2_atm, dtype=float)
+
+
+@dataclass(frozen=True)
+class Constants:
+    """Thermodynamic constants for n temperatures."""
+
+    kw: np.ndarray          #: (n,) ion product of water [-]
+    k: np.ndarray           #: (n, m, 3) Ka of each step, 0 where no step [-]
+    a: np.ndarray           #: (n,) Debye-Hückel A [(kg/mol)^(1/2)]
+
+
+def constants_at(temperature_c) -> Constants:
+    """Equilibrium constants at each temperature [°C] (0-60 °C).
+
+    Carbonate uses Plummer & Busenberg (1982); water uses IAPWS R11-07; the
+    other systems use van 't Hoff from their 25 °C values.
+    """
+    t = np.atleast_1d(np.asarray(temperature_c, dtype=float))
+    pk = vant_hoff_pk(_PK25[None, :, :], _DH[None, :, :], t[:, None, None])
+    pk1, pk2 = carbonate_pk(t)
+    pk[:, CARBONATE, 0] = pk1
+    pk[:, CARBONATE, 1] = pk2
+    k = np.where(np.isfinite(pk), 10.0 ** -np.where(np.isfinite(pk), pk, 0.0), 0.0)
+    return Constants(kw=10.0 ** -pkw(t), k=k, a=debye_huckel_a(t))
+
+
+@dataclass(frozen=True)
+class Mixture:
+    """n waters as arrays, ready for the vectorised solvers.
+
+    Attributes
+    ----------
+    totals_mol_l : ndarray (n, m)
+        Total of each weak-acid system, columns in catalogue order [mol/L].
+    strong_eq_l : ndarray (n,)
+        Strong cations minus strong anions [eq/L].
+    strong_ionic_strength : ndarray (n,)
+        Ionic strength carried by the strong ions [mol/L].
+    temperature_c : ndarray (n,)
+        Temperature [°C].
+    co2_air_mol_l : ndarray (n,)
+        Dissolved CO2* held by contact with air [mol/L]; NaN for a closed
+        water, whose carbonate total is then ``totals_mol_l[:, CARBONATE]``.
+    davies : bool
+        Davies activity correction (True) or ideal solution (False).
+    """
+
+    totals_mol_l: np.ndarray
+    strong_eq_l: np.ndarray
+    strong_ionic_strength: np.ndarray
+    temperature_c: np.ndarray
+    co2_air_mol_l: np.ndarray
+    davies: bool = True
+
+    @classmethod
+    def build(cls, totals_mol_l, strong_eq_l, strong_ionic_strength,
+              temperature_c, co2_air_mol_l=np.nan, davies=True) -> "Mixture":
+        """Broadcast the inputs to n waters and freeze them."""
+        tot = np.atleast_2d(np.asarray(totals_mol_l, dtype=float))
+        s = np.atleast_1d(np.asarray(strong_eq_l, dtype=float))
+        n = max(tot.shape[0], s.shape[0])
+        def vec(x):
+            return np.broadcast_to(np.atleast_1d(np.asarray(x, dtype=float)), (n,)).copy()
+        return cls(np.broadcast_to(tot, (n, N_SYSTEMS)).copy(), vec(s),
+                   vec(strong_ionic_strength), vec(temperature_c),
+                   vec(co2_air_mol_l), bool(davies))
+
+    @property
+    def n(self) -> int:
+        """Number of waters."""
+        return self.strong_eq_l.shape[0]
+
+    @property
+    def open_to_air(self) -> np.ndarray:
+        """(n,) True where dissolved CO2 is held by the air."""
+        return np.isfinite(self.co2_air_mol_l)
+
+
+@dataclass(frozen=True)
+class Speciation:
+    """State of n waters at a given pH (arrays)."""
+
+    ph: np.ndarray                  #: (n,) activity pH [-]
+    h_mol_l: np.ndarray             #: (n,) [H+] [mol/L]
+    oh_mol_l: np.ndarray            #: (n,) [OH-] [mol/L]
+    alpha: np.ndarray               #: (n, m, 4) fraction of each form [-]
+    mean_charge: np.ndarray         #: (n, m) mean charge per mole of total [-]
+    totals_mol_l: np.ndarray        #: (n, m) totals in effect (open CO2 applied)
+    ionic_strength: np.ndarray      #: (n,) [mol/L]
+    charge_residual_eq_l: np.ndarray  #: (n,) charge balance residual [eq/L]
+    buffer_intensity_eq_l: np.ndarray  #: (n,) β = dC_base/dpH [eq/(L pH)]
+
+    def concentration(self, system: int, form: int) -> np.ndarray:
+        """(n,) concentration of one form of one system [mol/L]."""
+        return self.totals_mol_l[:, system] * self.alpha[:, system, form]
+
+
+def _conditional_k(const: Constants, ionic_strength, davies: bool):
+    """Mixed constants K' = Ka·γ(HA)/γ(A) and γ(H+), for use with a_H."""
+    if not davies:
+        return const.k, np.ones_like(const.kw)
+    lg = davies_log_gamma(_Z[None, :, :], ionic_strength[:, None, None],
+                          const.a[:, None, None])
+    kc = const.k * 10.0 ** (lg[:, :, :-1] - lg[:, :, 1:])
+    g1 = 10.0 ** davies_log_gamma(1, ionic_strength, const.a)
+    return kc, g1
+
+
+def _alpha(ah, kc):
+    """Fractions (n, m, 4) from a_H (n,) and mixed constants (n, m, 3)."""
+    r = kc / ah[:, None, None]
+    t1 = r[:, :, 0]
+    t2 = t1 * r[:, :, 1]
+    t3 = t2 * r[:, :, 2]
+    terms = np.stack([np.ones_like(t1), t1, t2, t3], axis=-1)
+    return terms / terms.sum(axis=-1, keepdims=True)
+
+
+def _moments(alpha):
+    q = (alpha * _Z[None]).sum(-1)
+    m2 = (alpha * _Z[None] ** 2).sum(-1)
+    return q, m2
+
+
+def _state(mix: Mixture, ph, const: Constants, ionic_strength):
+    """Species, residual, derivative and new ionic strength at ``ph``."""
+    ah = 10.0 ** -ph
+    kc, g1 = _conditional_k(const, ionic_strength, mix.davies)
+    h = ah / g1
+    oh = const.kw / (ah * g1)
+    alpha = _alpha(ah, kc)
+    q, m2 = _moments(alpha)
+    var = m2 - q * q
+    totals = mix.totals_mol_l
+    opened = mix.open_to_air
+    if opened.any():
+        totals = totals.copy()
+        a0 = alpha[:, CARBONATE, 0]
+        totals[opened, CARBONATE] = mix.co2_air_mol_l[opened] / a0[opened]
+        # Open carbonate: d(T q)/dpH = -ln10 T m2 instead of -ln10 T var.
+        var = var.copy()
+        var[opened, CARBONATE] = m2[opened, CARBONATE]
+    resid = mix.strong_eq_l + h - oh + (totals * q).sum(-1)
+    beta = _LN10 * (h + oh + (totals * var).sum(-1))
+    ionic = 0.5 * (h + oh + (totals * m2).sum(-1)) + mix.strong_ionic_strength
+    return alpha, q, totals, h, oh, resid, beta, ionic
+
+
+def speciate(mix: Mixture, ph, *, max_iter: int = 60) -> Speciation:
+    """Speciation of every water at the given activity pH.
+
+    The ionic strength is found self-consistently (Davies) or is only
+    reported (ideal).
+    """
+    ph = np.broadcast_to(np.asarray(ph, dtype=float), (mix.n,)).copy()
+    const = constants_at(mix.temperature_c)
+    ionic = mix.strong_ionic_strength.copy()
+    for _ in range(max_iter):
+        alpha, q, totals, h, oh, resid, beta, new_i = _state(mix, ph, const, ionic)
+        done = np.all(np.abs(new_i - ionic) <= 1e-13 + 1e-10 * new_i)
+        ionic = new_i
+        if done or not mix.davies:
+            break
+    alpha, q, totals, h, oh, resid, beta, _ = _state(mix, ph, const, ionic)
+    return Speciation(ph, h, oh, alpha, q, totals, ionic, resid, beta)
+
+
+def charge_residual(mix: Mixture, ph) -> np.ndarray:
+    """(n,) charge balance residual at ``ph`` [eq/L], ionic strength consistent."""
+    return speciate(mix, ph).charge_residual_eq_l
+
+
+def solve_ph(mix: Mixture, *, ph_guess=None, tol_ph: float = 1e-12,
+             max_iter: int = 100) -> np.ndarray:
+    """Activity pH of every water of ``mix`` (the forward problem).
+
+    Safeguarded Newton on pH in the bracket [-1.5, 15.5]: R(pH) is strictly
+    decreasing, so the sign of R moves one end of the bracket each step, and
+    a Newton step that leaves the bracket is replaced by bisection. With the
+    Davies model the ionic strength is updated after each inner solve until
+    it no longer changes.
+
+    Raises
+    ------
+    ModelError
+        If any water fails to converge (the message gives how many).
+    """
+    const = constants_at(mix.temperature_c)
+    ionic = mix.strong_ionic_strength.copy()
+    ph = np.full(mix.n, 7.0) if ph_guess is None else np.broadcast_to(
+        np.asarray(ph_guess, dtype=float), (mix.n,)).copy()
+    if not mix.davies:
+        return _newton(mix, const, ionic, ph, tol_ph, max_iter)
+    for _outer in range(40):
+        ph = _newton(mix, const, ionic, ph, tol_ph, max_iter)
+        *_, new_i = _state(mix, ph, const, ionic)
+        settled = np.all(np.abs(new_i - ionic) <= 1e-13 + 1e-10 * new_i)
+        ionic = new_i
+        if settled:
+            return _newton(mix, const, ionic, ph, tol_ph, max_iter)
+    raise ModelError("ionic strength did not settle while solving pH")
+
+
+def _newton(mix, const, ionic, ph, tol_ph, max_iter):
+    lo = np.full(mix.n, -1.5)
+    hi = np.full(mix.n, 15.5)
+    ph = np.clip(ph, lo + 1e-9, hi - 1e-9)
+    for _ in range(max_iter):
+        *_, resid, beta, _ = _state(mix, ph, const, ionic)
+        # R decreasing in pH: R > 0 means the root lies above ph.
+        lo = np.where(resid > 0, ph, lo)
+        hi = np.where(resid <= 0, ph, hi)
+        step = resid / np.maximum(beta, 1e-300)  # Newton: dR/dpH = -beta
+        new = ph + step
+        bad = ~((new > lo) & (new < hi)) | ~np.isfinite(new)
+        new = np.where(bad, 0.5 * (lo + hi), new)
+        moved = np.abs(new - ph)
+        ph = new
+        if np.all((moved < tol_ph) | (hi - lo < tol_ph)):
+            return ph
+    raise ModelError(f"pH solve did not converge for "
+                     f"{int(np.sum(moved >= tol_ph))} of {mix.n} waters")
+
+
+def strong_balance_at_ph(totals_mol_l, ph, temperature_c, *, davies: bool,
+                         extra_ionic_strength=0.0, co2_air_mol_l=np.nan,
+                         max_iter: int = 60):
+    """Strong-ion balance S [eq/L] that puts each water at ``ph`` (direct).
+
+    The strong ions are taken as monovalent for the ionic strength, plus
+    ``extra_ionic_strength`` [mol/L] (e.g. a known neutral salt load).
+
+    Returns
+    -------
+    (strong_eq_l, ionic_strength) : tuple of ndarray
+    """
+    ph = np.atleast_1d(np.asarray(ph, dtype=float))
+    mix = Mixture.build(totals_mol_l, np.zeros_like(ph), extra_ionic_strength,
+                        temperature_c, co2_air_mol_l, davies)
+    const = constants_at(mix.temperature_c)
+    extra = mix.strong_ionic_strength
+    s = np.zeros(mix.n)
+    ionic = extra.copy()
+    for _ in range(max_iter):
+        trial = Mixture(mix.totals_mol_l, np.zeros(mix.n), extra + 0.5 * np.abs(s),
+                        mix.temperature_c, mix.co2_air_mol_l, davies)
+        *_, resid, _, new_i = _state(trial, ph, const, ionic)
+        new_s = -resid
+        settled = (np.all(np.abs(new_s - s) <= 1e-16 + 1e-11 * np.abs(new_s))
+                   and np.all(np.abs(new_i - ionic) <= 1e-13 + 1e-10 * new_i))
+        s, ionic = new_s, new_i
+        if not davies or settled:
+            return s, ionic
+    raise ModelError("ionic strength did not settle while balancing the water")
+
+
+def carbonate_for_alkalinity(totals_mol_l, ph, temperature_c, alk_eq_l,
+                             endpoint_ph, *, davies: bool,
+                             extra_ionic_strength=0.0, max_iter: int = 60):
+    """Carbonate total [mol/L] that explains a titration to ``endpoint_ph``.
+
+    ``alk_eq_l`` is the strong acid [eq/L] taken to titrate the water from
+    ``ph`` down to ``endpoint_ph`` (alkalinity, positive) or, when negative,
+    minus the strong base taken to titrate it up (acidity). With
+    A = S(pH) - S(endpoint):
+
+    A = sum_j T_j (z̄_j(pH_e) - z̄_j(pH)) + w(pH_e) - w(pH),  w = [H+] - [OH-]
+
+    which is linear in the carbonate total. The sample's ionic strength is
+    used at the end point too, and dilution by the titrant is neglected, as
+    in the method's own calculation.
+
+    Returns
+    -------
+    (carbonate_mol_l, coefficient, ionic_strength) : tuple of ndarray
+        ``coefficient`` is z̄_c(pH_e) - z̄_c(pH) [-]; where it is not
+        positive for alkalinity (negative for acidity) the carbonate cannot
+        explain the measurement and the caller should refuse the input.
+    """
+    ph = np.atleast_1d(np.asarray(ph, dtype=float))
+    tot = np.broadcast_to(np.atleast_2d(np.asarray(totals_mol_l, dtype=float)),
+                          (ph.shape[0], N_SYSTEMS)).copy()
+    tot[:, CARBONATE] = 0.0
+    t = np.broadcast_to(np.asarray(temperature_c, dtype=float), ph.shape)
+    const = constants_at(t)
+    alk = np.broadcast_to(np.asarray(alk_eq_l, dtype=float), ph.shape)
+    ionic = np.broadcast_to(np.asarray(extra_ionic_strength, float), ph.shape).copy()
+    c = np.zeros_like(ph)
+    s = np.zeros_like(ph)
+    ep = np.broadcast_to(np.asarray(endpoint_ph, float), ph.shape)
+    for _ in range(max_iter):
+        kc, g1 = _conditional_k(const, ionic, davies)
+        res = []
+        for p in (ph, ep):
+            ah = 10.0 ** -p
+            q, m2 = _moments(_alpha(ah, kc))
+            w = ah / g1 - const.kw / (ah * g1)
+            res.append((q, m2, w, ah / g1, const.kw / (ah * g1)))
+        (q, m2, w, h, oh), (qe, _, we, _, _) = res
+        known = (tot * (qe - q)).sum(-1) + we - w
+        coef = qe[:, CARBONATE] - q[:, CARBONATE]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            c_new = (alk - known) / coef
+        full = tot.copy()
+        full[:, CARBONATE] = c_new
+        s = -(h - oh + (full * q).sum(-1))
+        new_i = (0.5 * (h + oh + (full * m2).sum(-1)) + 0.5 * np.abs(s)
+                 + np.asarray(extra_ionic_strength, float))
+        done = np.all(np.abs(c_new - c) <= 1e-16 + 1e-11 * np.abs(c_new))
+        c = c_new
+        if not davies or (done and np.all(np.abs(new_i - ionic) <= 1e-12 + 1e-10 * new_i)):
+            break
+        ionic = new_i
+    return c, coef, ionic
+
+
+@dataclass(frozen=True)
+class ReagentVector:
+    """What one mole of a reagent's active compound adds to a water.
+
+    Attributes
+    ----------
+    totals_mol : ndarray (m,)
+        Moles added to each weak-acid total [mol/mol].
+    strong_eq : float
+        Strong-ion equivalents added (Na+ +1, Ca2+ +2, Cl- -1) [eq/mol].
+    ionic_strength : float
+        Ionic strength added by those strong ions per litre when 1 mol/L is
+        dosed [mol/mol], e.g. 0.5 for Na+ and 2 for Ca2+.
+    volume_l : float
+        Volume of product that carries one mole [L/mol]; 0 for a solid or a
+        gas (the water's volume does not change).
+    """
+
+    totals_mol: np.ndarray
+    strong_eq: float
+    ionic_strength: float
+    volume_l: float
+
+
+def add_dose(mix: Mixture, reagent: ReagentVector, dose_mol_l) -> Mixture:
+    """The mixture after dosing ``dose_mol_l`` [mol per L of water] (n,).
+
+    Dilution by the product's own volume is included. Where the water is
+    open to air, added carbonate leaves as CO2 and the dissolved CO2 stays
+    at its air value.
+    """
+    d = np.broadcast_to(np.asarray(dose_mol_l, dtype=float), (mix.n,))
+    f = 1.0 / (1.0 + d * reagent.volume_l)
+    tot = f[:, None] * (mix.totals_mol_l + d[:, None] * reagent.totals_mol[None, :])
+    return Mixture(tot, f * (mix.strong_eq_l + d * reagent.strong_eq),
+                   f * (mix.strong_ionic_strength + d * reagent.ionic_strength),
+                   mix.temperature_c, mix.co2_air_mol_l, mix.davies)
+
+
+def dose_to_ph(mix: Mixture, reagent: ReagentVector, target_ph,
+               *, max_iter: int = 60):
+    """Dose [mol/L of water] that brings each water to ``target_ph`` (direct).
+
+    Multiplying the charge balance after the dose by the dilution factor
+    (1 + d·v) makes it linear in the dose d:
+
+    d = -(S + Σ T_j z̄_j + w) / (s_r + Σ n_j z̄_j + v·w)
+
+    with all fractions taken at the target pH. The ionic strength of the
+    dosed water is iterated to a fixed point for the Davies model.
+
+    Returns
+    -------
+    (dose_mol_l, slope) : tuple of ndarray
+        ``slope`` is the denominator above [eq/mol]: positive for a reagent
+        that raises pH at the target, negative for one that lowers it, near
+        zero where the reagent has no grip on pH (e.g. CO2 at low pH). A
+        negative dose means the water is already past the target in the
+        reagent's direction. The caller decides what is reachable.
+    """
+    tp = np.broadcast_to(np.asarray(target_ph, dtype=float), (mix.n,)).copy()
+    const = constants_at(mix.temperature_c)
+    n_r = np.asarray(reagent.totals_mol, dtype=float).copy()
+    opened = mix.open_to_air
+    dose = np.zeros(mix.n)
+    ionic = mix.strong_ionic_strength.copy()
+    for _ in range(max_iter):
+        kc, g1 = _conditional_k(const, ionic, mix.davies)
+        ah = 10.0 ** -tp
+        alpha = _alpha(ah, kc)
+        q, m2 = _moments(alpha)
+        h = ah / g1
+        oh = const.kw / (ah * g1)
+        w = h - oh
+        tot = mix.totals_mol_l.copy()
+        nr = np.broadcast_to(n_r, tot.shape).copy()
+        if opened.any():
+            c_air = mix.co2_air_mol_l[opened] / alpha[opened, CARBONATE, 0]
+            w = w.copy()
+            w[opened] += c_air * q[opened, CARBONATE]
+            tot[opened, CARBONATE] = 0.0
+            nr[opened, CARBONATE] = 0.0
+        num = mix.strong_eq_l + (tot * q).sum(-1) + w
+        den = reagent.strong_eq + (nr * q).sum(-1) + reagent.volume_l * w
+        with np.errstate(divide="ignore", invalid="ignore"):
+            new_dose = -num / den
+        if not mix.davies:
+            return new_dose, den
+        dosed = add_dose(mix, reagent, np.where(np.isfinite(new_dose), new_dose, 0.0))
+        tot_after = dosed.totals_mol_l.copy()
+        if opened.any():
+            tot_after[opened, CARBONATE] = c_air
+        new_i = (0.5 * (h + oh + (tot_after * m2).sum(-1))
+                 + dosed.strong_ionic_strength)
+        done = np.all(~np.isfinite(new_dose) | (np.abs(new_dose - dose)
+                      <= 1e-16 + 1e-11 * np.abs(new_dose)))
+        dose = new_dose
+        if done and np.all(np.abs(new_i - ionic) <= 1e-12 + 1e-10 * new_i):
+            return dose, den
+        ionic = new_i
+    raise ModelError("ionic strength did not settle while solving the dose")

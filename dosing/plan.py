@@ -1,0 +1,355 @@
+"""Dose planning: from a water, a reagent and a pH window to a dose.
+
+:func:`plan_dose` is the main job of the planner. For a batch (a tank
+volume) or a flow, it finds
+
+* the dose that takes the water to the aim pH (a direct solve at fixed pH,
+  see :func:`dosing.equilibrium.dose_to_ph`);
+* the band of doses that keeps the pH inside the window;
+* the slope of pH against dose at the aim, and the pH that a 5 % metering
+  error would give, with a warning when that leaves the window;
+* the pH after the planned dose by an independent forward solve;
+* a titration curve (pH against dose) with the buffer intensity along it;
+* the warnings and cautions that belong with the dose.
+
+It refuses, with :class:`~dosing.errors.UnreachableError`, an aim the
+reagent cannot reach: the wrong direction (a base on a water already above
+the aim), a reagent with no grip on pH there (CO2 below about pH 5), or a
+dose past a product's practical limit.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from .effluent import Water
+from .equilibrium import (CARBONATE, Mixture, add_dose, dose_to_ph, solve_ph,
+                          speciate)
+from .errors import InputError, ModelError, UnreachableError
+from .reagents import GENERAL_CAUTION, Reagent
+from .water import henry_co2
+
+__all__ = ["Target", "Batch", "Flow", "Amounts", "TitrationCurve", "Plan",
+           "plan_dose", "titration_curve", "METERING_ERROR"]
+
+#: Relative metering error used for the sensitivity check (common practice:
+#: a well-kept metering pump holds its rate within a few per cent).
+METERING_ERROR = 0.05
+#: The whole window spanning less than this fraction of the dose is called
+#: narrow (common practice).
+NARROW_BAND = 0.10
+#: Highest CO2 pressure a dosing point works at: pure CO2 at 1 atm [atm].
+CO2_MAX_ATM = 1.0
+
+
+@dataclass(frozen=True)
+class Target:
+    """The permitted pH window and the aim inside it [pH]."""
+
+    ph_min: float
+    ph_max: float
+    ph_aim: float | None = None
+
+    def __post_init__(self):
+        for name in ("ph_min", "ph_max"):
+            v = getattr(self, name)
+            if not isinstance(v, (int, float)) or not math.isfinite(v) or not 0 <= v <= 14:
+                raise InputError(f"target.{name}", f"{v!r} is not a pH; allowed: 0 to 14")
+        if self.ph_min >= self.ph_max:
+            raise InputError("target.ph_max", f"{self.ph_max:g} must be above "
+                             f"ph_min {self.ph_min:g}")
+        if self.ph_aim is None:
+            object.__setattr__(self, "ph_aim", 0.5 * (self.ph_min + self.ph_max))
+        elif not (self.ph_min <= self.ph_aim <= self.ph_max):
+            raise InputError("target.ph_aim", f"{self.ph_aim:g} lies outside the "
+                             f"window {self.ph_min:g} to {self.ph_max:g}")
+
+    def contains(self, ph: float) -> bool:
+        """True if ``ph`` lies inside the window."""
+        return self.ph_min <= ph <= self.ph_max
+
+
+@dataclass(frozen=True)
+class Batch:
+    """A tank treated as one batch."""
+
+    volume_m3: float
+
+    def __post_init__(self):
+        if not (isinstance(self.volume_m3, (int, float)) and math.isfinite(self.volume_m3)
+                and 0 < self.volume_m3 <= 1e6):
+            raise InputError("batch.volume_m3", f"{self.volume_m3!r}; allowed: "
+                             "above 0 and up to 1,000,000 m3")
+
+    @property
+    def litres(self) -> float:
+        """Water treated [L] (per batch)."""
+        return self.volume_m3 * 1000.0
+
+
+@dataclass(frozen=True)
+class Flow:
+    """A continuous stream."""
+
+    m3_per_h: float
+
+    def __post_init__(self):
+        if not (isinstance(self.m3_per_h, (int, float)) and math.isfinite(self.m3_per_h)
+                and 0 < self.m3_per_h <= 1e5):
+            raise InputError("flow.m3_per_h", f"{self.m3_per_h!r}; allowed: "
+                             "above 0 and up to 100,000 m3/h")
+
+    @property
+    def litres(self) -> float:
+        """Water treated [L] (per hour)."""
+        return self.m3_per_h * 1000.0
+
+
+@dataclass(frozen=True)
+class Amounts:
+    """One dose in the units an operator uses.
+
+    ``kg_product`` and ``litres_product`` are per batch for a
+    :class:`Batch` and per hour for a :class:`Flow`; ``litres_product`` is
+    None for a solid or a gas, ``kg_product`` None when a solution was given
+    by molarity without a density.
+    """
+
+    mmol_per_l: float                #: active compound per L of water [mmol/L]
+    mg_per_l_product: float | None   #: product per L of water [mg/L]
+    kg_product: float | None         #: [kg] per batch or per hour
+    litres_product: float | None     #: [L] per batch or per hour
+    kg_active: float                 #: active compound [kg] per batch or hour
+
+
+def amounts_for(dose_mol_l: float, reagent: Reagent, basis: Batch | Flow) -> Amounts:
+    """Convert a dose [mol active per L of water] to :class:`Amounts`."""
+    kg_per_mol = reagent.kg_product_per_mol
+    l_per_mol = reagent.litres_product_per_mol
+    mol = dose_mol_l * basis.litres
+    return Amounts(
+        mmol_per_l=dose_mol_l * 1000.0,
+        mg_per_l_product=None if kg_per_mol is None else dose_mol_l * kg_per_mol * 1e6,
+        kg_product=None if kg_per_mol is None else mol * kg_per_mol,
+        litres_product=None if l_per_mol is None else mol * l_per_mol,
+        kg_active=mol * reagent.compound.molar_mass_g_mol / 1000.0)
+
+
+@dataclass(frozen=True)
+class TitrationCurve:
+    """pH against dose for one water and reagent (arrays of equal length)."""
+
+    dose_mol_l: np.ndarray           #: dose of active compound [mol/L]
+    ph: np.ndarray                   #: pH after that dose [-]
+    buffer_intensity_eq_l: np.ndarray  #: β of the dosed water [eq/(L pH)]
+
+
+@dataclass(frozen=True)
+class Plan:
+    """Everything the planner says about one dosing decision.
+
+    Doses are mol of active compound per litre of water; see
+    :meth:`amounts` for operator units.
+    """
+
+    water: Water
+    reagent: Reagent
+    target: Target
+    basis: Batch | Flow
+    ph_start: float                     #: measured pH [-]
+    dose_mol_l: float                   #: dose to the aim [mol/L]
+    ph_end: float                       #: pH after the dose, forward solve [-]
+    band_mol_l: tuple[float, float | None]  #: doses that keep pH in the window
+    slope_ph_per_mmol_l: float          #: dpH/d(dose) at the aim [pH per mmol/L]
+    ph_low_dose: float                  #: pH after the dose less 5 % [-]
+    ph_high_dose: float                 #: pH after the dose plus 5 % [-]
+    ionic_strength_end: float           #: [mol/L]
+    curve: TitrationCurve
+    dose_needed: bool                   #: False when the water is already fine
+    warnings: tuple[str, ...] = field(default=())
+    cautions: tuple[str, ...] = field(default=())
+
+    def amounts(self, dose_mol_l: float | None = None) -> Amounts:
+        """A dose (default: the planned one) in operator units."""
+        return amounts_for(self.dose_mol_l if dose_mol_l is None else dose_mol_l,
+                           self.reagent, self.basis)
+
+
+def _direction(reagent: Reagent) -> int:
+    return 1 if reagent.raises_ph else -1
+
+
+def _doses_at(mix: Mixture, reagent: Reagent, ph) -> tuple[np.ndarray, np.ndarray]:
+    ph = np.atleast_1d(np.asarray(ph, dtype=float))
+    rep = Mixture.build(np.repeat(mix.totals_mol_l, ph.size, axis=0),
+                        np.repeat(mix.strong_eq_l, ph.size),
+                        np.repeat(mix.strong_ionic_strength, ph.size),
+                        np.repeat(mix.temperature_c, ph.size),
+                        np.repeat(mix.co2_air_mol_l, ph.size), mix.davies)
+    return dose_to_ph(rep, reagent.vector(), ph)
+
+
+def _reach_problem(water: Water, reagent: Reagent, ph: float, dose: float,
+                   grip: float) -> str | None:
+    """Why ``reagent`` cannot bring the water to ``ph``, or None if it can."""
+    d = _direction(reagent)
+    verb = "raises" if d > 0 else "lowers"
+    if reagent.min_practical_ph is not None and ph < reagent.min_practical_ph:
+        return (f"{reagent.name} cannot take a water below about pH "
+                f"{reagent.min_practical_ph:g} in practice")
+    if reagent.max_practical_ph is not None and ph > reagent.max_practical_ph:
+        return (f"{reagent.name} cannot take a water above about pH "
+                f"{reagent.max_practical_ph:g} in practice")
+    if not math.isfinite(dose) or grip * d <= 1e-9:
+        return f"{reagent.name} has no grip on the pH near {ph:g}"
+    if dose < -1e-12:
+        return (f"{reagent.name} {verb} pH, and this water at pH {water.ph:g} is "
+                f"already {'above' if d > 0 else 'below'} pH {ph:g}")
+    if reagent.compound.formula == "CO2":
+        co2_star = _dissolved_co2_after(water, reagent, dose, ph)
+        limit = float(henry_co2(water.temperature_c)) * CO2_MAX_ATM
+        if co2_star > limit:
+            return (f"reaching pH {ph:g} needs {co2_star * 1000:.3g} mmol/L of "
+                    f"dissolved CO2, more than water holds under pure CO2 at 1 atm "
+                    f"({limit * 1000:.3g} mmol/L)")
+    return None
+
+
+def _dissolved_co2_after(water: Water, reagent: Reagent, dose: float, ph: float) -> float:
+    dosed = add_dose(water.mixture(), reagent.vector(), dose)
+    sp = speciate(dosed, ph)
+    return float(sp.concentration(CARBONATE, 0)[0])
+
+
+def plan_dose(water: Water, reagent: Reagent, target: Target,
+              basis: Batch | Flow, *, curve_points: int = 301) -> Plan:
+    """Plan the dose of ``reagent`` that brings ``water`` into ``target``.
+
+    Parameters
+    ----------
+    water : Water
+        From :func:`dosing.effluent.infer_water`.
+    reagent : Reagent
+        A catalogue or custom product.
+    target : Target
+        The pH window and aim.
+    basis : Batch or Flow
+        A tank volume or a flow; scales kilograms and litres.
+    curve_points : int
+        Points on the titration curve.
+
+    Raises
+    ------
+    UnreachableError
+        The aim cannot be reached with this reagent (and the water is not
+        already inside the window).
+    ModelError
+        The forward solve does not reproduce the aim (never expected).
+    """
+    mix = water.mixture()
+    direction = _direction(reagent)
+    edges = (target.ph_min, target.ph_aim, target.ph_max)
+    doses, grips = _doses_at(mix, reagent, edges)
+    warnings: list[str] = list(water.notes)
+
+    inside = target.contains(water.ph)
+    aim_problem = _reach_problem(water, reagent, target.ph_aim, doses[1], grips[1])
+    if aim_problem is not None and not (inside and doses[1] < 0):
+        raise UnreachableError(f"cannot reach the aim pH {target.ph_aim:g}: "
+                               f"{aim_problem}")
+    # The window edge nearer the start is the low end of the band.
+    near, far = (0, 2) if direction > 0 else (2, 0)
+    near_dose = max(float(doses[near]), 0.0)
+    far_problem = _reach_problem(water, reagent, edges[far], doses[far], grips[far])
+    far_dose = None if far_problem is not None else float(doses[far])
+    if far_problem is not None and not (inside and doses[far] < 0):
+        warnings.append(f"the far edge of the window (pH {edges[far]:g}) cannot "
+                        f"be reached ({far_problem}): overdosing cannot push the "
+                        "pH out of the window on that side")
+    dose_needed = doses[1] > 0
+    dose = float(doses[1]) if dose_needed else 0.0
+    if not dose_needed:
+        warnings.append(f"the water at pH {water.ph:g} is already inside the "
+                        f"window and on the far side of the aim: no dose needed")
+
+    dosed = add_dose(mix, reagent.vector(), dose)
+    ph_end = float(solve_ph(dosed, ph_guess=target.ph_aim if dose_needed else water.ph)[0])
+    if dose_needed and abs(ph_end - target.ph_aim) > 1e-6:
+        raise ModelError(f"forward solve gives pH {ph_end:.6f} for the dose to "
+                         f"pH {target.ph_aim:g}; the model is not trustworthy here")
+    end_state = speciate(dosed, ph_end)
+
+    # Sensitivity at the aim.
+    h = 1e-3
+    pair, _ = _doses_at(mix, reagent, (target.ph_aim - h, target.ph_aim + h))
+    ddose_dph = (pair[1] - pair[0]) / (2 * h)
+    slope = 1.0 / (ddose_dph * 1000.0) if ddose_dph != 0 else math.inf
+    lo_hi = add_dose(Mixture.build(np.repeat(mix.totals_mol_l, 2, 0),
+                                   np.repeat(mix.strong_eq_l, 2),
+                                   np.repeat(mix.strong_ionic_strength, 2),
+                                   np.repeat(mix.temperature_c, 2),
+                                   np.repeat(mix.co2_air_mol_l, 2), mix.davies),
+                     reagent.vector(), dose * np.array([1 - METERING_ERROR,
+                                                        1 + METERING_ERROR]))
+    ph_lo, ph_hi = solve_ph(lo_hi, ph_guess=np.array([ph_end, ph_end]))
+    if dose_needed:
+        out = [p for p in (ph_lo, ph_hi) if not target.contains(float(p))]
+        phrase = (f"a {METERING_ERROR:.0%} dosing error moves the pH from "
+                  f"{target.ph_aim:.2f} to between {min(ph_lo, ph_hi):.2f} and "
+                  f"{max(ph_lo, ph_hi):.2f}")
+        if out:
+            warnings.append(f"narrow window: {phrase}, outside the window "
+                            f"{target.ph_min:g} to {target.ph_max:g}. Dose in "
+                            "stages and measure before the last part")
+        elif far_dose is not None and (far_dose - near_dose) < NARROW_BAND * dose:
+            warnings.append(f"narrow window in dose terms: the whole window spans "
+                            f"{(far_dose - near_dose) / dose:.0%} of the dose; {phrase}")
+    if end_state.ionic_strength[0] > 0.5:
+        warnings.append(f"ionic strength after dosing {end_state.ionic_strength[0]:.2f} "
+                        "mol/L is beyond the Davies equation's range: confirm with a "
+                        "bench titration")
+    if reagent.solubility_g_l is not None:
+        g_l = dose * reagent.compound.molar_mass_g_mol
+        if g_l > reagent.solubility_g_l:
+            warnings.append(f"the dose ({g_l:.2f} g/L of {reagent.compound.formula}) "
+                            f"is above its solubility of about "
+                            f"{reagent.solubility_g_l:g} g/L near 20 °C: it stays "
+                            "as undissolved solid for a while; mix well, allow "
+                            "reaction time and re-measure before adding more")
+    hi_curve = far_dose if far_dose is not None else dose
+    top = max(hi_curve, dose, near_dose) * 1.5 or 1e-4
+    curve = titration_curve(water, reagent, top, points=curve_points)
+    cautions = tuple(reagent.cautions) + (GENERAL_CAUTION,)
+    return Plan(water=water, reagent=reagent, target=target, basis=basis,
+                ph_start=water.ph, dose_mol_l=dose, ph_end=ph_end,
+                band_mol_l=(near_dose, far_dose), slope_ph_per_mmol_l=float(slope),
+                ph_low_dose=float(ph_lo), ph_high_dose=float(ph_hi),
+                ionic_strength_end=float(end_state.ionic_strength[0]),
+                curve=curve, dose_needed=bool(dose_needed),
+                warnings=tuple(warnings), cautions=cautions)
+
+
+def titration_curve(water: Water, reagent: Reagent, max_dose_mol_l: float,
+                    *, points: int = 301) -> TitrationCurve:
+    """pH and buffer intensity against dose, from 0 to ``max_dose_mol_l``.
+
+    All points are solved at once by the vectorised forward solver.
+    """
+    if not (math.isfinite(max_dose_mol_l) and max_dose_mol_l > 0):
+        raise InputError("max_dose_mol_l", f"{max_dose_mol_l!r}; allowed: above 0")
+    if points < 2:
+        raise InputError("points", "a curve needs at least 2 points")
+    mix = water.mixture()
+    d = np.linspace(0.0, max_dose_mol_l, points)
+    rep = Mixture.build(np.repeat(mix.totals_mol_l, points, 0),
+                        np.repeat(mix.strong_eq_l, points),
+                        np.repeat(mix.strong_ionic_strength, points),
+                        np.repeat(mix.temperature_c, points),
+                        np.repeat(mix.co2_air_mol_l, points), mix.davies)
+    dosed = add_dose(rep, reagent.vector(), d)
+    ph = solve_ph(dosed, ph_guess=np.full(points, water.ph))
+    beta = speciate(dosed, ph).buffer_intensity_eq_l
+    return TitrationCurve(d, ph, beta)

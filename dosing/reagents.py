@@ -1,0 +1,333 @@
+"""Reagents: the products an operator doses, and what one mole of each adds.
+
+A :class:`Reagent` is a product (a drum of 50 % caustic soda, a bag of
+hydrated lime) whose active compound is one of :data:`COMPOUNDS`. The
+compound says what one mole adds to the water (strong-ion equivalents, weak
+acid totals, ions for the discharge check); the product says how much of it
+a kilogram or a litre carries.
+
+Densities at 20 °C
+------------------
+* NaOH 50 %: 1.5253 g/cm³, Perry's Chemical Engineers' Handbook table of
+  aqueous NaOH (from memory).
+* NaOH 25 %: 1.2740 g/cm³, linear interpolation of CRC Handbook
+  "Concentrative properties of aqueous solutions" (24 % 1.2631, 26 %
+  1.2848).
+* H2SO4 98 %: 1.8361 g/cm³, CRC Handbook, same table.
+* H2SO4 93 %: 1.8276 g/cm³, linear interpolation of CRC (92 % 1.8240,
+  94 % 1.8312).
+* HCl 32 %: 1.1594 g/cm³, CRC Handbook, same table.
+
+Solubility of Ca(OH)2: about 1.7 g/L near 20 °C (CRC Handbook, aqueous
+solubility of inorganic compounds; from memory). Purities of the solid
+products are typical commercial grades (common practice) and can be set.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field, replace
+from typing import Mapping
+
+import numpy as np
+
+from .equilibrium import N_SYSTEMS, ReagentVector, system_index
+from .errors import InputError
+from .species import MOLAR_MASS
+
+__all__ = ["Compound", "COMPOUNDS", "Reagent", "CATALOGUE", "REAGENT_IDS", "with_purity",
+           "get_reagent", "custom_reagent", "GENERAL_CAUTION"]
+
+#: Shown with every dose, by every front end.
+GENERAL_CAUTION = ("This plan is an aid to judgement, not an approval: local "
+                   "codes, the discharge permit and a licensed engineer have "
+                   "the final word on any dose.")
+
+
+@dataclass(frozen=True)
+class Compound:
+    """What one mole of an active compound does to a water.
+
+    Attributes
+    ----------
+    formula : str
+        Formula used as the key (``NaOH``).
+    molar_mass_g_mol : float
+        [g/mol].
+    strong_eq : float
+        Strong-ion equivalents added per mole [eq/mol].
+    adds : Mapping[str, float]
+        Moles added to weak-acid totals per mole [mol/mol].
+    ions : Mapping[str, float]
+        Strong ions added per mole, for the discharge check [mol/mol].
+    ionic_strength : float
+        Ionic strength added by those strong ions per mol/L dosed [-].
+    raises_ph : bool
+        True for a base, False for an acid.
+    """
+
+    formula: str
+    molar_mass_g_mol: float
+    strong_eq: float
+    adds: Mapping[str, float]
+    ions: Mapping[str, float]
+    ionic_strength: float
+    raises_ph: bool
+
+    def vector(self, litres_per_mol: float) -> ReagentVector:
+        """The compound as a :class:`ReagentVector` for the solvers."""
+        v = np.zeros(N_SYSTEMS)
+        for key, n in self.adds.items():
+            v[system_index(key)] = n
+        return ReagentVector(v, self.strong_eq, self.ionic_strength, litres_per_mol)
+
+
+def _c(formula, strong_eq, adds, ions, ionic, raises):
+    return Compound(formula, MOLAR_MASS[formula], strong_eq, adds, ions, ionic, raises)
+
+
+#: Active compounds the planner can dose.
+COMPOUNDS: dict[str, Compound] = {c.formula: c for c in (
+    _c("NaOH", 1.0, {}, {"Na": 1.0}, 0.5, True),
+    _c("KOH", 1.0, {}, {"K": 1.0}, 0.5, True),
+    _c("Ca(OH)2", 2.0, {}, {"Ca": 1.0}, 2.0, True),
+    _c("Na2CO3", 2.0, {"carbonate": 1.0}, {"Na": 2.0}, 1.0, True),
+    _c("NaHCO3", 1.0, {"carbonate": 1.0}, {"Na": 1.0}, 0.5, True),
+    _c("H2SO4", 0.0, {"sulfate": 1.0}, {}, 0.0, False),
+    _c("HCl", -1.0, {}, {"Cl": 1.0}, 0.5, False),
+    _c("HNO3", -1.0, {}, {"NO3": 1.0}, 0.5, False),
+    _c("CO2", 0.0, {"carbonate": 1.0}, {}, 0.0, False),
+)}
+
+_CAUSTIC = ("Caustic burns skin and eyes on contact: face shield, "
+            "gloves and apron; eyewash and shower at hand.",
+            "Caustic heats the water where it enters: dose slowly into a "
+            "well-mixed tank, never add water to caustic.")
+_ACID_BURN = ("Strong acid burns skin and eyes on contact: face shield, "
+              "acid gloves and apron; eyewash and shower at hand.",)
+_ACIDIFY = ("Acid releases CO2 from carbonate (foaming), and toxic hydrogen "
+            "sulfide or hydrogen cyanide from sulfide- or cyanide-bearing "
+            "waste: know the waste before you acidify, ventilate.",)
+
+
+@dataclass(frozen=True)
+class Reagent:
+    """A product as delivered.
+
+    Attributes
+    ----------
+    id : str
+        Catalogue id (``caustic-50``) or ``custom``.
+    name : str
+        Plain name for the sheet.
+    compound : Compound
+        The active compound.
+    mass_fraction : float
+        Mass fraction of the active compound in the product (strength of a
+        solution, purity of a solid) [-].
+    density_kg_l : float or None
+        Density of a liquid product at 20 °C [kg/L]; None for a solid or gas.
+    form : str
+        ``liquid``, ``solid`` or ``gas``.
+    density_source : str
+        Where the density comes from.
+    cautions : tuple of str
+        Handling cautions for this product.
+    min_practical_ph, max_practical_ph : float or None
+        pH the product cannot take a water below / above in practice.
+    solubility_g_l : float or None
+        Solubility of the active compound near 20 °C [g/L].
+    molarity_mol_l : float or None
+        For a solution given by molarity: mol of active compound per litre
+        of product [mol/L].
+    """
+
+    id: str
+    name: str
+    compound: Compound
+    mass_fraction: float
+    density_kg_l: float | None
+    form: str
+    density_source: str = ""
+    cautions: tuple[str, ...] = field(default=())
+    min_practical_ph: float | None = None
+    max_practical_ph: float | None = None
+    solubility_g_l: float | None = None
+    molarity_mol_l: float | None = None
+
+    @property
+    def raises_ph(self) -> bool:
+        """True for a base."""
+        return self.compound.raises_ph
+
+    @property
+    def kg_product_per_mol(self) -> float | None:
+        """Mass of product carrying one mole of active compound [kg/mol]."""
+        if self.molarity_mol_l is not None:
+            if self.density_kg_l is None:
+                return None
+            return self.density_kg_l / self.molarity_mol_l
+        return self.compound.molar_mass_g_mol / 1000.0 / self.mass_fraction
+
+    @property
+    def litres_product_per_mol(self) -> float | None:
+        """Volume of product carrying one mole [L/mol]; None if not a liquid."""
+        if self.form != "liquid":
+            return None
+        if self.molarity_mol_l is not None:
+            return 1.0 / self.molarity_mol_l
+        return self.kg_product_per_mol / self.density_kg_l
+
+    def vector(self) -> ReagentVector:
+        """What dosing one mole adds, with the product's own volume."""
+        return self.compound.vector(self.litres_product_per_mol or 0.0)
+
+
+_NAOH = COMPOUNDS["NaOH"]
+_H2SO4 = COMPOUNDS["H2SO4"]
+
+#: Catalogue of stock products.
+CATALOGUE: dict[str, Reagent] = {r.id: r for r in (
+    Reagent("caustic-50", "caustic soda 50 %", _NAOH, 0.50, 1.5253, "liquid",
+            "Perry's Chemical Engineers' Handbook, aqueous NaOH at 20 °C (from memory)",
+            _CAUSTIC + ("50 % caustic starts to crystallise below about 12 °C: "
+                        "keep the line and the store warm.",)),
+    Reagent("caustic-25", "caustic soda 25 %", _NAOH, 0.25, 1.2740, "liquid",
+            "CRC Handbook, concentrative properties of aqueous solutions "
+            "(24 % and 26 % interpolated)", _CAUSTIC),
+    Reagent("lime", "hydrated lime, 93 % Ca(OH)2", COMPOUNDS["Ca(OH)2"], 0.93,
+            None, "solid", "",
+            ("Lime dust burns eyes and airways: goggles and dust mask when "
+             "loading.",
+             "Lime dissolves slowly: feed it as a slurry, mix well and allow "
+             "reaction time before reading the pH."),
+            max_practical_ph=12.4, solubility_g_l=1.7),
+    Reagent("soda-ash", "soda ash, 99 % Na2CO3", COMPOUNDS["Na2CO3"], 0.99, None,
+            "solid", "",
+            ("Soda ash dust irritates eyes and skin.",
+             "On an acid water soda ash fizzes as CO2 escapes: add slowly, "
+             "watch for foaming."), max_practical_ph=11.5),
+    Reagent("bicarbonate", "sodium bicarbonate, 99 %", COMPOUNDS["NaHCO3"], 0.99,
+            None, "solid", "",
+            ("On an acid water bicarbonate fizzes as CO2 escapes: add slowly, "
+             "watch for foaming.",), max_practical_ph=8.3),
+    Reagent("sulfuric-98", "sulfuric acid 98 %", _H2SO4, 0.98, 1.8361, "liquid",
+            "CRC Handbook, concentrative properties of aqueous solutions",
+            _ACID_BURN + ("Concentrated sulfuric acid boils water it meets: "
+                          "always add acid to water, slowly, with mixing; never "
+                          "water to acid.",) + _ACIDIFY),
+    Reagent("sulfuric-93", "sulfuric acid 93 %", _H2SO4, 0.93, 1.8276, "liquid",
+            "CRC Handbook, concentrative properties of aqueous solutions "
+            "(92 % and 94 % interpolated)",
+            _ACID_BURN + ("Concentrated sulfuric acid boils water it meets: "
+                          "always add acid to water, slowly, with mixing; never "
+                          "water to acid.",) + _ACIDIFY),
+    Reagent("hydrochloric-32", "hydrochloric acid 32 %", COMPOUNDS["HCl"], 0.32,
+            1.1594, "liquid",
+            "CRC Handbook, concentrative properties of aqueous solutions",
+            _ACID_BURN + ("Hydrochloric acid gives off corrosive HCl fumes: "
+                          "ventilate the dosing point and store.",) + _ACIDIFY),
+    Reagent("co2", "carbon dioxide gas", COMPOUNDS["CO2"], 1.0, None, "gas", "",
+            ("CO2 displaces air: in a pit, a closed room or a covered tank it "
+             "suffocates without warning; ventilate and use a gas monitor.",
+             "Cylinders and liquid CO2 lines are under high pressure and very "
+             "cold at the outlet."), min_practical_ph=5.0),
+)}
+
+#: Catalogue ids in display order.
+REAGENT_IDS: tuple[str, ...] = tuple(CATALOGUE)
+
+
+def get_reagent(reagent_id: str) -> Reagent:
+    """Catalogue reagent by id.
+
+    Raises
+    ------
+    InputError
+        Unknown id; the message lists the catalogue.
+    """
+    try:
+        return CATALOGUE[reagent_id]
+    except KeyError:
+        raise InputError("reagent.id", f"unknown reagent {reagent_id!r}; the "
+                         "catalogue has " + ", ".join(REAGENT_IDS)
+                         + ", or give a custom reagent") from None
+
+
+def with_purity(reagent: Reagent, purity: float) -> Reagent:
+    """The same solid product at another purity (mass fraction) [-]."""
+    if reagent.form == "liquid":
+        raise InputError("reagent.purity", f"{reagent.id} is a solution; give a "
+                         "custom reagent with its own strength and density instead")
+    if not (0.0 < purity <= 1.0):
+        raise InputError("reagent.purity", f"{purity:g} is not a mass fraction; "
+                         "allowed: above 0 and up to 1")
+    name = reagent.name.split(",")[0] + f", {purity * 100:g} % {reagent.compound.formula}"
+    return replace(reagent, mass_fraction=purity, name=name)
+
+
+def custom_reagent(compound: str, *, mass_fraction: float | None = None,
+                   density_kg_l: float | None = None,
+                   molarity_mol_l: float | None = None,
+                   form: str | None = None, name: str | None = None) -> Reagent:
+    """A product made up by the user.
+
+    Give either a ``mass_fraction`` (with ``density_kg_l`` for a solution,
+    without for a solid) or a ``molarity_mol_l`` (a solution; density
+    optional, needed to report kilograms).
+
+    Parameters
+    ----------
+    compound : str
+        Key of :data:`COMPOUNDS` (``NaOH``, ``KOH``, ``Ca(OH)2``, ``Na2CO3``,
+        ``NaHCO3``, ``H2SO4``, ``HCl``, ``HNO3``, ``CO2``).
+    mass_fraction : float, optional
+        [-], 0 < w <= 1.
+    density_kg_l : float, optional
+        Density of the product [kg/L], 0.5-2.5.
+    molarity_mol_l : float, optional
+        [mol/L], above 0 and up to 30.
+    """
+    if compound not in COMPOUNDS:
+        raise InputError("reagent.compound", f"unknown compound {compound!r}; "
+                         "allowed: " + ", ".join(COMPOUNDS))
+    comp = COMPOUNDS[compound]
+    if (mass_fraction is None) == (molarity_mol_l is None):
+        raise InputError("reagent.mass_fraction", "give exactly one of "
+                         "mass_fraction or molarity_mol_l")
+    if density_kg_l is not None and not (0.5 <= density_kg_l <= 2.5):
+        raise InputError("reagent.density_kg_l", f"{density_kg_l:g} kg/L is not "
+                         "a plausible product density; allowed: 0.5 to 2.5")
+    if molarity_mol_l is not None:
+        if not (0.0 < molarity_mol_l <= 30.0) or not math.isfinite(molarity_mol_l):
+            raise InputError("reagent.molarity_mol_l", f"{molarity_mol_l:g} is out "
+                             "of range; allowed: above 0 and up to 30 mol/L")
+        frac = (molarity_mol_l * comp.molar_mass_g_mol / 1000.0 / density_kg_l
+                if density_kg_l else float("nan"))
+        if density_kg_l and frac > 1.0:
+            raise InputError("reagent.molarity_mol_l", "this molarity and density "
+                             "give more active compound than product mass")
+        form = "liquid"
+        label = f"{compound} {molarity_mol_l:g} mol/L"
+    else:
+        if not (0.0 < mass_fraction <= 1.0) or not math.isfinite(mass_fraction):
+            raise InputError("reagent.mass_fraction", f"{mass_fraction:g} is not a "
+                             "mass fraction; allowed: above 0 and up to 1")
+        frac = mass_fraction
+        if form is None:
+            form = "gas" if compound == "CO2" else ("liquid" if density_kg_l else "solid")
+        if form == "liquid" and density_kg_l is None:
+            raise InputError("reagent.density_kg_l", "a solution needs its density "
+                             "to turn kilograms into litres")
+        label = f"{compound} {mass_fraction * 100:g} %"
+    if form not in ("liquid", "solid", "gas"):
+        raise InputError("reagent.form", f"{form!r}; allowed: liquid, solid, gas")
+    like = {"NaOH": "caustic-25", "KOH": "caustic-25", "Ca(OH)2": "lime",
+            "Na2CO3": "soda-ash", "NaHCO3": "bicarbonate", "H2SO4": "sulfuric-93",
+            "HCl": "hydrochloric-32", "HNO3": "hydrochloric-32", "CO2": "co2"}[compound]
+    model = CATALOGUE[like]
+    return Reagent("custom", name or f"custom {label}", comp, frac,
+                   density_kg_l if form == "liquid" else None, form,
+                   "given by the user" if density_kg_l else "",
+                   model.cautions, model.min_practical_ph, model.max_practical_ph,
+                   model.solubility_g_l, molarity_mol_l)
