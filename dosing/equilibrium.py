@@ -464,11 +464,10 @@ def dose_to_ph(mix: Mixture, reagent: ReagentVector, target_ph,
     const = constants_at(mix.temperature_c)
     n_r = np.asarray(reagent.totals_mol, dtype=float).copy()
     opened = mix.open_to_air
-    dose = np.zeros(mix.n)
-    ionic = mix.strong_ionic_strength.copy()
-    for _ in range(max_iter):
+    ah = 10.0 ** -tp
+
+    def at(ionic):
         kc, g1 = _conditional_k(const, ionic, mix.davies)
-        ah = 10.0 ** -tp
         alpha = _alpha(ah, kc)
         q, m2 = _moments(alpha)
         h = ah / g1
@@ -476,6 +475,7 @@ def dose_to_ph(mix: Mixture, reagent: ReagentVector, target_ph,
         w = h - oh
         tot = mix.totals_mol_l.copy()
         nr = np.broadcast_to(n_r, tot.shape).copy()
+        c_air = None
         if opened.any():
             c_air = mix.co2_air_mol_l[opened] / alpha[opened, CARBONATE, 0]
             w = w.copy()
@@ -485,19 +485,54 @@ def dose_to_ph(mix: Mixture, reagent: ReagentVector, target_ph,
         num = mix.strong_eq_l + (tot * q).sum(-1) + w
         den = reagent.strong_eq + (nr * q).sum(-1) + reagent.volume_l * w
         with np.errstate(divide="ignore", invalid="ignore"):
-            new_dose = -num / den
-        if not mix.davies:
-            return new_dose, den
-        dosed = add_dose(mix, reagent, np.where(np.isfinite(new_dose), new_dose, 0.0))
+            dose = -num / den
+        # A negative dose cannot be given; its ionic strength is that of no dose.
+        given = np.where(np.isfinite(dose), np.maximum(dose, 0.0), 0.0)
+        dosed = add_dose(mix, reagent, given)
         tot_after = dosed.totals_mol_l.copy()
-        if opened.any():
+        if c_air is not None:
             tot_after[opened, CARBONATE] = c_air
-        new_i = (0.5 * (h + oh + (tot_after * m2).sum(-1))
-                 + dosed.strong_ionic_strength)
-        done = np.all(~np.isfinite(new_dose) | (np.abs(new_dose - dose)
-                      <= 1e-16 + 1e-11 * np.abs(new_dose)))
-        dose = new_dose
-        if done and np.all(np.abs(new_i - ionic) <= 1e-12 + 1e-10 * new_i):
-            return dose, den
-        ionic = new_i
-    raise ModelError("ionic strength did not settle while solving the dose")
+        new_i = 0.5 * (h + oh + (tot_after * m2).sum(-1)) + dosed.strong_ionic_strength
+        return dose, den, new_i
+
+    ionic = mix.strong_ionic_strength.copy()
+    dose, den, new_i = at(ionic)
+    if not mix.davies:
+        return dose, den
+    ionic = _settle(lambda i: at(i)[2], ionic, new_i, max_iter)
+    dose, den, _ = at(np.where(np.isfinite(ionic), ionic, 0.0))
+    # Waters whose ionic strength does not settle (a dose without bound,
+    # where the reagent has no grip) get no number.
+    return np.where(np.isfinite(ionic), dose, np.nan), den
+
+
+#: Ionic strength above which a fixed point is abandoned [mol/L].
+_I_CEILING = 20.0
+
+
+def _settle(fn, x0, x1, max_iter):
+    """Fixed point x = fn(x) for every element, with secant acceleration.
+
+    Each step takes the secant root of g(x) = fn(x) - x through the last two
+    points when it is positive and finite, else the plain fixed-point step.
+    Elements that do not settle within ``max_iter`` steps or pass
+    :data:`_I_CEILING` come back as NaN.
+    """
+    x_prev, g_prev = x0, x1 - x0
+    x = x1
+    out = np.full_like(x0, np.nan)
+    live = np.ones(x0.shape, dtype=bool)
+    for _ in range(max_iter):
+        fx = fn(x)
+        g = fx - x
+        done = live & (np.abs(g) <= 1e-13 + 1e-10 * np.abs(fx))
+        out[done] = fx[done]
+        live &= ~done & np.isfinite(fx) & (fx < _I_CEILING)
+        if not live.any():
+            return out
+        with np.errstate(divide="ignore", invalid="ignore"):
+            sec = x - g * (x - x_prev) / (g - g_prev)
+        step = np.where(np.isfinite(sec) & (sec >= 0.0), sec, fx)
+        x_prev, g_prev = x, g
+        x = np.where(live, step, x)
+    return out
