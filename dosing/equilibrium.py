@@ -352,9 +352,10 @@ def carbonate_for_alkalinity(totals_mol_l, ph, temperature_c, alk_eq_l,
 
     A = sum_j T_j (z̄_j(pH_e) - z̄_j(pH)) + w(pH_e) - w(pH),  w = [H+] - [OH-]
 
-    which is linear in the carbonate total. The sample's ionic strength is
-    used at the end point too, and dilution by the titrant is neglected, as
-    in the method's own calculation.
+    which is linear in the carbonate total. The ionic strength at the end
+    point includes the titrant's ions (a monovalent strong acid or base);
+    dilution by the titrant is neglected, as in the method's own
+    calculation.
 
     Returns
     -------
@@ -370,19 +371,20 @@ def carbonate_for_alkalinity(totals_mol_l, ph, temperature_c, alk_eq_l,
     t = np.broadcast_to(np.asarray(temperature_c, dtype=float), ph.shape)
     const = constants_at(t)
     alk = np.broadcast_to(np.asarray(alk_eq_l, dtype=float), ph.shape)
-    ionic = np.broadcast_to(np.asarray(extra_ionic_strength, float), ph.shape).copy()
+    extra = np.broadcast_to(np.asarray(extra_ionic_strength, float), ph.shape)
+    ionic = extra.copy()       # sample
+    ionic_e = extra.copy()     # sample at the end point, titrant included
     c = np.zeros_like(ph)
-    s = np.zeros_like(ph)
     ep = np.broadcast_to(np.asarray(endpoint_ph, float), ph.shape)
     for _ in range(max_iter):
-        kc, g1 = _conditional_k(const, ionic, davies)
         res = []
-        for p in (ph, ep):
+        for p, i in ((ph, ionic), (ep, ionic_e)):
+            kc, g1 = _conditional_k(const, i, davies)
             ah = 10.0 ** -p
             q, m2 = _moments(_alpha(ah, kc))
-            w = ah / g1 - const.kw / (ah * g1)
-            res.append((q, m2, w, ah / g1, const.kw / (ah * g1)))
-        (q, m2, w, h, oh), (qe, _, we, _, _) = res
+            h, oh = ah / g1, const.kw / (ah * g1)
+            res.append((q, m2, h - oh, h, oh))
+        (q, m2, w, h, oh), (qe, m2e, we, he, ohe) = res
         known = (tot * (qe - q)).sum(-1) + we - w
         coef = qe[:, CARBONATE] - q[:, CARBONATE]
         with np.errstate(divide="ignore", invalid="ignore"):
@@ -390,13 +392,17 @@ def carbonate_for_alkalinity(totals_mol_l, ph, temperature_c, alk_eq_l,
         full = tot.copy()
         full[:, CARBONATE] = c_new
         s = -(h - oh + (full * q).sum(-1))
-        new_i = (0.5 * (h + oh + (full * m2).sum(-1)) + 0.5 * np.abs(s)
-                 + np.asarray(extra_ionic_strength, float))
-        done = np.all(np.abs(c_new - c) <= 1e-16 + 1e-11 * np.abs(c_new))
+        # Strong ions as monovalent; the titrant (HCl or NaOH) adds |A|/2.
+        new_i = 0.5 * (h + oh + (full * m2).sum(-1)) + 0.5 * np.abs(s) + extra
+        new_ie = (0.5 * (he + ohe + (full * m2e).sum(-1)) + 0.5 * np.abs(s)
+                  + 0.5 * np.abs(alk) + extra)
+        settled = (np.all(np.abs(c_new - c) <= 1e-16 + 1e-11 * np.abs(c_new))
+                   and np.all(np.abs(new_i - ionic) <= 1e-12 + 1e-10 * new_i)
+                   and np.all(np.abs(new_ie - ionic_e) <= 1e-12 + 1e-10 * new_ie))
         c = c_new
-        if not davies or (done and np.all(np.abs(new_i - ionic) <= 1e-12 + 1e-10 * new_i)):
+        if not davies or settled:
             break
-        ionic = new_i
+        ionic, ionic_e = new_i, new_ie
     return c, coef, ionic
 
 
