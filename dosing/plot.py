@@ -1,0 +1,81 @@
+"""Figures: the titration curve of a plan, as a PNG.
+
+Uses matplotlib's non-interactive Agg backend; builds the figure in memory
+and hands back bytes, so the caller decides where they are written.
+"""
+
+from __future__ import annotations
+
+import io
+
+import matplotlib
+
+matplotlib.use("Agg")
+import matplotlib.pyplot as plt  # noqa: E402
+import numpy as np  # noqa: E402
+
+from .plan import Batch, Plan  # noqa: E402
+from .sheet import UNIT_SYSTEMS, fmt  # noqa: E402
+
+__all__ = ["plan_figure_png"]
+
+
+def plan_figure_png(plan: Plan, title: str = "", units: str = "metric") -> bytes:
+    """PNG bytes of pH against dose of product, with the window and the plan.
+
+    The x axis is product per batch (or per hour for a flow) in the unit
+    system's mass unit; the buffer intensity of the dosed water is on a
+    second axis.
+    """
+    u = UNIT_SYSTEMS[units]
+    per = "per batch" if isinstance(plan.basis, Batch) else "per hour"
+    kg_per_mol = plan.reagent.kg_product_per_mol
+    if kg_per_mol is not None:
+        scale = plan.basis.litres * kg_per_mol * u.mass_per_kg
+        unit = u.mass
+        xlabel = f"{plan.reagent.name}, {u.mass} {per}"
+    else:
+        scale = plan.basis.litres * plan.reagent.litres_product_per_mol * u.product_volume_per_l
+        unit = u.product_volume
+        xlabel = f"{plan.reagent.name}, {u.product_volume} {per}"
+    c = plan.curve
+    x = c.dose_mol_l * scale
+    fig, ax = plt.subplots(figsize=(8.0, 5.6), dpi=110)
+    ax.axhspan(plan.target.ph_min, plan.target.ph_max, color="tab:green", alpha=0.13,
+               label=f"permit window pH {plan.target.ph_min:g}–{plan.target.ph_max:g}")
+    lo, hi = plan.band_mol_l
+    ax.axvspan(lo * scale, (hi if hi is not None else c.dose_mol_l[-1]) * scale,
+               color="tab:green", alpha=0.10, hatch="//", lw=0,
+               label="doses that keep pH in the window")
+    ax.plot(x, c.ph, color="tab:blue", lw=2.0, label="pH after dose (model)")
+    ax.axhline(plan.target.ph_aim, color="tab:green", ls="--", lw=1.0,
+               label=f"aim pH {plan.target.ph_aim:g}")
+    d = plan.dose_mol_l * scale
+    ax.plot([d], [plan.ph_end], "o", color="tab:red", ms=8, zorder=5,
+            label=f"planned dose {fmt(d)} {unit} → pH {plan.ph_end:.2f}")
+    ax.axvline(d, color="tab:red", lw=0.8, ls=":")
+    ax.set_xlabel(xlabel)
+    ax.set_ylabel("pH")
+    ax.set_xlim(0, x[-1])
+    lo_ph = min(np.min(c.ph), plan.target.ph_min) - 0.5
+    hi_ph = max(np.max(c.ph), plan.target.ph_max) + 0.5
+    ax.set_ylim(max(0.0, lo_ph), min(14.0, hi_ph))
+    ax.grid(True, alpha=0.3)
+    ax2 = ax.twinx()
+    ax2.plot(x, c.buffer_intensity_eq_l * 1000, color="tab:orange", lw=1.2, alpha=0.8,
+             label="buffer intensity β")
+    ax2.set_ylabel("buffer intensity β, mmol/L per pH", color="tab:orange")
+    ax2.tick_params(axis="y", colors="tab:orange")
+    ax2.set_ylim(bottom=0)
+    h1, l1 = ax.get_legend_handles_labels()
+    h2, l2 = ax2.get_legend_handles_labels()
+    ax.legend(h1 + h2, l1 + l2, loc="upper center", bbox_to_anchor=(0.5, -0.13),
+              ncol=3, fontsize=8, frameon=False)
+    ax.set_title(title or "Titration curve", fontsize=11)
+    fig.text(0.01, 0.01, "Model estimate. Local codes, the discharge permit and a licensed "
+             "engineer have the final word.", fontsize=7, color="0.35")
+    fig.tight_layout(rect=(0, 0.03, 1, 1))
+    buf = io.BytesIO()
+    fig.savefig(buf, format="png")
+    plt.close(fig)
+    return buf.getvalue()

@@ -1,0 +1,307 @@
+"""Scenario files: TOML in, a validated :class:`Scenario` out (and back).
+
+A scenario holds what an operator knows about one dosing job: the effluent
+as measured, the batch volume or the flow, the pH window, the reagent, the
+model switches and, optionally, prices, storage and permit caps. The format
+is documented in the README. Parsing uses the standard library's
+``tomllib``; every key is checked, and every problem is one
+:class:`~dosing.errors.ScenarioError` naming the file, the key and what is
+allowed.
+
+This module reads no file itself except in :func:`load_scenario`, which is
+the one place the front ends call; :func:`parse_scenario` takes text and is
+pure.
+"""
+
+from __future__ import annotations
+
+import math
+import tomllib
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any, Mapping
+
+from .effluent import Water, infer_water
+from .errors import InputError, ScenarioError
+from .plan import Batch, Flow, Target
+from .reagents import Reagent, custom_reagent, get_reagent, with_purity
+from .species import SYSTEM_IDS
+
+__all__ = ["Scenario", "PERMIT_KEYS", "parse_scenario", "load_scenario",
+           "scenario_to_toml", "build_scenario"]
+
+#: Keys of the optional [permit] table: caps on the discharge [mg/L].
+PERMIT_KEYS = ("sodium_mg_l", "calcium_mg_l", "sulfate_mg_l", "chloride_mg_l",
+               "tds_increase_mg_l")
+
+_SCHEMA: dict[str, dict[str, tuple]] = {
+    # section: key -> (types, required)
+    "effluent": {
+        "ph": ((int, float), True),
+        "temperature_c": ((int, float), False),
+        "alkalinity_mg_l_as_caco3": ((int, float), False),
+        "acidity_mg_l_as_caco3": ((int, float), False),
+        "alkalinity_endpoint_ph": ((int, float), False),
+        "acidity_endpoint_ph": ((int, float), False),
+        "solutes_mmol_l": ((dict,), False),
+        "solutes_mg_l": ((dict,), False),
+        "extra_ionic_strength_mol_l": ((int, float), False),
+    },
+    "batch": {"volume_m3": ((int, float), True)},
+    "flow": {"m3_per_h": ((int, float), True),
+             "hours_per_day": ((int, float), False)},
+    "target": {"ph_min": ((int, float), True), "ph_max": ((int, float), True),
+               "ph_aim": ((int, float), False)},
+    "reagent": {
+        "id": ((str,), False),
+        "compound": ((str,), False),
+        "mass_fraction": ((int, float), False),
+        "density_kg_l": ((int, float), False),
+        "molarity_mol_l": ((int, float), False),
+        "form": ((str,), False),
+        "name": ((str,), False),
+        "purity": ((int, float), False),
+        "price_per_kg": ((int, float), False),
+        "storage_m3": ((int, float), False),
+        "storage_kg": ((int, float), False),
+    },
+    "model": {"activity": ((str,), False), "open_to_air": ((bool,), False),
+              "pco2_uatm": ((int, float), False)},
+    "permit": {k: ((int, float), False) for k in PERMIT_KEYS},
+}
+_TOP = {"title": (str,), "site": (str,), "tank": (str,)}
+_SECTIONS_REQUIRED = ("effluent", "target", "reagent")
+
+
+@dataclass(frozen=True)
+class Scenario:
+    """A validated scenario.
+
+    Attributes
+    ----------
+    title, site, tank : str
+        Labels for the sheet and the shift log.
+    water : Water
+        The effluent inferred from the measurements.
+    basis : Batch or Flow
+        The amount of water.
+    target : Target
+        The window and aim.
+    reagent : Reagent
+        The product.
+    price_per_kg : float or None
+        Product price per kg, any currency.
+    storage_m3, storage_kg : float or None
+        Reagent storage available, for days of supply.
+    hours_per_day : float
+        Hours a flow runs each day [h].
+    permit : Mapping[str, float]
+        Caps from the [permit] table [mg/L].
+    data : Mapping
+        The scenario as plain data (what :func:`scenario_to_toml` writes).
+    """
+
+    title: str
+    site: str
+    tank: str
+    water: Water
+    basis: Batch | Flow
+    target: Target
+    reagent: Reagent
+    price_per_kg: float | None
+    storage_m3: float | None
+    storage_kg: float | None
+    hours_per_day: float
+    permit: Mapping[str, float] = field(default_factory=dict)
+    data: Mapping[str, Any] = field(default_factory=dict)
+
+
+def _is_number(v) -> bool:
+    return isinstance(v, (int, float)) and not isinstance(v, bool)
+
+
+def _check_types(path: str, data: Mapping[str, Any]) -> None:
+    for key, value in data.items():
+        if key in _TOP:
+            if not isinstance(value, _TOP[key]):
+                raise ScenarioError(path, key, "expected text in quotes")
+            continue
+        if key not in _SCHEMA:
+            allowed = ", ".join(list(_TOP) + [f"[{s}]" for s in _SCHEMA])
+            raise ScenarioError(path, key, f"unknown key; allowed at the top: {allowed}")
+        if not isinstance(value, dict):
+            raise ScenarioError(path, key, f"expected a table [{key}]")
+        schema = _SCHEMA[key]
+        for sub, v in value.items():
+            where = f"{key}.{sub}"
+            if sub not in schema:
+                raise ScenarioError(path, where, "unknown key; allowed in "
+                                    f"[{key}]: " + ", ".join(schema))
+            types, _ = schema[sub]
+            if (bool not in types and isinstance(v, bool)) or not isinstance(v, types):
+                want = {(int, float): "a number", (str,): "text in quotes",
+                        (bool,): "true or false", (dict,): "a table"}[types]
+                raise ScenarioError(path, where, f"expected {want}, got {v!r}")
+            if _is_number(v) and not math.isfinite(v):
+                raise ScenarioError(path, where, f"expected a finite number, got {v!r}")
+        for sub, (_, required) in schema.items():
+            if required and sub not in value:
+                raise ScenarioError(path, f"{key}.{sub}", "missing; this key is required")
+    for section in _SECTIONS_REQUIRED:
+        if section not in data:
+            raise ScenarioError(path, f"[{section}]", "missing; a scenario needs "
+                                "[effluent], [target], [reagent] and one of "
+                                "[batch] or [flow]")
+    if ("batch" in data) == ("flow" in data):
+        raise ScenarioError(path, "[batch]/[flow]", "give exactly one of [batch] "
+                            "(a tank volume) or [flow] (a continuous stream)")
+    for table in ("solutes_mmol_l", "solutes_mg_l"):
+        for sid, v in data["effluent"].get(table, {}).items():
+            where = f"effluent.{table}.{sid}"
+            if sid not in SYSTEM_IDS:
+                raise ScenarioError(path, where, "unknown solute; allowed: "
+                                    + ", ".join(SYSTEM_IDS))
+            if not _is_number(v) or not math.isfinite(v):
+                raise ScenarioError(path, where, f"expected a number, got {v!r}")
+
+
+def _where(field_name: str) -> str:
+    """Map an engine field name to the scenario key it came from."""
+    head = field_name.split(".")[0]
+    if head in _SCHEMA:
+        return field_name
+    if head in ("activity", "pco2_uatm", "open_to_air"):
+        return f"model.{field_name}"
+    return f"effluent.{field_name}"
+
+
+def _reagent(r: Mapping[str, Any]) -> Reagent:
+    if "id" in r:
+        extra = set(r) & {"compound", "mass_fraction", "density_kg_l", "molarity_mol_l",
+                          "form"}
+        if extra:
+            raise InputError(f"reagent.{sorted(extra)[0]}", "give either a catalogue "
+                             "id or a custom reagent (compound and strength), not both")
+        reagent = get_reagent(r["id"])
+        if "purity" in r:
+            reagent = with_purity(reagent, r["purity"])
+        return reagent
+    if "compound" not in r:
+        raise InputError("reagent.id", "give a catalogue id, or a custom reagent "
+                         "with compound and mass_fraction or molarity_mol_l")
+    if "purity" in r:
+        raise InputError("reagent.purity", "for a custom reagent give mass_fraction")
+    return custom_reagent(r["compound"], mass_fraction=r.get("mass_fraction"),
+                          density_kg_l=r.get("density_kg_l"),
+                          molarity_mol_l=r.get("molarity_mol_l"),
+                          form=r.get("form"), name=r.get("name"))
+
+
+def build_scenario(data: Mapping[str, Any], path: str = "<scenario>") -> Scenario:
+    """Validate plain scenario data (as parsed from TOML) into a Scenario.
+
+    Raises
+    ------
+    ScenarioError
+        Naming ``path``, the key and what is allowed.
+    """
+    _check_types(path, data)
+    eff = data["effluent"]
+    model = data.get("model", {})
+    r = data["reagent"]
+    try:
+        water = infer_water(
+            eff["ph"], eff.get("temperature_c", 25.0),
+            alkalinity_mg_l_as_caco3=eff.get("alkalinity_mg_l_as_caco3"),
+            acidity_mg_l_as_caco3=eff.get("acidity_mg_l_as_caco3"),
+            solutes_mmol_l=eff.get("solutes_mmol_l"),
+            solutes_mg_l=eff.get("solutes_mg_l"),
+            activity=model.get("activity", "davies"),
+            open_to_air=model.get("open_to_air", False),
+            pco2_uatm=model.get("pco2_uatm", 420.0),
+            alkalinity_endpoint_ph=eff.get("alkalinity_endpoint_ph", 4.5),
+            acidity_endpoint_ph=eff.get("acidity_endpoint_ph", 8.3),
+            extra_ionic_strength_mol_l=eff.get("extra_ionic_strength_mol_l", 0.0))
+        t = data["target"]
+        target = Target(float(t["ph_min"]), float(t["ph_max"]),
+                        None if "ph_aim" not in t else float(t["ph_aim"]))
+        basis = (Batch(float(data["batch"]["volume_m3"])) if "batch" in data
+                 else Flow(float(data["flow"]["m3_per_h"])))
+        reagent = _reagent(r)
+        for key in ("price_per_kg", "storage_m3", "storage_kg"):
+            if key in r and not r[key] > 0:
+                raise InputError(f"reagent.{key}", f"{r[key]:g}; allowed: above 0")
+        if "storage_m3" in r and reagent.form != "liquid":
+            raise InputError("reagent.storage_m3", "storage by volume is for a "
+                             "solution; give storage_kg for a solid or a gas")
+        if "storage_m3" in r and "storage_kg" in r:
+            raise InputError("reagent.storage_kg", "give storage_m3 or storage_kg, "
+                             "not both")
+        hours = data.get("flow", {}).get("hours_per_day", 24.0)
+        if not 0 < hours <= 24:
+            raise InputError("flow.hours_per_day", f"{hours:g}; allowed: above 0 "
+                             "and up to 24")
+        permit = dict(data.get("permit", {}))
+        for key, cap in permit.items():
+            if not cap > 0:
+                raise InputError(f"permit.{key}", f"{cap:g}; allowed: above 0 mg/L")
+    except InputError as err:
+        raise ScenarioError(path, _where(err.field), err.reason) from None
+    return Scenario(title=data.get("title", Path(path).stem),
+                    site=data.get("site", ""), tank=data.get("tank", ""),
+                    water=water, basis=basis, target=target, reagent=reagent,
+                    price_per_kg=r.get("price_per_kg"), storage_m3=r.get("storage_m3"),
+                    storage_kg=r.get("storage_kg"), hours_per_day=float(hours),
+                    permit=permit, data=data)
+
+
+def parse_scenario(text: str, path: str = "<scenario>") -> Scenario:
+    """Parse TOML text into a :class:`Scenario`."""
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as err:
+        raise ScenarioError(path, "", f"not valid TOML ({err})") from None
+    return build_scenario(data, path)
+
+
+def load_scenario(path: str | Path) -> Scenario:
+    """Read and validate a scenario file."""
+    p = Path(path)
+    try:
+        text = p.read_text(encoding="utf-8")
+    except FileNotFoundError:
+        raise ScenarioError(str(path), "", "no such file") from None
+    except IsADirectoryError:
+        raise ScenarioError(str(path), "", "is a folder, not a scenario file") from None
+    except UnicodeDecodeError:
+        raise ScenarioError(str(path), "", "not a UTF-8 text file") from None
+    except OSError as err:
+        raise ScenarioError(str(path), "", f"cannot be read ({err.strerror})") from None
+    return parse_scenario(text, str(path))
+
+
+def _toml_value(v) -> str:
+    if isinstance(v, bool):
+        return "true" if v else "false"
+    if isinstance(v, (int, float)):
+        return repr(v)
+    if isinstance(v, str):
+        return '"' + v.replace("\\", "\\\\").replace('"', '\\"') + '"'
+    if isinstance(v, dict):
+        return "{ " + ", ".join(f"{k} = {_toml_value(x)}" for k, x in v.items()) + " }"
+    raise TypeError(f"cannot write {type(v).__name__} to a scenario")
+
+
+def scenario_to_toml(data: Mapping[str, Any]) -> str:
+    """Write plain scenario data back as TOML that :func:`parse_scenario` reads."""
+    lines = []
+    for key in _TOP:
+        if key in data:
+            lines.append(f"{key} = {_toml_value(data[key])}")
+    for section in _SCHEMA:
+        if section in data:
+            lines.append("")
+            lines.append(f"[{section}]")
+            for key, value in data[section].items():
+                lines.append(f"{key} = {_toml_value(value)}")
+    return "\n".join(lines) + "\n"

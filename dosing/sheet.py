@@ -1,0 +1,290 @@
+"""The one place that turns a plan into what people read: text and JSON.
+
+The command line, the terminal workbench and the shift log all call these
+functions, so a dose reads the same everywhere, with the same cautions.
+
+* :func:`make_plan` - plan a :class:`~dosing.scenario.Scenario`.
+* :func:`sheet_dict` - the plan as JSON-ready data with stable keys (SI).
+* :func:`render_sheet` - the operator's dose sheet as text, in metric or US
+  customary units.
+* :class:`Units` and :data:`UNIT_SYSTEMS` - conversions, in one place.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Any
+
+from . import __version__
+from .effluent import CACO3_MG_PER_MEQ
+from .plan import Batch, Flow, Plan, plan_dose
+from .scenario import Scenario
+
+__all__ = ["Units", "UNIT_SYSTEMS", "make_plan", "sheet_dict", "render_sheet",
+           "fmt", "dose_lines", "caution_lines"]
+
+L_PER_US_GAL = 3.785411784     # exact by definition (NIST SP 811)
+KG_PER_LB = 0.45359237         # exact by definition (NIST SP 811)
+
+
+@dataclass(frozen=True)
+class Units:
+    """A unit system for the sheet."""
+
+    name: str
+    mass: str
+    mass_per_kg: float
+    product_volume: str
+    product_volume_per_l: float
+    water_volume: str
+    water_volume_per_m3: float
+    flow: str
+    flow_per_m3_h: float
+
+
+UNIT_SYSTEMS = {
+    "metric": Units("metric", "kg", 1.0, "L", 1.0, "m³", 1.0, "m³/h", 1.0),
+    "us": Units("us", "lb", 1.0 / KG_PER_LB, "gal", 1.0 / L_PER_US_GAL,
+                "gal", 1000.0 / L_PER_US_GAL, "gpm", 1000.0 / L_PER_US_GAL / 60.0),
+}
+
+
+def fmt(x: float | None, digits: int = 3) -> str:
+    """A number to ``digits`` significant figures, with thousands separators."""
+    if x is None or (isinstance(x, float) and math.isnan(x)):
+        return "n/a"
+    if x == 0:
+        return "0"
+    mag = math.floor(math.log10(abs(x)))
+    decimals = max(0, digits - 1 - mag)
+    return f"{x:,.{decimals}f}"
+
+
+def make_plan(scenario: Scenario) -> Plan:
+    """Plan the dose a scenario asks for."""
+    return plan_dose(scenario.water, scenario.reagent, scenario.target, scenario.basis)
+
+
+def _per(plan: Plan) -> str:
+    return "per batch" if isinstance(plan.basis, Batch) else "per hour"
+
+
+def _daily(scenario: Scenario, plan: Plan) -> dict[str, float | None]:
+    """Daily use and days of supply, for a flow."""
+    a = plan.amounts()
+    out: dict[str, float | None] = {"kg_product_per_day": None, "days_of_supply": None,
+                                    "batches_of_supply": None}
+    if isinstance(plan.basis, Flow):
+        if a.kg_product is not None:
+            out["kg_product_per_day"] = a.kg_product * scenario.hours_per_day
+    store_l = scenario.storage_m3 * 1000 if scenario.storage_m3 else None
+    store_kg = scenario.storage_kg
+    use_l, use_kg = a.litres_product, a.kg_product
+    supply = None
+    if store_l is not None and use_l:
+        supply = store_l / use_l
+    elif store_kg is not None and use_kg:
+        supply = store_kg / use_kg
+    if supply is not None:
+        if isinstance(plan.basis, Flow):
+            out["days_of_supply"] = supply / scenario.hours_per_day
+        else:
+            out["batches_of_supply"] = supply
+    return out
+
+
+def sheet_dict(scenario: Scenario, plan: Plan) -> dict[str, Any]:
+    """The plan as plain data with stable keys (SI units, JSON-ready)."""
+    a = plan.amounts()
+    lo, hi = plan.band_mol_l
+    a_lo = plan.amounts(lo)
+    a_hi = plan.amounts(hi) if hi is not None else None
+    flow = isinstance(plan.basis, Flow)
+    sfx = "_per_h" if flow else ""
+    dose = {
+        "mmol_per_l": a.mmol_per_l,
+        "mg_per_l_product": a.mg_per_l_product,
+        "kg_active" + sfx: a.kg_active,
+        "kg_product" + sfx: a.kg_product,
+        "litres_product" + sfx: a.litres_product,
+    }
+    if flow:
+        dose["ml_product_per_min"] = (None if a.litres_product is None
+                                      else a.litres_product * 1000 / 60)
+    supply = _daily(scenario, plan)
+    dose.update({k: v for k, v in supply.items() if v is not None})
+    cost = None
+    if scenario.price_per_kg is not None and a.kg_product is not None:
+        cost = a.kg_product * scenario.price_per_kg
+    w = plan.water
+    return {
+        "title": scenario.title,
+        "site": scenario.site,
+        "tank": scenario.tank,
+        "engine_version": __version__,
+        "basis": ({"flow_m3_per_h": plan.basis.m3_per_h, "hours_per_day": scenario.hours_per_day}
+                  if flow else {"batch_volume_m3": plan.basis.volume_m3}),
+        "reagent": plan.reagent.id,
+        "reagent_name": plan.reagent.name,
+        "active_compound": plan.reagent.compound.formula,
+        "ph_start": plan.ph_start,
+        "ph_end": plan.ph_end,
+        "dose_needed": plan.dose_needed,
+        "target": {"ph_min": plan.target.ph_min, "ph_max": plan.target.ph_max,
+                   "ph_aim": plan.target.ph_aim},
+        "dose": dose,
+        "window": {
+            "dose_mmol_per_l": [a_lo.mmol_per_l, None if a_hi is None else a_hi.mmol_per_l],
+            "dose_kg_product": [a_lo.kg_product, None if a_hi is None else a_hi.kg_product],
+            "dose_litres_product": [a_lo.litres_product,
+                                    None if a_hi is None else a_hi.litres_product],
+            "per": "hour" if flow else "batch",
+        },
+        "sensitivity": {
+            "ph_per_mmol_l": plan.slope_ph_per_mmol_l,
+            "metering_error": 0.05,
+            "ph_at_low_dose": plan.ph_low_dose,
+            "ph_at_high_dose": plan.ph_high_dose,
+        },
+        "cost" + sfx: cost,
+        "water": {
+            "temperature_c": w.temperature_c,
+            "activity_model": "davies" if w.davies else "ideal",
+            "open_to_air": w.open_to_air,
+            "totals_mmol_l": {k: v * 1000 for k, v in w.totals_mol_l.items()},
+            "strong_ion_balance_meq_l": w.strong_eq_l * 1000,
+            "ionic_strength_mol_l": w.ionic_strength,
+            "alkalinity_mg_l_as_caco3": w.alkalinity_eq_l * CACO3_MG_PER_MEQ * 1000.0,
+            "ionic_strength_after_mol_l": plan.ionic_strength_end,
+        },
+        "warnings": list(plan.warnings),
+        "cautions": list(plan.cautions),
+    }
+
+
+def dose_lines(scenario: Scenario, plan: Plan, units: str = "metric") -> list[tuple[str, str]]:
+    """The dose as (label, value) rows in the chosen units.
+
+    Shared by the text sheet and the terminal workbench.
+    """
+    u = UNIT_SYSTEMS[units]
+    a = plan.amounts()
+    per = _per(plan)
+    flow = isinstance(plan.basis, Flow)
+    rows: list[tuple[str, str]] = []
+
+    def product(am, digits: int = 3) -> str:
+        parts = []
+        if am.kg_product is not None:
+            parts.append(f"{fmt(am.kg_product * u.mass_per_kg, digits)} {u.mass}")
+        if am.litres_product is not None:
+            parts.append(f"{fmt(am.litres_product * u.product_volume_per_l, digits)} "
+                         f"{u.product_volume}")
+        return " = ".join(parts) if parts else "n/a"
+
+    rows.append((f"product {per}", product(a)))
+    rows.append(("active compound",
+                 f"{fmt(a.kg_active * u.mass_per_kg)} {u.mass} {plan.reagent.compound.formula}"
+                 f" ({fmt(a.mmol_per_l)} mmol/L"
+                 + (f", {fmt(a.mg_per_l_product)} mg/L of product)" if a.mg_per_l_product
+                    is not None else ")")))
+    if flow and a.litres_product is not None:
+        rows.append(("metering pump", f"{fmt(a.litres_product * u.product_volume_per_l)} "
+                     f"{u.product_volume}/h = {fmt(a.litres_product * 1000 / 60)} mL/min"))
+    supply = _daily(scenario, plan)
+    if supply["kg_product_per_day"] is not None:
+        rows.append(("daily use", f"{fmt(supply['kg_product_per_day'] * u.mass_per_kg)} "
+                     f"{u.mass}/day over {fmt(scenario.hours_per_day)} h"))
+    if supply["days_of_supply"] is not None:
+        rows.append(("storage lasts", f"{fmt(supply['days_of_supply'])} days"))
+    if supply["batches_of_supply"] is not None:
+        rows.append(("storage lasts", f"{fmt(supply['batches_of_supply'])} batches"))
+    lo, hi = plan.band_mol_l
+    # A narrow band gets the digits it needs for its two ends to differ.
+    digits = 3
+    while hi is not None and digits < 6 and (
+            product(plan.amounts(lo), digits) == product(plan.amounts(hi), digits)):
+        digits += 1
+    hi_txt = "no upper limit" if hi is None else product(plan.amounts(hi), digits)
+    rows.append(("window band", f"{product(plan.amounts(lo), digits)} to {hi_txt} "
+                 f"keeps pH {plan.target.ph_min:g} to {plan.target.ph_max:g}"))
+    rows.append(("pH", f"{plan.ph_start:.2f} now, {plan.ph_end:.2f} after the dose "
+                 f"(aim {plan.target.ph_aim:g})"))
+    if plan.dose_needed:
+        rows.append(("sensitivity", f"pH moves {fmt(abs(plan.slope_ph_per_mmol_l))} per "
+                     f"mmol/L of {plan.reagent.compound.formula} at the aim; a 5 % dosing "
+                     f"error gives pH {min(plan.ph_low_dose, plan.ph_high_dose):.2f} to "
+                     f"{max(plan.ph_low_dose, plan.ph_high_dose):.2f}"))
+    if scenario.price_per_kg is not None and a.kg_product is not None:
+        cost = a.kg_product * scenario.price_per_kg
+        rows.append(("cost", f"{fmt(cost)} {per}"
+                     + (f", {fmt(cost * scenario.hours_per_day)} per day" if flow else "")))
+    return rows
+
+
+def caution_lines(plan: Plan) -> list[str]:
+    """Warnings then cautions, as the sheet prints them."""
+    return [f"! {w}" for w in plan.warnings] + [f"- {c}" for c in plan.cautions]
+
+
+def _wrap(text: str, width: int, indent: str) -> list[str]:
+    import textwrap
+    return textwrap.wrap(text, width=width, initial_indent=indent,
+                         subsequent_indent=" " * len(indent))
+
+
+def render_sheet(scenario: Scenario, plan: Plan, units: str = "metric",
+                 width: int = 78) -> str:
+    """The operator's dose sheet as plain text."""
+    u = UNIT_SYSTEMS[units]
+    w = plan.water
+    out: list[str] = []
+    head = f"DOSE SHEET  {scenario.title}"
+    out.append(head)
+    if scenario.site or scenario.tank:
+        out.append("  " + " / ".join(x for x in (scenario.site, scenario.tank) if x))
+    out.append("=" * min(width, max(len(head), 40)))
+    if isinstance(plan.basis, Batch):
+        amount = f"batch of {fmt(plan.basis.volume_m3 * u.water_volume_per_m3)} {u.water_volume}"
+    else:
+        amount = f"flow of {fmt(plan.basis.m3_per_h * u.flow_per_m3_h)} {u.flow}"
+    eff = scenario.data.get("effluent", {})
+    measured = [f"pH {w.ph:g} at {w.temperature_c:g} °C"]
+    if "alkalinity_mg_l_as_caco3" in eff:
+        measured.append(f"alkalinity {eff['alkalinity_mg_l_as_caco3']:g} mg/L as CaCO3")
+    if "acidity_mg_l_as_caco3" in eff:
+        measured.append(f"acidity {eff['acidity_mg_l_as_caco3']:g} mg/L as CaCO3")
+    out.append(f"water    {amount}; {', '.join(measured)}")
+    solutes = ", ".join(f"{k} {fmt(v * 1000)}" for k, v in w.totals_mol_l.items())
+    if solutes:
+        out.extend(_wrap(f"modelled totals, mmol/L: {solutes}", width, "         "))
+    out.append(f"         strong-ion balance {fmt(w.strong_eq_l * 1000)} meq/L, ionic strength "
+               f"{fmt(w.ionic_strength)} mol/L, {'Davies' if w.davies else 'ideal'} activity"
+               + (", open to air" if w.open_to_air else ""))
+    dens = (f", {plan.reagent.density_kg_l:.4g} kg/L at 20 °C" if plan.reagent.density_kg_l
+            else "")
+    out.append(f"reagent  {plan.reagent.name} [{plan.reagent.id}]{dens}")
+    out.append(f"target   pH {plan.target.ph_min:g} to {plan.target.ph_max:g}, "
+               f"aim {plan.target.ph_aim:g}")
+    out.append("")
+    if plan.dose_needed:
+        out.append("DOSE")
+    else:
+        out.append("DOSE  none needed")
+    rows = dose_lines(scenario, plan, units)
+    label_w = max(len(r[0]) for r in rows)
+    for label, value in rows:
+        first, *rest = _wrap(value, width - label_w - 4, "") or [""]
+        out.append(f"  {label:<{label_w}}  {first}")
+        out.extend(" " * (label_w + 4) + r.strip() for r in rest)
+    if plan.warnings:
+        out.append("")
+        out.append("WARNINGS")
+        for msg in plan.warnings:
+            out.extend(_wrap(msg, width, "  ! "))
+    out.append("")
+    out.append("CAUTIONS")
+    for msg in plan.cautions:
+        out.extend(_wrap(msg, width, "  - "))
+    return "\n".join(out) + "\n"
