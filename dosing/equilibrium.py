@@ -185,6 +185,7 @@ def _conditional_k(const: Constants, ionic_strength, davies: bool):
     """Mixed constants K' = Ka·γ(HA)/γ(A) and γ(H+), for use with a_H."""
     if not davies:
         return const.k, np.ones_like(const.kw)
+    ionic_strength = np.minimum(ionic_strength, _I_CEILING)
     lg = davies_log_gamma(_Z[None, :, :], ionic_strength[:, None, None],
                           const.a[:, None, None])
     kc = const.k * 10.0 ** (lg[:, :, :-1] - lg[:, :, 1:])
@@ -256,15 +257,83 @@ def charge_residual(mix: Mixture, ph) -> np.ndarray:
     return speciate(mix, ph).charge_residual_eq_l
 
 
+@dataclass(frozen=True)
+class _Rows:
+    """A solver's view of a Mixture: only the systems present, any row subset."""
+
+    totals: np.ndarray      # (n, mc)
+    strong: np.ndarray      # (n,)
+    strong_i: np.ndarray    # (n,)
+    co2: np.ndarray         # (n,)
+    kw: np.ndarray          # (n,)
+    k: np.ndarray           # (n, mc, 3)
+    a: np.ndarray           # (n,)
+    z: np.ndarray           # (mc, 4)
+    carb: int               # column of carbonate in the view, or -1
+    davies: bool
+
+    def take(self, idx) -> "_Rows":
+        return _Rows(self.totals[idx], self.strong[idx], self.strong_i[idx], self.co2[idx],
+                     self.kw[idx], self.k[idx], self.a[idx], self.z, self.carb, self.davies)
+
+
+def _restrict(mix: Mixture, const: Constants, extra_cols=()) -> _Rows:
+    """Keep only the systems with a non-zero total (plus ``extra_cols``)."""
+    used = np.any(mix.totals_mol_l != 0.0, axis=0)
+    used[list(extra_cols)] = True
+    if mix.open_to_air.any():
+        used[CARBONATE] = True
+    cols = np.flatnonzero(used)
+    carb = int(np.searchsorted(cols, CARBONATE)) if used[CARBONATE] else -1
+    return _Rows(mix.totals_mol_l[:, cols], mix.strong_eq_l, mix.strong_ionic_strength,
+                 mix.co2_air_mol_l, const.kw, const.k[:, cols], const.a, _Z[cols], carb,
+                 mix.davies)
+
+
+def _rows_state(r: _Rows, ph, ionic):
+    """Residual [eq/L], β [eq/(L pH)] and ionic strength [mol/L] at ``ph``."""
+    ah = 10.0 ** -ph
+    if r.davies:
+        # Trial pH values far from the root can imply absurd ionic strengths;
+        # capping them keeps the trial finite (the answer never sits there).
+        ionic = np.minimum(ionic, _I_CEILING)
+        lg = davies_log_gamma(r.z[None, :, :], ionic[:, None, None], r.a[:, None, None])
+        kc = r.k * 10.0 ** (lg[:, :, :-1] - lg[:, :, 1:])
+        g1 = 10.0 ** davies_log_gamma(1, ionic, r.a)
+    else:
+        kc, g1 = r.k, 1.0
+    h = ah / g1
+    oh = r.kw / (ah * g1)
+    if r.z.shape[0] == 0:
+        resid = r.strong + h - oh
+        return resid, _LN10 * (h + oh), 0.5 * (h + oh) + r.strong_i
+    alpha = _alpha(ah, kc)
+    q = (alpha * r.z[None]).sum(-1)
+    m2 = (alpha * r.z[None] ** 2).sum(-1)
+    var = m2 - q * q
+    totals = r.totals
+    opened = np.isfinite(r.co2)
+    if r.carb >= 0 and opened.any():
+        totals = totals.copy()
+        totals[opened, r.carb] = r.co2[opened] / alpha[opened, r.carb, 0]
+        var = var.copy()
+        var[opened, r.carb] = m2[opened, r.carb]
+    resid = r.strong + h - oh + (totals * q).sum(-1)
+    beta = _LN10 * (h + oh + (totals * var).sum(-1))
+    new_i = 0.5 * (h + oh + (totals * m2).sum(-1)) + r.strong_i
+    return resid, beta, new_i
+
+
 def solve_ph(mix: Mixture, *, ph_guess=None, tol_ph: float = 1e-12,
-             max_iter: int = 100) -> np.ndarray:
+             max_iter: int = 200) -> np.ndarray:
     """Activity pH of every water of ``mix`` (the forward problem).
 
     Safeguarded Newton on pH in the bracket [-1.5, 15.5]: R(pH) is strictly
     decreasing, so the sign of R moves one end of the bracket each step, and
-    a Newton step that leaves the bracket is replaced by bisection. With the
-    Davies model the ionic strength is updated after each inner solve until
-    it no longer changes.
+    a Newton step that leaves the bracket is replaced by bisection. Each
+    water stops on its own once converged. With the Davies model the ionic
+    strength is updated along the way, then the result is polished at a
+    fixed ionic strength until that strength no longer changes.
 
     Raises
     ------
@@ -272,40 +341,64 @@ def solve_ph(mix: Mixture, *, ph_guess=None, tol_ph: float = 1e-12,
         If any water fails to converge (the message gives how many).
     """
     const = constants_at(mix.temperature_c)
+    rows = _restrict(mix, const)
     ionic = mix.strong_ionic_strength.copy()
     ph = np.full(mix.n, 7.0) if ph_guess is None else np.broadcast_to(
         np.asarray(ph_guess, dtype=float), (mix.n,)).copy()
+    ph, ionic = _newton(rows, ph, ionic, tol_ph, max_iter, mix.davies)
     if not mix.davies:
-        return _newton(mix, const, ionic, ph, tol_ph, max_iter)
-    for _outer in range(40):
-        ph = _newton(mix, const, ionic, ph, tol_ph, max_iter)
-        *_, new_i = _state(mix, ph, const, ionic)
-        settled = np.all(np.abs(new_i - ionic) <= 1e-13 + 1e-10 * new_i)
-        ionic = new_i
-        if settled:
-            return _newton(mix, const, ionic, ph, tol_ph, max_iter)
-    raise ModelError("ionic strength did not settle while solving pH")
-
-
-def _newton(mix, const, ionic, ph, tol_ph, max_iter):
-    lo = np.full(mix.n, -1.5)
-    hi = np.full(mix.n, 15.5)
-    ph = np.clip(ph, lo + 1e-9, hi - 1e-9)
-    for _ in range(max_iter):
-        *_, resid, beta, _ = _state(mix, ph, const, ionic)
-        # R decreasing in pH: R > 0 means the root lies above ph.
-        lo = np.where(resid > 0, ph, lo)
-        hi = np.where(resid <= 0, ph, hi)
-        step = resid / np.maximum(beta, 1e-300)  # Newton: dR/dpH = -beta
-        new = ph + step
-        bad = ~((new > lo) & (new < hi)) | ~np.isfinite(new)
-        new = np.where(bad, 0.5 * (lo + hi), new)
-        moved = np.abs(new - ph)
-        ph = new
-        if np.all((moved < tol_ph) | (hi - lo < tol_ph)):
+        return ph
+    # Polish at a fixed ionic strength (full bracket) until it holds still;
+    # only the waters not yet consistent are solved again.
+    idx = np.arange(mix.n)
+    for _ in range(60):
+        sub = rows.take(idx)
+        p, _ = _newton(sub, ph[idx], ionic[idx], tol_ph, max_iter, False)
+        new_i = _rows_state(sub, p, ionic[idx])[2]
+        ok = np.abs(new_i - ionic[idx]) <= 1e-13 + 1e-10 * new_i
+        ph[idx] = p
+        ionic[idx] = new_i
+        idx = idx[~ok]
+        if idx.size == 0:
             return ph
-    raise ModelError(f"pH solve did not converge for "
-                     f"{int(np.sum(moved >= tol_ph))} of {mix.n} waters")
+    raise ModelError(f"ionic strength did not settle while solving pH for "
+                     f"{idx.size} of {mix.n} waters")
+
+
+#: Newton steps during which the ionic strength moves with the pH; after
+#: that it is held, and solve_ph's polishing loop settles it.
+_JOINT_STEPS = 30
+
+
+def _newton(rows: _Rows, ph, ionic, tol_ph, max_iter, update_ionic):
+    n = ph.shape[0]
+    ph = np.clip(ph, -1.5 + 1e-9, 15.5 - 1e-9)
+    ionic = ionic.copy()
+    lo = np.full(n, -1.5)
+    hi = np.full(n, 15.5)
+    live = np.arange(n)
+    for it in range(max_iter):
+        sub = rows if live.size == n else rows.take(live)
+        resid, beta, new_i = _rows_state(sub, ph[live], ionic[live])
+        p, l, u = ph[live], lo[live], hi[live]
+        # R decreasing in pH: R > 0 means the root lies above p.
+        l = np.where(resid > 0, p, l)
+        u = np.where(resid <= 0, p, u)
+        new = p + resid / np.maximum(beta, 1e-300)   # Newton: dR/dpH = -beta
+        bad = ~((new > l) & (new < u)) | ~np.isfinite(new)
+        new = np.where(bad, 0.5 * (l + u), new)
+        done = (np.abs(new - p) < tol_ph) | (u - l < tol_ph)
+        if update_ionic and it < _JOINT_STEPS:
+            changed = np.abs(new_i - ionic[live]) > 1e-13 + 1e-10 * new_i
+            ionic[live] = new_i
+            # The bracket was found at the old ionic strength; solve_ph's
+            # polish re-solves with a full bracket, so it is kept here.
+            done &= ~changed
+        ph[live], lo[live], hi[live] = new, l, u
+        live = live[~done]
+        if live.size == 0:
+            return ph, ionic
+    raise ModelError(f"pH solve did not converge for {live.size} of {n} waters")
 
 
 def strong_balance_at_ph(totals_mol_l, ph, temperature_c, *, davies: bool,
