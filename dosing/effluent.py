@@ -43,7 +43,8 @@ from .species import MOLAR_MASS, SYSTEM_IDS, get_system
 from .water import check_temperature
 
 __all__ = ["CACO3_MG_PER_MEQ", "ALKALINITY_ENDPOINT_PH", "ACIDITY_ENDPOINT_PH",
-           "DEFAULT_PCO2_UATM", "Water", "infer_water", "totals_vector"]
+           "DEFAULT_PCO2_UATM", "BACKGROUND_IONS", "Water", "infer_water",
+           "totals_vector"]
 
 #: Equivalent weight of CaCO3 [mg/meq]: M(CaCO3)/2 with IUPAC atomic weights.
 #: Standard Methods rounds it to 50.0 (its factor 50 000).
@@ -52,6 +53,10 @@ CACO3_MG_PER_MEQ = MOLAR_MASS["CaCO3"] / 2.0
 ALKALINITY_ENDPOINT_PH = 4.5
 #: Acidity end point, Standard Methods 2310 B (phenolphthalein) [pH].
 ACIDITY_ENDPOINT_PH = 8.3
+#: Background strong ions a scenario may give, with the formula used for
+#: their molar mass.
+BACKGROUND_IONS = {"sodium": "Na", "potassium": "K", "calcium": "Ca",
+                   "magnesium": "Mg", "chloride": "Cl", "nitrate": "NO3"}
 #: A laboratory alkalinity or acidity at or below this is taken as "not
 #: detected" [mg/L as CaCO3] (common practice: a usual reporting limit).
 LOW_READING_MG_L = 2.0
@@ -88,6 +93,10 @@ class Water:
         the measured value when one was given.
     notes : tuple of str
         What the inference assumed or found worth saying.
+    ions_mg_l : Mapping[str, float]
+        Measured background strong ions (sodium, calcium ...) [mg/L]; used by
+        the discharge and scale checks, not by the charge balance (which the
+        measured pH already fixes).
     """
 
     ph: float
@@ -101,6 +110,7 @@ class Water:
     pco2_atm: float
     alkalinity_eq_l: float
     notes: tuple[str, ...] = field(default=())
+    ions_mg_l: Mapping[str, float] = field(default_factory=dict)
 
     def mixture(self) -> Mixture:
         """The water as a one-row :class:`Mixture` for dosing.
@@ -172,7 +182,8 @@ def infer_water(ph: float, temperature_c: float = 25.0, *,
                 pco2_uatm: float = DEFAULT_PCO2_UATM,
                 alkalinity_endpoint_ph: float = ALKALINITY_ENDPOINT_PH,
                 acidity_endpoint_ph: float = ACIDITY_ENDPOINT_PH,
-                extra_ionic_strength_mol_l: float = 0.0) -> Water:
+                extra_ionic_strength_mol_l: float = 0.0,
+                ions_mg_l: Mapping[str, float] | None = None) -> Water:
     """Build the :class:`Water` that matches what was measured.
 
     Parameters
@@ -199,6 +210,8 @@ def infer_water(ph: float, temperature_c: float = 25.0, *,
     extra_ionic_strength_mol_l : float
         Ionic strength of strong ions beyond those the charge balance shows
         (e.g. a known NaCl load) [mol/L].
+    ions_mg_l : mapping, optional
+        Background strong ions by name (:data:`BACKGROUND_IONS`) [mg/L].
 
     Raises
     ------
@@ -225,6 +238,12 @@ def infer_water(ph: float, temperature_c: float = 25.0, *,
     pco2_uatm = _check_number("pco2_uatm", pco2_uatm, 0.0, 1e6, lo_open=True)
     extra_i = _check_number("extra_ionic_strength_mol_l", extra_ionic_strength_mol_l, 0.0, 5.0)
     totals = _collect_totals(solutes_mmol_l, solutes_mg_l)
+    ions = {}
+    for key, value in (ions_mg_l or {}).items():
+        if key not in BACKGROUND_IONS:
+            raise InputError(f"ions_mg_l.{key}", "unknown ion; allowed: "
+                             + ", ".join(BACKGROUND_IONS))
+        ions[key] = _check_number(f"ions_mg_l.{key}", value, 0.0, 2e5)
     notes: list[str] = []
     if alkalinity_mg_l_as_caco3 is not None and acidity_mg_l_as_caco3 is not None:
         raise InputError("acidity_mg_l_as_caco3", "give alkalinity or acidity, "
@@ -315,7 +334,7 @@ def infer_water(ph: float, temperature_c: float = 25.0, *,
                  strong_eq_l=s, strong_ionic_strength=strong_i,
                  ionic_strength=ionic, davies=davies, open_to_air=bool(open_to_air),
                  pco2_atm=pco2_uatm * 1e-6, alkalinity_eq_l=alk_model,
-                 notes=tuple(notes))
+                 notes=tuple(notes), ions_mg_l=ions)
 
 
 def _alkalinity_of(mix: Mixture, ph: float) -> float:

@@ -22,6 +22,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
+from typing import Mapping
 
 import numpy as np
 
@@ -29,6 +30,7 @@ from .effluent import Water
 from .equilibrium import (CARBONATE, Mixture, add_dose, dose_to_ph, solve_ph,
                           speciate)
 from .errors import InputError, ModelError, UnreachableError
+from .hazards import Check, assess
 from .reagents import GENERAL_CAUTION, Reagent
 from .water import henry_co2
 
@@ -171,6 +173,7 @@ class Plan:
     dose_needed: bool                   #: False when the water is already fine
     warnings: tuple[str, ...] = field(default=())
     cautions: tuple[str, ...] = field(default=())
+    checks: tuple[Check, ...] = field(default=())
 
     def amounts(self, dose_mol_l: float | None = None) -> Amounts:
         """A dose (default: the planned one) in operator units."""
@@ -225,7 +228,8 @@ def _dissolved_co2_after(water: Water, reagent: Reagent, dose: float, ph: float)
 
 
 def plan_dose(water: Water, reagent: Reagent, target: Target,
-              basis: Batch | Flow, *, curve_points: int = 301) -> Plan:
+              basis: Batch | Flow, *, permit: Mapping[str, float] | None = None,
+              curve_points: int = 301) -> Plan:
     """Plan the dose of ``reagent`` that brings ``water`` into ``target``.
 
     Parameters
@@ -238,6 +242,10 @@ def plan_dose(water: Water, reagent: Reagent, target: Target,
         The pH window and aim.
     basis : Batch or Flow
         A tank volume or a flow; scales kilograms and litres.
+    permit : mapping, optional
+        Discharge caps [mg/L] (``sulfate_mg_l``, ``chloride_mg_l``,
+        ``sodium_mg_l``, ``calcium_mg_l``, ``tds_increase_mg_l``), checked by
+        :func:`dosing.hazards.assess`.
     curve_points : int
         Points on the titration curve.
 
@@ -323,13 +331,23 @@ def plan_dose(water: Water, reagent: Reagent, target: Target,
     top = max(hi_curve, dose, near_dose) * 1.5 or 1e-4
     curve = titration_curve(water, reagent, top, points=curve_points)
     cautions = tuple(reagent.cautions) + (GENERAL_CAUTION,)
+    before = speciate(mix_closed(water), water.ph)
+    checks = assess(water, reagent, dose, before, end_state, dosed,
+                    batch_litres=basis.litres, permit=permit)
     return Plan(water=water, reagent=reagent, target=target, basis=basis,
                 ph_start=water.ph, dose_mol_l=dose, ph_end=ph_end,
                 band_mol_l=(near_dose, far_dose), slope_ph_per_mmol_l=float(slope),
                 ph_low_dose=float(ph_lo), ph_high_dose=float(ph_hi),
                 ionic_strength_end=float(end_state.ionic_strength[0]),
                 curve=curve, dose_needed=bool(dose_needed),
-                warnings=tuple(warnings), cautions=cautions)
+                warnings=tuple(warnings), cautions=cautions, checks=checks)
+
+
+def mix_closed(water: Water) -> Mixture:
+    """The water as measured, before any exchange with air."""
+    m = water.mixture()
+    return Mixture(m.totals_mol_l, m.strong_eq_l, m.strong_ionic_strength,
+                   m.temperature_c, np.full(1, math.nan), m.davies)
 
 
 def titration_curve(water: Water, reagent: Reagent, max_dose_mol_l: float,

@@ -15,7 +15,8 @@ import matplotlib.pyplot as plt  # noqa: E402
 import numpy as np  # noqa: E402
 
 from .plan import Batch, Plan  # noqa: E402
-from .sheet import UNIT_SYSTEMS, fmt  # noqa: E402
+from .numbers import fmt  # noqa: E402
+from .sheet import UNIT_SYSTEMS  # noqa: E402
 
 __all__ = ["plan_figure_png"]
 

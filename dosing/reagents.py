@@ -64,6 +64,11 @@ class Compound:
         Ionic strength added by those strong ions per mol/L dosed [-].
     raises_ph : bool
         True for a base, False for an acid.
+    enters_as : Mapping[str, int]
+        Form in which each added total enters (0 = most protonated), for the
+        heat bookkeeping [-].
+    oh_added, h_added : float
+        OH- or H+ delivered per mole [mol/mol].
     """
 
     formula: str
@@ -73,6 +78,9 @@ class Compound:
     ions: Mapping[str, float]
     ionic_strength: float
     raises_ph: bool
+    enters_as: Mapping[str, int] = field(default_factory=dict)
+    oh_added: float = 0.0
+    h_added: float = 0.0
 
     def vector(self, litres_per_mol: float) -> ReagentVector:
         """The compound as a :class:`ReagentVector` for the solvers."""
@@ -82,21 +90,22 @@ class Compound:
         return ReagentVector(v, self.strong_eq, self.ionic_strength, litres_per_mol)
 
 
-def _c(formula, strong_eq, adds, ions, ionic, raises):
-    return Compound(formula, MOLAR_MASS[formula], strong_eq, adds, ions, ionic, raises)
+def _c(formula, strong_eq, adds, ions, ionic, raises, enters=None, oh=0.0, h=0.0):
+    return Compound(formula, MOLAR_MASS[formula], strong_eq, adds, ions, ionic, raises,
+                    enters or {}, oh, h)
 
 
 #: Active compounds the planner can dose.
 COMPOUNDS: dict[str, Compound] = {c.formula: c for c in (
-    _c("NaOH", 1.0, {}, {"Na": 1.0}, 0.5, True),
-    _c("KOH", 1.0, {}, {"K": 1.0}, 0.5, True),
-    _c("Ca(OH)2", 2.0, {}, {"Ca": 1.0}, 2.0, True),
-    _c("Na2CO3", 2.0, {"carbonate": 1.0}, {"Na": 2.0}, 1.0, True),
-    _c("NaHCO3", 1.0, {"carbonate": 1.0}, {"Na": 1.0}, 0.5, True),
-    _c("H2SO4", 0.0, {"sulfate": 1.0}, {}, 0.0, False),
-    _c("HCl", -1.0, {}, {"Cl": 1.0}, 0.5, False),
-    _c("HNO3", -1.0, {}, {"NO3": 1.0}, 0.5, False),
-    _c("CO2", 0.0, {"carbonate": 1.0}, {}, 0.0, False),
+    _c("NaOH", 1.0, {}, {"Na": 1.0}, 0.5, True, oh=1.0),
+    _c("KOH", 1.0, {}, {"K": 1.0}, 0.5, True, oh=1.0),
+    _c("Ca(OH)2", 2.0, {}, {"Ca": 1.0}, 2.0, True, oh=2.0),
+    _c("Na2CO3", 2.0, {"carbonate": 1.0}, {"Na": 2.0}, 1.0, True, {"carbonate": 2}),
+    _c("NaHCO3", 1.0, {"carbonate": 1.0}, {"Na": 1.0}, 0.5, True, {"carbonate": 1}),
+    _c("H2SO4", 0.0, {"sulfate": 1.0}, {"SO4": 1.0}, 0.0, False, {"sulfate": 0}, h=1.0),
+    _c("HCl", -1.0, {}, {"Cl": 1.0}, 0.5, False, h=1.0),
+    _c("HNO3", -1.0, {}, {"NO3": 1.0}, 0.5, False, h=1.0),
+    _c("CO2", 0.0, {"carbonate": 1.0}, {}, 0.0, False, {"carbonate": 0}),
 )}
 
 _CAUSTIC = ("Caustic burns skin and eyes on contact: face shield, "
@@ -140,6 +149,11 @@ class Reagent:
     molarity_mol_l : float or None
         For a solution given by molarity: mol of active compound per litre
         of product [mol/L].
+    dilution_heat_kj_mol : float or None
+        Integral enthalpy of diluting the product to infinite dilution, per
+        mole of active compound [kJ/mol]; None where no value is at hand.
+    dilution_heat_source : str
+        Where that value comes from.
     """
 
     id: str
@@ -154,6 +168,8 @@ class Reagent:
     max_practical_ph: float | None = None
     solubility_g_l: float | None = None
     molarity_mol_l: float | None = None
+    dilution_heat_kj_mol: float | None = None
+    dilution_heat_source: str = ""
 
     @property
     def raises_ph(self) -> bool:
@@ -191,7 +207,10 @@ CATALOGUE: dict[str, Reagent] = {r.id: r for r in (
     Reagent("caustic-50", "caustic soda 50 %", _NAOH, 0.50, 1.5253, "liquid",
             "Perry's Chemical Engineers' Handbook, aqueous NaOH at 20 °C (from memory)",
             _CAUSTIC + ("50 % caustic starts to crystallise below about 12 °C: "
-                        "keep the line and the store warm.",)),
+                        "keep the line and the store warm.",),
+            dilution_heat_kj_mol=-22.0,
+            dilution_heat_source="50 % NaOH to infinite dilution, about -21 to -23 kJ/mol "
+            "(from memory, low confidence; no published table at hand)"),
     Reagent("caustic-25", "caustic soda 25 %", _NAOH, 0.25, 1.2740, "liquid",
             "CRC Handbook, concentrative properties of aqueous solutions "
             "(24 % and 26 % interpolated)", _CAUSTIC),
@@ -215,18 +234,29 @@ CATALOGUE: dict[str, Reagent] = {r.id: r for r in (
             "CRC Handbook, concentrative properties of aqueous solutions",
             _ACID_BURN + ("Concentrated sulfuric acid boils water it meets: "
                           "always add acid to water, slowly, with mixing; never "
-                          "water to acid.",) + _ACIDIFY),
+                          "water to acid.",) + _ACIDIFY,
+            dilution_heat_kj_mol=-91.7,
+            dilution_heat_source="estimate from NBS tables (Wagman et al. 1982): H2SO4(l) "
+            "-814.0 and H2SO4(aq, inf.) -909.3 kJ/mol give -95.3; less about 3.4 for "
+            "forming the 98 % mixture"),
     Reagent("sulfuric-93", "sulfuric acid 93 %", _H2SO4, 0.93, 1.8276, "liquid",
             "CRC Handbook, concentrative properties of aqueous solutions "
             "(92 % and 94 % interpolated)",
             _ACID_BURN + ("Concentrated sulfuric acid boils water it meets: "
                           "always add acid to water, slowly, with mixing; never "
-                          "water to acid.",) + _ACIDIFY),
+                          "water to acid.",) + _ACIDIFY,
+            dilution_heat_kj_mol=-82.0,
+            dilution_heat_source="estimate from NBS tables (Wagman et al. 1982): -95.3 "
+            "kJ/mol for H2SO4(l) to infinite dilution, less about 13 for forming the "
+            "93 % mixture (0.41 H2O per H2SO4; H2SO4 in 1 H2O is -841.8), +-3"),
     Reagent("hydrochloric-32", "hydrochloric acid 32 %", COMPOUNDS["HCl"], 0.32,
             1.1594, "liquid",
             "CRC Handbook, concentrative properties of aqueous solutions",
             _ACID_BURN + ("Hydrochloric acid gives off corrosive HCl fumes: "
-                          "ventilate the dosing point and store.",) + _ACIDIFY),
+                          "ventilate the dosing point and store.",) + _ACIDIFY,
+            dilution_heat_kj_mol=-13.2,
+            dilution_heat_source="CRC Handbook, enthalpy of dilution of HCl (after Parker "
+            "1965, NSRDS-NBS 2), 10 m -10.24 and 15 m -15.40 kJ/mol, interpolated to 12.9 m"),
     Reagent("co2", "carbon dioxide gas", COMPOUNDS["CO2"], 1.0, None, "gas", "",
             ("CO2 displaces air: in a pit, a closed room or a covered tank it "
              "suffocates without warning; ventilate and use a gas monitor.",

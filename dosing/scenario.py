@@ -21,7 +21,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Mapping
 
-from .effluent import Water, infer_water
+from .effluent import BACKGROUND_IONS, Water, infer_water
 from .errors import InputError, ScenarioError
 from .plan import Batch, Flow, Target
 from .reagents import Reagent, custom_reagent, get_reagent, with_purity
@@ -46,6 +46,7 @@ _SCHEMA: dict[str, dict[str, tuple]] = {
         "solutes_mmol_l": ((dict,), False),
         "solutes_mg_l": ((dict,), False),
         "extra_ionic_strength_mol_l": ((int, float), False),
+        "ions_mg_l": ((dict,), False),
     },
     "batch": {"volume_m3": ((int, float), True)},
     "flow": {"m3_per_h": ((int, float), True),
@@ -155,12 +156,14 @@ def _check_types(path: str, data: Mapping[str, Any]) -> None:
     if ("batch" in data) == ("flow" in data):
         raise ScenarioError(path, "[batch]/[flow]", "give exactly one of [batch] "
                             "(a tank volume) or [flow] (a continuous stream)")
-    for table in ("solutes_mmol_l", "solutes_mg_l"):
+    for table in ("solutes_mmol_l", "solutes_mg_l", "ions_mg_l"):
+        allowed = BACKGROUND_IONS if table == "ions_mg_l" else SYSTEM_IDS
         for sid, v in data["effluent"].get(table, {}).items():
             where = f"effluent.{table}.{sid}"
-            if sid not in SYSTEM_IDS:
-                raise ScenarioError(path, where, "unknown solute; allowed: "
-                                    + ", ".join(SYSTEM_IDS))
+            if sid not in allowed:
+                raise ScenarioError(path, where, "unknown "
+                                    + ("ion" if table == "ions_mg_l" else "solute")
+                                    + "; allowed: " + ", ".join(allowed))
             if not _is_number(v) or not math.isfinite(v):
                 raise ScenarioError(path, where, f"expected a number, got {v!r}")
 
@@ -221,7 +224,8 @@ def build_scenario(data: Mapping[str, Any], path: str = "<scenario>") -> Scenari
             pco2_uatm=model.get("pco2_uatm", 420.0),
             alkalinity_endpoint_ph=eff.get("alkalinity_endpoint_ph", 4.5),
             acidity_endpoint_ph=eff.get("acidity_endpoint_ph", 8.3),
-            extra_ionic_strength_mol_l=eff.get("extra_ionic_strength_mol_l", 0.0))
+            extra_ionic_strength_mol_l=eff.get("extra_ionic_strength_mol_l", 0.0),
+            ions_mg_l=eff.get("ions_mg_l"))
         t = data["target"]
         target = Target(float(t["ph_min"]), float(t["ph_max"]),
                         None if "ph_aim" not in t else float(t["ph_aim"]))

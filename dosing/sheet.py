@@ -12,17 +12,17 @@ functions, so a dose reads the same everywhere, with the same cautions.
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
 from typing import Any
 
 from . import __version__
 from .effluent import CACO3_MG_PER_MEQ
+from .numbers import fmt
 from .plan import Batch, Flow, Plan, plan_dose
 from .scenario import Scenario
 
 __all__ = ["Units", "UNIT_SYSTEMS", "make_plan", "sheet_dict", "render_sheet",
-           "fmt", "dose_lines", "caution_lines"]
+           "fmt", "dose_lines", "check_lines", "caution_lines"]
 
 L_PER_US_GAL = 3.785411784     # exact by definition (NIST SP 811)
 KG_PER_LB = 0.45359237         # exact by definition (NIST SP 811)
@@ -50,20 +50,10 @@ UNIT_SYSTEMS = {
 }
 
 
-def fmt(x: float | None, digits: int = 3) -> str:
-    """A number to ``digits`` significant figures, with thousands separators."""
-    if x is None or (isinstance(x, float) and math.isnan(x)):
-        return "n/a"
-    if x == 0:
-        return "0"
-    mag = math.floor(math.log10(abs(x)))
-    decimals = max(0, digits - 1 - mag)
-    return f"{x:,.{decimals}f}"
-
-
 def make_plan(scenario: Scenario) -> Plan:
-    """Plan the dose a scenario asks for."""
-    return plan_dose(scenario.water, scenario.reagent, scenario.target, scenario.basis)
+    """Plan the dose a scenario asks for (with its permit caps)."""
+    return plan_dose(scenario.water, scenario.reagent, scenario.target, scenario.basis,
+                     permit=scenario.permit)
 
 
 def _per(plan: Plan) -> str:
@@ -158,6 +148,8 @@ def sheet_dict(scenario: Scenario, plan: Plan) -> dict[str, Any]:
             "alkalinity_mg_l_as_caco3": w.alkalinity_eq_l * CACO3_MG_PER_MEQ * 1000.0,
             "ionic_strength_after_mol_l": plan.ionic_strength_end,
         },
+        "checks": [{"id": c.id, "level": c.level, "message": c.message,
+                    "values": dict(c.values)} for c in plan.checks],
         "warnings": list(plan.warnings),
         "cautions": list(plan.cautions),
     }
@@ -223,9 +215,22 @@ def dose_lines(scenario: Scenario, plan: Plan, units: str = "metric") -> list[tu
     return rows
 
 
+_MARK = {"danger": "!!", "warning": "! ", "info": "  "}
+
+
+def check_lines(plan: Plan) -> list[tuple[str, str]]:
+    """(mark, text) of each chemistry check, dangers first."""
+    order = {"danger": 0, "warning": 1, "info": 2}
+    return [(_MARK[c.level], c.message)
+            for c in sorted(plan.checks, key=lambda c: order[c.level])]
+
+
 def caution_lines(plan: Plan) -> list[str]:
-    """Warnings then cautions, as the sheet prints them."""
-    return [f"! {w}" for w in plan.warnings] + [f"- {c}" for c in plan.cautions]
+    """Warnings, dangers and cautions, as every front end lists them."""
+    return ([f"!! {m}" for k, m in check_lines(plan) if k == "!!"]
+            + [f"! {w}" for w in plan.warnings]
+            + [f"! {m}" for k, m in check_lines(plan) if k == "! "]
+            + [f"- {c}" for c in plan.cautions])
 
 
 def _wrap(text: str, width: int, indent: str) -> list[str]:
@@ -278,6 +283,10 @@ def render_sheet(scenario: Scenario, plan: Plan, units: str = "metric",
         first, *rest = _wrap(value, width - label_w - 4, "") or [""]
         out.append(f"  {label:<{label_w}}  {first}")
         out.extend(" " * (label_w + 4) + r.strip() for r in rest)
+    out.append("")
+    out.append("CHECKS")
+    for mark, msg in check_lines(plan):
+        out.extend(_wrap(msg, width, f" {mark} "))
     if plan.warnings:
         out.append("")
         out.append("WARNINGS")

@@ -40,7 +40,7 @@ __all__ = ["AcidSystem", "SYSTEMS", "SYSTEM_IDS", "get_system", "MOLAR_MASS"]
 # Standard atomic weights, IUPAC 2021 abridged values [g/mol].
 _AW = {"H": 1.008, "C": 12.011, "N": 14.007, "O": 15.999, "F": 18.998,
        "Na": 22.990, "Si": 28.085, "P": 30.974, "S": 32.06, "Cl": 35.45,
-       "Ca": 40.078, "B": 10.81, "K": 39.098}
+       "Ca": 40.078, "B": 10.81, "K": 39.098, "Mg": 24.305}
 
 
 def _mm(**atoms: int) -> float:
@@ -60,7 +60,7 @@ MOLAR_MASS = {
     "HNO3": _mm(H=1, N=1, O=3),
     "CO2": _mm(C=1, O=2),
     "CaCO3": _mm(Ca=1, C=1, O=3),
-    "Na": _AW["Na"], "Ca": _AW["Ca"], "Cl": _AW["Cl"], "K": _AW["K"],
+    "Na": _AW["Na"], "Ca": _AW["Ca"], "Cl": _AW["Cl"], "K": _AW["K"], "Mg": _AW["Mg"],
     "SO4": _mm(S=1, O=4), "NO3": _mm(N=1, O=3),
     "H2O": _mm(H=2, O=1),
 }

@@ -1,0 +1,308 @@
+"""Checks that follow from the chemistry of a dosed water: heat, gas,
+what the dose adds to the discharge, and scale.
+
+:func:`assess` is called by :func:`dosing.plan.plan_dose` for every plan, so
+every front end shows the same checks. Each :class:`Check` carries its
+numbers (with units in the key names) and a plain message; its level is
+``info``, ``warning`` or ``danger``. Thresholds that are common practice,
+not published limits, say so beside them.
+
+Heat
+----
+The heat of the acid-base reactions comes from the change of speciation
+itself (Hess's law): each dissociation step j,i that advances by ξ_ji
+(moles of the forms beyond step i) contributes ΔH_ji ξ_ji, and water
+ionisation, H2O = H+ + OH-, advances by ξ_w = Δ[OH-] - (OH- delivered):
+
+    ΔH = Σ ΔH_ji ξ_ji + ΔH_w(T) ξ_w
+
+with ΔH_w = +55.8 kJ/mol at 25 °C and ΔCp = -215 J/(K mol). The heat of
+diluting a concentrated product is added from the reagent's integral heat
+of dilution. The batch warms by q / (ρ c_p), c_p = 4.18 kJ/(kg K).
+
+References
+----------
+1. Olofsson, G.; Hepler, L. G. (1975). J. Solution Chem. 4, 127
+   (ΔH of ionisation of water 55.81 kJ/mol; from memory).
+2. Singh, P. P.; Woolley, E. M.; McCurdy, K. G.; Hepler, L. G. (1976).
+   Can. J. Chem. 54, 3315 (ΔCp = -215 J/(K mol)).
+3. Sander, R. (2015). Compilation of Henry's law constants for water as
+   solvent. Atmos. Chem. Phys. 15, 4399 (H2S, NH3, HCN; values from memory).
+4. NIOSH Pocket Guide to Chemical Hazards: IDLH of H2S 100 ppm, HCN 50 ppm,
+   NH3 300 ppm (from memory).
+5. Plummer, L. N.; Busenberg, E. (1982), calcite solubility (dosing.water).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from typing import Mapping
+
+import numpy as np
+
+from .activity import davies_log_gamma, debye_huckel_a
+from .effluent import Water
+from .numbers import fmt
+from .equilibrium import CARBONATE, Mixture, Speciation, co2_in_air_mol_l, system_index
+from .reagents import Reagent
+from .species import MOLAR_MASS, SYSTEMS
+from .water import calcite_pksp, density
+
+__all__ = ["Check", "assess", "reaction_heat_kj_l", "DH_WATER_KJ_MOL"]
+
+#: Enthalpy of water ionisation at 25 °C [kJ/mol] (Olofsson & Hepler 1975).
+DH_WATER_KJ_MOL = 55.8
+#: Heat capacity change of water ionisation [kJ/(K mol)] (Singh et al. 1976).
+DCP_WATER_KJ_MOL_K = -0.215
+#: Specific heat of water [kJ/(kg K)] (common practice, 4.18 near 25 °C).
+CP_WATER = 4.18
+#: Temperature rise worth a warning [K] (common practice).
+HEAT_RISE_WARN_K = 5.0
+#: Treated-water temperature many sewer permits cap [°C] (common practice).
+DISCHARGE_TEMP_WARN_C = 40.0
+#: Heat of dilution per kg of product above which local boiling at the
+#: dosing point is possible [kJ/kg] (common practice: enough to take its
+#: own mass of water from 20 to 100 °C).
+LOCAL_BOIL_KJ_KG = 330.0
+#: pH below which sulfide is mostly H2S (pKa near 7; common practice: 8).
+H2S_PH = 8.0
+#: pH above which ammonia strips and smells (pKa near 9.2; common practice).
+NH3_PH = 9.0
+#: Calcite saturation index above which scale is likely (common practice).
+CALCITE_SI_WARN = 0.3
+#: Excess CO2 over air equilibrium worth reporting as off-gas [mmol/L].
+CO2_OFFGAS_NOTE_MMOL_L = 1.0
+#: Excess CO2 at which fizzing and foam are expected [mmol/L] (common
+#: practice: about 220 mg/L of CO2).
+CO2_FOAM_MMOL_L = 5.0
+_R = 0.082057  # L atm / (K mol), CODATA
+_GAS_MOLAR_MASS = {"H2S": 34.08, "NH3": 17.031, "HCN": 27.025}  # g/mol, IUPAC
+
+# Henry's constants at 25 °C [mol/(kg atm)] and d ln KH / d(1/T) [K]
+# (Sander 2015; from memory), and NIOSH IDLH [ppm] (from memory).
+_GASES = {"sulfide": ("H2S", 0.10, 2100.0, 100.0),
+          "ammonia": ("NH3", 59.0, 4200.0, 300.0),
+          "cyanide": ("HCN", 9.0, 5000.0, 50.0)}
+
+
+@dataclass(frozen=True)
+class Check:
+    """One chemistry-driven check on a plan."""
+
+    id: str
+    level: str                       #: "info", "warning" or "danger"
+    message: str
+    values: Mapping[str, float] = field(default_factory=dict)
+
+
+def _henry(gas_system: str, temperature_c: float) -> float:
+    _, kh25, slope, _ = _GASES[gas_system]
+    T = temperature_c + 273.15
+    return kh25 * math.exp(slope * (1.0 / T - 1.0 / 298.15))
+
+
+def _stepwise(sp: Speciation) -> np.ndarray:
+    """(n, m, 3): concentration of each system in forms beyond step i [mol/L]."""
+    beyond = np.flip(np.cumsum(np.flip(sp.alpha, -1), -1), -1)[:, :, 1:]
+    return sp.totals_mol_l[:, :, None] * beyond
+
+
+def reaction_heat_kj_l(before: Speciation, after: Speciation, reagent: Reagent,
+                       dose_mol_l: float, temperature_c: float) -> tuple[float, float]:
+    """Heat released by the acid-base reactions of a dose [kJ per L of water].
+
+    Returns
+    -------
+    (heat_kj_l, xi_water_mol_l) : tuple of float
+        Heat released (positive: the water warms) and the extent of water
+        formation, -ξ_w [mol/L].
+    """
+    grow = 1.0 + dose_mol_l * (reagent.litres_product_per_mol or 0.0)
+    a_before = _stepwise(before)[0]
+    a_after = _stepwise(after)[0] * grow
+    entry = np.zeros_like(a_before)
+    for key, n in reagent.compound.adds.items():
+        j = system_index(key)
+        k_in = reagent.compound.enters_as.get(key, 0)
+        entry[j, :k_in] = n * dose_mol_l
+    xi = a_after - a_before - entry
+    dh = np.zeros_like(xi)
+    for j, s in enumerate(SYSTEMS):
+        dh[j, :s.steps] = s.enthalpy_kj_mol
+    xi_w = (float(after.oh_mol_l[0]) * grow - float(before.oh_mol_l[0])
+            - reagent.compound.oh_added * dose_mol_l)
+    dh_w = DH_WATER_KJ_MOL + DCP_WATER_KJ_MOL_K * (temperature_c - 25.0)
+    enthalpy = float((dh * xi).sum()) + dh_w * xi_w
+    return -enthalpy, -xi_w
+
+
+def assess(water: Water, reagent: Reagent, dose_mol_l: float, before: Speciation,
+           after: Speciation, dosed: Mixture, *, batch_litres: float,
+           permit: Mapping[str, float] | None = None) -> tuple[Check, ...]:
+    """All checks for a dose; see the module notes.
+
+    ``before`` and ``after`` are the speciation of the water before and after
+    the dose; ``batch_litres`` is the water a batch (or an hour of flow)
+    holds, for moles and litres of gas.
+    """
+    checks: list[Check] = []
+    t = water.temperature_c
+    ph_after = float(after.ph[0])
+    d = dose_mol_l
+    # ---------------------------------------------------------------- heat
+    q_rx, water_formed = reaction_heat_kj_l(before, after, reagent, d, t)
+    q_dil = 0.0 if reagent.dilution_heat_kj_mol is None else -reagent.dilution_heat_kj_mol * d
+    rho = float(density(t)) / 1000.0
+    rise = (q_rx + q_dil) / (rho * CP_WATER)
+    values = {"reaction_heat_kj_per_l": q_rx, "dilution_heat_kj_per_l": q_dil,
+              "temperature_rise_k": rise, "temperature_after_c": t + rise,
+              "water_formed_mmol_l": water_formed * 1000}
+    msg = (f"temperature rise of the water about {fmt(rise, 2)} K ({fmt(q_rx + q_dil)} kJ/L:"
+           f" {fmt(q_rx)} from neutralisation, {fmt(q_dil)} from diluting the product)")
+    if reagent.dilution_heat_kj_mol is None and reagent.form == "liquid":
+        msg += "; the product's heat of dilution is not included (no value at hand)"
+    level = "info"
+    if rise > HEAT_RISE_WARN_K:
+        level = "warning"
+        msg += (f"; the water ends near {t + rise:.0f} °C: dose slowly, watch the tank "
+                "temperature and the permit's temperature limit")
+    elif t + rise > DISCHARGE_TEMP_WARN_C:
+        msg += (f"; the water is near {t + rise:.0f} °C already: permits often cap the "
+                f"discharge temperature near {DISCHARGE_TEMP_WARN_C:g} °C")
+    checks.append(Check("heat", level, msg, values))
+    if reagent.dilution_heat_kj_mol is not None and reagent.kg_product_per_mol:
+        per_kg = -reagent.dilution_heat_kj_mol / reagent.kg_product_per_mol
+        if per_kg > LOCAL_BOIL_KJ_KG:
+            checks.append(Check(
+                "local-boiling", "danger",
+                f"{reagent.name} releases about {per_kg:.0f} kJ per kg on dilution: where "
+                "it meets a little water (a dry dosing point, a splash, a wet drum) it "
+                "can boil and spit. Dose below the surface into strong mixing; never add "
+                "water to the product.", {"dilution_heat_kj_per_kg_product": per_kg}))
+    # ----------------------------------------------------------------- gas
+    co2_star = float(after.concentration(CARBONATE, 0)[0])
+    co2_air = float(co2_in_air_mol_l(t, 420e-6))
+    excess = co2_star - co2_air
+    if excess * 1000 > CO2_OFFGAS_NOTE_MMOL_L and not water.open_to_air:
+        mol = excess * batch_litres
+        gas_l = mol * _R * (t + 273.15)
+        level = "warning" if excess * 1000 > CO2_FOAM_MMOL_L else "info"
+        checks.append(Check(
+            "co2", level,
+            f"the dosed water holds {fmt(excess * 1000)} mmol/L of CO2 above air "
+            f"equilibrium: up to {gas_l:,.0f} L of CO2 gas can come off"
+            + (" (strong fizzing and foam: dose slowly, leave headroom, ventilate)"
+               if level == "warning" else " as it stands open"),
+            {"co2_excess_mmol_l": excess * 1000, "co2_gas_litres": gas_l,
+             "co2_mol": mol}))
+    for sid, (gas, _, _, idlh) in _GASES.items():
+        j = system_index(sid)
+        total = float(after.totals_mol_l[0, j])
+        if total <= 0.0:
+            continue
+        if sid == "ammonia":
+            frac = float(after.alpha[0, j, 1])
+            conc = total * frac
+            if ph_after <= NH3_PH:
+                continue
+        else:
+            frac = float(after.alpha[0, j, 0])
+            conc = total * frac
+            if sid == "sulfide" and ph_after >= H2S_PH:
+                continue
+            if sid == "cyanide" and frac < 0.1:
+                continue
+        ppm = conc / _henry(sid, t) * 1e6
+        mg = conc * _GAS_MOLAR_MASS[gas] * 1000
+        level = "danger" if (sid != "ammonia" or ppm > idlh) else "warning"
+        what = {"sulfide": "toxic hydrogen sulfide", "cyanide": "deadly hydrogen cyanide",
+                "ammonia": "ammonia (odour, irritant)"}[sid]
+        checks.append(Check(
+            sid, level,
+            f"at pH {ph_after:.2f} {frac:.0%} of the {sid} is {gas} ({fmt(mg)} mg/L): "
+            f"{what} gas; air in contact with the water could reach about {ppm:,.0f} ppm "
+            f"(IDLH {idlh:g} ppm). "
+            + ("Do not acidify this waste in the open: closed tank, gas detection, "
+               "scrubbed vent, or oxidise first." if sid != "ammonia" else
+               "Keep covered and ventilated, or strip under control."),
+            {"fraction_as_gas_former": frac, "mg_per_l": mg, "headspace_ppm": ppm}))
+    # --------------------------------------------------------- discharge ions
+    f = 1.0 / (1.0 + d * (reagent.litres_product_per_mol or 0.0))
+    added = {}
+    for ion, n in reagent.compound.ions.items():
+        added[ion] = n * d * f * MOLAR_MASS[ion] * 1000.0
+    names = {"Na": "sodium", "Ca": "calcium", "K": "potassium", "Cl": "chloride",
+             "NO3": "nitrate", "SO4": "sulfate"}
+    tds = sum(added.values())
+    if "carbonate" in reagent.compound.adds and reagent.raises_ph:
+        # Carbonate from soda ash or bicarbonate stays as HCO3-/CO3 2- except
+        # the share that is CO2 at the final pH; counted as HCO3- (61 g/mol).
+        kept = 1.0 - float(after.alpha[0, CARBONATE, 0])
+        tds += d * f * kept * (MOLAR_MASS["CO2"] + MOLAR_MASS["H2O"] - 1.008) * 1000.0
+    values = {f"{names[k]}_added_mg_l": v for k, v in added.items()}
+    values["tds_increase_mg_l"] = tds
+    parts = [f"{names[k]} +{fmt(v)} mg/L" for k, v in added.items()]
+    checks.append(Check("discharge", "info",
+                        "the dose adds " + (", ".join(parts) if parts else "no strong ions")
+                        + f"; dissolved solids rise by about {fmt(tds)} mg/L", values))
+    after_mg = _after_mg_l(water, added, after, f)
+    for key, cap in (permit or {}).items():
+        if key == "tds_increase_mg_l":
+            value, basis = tds, "increase from the dose"
+        else:
+            ion = key.removesuffix("_mg_l")
+            value, basis = after_mg.get(ion, (None, ""))
+            if value is None:
+                value, basis = 0.0, "added by the dose; background not given"
+        level = "danger" if value > cap else "info"
+        checks.append(Check(
+            f"permit-{key}", level,
+            f"permit cap {key.removesuffix('_mg_l').replace('_', ' ')} {cap:g} mg/L: "
+            f"{fmt(value)} mg/L ({basis})" + (" - EXCEEDS THE CAP" if value > cap else
+                                            " - within the cap"),
+            {"value_mg_l": value, "cap_mg_l": cap}))
+    # ------------------------------------------------------------------ scale
+    ca_mg = after_mg.get("calcium", (None, ""))[0]
+    if ca_mg is not None and ca_mg > 0 and float(after.totals_mol_l[0, CARBONATE]) > 0:
+        si = _calcite_si(ca_mg / 1000.0 / MOLAR_MASS["Ca"], after, t, water.davies)
+        level = "warning" if si > CALCITE_SI_WARN else "info"
+        checks.append(Check(
+            "calcite", level,
+            f"calcite saturation index after dosing {si:+.2f}"
+            + (": the treated water will deposit CaCO3 scale in pipes, probes and "
+               "pumps; consider a lower aim or an acid rinse schedule" if level == "warning"
+               else (": at or under saturation, no calcite scale expected" if si <= 0
+                     else ": slightly over saturation")),
+            {"calcite_si": si, "calcium_mg_l": ca_mg}))
+    return tuple(checks)
+
+
+def _after_mg_l(water: Water, added: Mapping[str, float], after: Speciation,
+                f: float) -> dict[str, tuple[float, str]]:
+    """Concentration after dosing of each ion a permit may cap [mg/L]."""
+    out: dict[str, tuple[float, str]] = {}
+    names = {"Na": "sodium", "Ca": "calcium", "K": "potassium", "Cl": "chloride",
+             "NO3": "nitrate"}
+    for ion, mg in added.items():
+        if ion in names:
+            out[names[ion]] = (mg, "added by the dose; background not given")
+    for name, mg in water.ions_mg_l.items():
+        prev = out.get(name, (0.0, ""))[0]
+        out[name] = (prev + mg * f, "background plus dose")
+    s = float(after.totals_mol_l[0, system_index("sulfate")]) * MOLAR_MASS["SO4"] * 1000
+    if s > 0 or "SO4" in added:
+        out["sulfate"] = (s, "water plus dose")
+    return out
+
+
+def _calcite_si(ca_mol_l: float, after: Speciation, t: float, davies: bool) -> float:
+    """log10(IAP/Ksp) for calcite, Davies activities unless ideal [-]."""
+    co3 = float(after.concentration(CARBONATE, 2)[0])
+    if co3 <= 0:
+        return -math.inf
+    lg2 = 0.0
+    if davies:
+        lg2 = float(davies_log_gamma(2, float(after.ionic_strength[0]),
+                                     float(debye_huckel_a(t))))
+    return math.log10(ca_mol_l * co3) + 2 * lg2 + float(calcite_pksp(t))
