@@ -349,15 +349,24 @@ def solve_ph(mix: Mixture, *, ph_guess=None, tol_ph: float = 1e-12,
     if not mix.davies:
         return ph
     # Polish at a fixed ionic strength (full bracket) until it holds still;
-    # only the waters not yet consistent are solved again.
+    # only the waters not yet consistent are solved again, and the ionic
+    # strength moves by secant steps on g(I) = I(pH(I)) - I.
     idx = np.arange(mix.n)
+    x_prev = np.full(mix.n, np.nan)
+    g_prev = np.full(mix.n, np.nan)
     for _ in range(60):
         sub = rows.take(idx)
-        p, _ = _newton(sub, ph[idx], ionic[idx], tol_ph, max_iter, False)
-        new_i = _rows_state(sub, p, ionic[idx])[2]
-        ok = np.abs(new_i - ionic[idx]) <= 1e-13 + 1e-10 * new_i
+        x = ionic[idx]
+        p, _ = _newton(sub, ph[idx], x, tol_ph, max_iter, False)
+        fx = _rows_state(sub, p, x)[2]
+        g = fx - x
+        ok = np.abs(g) <= 1e-13 + 1e-10 * fx
         ph[idx] = p
-        ionic[idx] = new_i
+        with np.errstate(divide="ignore", invalid="ignore"):
+            sec = x - g * (x - x_prev[idx]) / (g - g_prev[idx])
+        step = np.where(np.isfinite(sec) & (sec >= 0.0), sec, fx)
+        ionic[idx] = np.where(ok, fx, step)
+        x_prev[idx], g_prev[idx] = x, g
         idx = idx[~ok]
         if idx.size == 0:
             return ph
@@ -384,16 +393,24 @@ def _newton(rows: _Rows, ph, ionic, tol_ph, max_iter, update_ionic):
         # R decreasing in pH: R > 0 means the root lies above p.
         l = np.where(resid > 0, p, l)
         u = np.where(resid <= 0, p, u)
-        new = p + resid / np.maximum(beta, 1e-300)   # Newton: dR/dpH = -beta
-        bad = ~((new > l) & (new < u)) | ~np.isfinite(new)
+        step = resid / np.maximum(beta, 1e-300)      # Newton: dR/dpH = -beta
+        new = p + step
+        # Converged: a step below tolerance, or a residual at the rounding
+        # level of the largest terms in the balance (1 mol/L salts).
+        scale = np.abs(sub.strong) + np.abs(sub.totals).sum(-1) + 10.0 ** -p
+        small = (np.abs(step) < tol_ph) | (np.abs(resid) <= 8 * np.finfo(float).eps * scale)
+        # The bracket is closed: the root may sit exactly on an end.
+        bad = ~small & (~((new >= l) & (new <= u)) | ~np.isfinite(new))
         new = np.where(bad, 0.5 * (l + u), new)
-        done = (np.abs(new - p) < tol_ph) | (u - l < tol_ph)
+        done = small | (u - l < tol_ph)
         if update_ionic and it < _JOINT_STEPS:
+            # The bracket was found at the old ionic strength: loosen it a
+            # little so the moving root stays inside; solve_ph's polish
+            # re-solves with a full bracket and settles the strength.
             changed = np.abs(new_i - ionic[live]) > 1e-13 + 1e-10 * new_i
+            l = np.where(changed, np.maximum(l - 0.1, -1.5), l)
+            u = np.where(changed, np.minimum(u + 0.1, 15.5), u)
             ionic[live] = new_i
-            # The bracket was found at the old ionic strength; solve_ph's
-            # polish re-solves with a full bracket, so it is kept here.
-            done &= ~changed
         ph[live], lo[live], hi[live] = new, l, u
         live = live[~done]
         if live.size == 0:

@@ -187,12 +187,7 @@ def _direction(reagent: Reagent) -> int:
 
 def _doses_at(mix: Mixture, reagent: Reagent, ph) -> tuple[np.ndarray, np.ndarray]:
     ph = np.atleast_1d(np.asarray(ph, dtype=float))
-    rep = Mixture.build(np.repeat(mix.totals_mol_l, ph.size, axis=0),
-                        np.repeat(mix.strong_eq_l, ph.size),
-                        np.repeat(mix.strong_ionic_strength, ph.size),
-                        np.repeat(mix.temperature_c, ph.size),
-                        np.repeat(mix.co2_air_mol_l, ph.size), mix.davies)
-    return dose_to_ph(rep, reagent.vector(), ph)
+    return dose_to_ph(_repeat(mix, ph.size), reagent.vector(), ph)
 
 
 def _reach_problem(water: Water, reagent: Reagent, ph: float, dose: float,
@@ -295,13 +290,8 @@ def plan_dose(water: Water, reagent: Reagent, target: Target,
     pair, _ = _doses_at(mix, reagent, (target.ph_aim - h, target.ph_aim + h))
     ddose_dph = (pair[1] - pair[0]) / (2 * h)
     slope = 1.0 / (ddose_dph * 1000.0) if ddose_dph != 0 else math.inf
-    lo_hi = add_dose(Mixture.build(np.repeat(mix.totals_mol_l, 2, 0),
-                                   np.repeat(mix.strong_eq_l, 2),
-                                   np.repeat(mix.strong_ionic_strength, 2),
-                                   np.repeat(mix.temperature_c, 2),
-                                   np.repeat(mix.co2_air_mol_l, 2), mix.davies),
-                     reagent.vector(), dose * np.array([1 - METERING_ERROR,
-                                                        1 + METERING_ERROR]))
+    lo_hi = add_dose(_repeat(mix, 2), reagent.vector(),
+                     dose * np.array([1 - METERING_ERROR, 1 + METERING_ERROR]))
     ph_lo, ph_hi = solve_ph(lo_hi, ph_guess=np.array([ph_end, ph_end]))
     if dose_needed:
         out = [p for p in (ph_lo, ph_hi) if not target.contains(float(p))]
@@ -341,6 +331,51 @@ def plan_dose(water: Water, reagent: Reagent, target: Target,
                 ionic_strength_end=float(end_state.ionic_strength[0]),
                 curve=curve, dose_needed=bool(dose_needed),
                 warnings=tuple(warnings), cautions=cautions, checks=checks)
+
+
+def mix_closed(water: Water) -> Mixture:
+    """The water as measured, before any exchange with air."""
+    m = water.mixture()
+    return Mixture(m.totals_mol_l, m.strong_eq_l, m.strong_ionic_strength,
+                   m.temperature_c, np.full(1, math.nan), m.davies)
+
+
+def titration_curve(water: Water, reagent: Reagent, max_dose_mol_l: float,
+                    *, points: int = 301) -> TitrationCurve:
+    """pH and buffer intensity against dose, from 0 to ``max_dose_mol_l``.
+
+    The two ends are forward solves; in between the curve is laid out on an
+    even grid of pH and each dose comes from the direct fixed-pH solve (one
+    vectorised call), which puts points where the pH moves, steep jumps
+    included.
+    """
+    if not (math.isfinite(max_dose_mol_l) and max_dose_mol_l > 0):
+        raise InputError("max_dose_mol_l", f"{max_dose_mol_l!r}; allowed: above 0")
+    if points < 3:
+        raise InputError("points", "a curve needs at least 3 points")
+    mix = water.mixture()
+    vec = reagent.vector()
+    ends = add_dose(_repeat(mix, 2), vec, np.array([0.0, max_dose_mol_l]))
+    p0, p1 = solve_ph(ends, ph_guess=np.full(2, water.ph))
+    grid = np.linspace(p0, p1, points)
+    d, _ = dose_to_ph(_repeat(mix, points), vec, grid)
+    d[0], d[-1] = 0.0, max_dose_mol_l
+    keep = np.isfinite(d) & (d >= 0.0) & (d <= max_dose_mol_l)
+    keep[[0, -1]] = True
+    grid, d = grid[keep], d[keep]
+    order = np.argsort(d, kind="stable")
+    grid, d = grid[order], d[order]
+    dosed = add_dose(_repeat(mix, d.size), vec, d)
+    beta = speciate(dosed, grid).buffer_intensity_eq_l
+    return TitrationCurve(d, grid, beta)
+
+
+def _repeat(mix: Mixture, n: int) -> Mixture:
+    """A one-row mixture repeated n times."""
+    return Mixture.build(np.repeat(mix.totals_mol_l, n, 0), np.repeat(mix.strong_eq_l, n),
+                         np.repeat(mix.strong_ionic_strength, n),
+                         np.repeat(mix.temperature_c, n), np.repeat(mix.co2_air_mol_l, n),
+                         mix.davies)
 
 
 def mix_closed(water: Water) -> Mixture:
