@@ -15,37 +15,14 @@ from __future__ import annotations
 
 import argparse
 import json
-import os
 import sys
-import tempfile
-from pathlib import Path
 
 from .errors import DosingError, ScenarioError
+from .files import write_atomic
 
-__all__ = ["main", "write_atomic"]
+__all__ = ["main"]
 
 EXIT_BAD_INPUT = 2
-
-
-def write_atomic(path: str | Path, data: bytes) -> None:
-    """Write ``data`` to ``path`` through a temporary file and a rename.
-
-    Raises
-    ------
-    ScenarioError
-        If the folder does not exist or cannot be written.
-    """
-    p = Path(path)
-    folder = p.parent if str(p.parent) else Path(".")
-    if not folder.is_dir():
-        raise ScenarioError(str(path), "", f"folder {str(folder)!r} does not exist")
-    try:
-        fd, tmp = tempfile.mkstemp(dir=folder, prefix=".dosing-", suffix=".tmp")
-        with os.fdopen(fd, "wb") as fh:
-            fh.write(data)
-        os.replace(tmp, p)
-    except OSError as err:
-        raise ScenarioError(str(path), "", f"cannot be written ({err.strerror})") from None
 
 
 def _parser() -> argparse.ArgumentParser:

@@ -140,7 +140,7 @@ def amounts_for(dose_mol_l: float, reagent: Reagent, basis: Batch | Flow) -> Amo
         kg_active=mol * reagent.compound.molar_mass_g_mol / 1000.0)
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class TitrationCurve:
     """pH against dose for one water and reagent (arrays of equal length)."""
 
@@ -149,7 +149,7 @@ class TitrationCurve:
     buffer_intensity_eq_l: np.ndarray  #: β of the dosed water [eq/(L pH)]
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class Plan:
     """Everything the planner says about one dosing decision.
 

@@ -1,0 +1,151 @@
+"""The terminal workbench driven by Textual's pilot."""
+
+import asyncio
+from pathlib import Path
+
+import pytest
+
+from dosing.scenario import load_scenario, parse_scenario
+from dosing.sheet import make_plan
+from tui.app import make_app
+from tui.form import field_id
+
+ROOT = Path(__file__).resolve().parents[1]
+CIP = str(ROOT / "scenarios" / "cip-sulfuric.toml")
+
+
+def drive(coro_fn, path=CIP):
+    async def main():
+        app = make_app(path)
+        async with app.run_test(size=(150, 45)) as pilot:
+            await pilot.pause()
+            await coro_fn(app, pilot)
+    asyncio.run(main())
+
+
+async def set_field(app, pilot, key, text):
+    box = app.query_one("#" + field_id(key))
+    box.focus()
+    box.value = ""
+    await pilot.press(*list(text)) if text else None
+    await pilot.pause()
+
+
+def test_opens_a_scenario_and_shows_the_engine_dose():
+    async def check(app, pilot):
+        expected = make_plan(load_scenario(CIP))
+        assert app.plan is not None
+        assert app.plan.dose_mol_l == pytest.approx(expected.dose_mol_l, rel=1e-12)
+        text = app.query_one("#dose-panel").plain_text
+        assert "30.0 kg" in text
+    drive(check)
+
+
+def test_typing_a_new_ph_replans():
+    async def check(app, pilot):
+        await set_field(app, pilot, "effluent.ph", "11.2")
+        s = load_scenario(CIP)
+        data = dict(s.data)
+        data["effluent"] = dict(data["effluent"], ph=11.2)
+        expected = make_plan(parse_scenario(_toml(data)))
+        assert app.plan.ph_start == 11.2
+        assert app.plan.dose_mol_l == pytest.approx(expected.dose_mol_l, rel=1e-9)
+        assert not app.stale
+    drive(check)
+
+
+def test_invalid_entry_shows_the_reason_and_keeps_the_plan():
+    async def check(app, pilot):
+        before = app.plan
+        await set_field(app, pilot, "effluent.ph", "19")
+        err = app.query_one("#" + field_id("effluent.ph") + "-error")
+        assert err.display and "too high" in str(err.render())
+        assert app.plan is before and app.stale
+        assert "Last valid plan shown" in app.query_one("#dose-panel").plain_text
+        await set_field(app, pilot, "effluent.ph", "abc")
+        assert "not a number" in str(err.render())
+        await set_field(app, pilot, "batch.volume_m3".replace("batch.volume_m3", "basis.amount"),
+                        "-3")
+        assert app.plan is before
+        await set_field(app, pilot, "effluent.ph", "11.8")
+        await set_field(app, pilot, "basis.amount", "18")
+        assert not app.stale and not err.display
+    drive(check)
+
+
+def test_switching_reagent_matches_the_engine():
+    async def check(app, pilot):
+        app.query_one("#f-reagent--id").value = "hydrochloric-32"
+        await pilot.pause()
+        assert app.plan.reagent.id == "hydrochloric-32"
+        s = load_scenario(CIP)
+        data = dict(s.data)
+        data["reagent"] = dict(data["reagent"], id="hydrochloric-32")
+        expected = make_plan(parse_scenario(_toml(data)))
+        assert app.plan.amounts().kg_product == pytest.approx(expected.amounts().kg_product,
+                                                              rel=1e-9)
+    drive(check)
+
+
+def test_custom_reagent_fields():
+    async def check(app, pilot):
+        app.query_one("#f-reagent--id").value = "custom"
+        await pilot.pause()
+        app.query_one("#f-reagent--compound").value = "H2SO4"
+        await set_field(app, pilot, "reagent.mass_fraction", "0.5")
+        await set_field(app, pilot, "reagent.density_kg_l", "1.3952")
+        assert app.plan.reagent.id == "custom"
+        assert app.plan.reagent.mass_fraction == 0.5
+        assert not app.stale
+    drive(check)
+
+
+def test_save_and_open_round_trip(tmp_path):
+    out = tmp_path / "saved.toml"
+
+    async def check(app, pilot):
+        await set_field(app, pilot, "target.ph_aim", "7.0")
+        app.save_path(str(out))
+        await pilot.pause()
+        assert out.exists()
+        saved = load_scenario(out)
+        assert saved.target.ph_aim == 7.0
+        assert saved.site == "Marlow Fen Dairy"        # kept though not on the form
+        assert saved.permit == {"sulfate_mg_l": 1500}
+        assert make_plan(saved).dose_mol_l == pytest.approx(app.plan.dose_mol_l, rel=1e-12)
+        app.open_path(str(ROOT / "scenarios" / "lime-acid-batch.toml"))
+        await pilot.pause()
+        assert app.plan.reagent.id == "lime"
+        app.open_path(str(tmp_path / "missing.toml"))
+        await pilot.pause()
+        assert "no such file" in app.status and app.plan.reagent.id == "lime"
+    drive(check)
+
+
+def test_views_help_and_units():
+    async def check(app, pilot):
+        for key in ("f3", "f4", "f5", "f2"):
+            await pilot.press(key)
+            await pilot.pause()
+        await pilot.press("f6")
+        await pilot.pause()
+        assert app.units == "us"
+        assert " lb" in app.query_one("#dose-panel").plain_text
+        await pilot.press("f1")
+        await pilot.pause()
+        assert app.screen.__class__.__name__ == "HelpScreen"
+        await pilot.press("escape")
+        caution = str(app.query_one("#caution").render())
+        assert "licensed engineer have the final word" in " ".join(caution.split())
+    drive(check)
+
+
+def test_starts_without_a_file():
+    async def check(app, pilot):
+        assert app.plan is not None and app.plan.reagent.id == "caustic-50"
+    drive(check, path=None)
+
+
+def _toml(data):
+    from dosing.scenario import scenario_to_toml
+    return scenario_to_toml(data)

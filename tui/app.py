@@ -1,0 +1,263 @@
+"""The neutralisation workbench: edit a scenario, see the dose at once.
+
+Only the engine, the scenario loader and the shared presentation in
+``dosing.sheet`` are used here; there is no chemistry in the UI. One
+factory, :func:`make_app`, builds the app for the command line and for the
+tests.
+"""
+
+from __future__ import annotations
+
+import time
+from pathlib import Path
+from typing import Any
+
+from textual import on
+from textual.app import App, ComposeResult
+from textual.containers import Horizontal, VerticalScroll
+from textual.reactive import reactive
+from textual.widgets import (Footer, Header, Label, Select, Static, TabbedContent,
+                             TabPane)
+
+from dosing.errors import DosingError, ScenarioError
+from dosing.files import write_atomic
+from dosing.plan import Plan
+from dosing.reagents import CATALOGUE, GENERAL_CAUTION
+from dosing.scenario import Scenario, build_scenario, load_scenario, scenario_to_toml
+from dosing.sheet import make_plan, render_sheet
+from dosing.sweep import default_alternative, default_sizes, sweep
+
+from .form import FIELDS, ScenarioForm, field_id
+from .screens.help import HelpScreen
+from .screens.path import PathScreen
+from .widgets.curve import CurvePlot
+from .widgets.dose import DosePanel
+from .widgets.sweep import SweepTable
+
+__all__ = ["Workbench", "make_app", "run", "DEFAULT_DATA"]
+
+#: A new, empty job (an invented tank), for when no file is given.
+DEFAULT_DATA: dict[str, Any] = {
+    "title": "New tank",
+    "effluent": {"ph": 3.0, "temperature_c": 20.0, "alkalinity_mg_l_as_caco3": 0.0},
+    "batch": {"volume_m3": 20.0},
+    "target": {"ph_min": 6.0, "ph_max": 9.0, "ph_aim": 7.5},
+    "reagent": {"id": "caustic-50"},
+    "model": {"activity": "davies", "open_to_air": False},
+}
+
+CAUTION = ("Reagents are corrosive and mixing is hot. " + GENERAL_CAUTION)
+
+
+def _form_key(key: str) -> str | None:
+    """The form field a scenario error key belongs to, if any."""
+    if key.startswith(("batch.", "flow.")):
+        return "basis.amount"
+    for f in FIELDS:
+        if key == f.key or key.startswith(f.key + "."):
+            return f.key
+    return None
+
+
+class Workbench(App):
+    """Edit a dosing scenario and watch the plan follow."""
+
+    CSS_PATH = "workbench.tcss"
+    TITLE = "Neutralisation workbench"
+    BINDINGS = [
+        ("f1", "help", "help"),
+        ("f2", "view('dose')", "dose"),
+        ("f3", "view('curve')", "curve"),
+        ("f4", "view('sweep')", "sweep"),
+        ("f5", "view('sheet')", "sheet"),
+        ("ctrl+o", "open", "open"),
+        ("ctrl+s", "save", "save"),
+        ("f6", "toggle_units", "metric/US"),
+        ("ctrl+q", "quit", "quit"),
+    ]
+
+    plan: reactive[Plan | None] = reactive(None, init=False, always_update=True)
+    """The last valid plan (kept while the form holds an error)."""
+    scenario: reactive[Scenario | None] = reactive(None, init=False, always_update=True)
+    """The scenario the plan was made from."""
+    stale: reactive[bool] = reactive(False, init=False)
+    """True while the form is invalid and the plan shown is the last valid one."""
+    units: reactive[str] = reactive("metric", init=False)
+    """Unit system of the views: "metric" or "us"."""
+    status: reactive[str] = reactive("")
+    """One line for the status bar."""
+
+    def __init__(self, path: str | None = None, data: dict[str, Any] | None = None):
+        super().__init__()
+        self.path = path
+        self._initial = data
+        self.last_recompute_ms = 0.0
+
+    # --------------------------------------------------------- layout --
+    def compose(self) -> ComposeResult:
+        yield Header()
+        with Horizontal(id="main"):
+            yield ScenarioForm(id="form")
+            with TabbedContent(id="views", initial="dose"):
+                with TabPane("Dose", id="dose"):
+                    with VerticalScroll():
+                        yield DosePanel(id="dose-panel")
+                with TabPane("Curve", id="curve"):
+                    yield CurvePlot(id="curve-plot")
+                with TabPane("Sweep", id="sweep"):
+                    with Horizontal(classes="row"):
+                        yield Label("compare with", classes="label")
+                        yield Select([(f"{r.id}  {r.name}", r.id) for r in CATALOGUE.values()],
+                                     value="caustic-25", allow_blank=False, compact=True,
+                                     id="compare", classes="value")
+                    yield SweepTable(id="sweep-table")
+                with TabPane("Sheet", id="sheet"):
+                    with VerticalScroll():
+                        yield Static(id="sheet-text")
+        yield Static("", id="status")
+        yield Static(CAUTION, id="caution")
+        yield Footer()
+
+    def on_mount(self) -> None:
+        data = self._initial
+        if data is None and self.path:
+            try:
+                data = dict(load_scenario(self.path).data)
+            except ScenarioError as err:
+                self.status = f"could not open: {err}"
+                data = None
+        self._load(data or DEFAULT_DATA)
+        self.query_one("#" + field_id("effluent.ph")).focus()
+
+    # ---------------------------------------------------------- state --
+    def _load(self, data: dict[str, Any]) -> None:
+        form = self.query_one(ScenarioForm)
+        form.load_data(data)
+        self.sub_title = self.path or "unsaved"
+        self.recompute()
+        if self.scenario is not None:
+            self.query_one("#compare", Select).value = default_alternative(
+                self.scenario.reagent)
+
+    def recompute(self) -> None:
+        """Read the form, validate, plan; keep the last plan on any error."""
+        t0 = time.perf_counter()
+        form = self.query_one(ScenarioForm)
+        data, errors = form.to_data()
+        scenario = plan = None
+        message = ""
+        if not errors:
+            try:
+                scenario = build_scenario(data, self.path or "form")
+                plan = make_plan(scenario)
+            except ScenarioError as err:
+                key = _form_key(err.key)
+                if key:
+                    errors[key] = err.reason
+                else:
+                    message = f"{err.key or 'scenario'}: {err.reason}"
+            except DosingError as err:
+                message = str(err)
+        form.show_errors(errors)
+        if plan is None:
+            self.stale = self.plan is not None
+            self.status = message or "fix the field marked in red"
+            self._render_views()
+            self.last_recompute_ms = (time.perf_counter() - t0) * 1000
+            return
+        self.stale = False
+        self.scenario, self.plan = scenario, plan     # the watcher renders the views
+        self.last_recompute_ms = (time.perf_counter() - t0) * 1000
+        self.status = f"planned and shown in {self.last_recompute_ms:.0f} ms"
+
+    def watch_plan(self) -> None:
+        self._render_views()
+
+    def watch_units(self) -> None:
+        self._render_views()
+
+    def watch_status(self, value: str) -> None:
+        self.query_one("#status", Static).update(value)
+
+    def _render_views(self) -> None:
+        if self.plan is None or self.scenario is None:
+            return
+        s, p, u = self.scenario, self.plan, self.units
+        self.query_one(DosePanel).show(s, p, u, self.stale)
+        self.query_one(CurvePlot).show(p, u)
+        self.query_one("#sheet-text", Static).update(render_sheet(s, p, u))
+        self._render_sweep()
+
+    def _render_sweep(self) -> None:
+        s = self.scenario
+        other = self.query_one("#compare", Select).value
+        reagents = (s.reagent,) if other == s.reagent.id else (s.reagent, other)
+        result = sweep(s, reagents, default_sizes(s.basis), known={s.reagent.id: self.plan})
+        self.query_one(SweepTable).show(result, self.units)
+
+    # -------------------------------------------------------- handlers --
+    @on(ScenarioForm.Edited)
+    def _form_edited(self) -> None:
+        self.recompute()
+
+    @on(Select.Changed, "#compare")
+    def _compare_changed(self) -> None:
+        if self.scenario is not None:
+            self._render_sweep()
+
+    def action_help(self) -> None:
+        self.push_screen(HelpScreen())
+
+    def action_view(self, name: str) -> None:
+        self.query_one(TabbedContent).active = name
+
+    def action_toggle_units(self) -> None:
+        self.units = "us" if self.units == "metric" else "metric"
+
+    def action_open(self) -> None:
+        self.push_screen(PathScreen("Open scenario file:", self.path or ""), self.open_path)
+
+    def open_path(self, path: str | None) -> None:
+        if not path:
+            return
+        try:
+            data = dict(load_scenario(path).data)
+        except ScenarioError as err:
+            self.status = f"not opened: {err}"
+            return
+        self.path = path
+        self._load(data)
+
+    def action_save(self) -> None:
+        self.push_screen(PathScreen("Save scenario as:", self.path or "scenario.toml"),
+                         self.save_path)
+
+    def save_path(self, path: str | None) -> None:
+        if not path:
+            return
+        data, errors = self.query_one(ScenarioForm).to_data()
+        if errors or self.stale:
+            self.status = "not saved: fix the field marked in red first"
+            return
+        try:
+            build_scenario(data, path)
+            write_atomic(path, scenario_to_toml(data).encode("utf-8"))
+        except DosingError as err:
+            self.status = f"not saved: {err}"
+            return
+        self.path = path
+        self.sub_title = path
+        self.status = f"saved {path}"
+
+
+def make_app(path: str | None = None, data: dict[str, Any] | None = None) -> Workbench:
+    """The one factory for the command line and the tests."""
+    return Workbench(path=path, data=data)
+
+
+def run(path: str | None = None) -> int:
+    """Run the workbench in the terminal; returns an exit code."""
+    if path is not None and not Path(path).exists():
+        raise ScenarioError(path, "", "no such file")
+    make_app(path).run()
+    return 0

@@ -1,0 +1,263 @@
+"""The scenario form: plain data in and out, no chemistry.
+
+:class:`ScenarioForm` shows the fields an operator changes most and turns
+them into scenario data (the same dictionary a TOML file parses to). Keys
+the form does not show (site, permit caps, storage ...) are kept from the
+loaded scenario, so nothing is lost on save.
+"""
+
+from __future__ import annotations
+
+import copy
+from dataclasses import dataclass
+from typing import Any
+
+from textual.app import ComposeResult
+from textual.containers import Horizontal, VerticalScroll
+from textual.message import Message
+from textual.widgets import Input, Label, Select, Static, Switch
+
+from dosing.reagents import CATALOGUE, COMPOUNDS
+
+__all__ = ["Field", "FIELDS", "ScenarioForm", "field_id", "parse_pairs"]
+
+
+@dataclass(frozen=True)
+class Field:
+    """One number or text box of the form."""
+
+    key: str          #: dotted scenario key
+    label: str
+    unit: str = ""
+    kind: str = "number"   #: "number" or "pairs" (name=value, ...)
+
+
+FIELDS = (
+    Field("effluent.ph", "pH", ""),
+    Field("effluent.temperature_c", "temperature", "°C"),
+    Field("effluent.alkalinity_mg_l_as_caco3", "alkalinity", "mg/L CaCO3"),
+    Field("effluent.acidity_mg_l_as_caco3", "acidity", "mg/L CaCO3"),
+    Field("effluent.solutes_mmol_l", "solutes", "mmol/L", "pairs"),
+    Field("basis.amount", "volume", "m³"),
+    Field("target.ph_min", "pH min"),
+    Field("target.ph_max", "pH max"),
+    Field("target.ph_aim", "pH aim"),
+    Field("reagent.mass_fraction", "strength", "mass fraction"),
+    Field("reagent.density_kg_l", "density", "kg/L"),
+    Field("reagent.price_per_kg", "price", "per kg"),
+)
+
+
+def field_id(key: str) -> str:
+    """Widget id of the field for a scenario key."""
+    return "f-" + key.replace(".", "--").replace("_", "-")
+
+
+def parse_pairs(text: str) -> dict[str, float]:
+    """``"sulfate=1.8, acetate=3"`` to a dict; raises ValueError with a reason."""
+    out: dict[str, float] = {}
+    for part in filter(None, (p.strip() for p in text.replace(";", ",").split(","))):
+        if "=" not in part:
+            raise ValueError(f"{part!r}: write name=value, e.g. sulfate=1.8")
+        name, value = (x.strip() for x in part.split("=", 1))
+        try:
+            out[name] = float(value)
+        except ValueError:
+            raise ValueError(f"{name}: {value!r} is not a number") from None
+    return out
+
+
+def _fmt(v: Any) -> str:
+    if isinstance(v, dict):
+        return ", ".join(f"{k}={x:g}" for k, x in v.items())
+    return "" if v is None else f"{v:g}" if isinstance(v, (int, float)) else str(v)
+
+
+class ScenarioForm(VerticalScroll):
+    """Fields of a scenario; posts :class:`ScenarioForm.Edited` on every change."""
+
+    @dataclass
+    class Edited(Message):
+        """The operator changed a field."""
+
+        form: "ScenarioForm"
+
+    def __init__(self, **kwargs):
+        super().__init__(**kwargs)
+        self._base: dict[str, Any] = {}
+        self._loading = False
+
+    def compose(self) -> ComposeResult:
+        yield Static("Effluent", classes="section")
+        for f in FIELDS[:5]:
+            yield from self._row(f)
+        yield Static("Tank or flow", classes="section")
+        with Horizontal(classes="row"):
+            yield Label("treat as", classes="label")
+            yield Select([("batch (tank)", "batch"), ("continuous flow", "flow")],
+                         value="batch", allow_blank=False, id="f-basis--mode", compact=True,
+                         classes="value")
+        yield from self._row(FIELDS[5])
+        yield Static("Permit window", classes="section")
+        for f in FIELDS[6:9]:
+            yield from self._row(f)
+        yield Static("Reagent", classes="section")
+        with Horizontal(classes="row"):
+            yield Label("product", classes="label")
+            options = [(r.id, r.id) for r in CATALOGUE.values()]
+            options.append(("custom product ...", "custom"))
+            yield Select(options, value="caustic-50", allow_blank=False, compact=True,
+                         id="f-reagent--id", classes="value")
+        with Horizontal(classes="row custom"):
+            yield Label("compound", classes="label")
+            yield Select([(c, c) for c in COMPOUNDS], value="NaOH", allow_blank=False,
+                         compact=True,
+                         id="f-reagent--compound", classes="value")
+        for f in FIELDS[9:]:
+            yield from self._row(f, "custom" if f.key != "reagent.price_per_kg" else "")
+        yield Static("Model", classes="section")
+        with Horizontal(classes="row"):
+            yield Label("activity", classes="label")
+            yield Select([("Davies", "davies"), ("ideal", "ideal")], value="davies",
+                         allow_blank=False, id="f-model--activity", classes="value", compact=True)
+        with Horizontal(classes="row"):
+            yield Label("open to air", classes="label")
+            yield Switch(value=False, id="f-model--open-to-air")
+
+    def _row(self, f: Field, extra: str = "") -> ComposeResult:
+        with Horizontal(classes=f"row {extra}".strip()):
+            yield Label(f.label, classes="label", id=field_id(f.key) + "-label")
+            yield Input(id=field_id(f.key), classes="value", compact=True)
+            yield Label(f.unit, classes="unit", id=field_id(f.key) + "-unit")
+        error = Label("", classes="error", id=field_id(f.key) + "-error")
+        error.display = False
+        yield error
+
+    # --------------------------------------------------------------- data --
+    def load_data(self, data: dict[str, Any]) -> None:
+        """Fill the form from scenario data (no Edited messages)."""
+        self._loading = True
+        try:
+            self._base = copy.deepcopy(data)
+            flow = "flow" in data
+            self.query_one("#f-basis--mode", Select).value = "flow" if flow else "batch"
+            amount = data.get("flow", {}).get("m3_per_h") if flow else \
+                data.get("batch", {}).get("volume_m3")
+            self.query_one("#" + field_id("basis.amount"), Input).value = _fmt(amount)
+            self._label_amount(flow)
+            for f in FIELDS:
+                if f.key == "basis.amount":
+                    continue
+                section, key = f.key.split(".")
+                self.query_one("#" + field_id(f.key), Input).value = _fmt(
+                    data.get(section, {}).get(key))
+            r = data.get("reagent", {})
+            rid = r.get("id", "custom")
+            self.query_one("#f-reagent--id", Select).value = rid if rid in CATALOGUE \
+                else "custom"
+            if r.get("compound") in COMPOUNDS:
+                self.query_one("#f-reagent--compound", Select).value = r["compound"]
+            m = data.get("model", {})
+            self.query_one("#f-model--activity", Select).value = m.get("activity", "davies")
+            self.query_one("#f-model--open-to-air", Switch).value = bool(
+                m.get("open_to_air", False))
+            self._show_custom(rid not in CATALOGUE)
+        finally:
+            self._loading = False
+
+    def to_data(self) -> tuple[dict[str, Any], dict[str, str]]:
+        """Scenario data from the form, and field errors found while reading it.
+
+        Numbers that do not parse are reported here (key -> reason); the
+        scenario validator reports the rest.
+        """
+        data = copy.deepcopy(self._base)
+        errors: dict[str, str] = {}
+        for name in ("effluent", "target", "reagent", "model"):
+            data.setdefault(name, {})
+        for f in FIELDS:
+            text = self.query_one("#" + field_id(f.key), Input).value.strip()
+            if f.key == "basis.amount":
+                continue
+            section, key = f.key.split(".")
+            if not text:
+                data[section].pop(key, None)
+                continue
+            try:
+                data[section][key] = parse_pairs(text) if f.kind == "pairs" else float(text)
+            except ValueError as err:
+                errors[f.key] = (str(err) if f.kind == "pairs"
+                                 else f"{text!r} is not a number")
+        mode = self.query_one("#f-basis--mode", Select).value
+        amount_text = self.query_one("#" + field_id("basis.amount"), Input).value.strip()
+        other = "batch" if mode == "flow" else "flow"
+        old_flow = data.pop(other, {})
+        section = data.setdefault(mode, {})
+        if mode == "flow" and "hours_per_day" in old_flow:
+            section["hours_per_day"] = old_flow["hours_per_day"]
+        key = "m3_per_h" if mode == "flow" else "volume_m3"
+        for k in ("m3_per_h", "volume_m3"):
+            if k != key:
+                section.pop(k, None)
+        try:
+            section[key] = float(amount_text)
+        except ValueError:
+            errors["basis.amount"] = (f"{amount_text!r} is not a number" if amount_text
+                                      else "missing; give the tank volume or the flow")
+        r = data["reagent"]
+        rid = self.query_one("#f-reagent--id", Select).value
+        if rid == "custom":
+            r.pop("id", None)
+            r.pop("purity", None)
+            r["compound"] = self.query_one("#f-reagent--compound", Select).value
+        else:
+            for k in ("compound", "mass_fraction", "density_kg_l", "molarity_mol_l", "form"):
+                r.pop(k, None)
+            r["id"] = rid
+            if CATALOGUE[rid].form == "liquid":
+                r.pop("purity", None)
+            else:
+                r.pop("storage_m3", None)
+        m = data["model"]
+        m["activity"] = self.query_one("#f-model--activity", Select).value
+        m["open_to_air"] = self.query_one("#f-model--open-to-air", Switch).value
+        return data, errors
+
+    def show_errors(self, errors: dict[str, str]) -> None:
+        """Show each error beside its field; clear the others."""
+        for f in FIELDS:
+            label = self.query_one("#" + field_id(f.key) + "-error", Label)
+            label.update(errors.get(f.key, ""))
+            label.display = f.key in errors
+            self.query_one("#" + field_id(f.key), Input).set_class(f.key in errors, "bad")
+
+    # ------------------------------------------------------------ events --
+    def _label_amount(self, flow: bool) -> None:
+        self.query_one("#" + field_id("basis.amount") + "-label", Label).update(
+            "flow" if flow else "volume")
+        self.query_one("#" + field_id("basis.amount") + "-unit", Label).update(
+            "m³/h" if flow else "m³")
+
+    def _show_custom(self, custom: bool) -> None:
+        for w in self.query(".custom"):
+            w.display = custom
+
+    def _edited(self) -> None:
+        if not self._loading:
+            self.post_message(self.Edited(self))
+
+    def on_input_changed(self, event: Input.Changed) -> None:
+        event.stop()
+        self._edited()
+
+    def on_select_changed(self, event: Select.Changed) -> None:
+        event.stop()
+        if event.select.id == "f-basis--mode":
+            self._label_amount(event.value == "flow")
+        if event.select.id == "f-reagent--id":
+            self._show_custom(event.value == "custom")
+        self._edited()
+
+    def on_switch_changed(self, event: Switch.Changed) -> None:
+        event.stop()
+        self._edited()

@@ -1,0 +1,51 @@
+"""The help screen."""
+
+from __future__ import annotations
+
+from textual.app import ComposeResult
+from textual.containers import VerticalScroll
+from textual.screen import ModalScreen
+from textual.widgets import Markdown
+
+from dosing.reagents import GENERAL_CAUTION
+
+HELP = f"""\
+# Neutralisation workbench
+
+Change any value on the left: the dose is planned again at once.
+
+| key | does |
+|---|---|
+| Tab / Shift+Tab | next / previous field |
+| F2 F3 F4 F5 | Dose, Curve, Sweep, Sheet views |
+| Ctrl+O | open a scenario file |
+| Ctrl+S | save the scenario (TOML, same as `dosing plan` reads) |
+| F6 | metric / US units |
+| F1 | this help |
+| Ctrl+Q | quit |
+
+**Fields.** Solutes are written `name=value` in mmol/L, separated by commas
+(`sulfate=1.8, acetate=3`); `dosing solutes` lists the names. Leave
+alkalinity or acidity empty if the lab did not measure it (give one, not
+both). Choose *custom product* to enter your own strength and density.
+
+**When a value is wrong** the reason shows under the field in red and the
+last valid plan stays on screen, marked as such.
+
+**Sweep** shows the dose for tank sizes (or flows) around yours, for the
+chosen reagent and the one in *compare with*.
+
+{GENERAL_CAUTION}
+
+Press Escape to close.
+"""
+
+
+class HelpScreen(ModalScreen[None]):
+    """Key hints and how the workbench reads its fields."""
+
+    BINDINGS = [("escape", "dismiss", "close"), ("f1", "dismiss", "close")]
+
+    def compose(self) -> ComposeResult:
+        with VerticalScroll(id="help-box"):
+            yield Markdown(HELP)

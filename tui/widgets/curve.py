@@ -1,0 +1,47 @@
+"""The titration curve as a text plot (textual-plotext)."""
+
+from __future__ import annotations
+
+from textual_plotext import PlotextPlot
+
+from dosing.plan import Batch, Plan
+from dosing.sheet import UNIT_SYSTEMS
+
+__all__ = ["CurvePlot", "curve_axes"]
+
+
+def curve_axes(plan: Plan, units: str) -> tuple[list[float], list[float], str, float]:
+    """x (product per batch or hour), pH, x label and the planned x."""
+    u = UNIT_SYSTEMS[units]
+    per = "per batch" if isinstance(plan.basis, Batch) else "per hour"
+    if plan.reagent.kg_product_per_mol is not None:
+        scale = plan.basis.litres * plan.reagent.kg_product_per_mol * u.mass_per_kg
+        label = f"{plan.reagent.id}, {u.mass} {per}"
+    else:
+        scale = (plan.basis.litres * plan.reagent.litres_product_per_mol
+                 * u.product_volume_per_l)
+        label = f"{plan.reagent.id}, {u.product_volume} {per}"
+    x = [float(v) * scale for v in plan.curve.dose_mol_l]
+    return x, [float(v) for v in plan.curve.ph], label, plan.dose_mol_l * scale
+
+
+class CurvePlot(PlotextPlot):
+    """pH against dose with the window edges, the aim and the planned dose."""
+
+    def show(self, plan: Plan, units: str) -> None:
+        x, ph, label, planned = curve_axes(plan, units)
+        p = self.plt
+        p.clear_data()
+        p.clear_figure()
+        p.plot(x, ph, label="pH after dose", color="cyan")
+        t = plan.target
+        p.hline(t.ph_min, "green")
+        p.hline(t.ph_max, "green")
+        p.hline(t.ph_aim, "green+")
+        p.vline(planned, "red")
+        p.scatter([planned], [plan.ph_end], marker="●", color="red", label="planned dose")
+        p.title(f"window pH {t.ph_min:g}-{t.ph_max:g} (green), planned dose (red)")
+        p.xlabel(label)
+        p.ylabel("pH")
+        p.ylim(max(0.0, min(min(ph), t.ph_min) - 0.5), min(14.0, max(max(ph), t.ph_max) + 0.5))
+        self.refresh()

@@ -1,0 +1,52 @@
+"""The dose panel: the plan in operator units, checks, warnings, cautions."""
+
+from __future__ import annotations
+
+from rich.console import Console, Group
+from rich.table import Table
+from rich.text import Text
+from textual.widgets import Static
+
+from dosing.plan import Plan
+from dosing.scenario import Scenario
+from dosing.sheet import caution_lines, check_lines, dose_lines
+
+__all__ = ["DosePanel"]
+
+_STYLE = {"!!": "bold red", "! ": "yellow", "- ": "dim", "  ": ""}
+
+
+class DosePanel(Static):
+    """Shows one plan; ``stale`` marks a plan kept while the form is invalid."""
+
+    def show(self, scenario: Scenario, plan: Plan, units: str, stale: bool) -> None:
+        table = Table.grid(padding=(0, 2))
+        table.add_column(style="bold")
+        table.add_column()
+        for label, value in dose_lines(scenario, plan, units):
+            table.add_row(label, value)
+        head = Text()
+        if stale:
+            head.append("Last valid plan shown: fix the field marked in red.\n",
+                        style="bold reverse yellow")
+        head.append(f"{plan.reagent.name} for {scenario.title}\n", style="bold")
+        notes = Text()
+        for line in caution_lines(plan):
+            notes.append(line + "\n", style=_STYLE.get(line[:2], ""))
+        for mark, message in check_lines(plan):
+            if mark == "  ":
+                notes.append(f"· {message}\n", style="dim")
+        group = Group(head, table, Text(""), notes)
+        self.update(group)
+        console = Console(width=200, record=True, file=_Null())
+        console.print(group)
+        self.plain_text = console.export_text()
+        """What the panel shows, as plain text."""
+
+
+class _Null:
+    def write(self, _text):
+        return 0
+
+    def flush(self):
+        pass
