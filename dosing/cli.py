@@ -42,7 +42,41 @@ def _parser() -> argparse.ArgumentParser:
     sub.add_parser("solutes", help="list the solutes a scenario may name")
     t = sub.add_parser("tui", help="open the terminal workbench")
     t.add_argument("scenario", nargs="?", help="scenario file to open")
+    t.add_argument("--db", metavar="PATH", help="shift log for recording decisions")
+    _log_parser(sub)
     return ap
+
+
+def _log_parser(sub) -> None:
+    lg = sub.add_parser("log", help="the shift log of dosing decisions")
+    lsub = lg.add_subparsers(dest="log_command", required=True, metavar="ACTION")
+    db_help = "log file (default: $DOSING_LOG_DB or the per-user data folder)"
+    a = lsub.add_parser("add", help="record a decision for a scenario")
+    a.add_argument("scenario")
+    a.add_argument("--operator", required=True)
+    a.add_argument("--dosed", type=float, metavar="KG", help="product actually dosed, kg")
+    a.add_argument("--ph-after", type=float, metavar="PH", help="pH measured after dosing")
+    a.add_argument("--note", default="")
+    a.add_argument("--corrects", type=int, metavar="ID", help="this entry corrects entry ID")
+    a.add_argument("--db", metavar="PATH", help=db_help)
+    f = lsub.add_parser("follow-up", help="attach a later pH reading to an entry")
+    f.add_argument("id", type=int)
+    f.add_argument("--ph-after", type=float, required=True, metavar="PH")
+    f.add_argument("--operator", default="")
+    f.add_argument("--note", default="")
+    f.add_argument("--db", metavar="PATH", help=db_help)
+    ls = lsub.add_parser("list", help="list entries")
+    ls.add_argument("--since", metavar="DATE", help="only entries from this date (ISO 8601)")
+    ls.add_argument("--tank", help="only this tank")
+    ls.add_argument("--db", metavar="PATH", help=db_help)
+    sh = lsub.add_parser("show", help="show one entry with its corrections and follow-ups")
+    sh.add_argument("id", type=int)
+    sh.add_argument("--db", metavar="PATH", help=db_help)
+    ex = lsub.add_parser("export", help="export the log")
+    ex.add_argument("--csv", required=True, metavar="FILE")
+    ex.add_argument("--since", metavar="DATE")
+    ex.add_argument("--tank")
+    ex.add_argument("--db", metavar="PATH", help=db_help)
 
 
 def _cmd_plan(args) -> int:
@@ -88,14 +122,52 @@ def _cmd_solutes(_args) -> int:
 
 def _cmd_tui(args) -> int:
     from tui.app import run
-    return run(args.scenario)
+    return run(args.scenario, db=args.db)
+
+
+def _cmd_log(args) -> int:
+    from .shiftlog import ShiftLog, parse_since
+    from . import logview
+    since = parse_since(args.since) if getattr(args, "since", None) else None
+    if args.log_command == "export":
+        if not args.csv.lower().endswith(".csv"):
+            raise ScenarioError(args.csv, "", "the export is CSV; give a name ending in .csv")
+    if args.log_command == "add":
+        from .scenario import load_scenario
+        from .sheet import make_plan, sheet_dict
+        scenario = load_scenario(args.scenario)
+        plan = make_plan(scenario)
+        from pathlib import Path
+        toml_text = Path(args.scenario).read_text(encoding="utf-8")
+        with ShiftLog(args.db) as log:
+            entry_id = log.record_decision(
+                operator=args.operator, scenario_toml=toml_text,
+                plan=sheet_dict(scenario, plan), dosed_kg=args.dosed,
+                ph_after=args.ph_after, note=args.note, corrects=args.corrects)
+            sys.stdout.write(logview.render_entry(log, log.get(entry_id)))
+        return 0
+    with ShiftLog(args.db) as log:
+        if args.log_command == "follow-up":
+            new = log.record_follow_up(args.id, ph_after=args.ph_after,
+                                       operator=args.operator, note=args.note)
+            sys.stdout.write(f"recorded follow-up {new} on entry {args.id}: "
+                             f"pH {args.ph_after:g}\n")
+        elif args.log_command == "list":
+            sys.stdout.write(logview.render_list(log, since_utc=since, tank=args.tank))
+        elif args.log_command == "show":
+            sys.stdout.write(logview.render_entry(log, log.get(args.id)))
+        elif args.log_command == "export":
+            frame = log.frame(since_utc=since, tank=args.tank)
+            write_atomic(args.csv, frame.to_csv(index=False).encode("utf-8"))
+            sys.stdout.write(f"wrote {len(frame)} entries to {args.csv}\n")
+    return 0
 
 
 def main(argv: list[str] | None = None) -> int:
     """Entry point of the ``dosing`` command; returns the exit code."""
     args = _parser().parse_args(argv)
     handler = {"plan": _cmd_plan, "reagents": _cmd_reagents, "solutes": _cmd_solutes,
-               "tui": _cmd_tui}[args.command]
+               "tui": _cmd_tui, "log": _cmd_log}[args.command]
     try:
         return handler(args)
     except DosingError as err:

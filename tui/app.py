@@ -24,7 +24,8 @@ from dosing.files import write_atomic
 from dosing.plan import Plan
 from dosing.reagents import CATALOGUE, GENERAL_CAUTION
 from dosing.scenario import Scenario, build_scenario, load_scenario, scenario_to_toml
-from dosing.sheet import make_plan, render_sheet
+from dosing.sheet import make_plan, render_sheet, sheet_dict
+from dosing.shiftlog import ShiftLog
 from dosing.sweep import default_alternative, default_sizes, sweep
 
 from .form import FIELDS, ScenarioForm, field_id
@@ -73,6 +74,7 @@ class Workbench(App):
         ("ctrl+o", "open", "open"),
         ("ctrl+s", "save", "save"),
         ("f6", "toggle_units", "metric/US"),
+        ("f7", "record", "record"),
         ("ctrl+q", "quit", "quit"),
     ]
 
@@ -87,9 +89,11 @@ class Workbench(App):
     status: reactive[str] = reactive("")
     """One line for the status bar."""
 
-    def __init__(self, path: str | None = None, data: dict[str, Any] | None = None):
+    def __init__(self, path: str | None = None, data: dict[str, Any] | None = None,
+                 db: str | None = None):
         super().__init__()
         self.path = path
+        self.db = db
         self._initial = data
         self.last_recompute_ms = 0.0
 
@@ -250,14 +254,50 @@ class Workbench(App):
         self.status = f"saved {path}"
 
 
-def make_app(path: str | None = None, data: dict[str, Any] | None = None) -> Workbench:
+    def action_record(self) -> None:
+        if self.stale or self.plan is None:
+            self.status = "not recorded: fix the field marked in red first"
+            return
+        self.push_screen(PathScreen("Record in the shift log. Operator name "
+                                    "(optionally: name; kg dosed; note):", ""),
+                         self.record)
+
+    def record(self, answer: str | None) -> None:
+        """Record the current plan in the shift log (same code as `dosing log add`)."""
+        if not answer:
+            return
+        parts = [p.strip() for p in answer.split(";")]
+        operator = parts[0]
+        dosed = None
+        if len(parts) > 1 and parts[1]:
+            try:
+                dosed = float(parts[1])
+            except ValueError:
+                self.status = f"not recorded: {parts[1]!r} is not a number of kg"
+                return
+        note = ";".join(parts[2:]).strip()
+        data, _ = self.query_one(ScenarioForm).to_data()
+        try:
+            with ShiftLog(self.db) as log:
+                entry = log.record_decision(
+                    operator=operator, scenario_toml=scenario_to_toml(data),
+                    plan=sheet_dict(self.scenario, self.plan), dosed_kg=dosed, note=note)
+                where = log.path
+        except DosingError as err:
+            self.status = f"not recorded: {err}"
+            return
+        self.status = f"recorded as entry {entry} in {where}"
+
+
+def make_app(path: str | None = None, data: dict[str, Any] | None = None,
+             db: str | None = None) -> Workbench:
     """The one factory for the command line and the tests."""
-    return Workbench(path=path, data=data)
+    return Workbench(path=path, data=data, db=db)
 
 
-def run(path: str | None = None) -> int:
+def run(path: str | None = None, db: str | None = None) -> int:
     """Run the workbench in the terminal; returns an exit code."""
     if path is not None and not Path(path).exists():
         raise ScenarioError(path, "", "no such file")
-    make_app(path).run()
+    make_app(path, db=db).run()
     return 0

@@ -21,6 +21,7 @@ Change any value on the left: the dose is planned again at once.
 | Ctrl+O | open a scenario file |
 | Ctrl+S | save the scenario (TOML, same as `dosing plan` reads) |
 | F6 | metric / US units |
+| F7 | record this decision in the shift log (name; kg dosed; note) |
 | F1 | this help |
 | Ctrl+Q | quit |
 

@@ -1,0 +1,70 @@
+"""Shift-log entries as text, shared by the command line and the workbench."""
+
+from __future__ import annotations
+
+from .numbers import fmt
+from .shiftlog import Entry, ShiftLog
+
+__all__ = ["render_list", "render_entry"]
+
+
+def _n(x, digits=3) -> str:
+    return "-" if x is None else fmt(x, digits)
+
+
+def render_list(log: ShiftLog, *, since_utc: str | None = None, tank: str | None = None) -> str:
+    """One line per entry, with planned vs dosed and the latest pH after."""
+    head = (f"{'id':>5}  {'local time':<19}  {'kind':<10}  {'tank':<14}  {'reagent':<16}  "
+            f"{'operator':<10}  {'planned kg':>10}  {'dosed kg':>9}  {'ratio':>5}  "
+            f"{'pH aim':>6}  {'pH after':>8}  refers")
+    lines = [head, "-" * len(head)]
+    n = 0
+    for e in log.entries(since_utc=since_utc, tank=tank):
+        n += 1
+        lines.append(
+            f"{e.id:>5}  {e.local_time[:19]:<19}  {e.kind:<10}  {e.tank[:14]:<14}  "
+            f"{e.reagent[:16]:<16}  {e.operator[:10]:<10}  {_n(e.planned_kg):>10}  "
+            f"{_n(e.dosed_kg):>9}  {_n(e.dosed_ratio):>5}  {_n(e.ph_planned):>6}  "
+            f"{_n(log.latest_ph(e)):>8}  {e.refers_to or ''}")
+    if n == 0:
+        lines.append("(no entries)")
+    return "\n".join(lines) + "\n"
+
+
+def render_entry(log: ShiftLog, e: Entry) -> str:
+    """An entry in full, with what corrects it and its follow-ups."""
+    out = [f"entry {e.id} ({e.kind}), {e.local_time} local, {e.utc} UTC",
+           f"  operator {e.operator}; site {e.site or '-'}; tank {e.tank or '-'}; "
+           f"engine {e.engine_version}"]
+    if e.title:
+        out.append(f"  scenario: {e.title}")
+    if e.refers_to:
+        verb = "corrects" if e.kind == "correction" else "follows up"
+        out.append(f"  {verb} entry {e.refers_to}")
+    plan = e.plan
+    if plan:
+        dose = plan.get("dose", {})
+        per = " per hour" if "kg_product_per_h" in dose else ""
+        out.append(f"  planned: {_n(e.planned_kg)} kg{per} of {plan.get('reagent_name', e.reagent)}"
+                   f" ({_n(dose.get('mmol_per_l'))} mmol/L), pH {_n(e.ph_start)} to "
+                   f"{_n(e.ph_planned)}")
+    if e.dosed_kg is not None:
+        out.append(f"  actually dosed: {_n(e.dosed_kg)} kg"
+                   + (f" ({fmt(e.dosed_ratio)} of plan)" if e.dosed_ratio else ""))
+    if e.ph_after is not None:
+        out.append(f"  pH after: {_n(e.ph_after)}")
+    if e.note:
+        out.append(f"  note: {e.note}")
+    for r in log.related(e.id):
+        if r.kind == "follow_up":
+            out.append(f"  follow-up {r.id} at {r.local_time}: pH {_n(r.ph_after)}"
+                       + (f" ({r.note})" if r.note else "")
+                       + (f" by {r.operator}" if r.operator != "-" else ""))
+        else:
+            out.append(f"  CORRECTED by entry {r.id} at {r.local_time} ({r.operator})")
+    if plan:
+        for w in plan.get("warnings", []):
+            out.append(f"  ! {w}")
+        for c in plan.get("cautions", []):
+            out.append(f"  - {c}")
+    return "\n".join(out) + "\n"

@@ -1,0 +1,333 @@
+"""The shift log: an append-only record of dosing decisions, in SQLite.
+
+Each entry is one row of ``entries`` and is never changed. Three kinds:
+
+* ``decision`` - what was measured (the full scenario), what was planned
+  (the JSON of ``dosing plan``), what was actually dosed, the pH that
+  followed if known, who, when, engine version;
+* ``correction`` - a new decision that replaces an earlier one, pointing to
+  it with ``refers_to``; both stay and both are shown;
+* ``follow_up`` - a pH reading (and note) attached later to an entry.
+
+Reliability: WAL journal, ``synchronous=FULL``, one transaction per entry
+(``BEGIN IMMEDIATE``), a busy timeout so two writers queue instead of
+failing, triggers that refuse UPDATE and DELETE. A file at the log path
+that is not our SQLite log is refused and never written to.
+
+Schema versions live in ``PRAGMA user_version``; :data:`MIGRATIONS` takes a
+log from any older version to :data:`SCHEMA_VERSION` in order, each step in
+one transaction.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import sqlite3
+from dataclasses import dataclass
+from datetime import datetime, timezone
+from pathlib import Path
+from typing import Any, Iterator
+
+from .errors import DosingError, InputError
+
+__all__ = ["ShiftLogError", "Entry", "ShiftLog", "default_log_path", "SCHEMA_VERSION",
+           "MIGRATIONS", "ENV_VAR", "parse_since"]
+
+#: Environment variable that overrides the default log location.
+ENV_VAR = "DOSING_LOG_DB"
+#: "NDOS" as an integer, written to PRAGMA application_id.
+APPLICATION_ID = 0x4E444F53
+SCHEMA_VERSION = 1
+_SQLITE_MAGIC = b"SQLite format 3\x00"
+
+_V1 = """
+CREATE TABLE entries (
+    id             INTEGER PRIMARY KEY AUTOINCREMENT,
+    kind           TEXT NOT NULL CHECK (kind IN ('decision', 'correction', 'follow_up')),
+    utc            TEXT NOT NULL,
+    operator       TEXT NOT NULL,
+    site           TEXT NOT NULL DEFAULT '',
+    tank           TEXT NOT NULL DEFAULT '',
+    title          TEXT NOT NULL DEFAULT '',
+    reagent        TEXT NOT NULL DEFAULT '',
+    scenario_toml  TEXT,
+    plan_json      TEXT,
+    planned_kg     REAL,
+    dosed_kg       REAL,
+    ph_start       REAL,
+    ph_planned     REAL,
+    ph_after       REAL,
+    note           TEXT NOT NULL DEFAULT '',
+    refers_to      INTEGER REFERENCES entries (id),
+    engine_version TEXT NOT NULL
+);
+CREATE INDEX entries_tank ON entries (tank);
+CREATE INDEX entries_utc ON entries (utc);
+CREATE INDEX entries_refers ON entries (refers_to);
+CREATE TRIGGER entries_no_update BEFORE UPDATE ON entries
+BEGIN SELECT RAISE(ABORT, 'the shift log is append-only: entries are never changed'); END;
+CREATE TRIGGER entries_no_delete BEFORE DELETE ON entries
+BEGIN SELECT RAISE(ABORT, 'the shift log is append-only: entries are never deleted'); END;
+"""
+
+#: (version reached, SQL script) in order. The next schema adds a row here.
+MIGRATIONS: tuple[tuple[int, str], ...] = ((1, _V1),)
+
+
+class ShiftLogError(DosingError, ValueError):
+    """The log file is unusable, or a request names something not in it."""
+
+
+def default_log_path() -> Path:
+    """Where the log lives: ``$DOSING_LOG_DB``, else the per-user data folder."""
+    if os.environ.get(ENV_VAR):
+        return Path(os.environ[ENV_VAR])
+    from platformdirs import user_data_dir
+    return Path(user_data_dir("neutral-dosing", appauthor=False)) / "shiftlog.sqlite"
+
+
+def parse_since(text: str) -> str:
+    """A date or date-time (ISO 8601, local time if no zone) to a UTC string."""
+    try:
+        when = datetime.fromisoformat(text.strip())
+    except ValueError:
+        raise InputError("--since", f"{text!r} is not a date; write 2026-11-30 or "
+                         "2026-11-30T06:00") from None
+    if when.tzinfo is None:
+        when = when.astimezone()
+    return when.astimezone(timezone.utc).isoformat(timespec="seconds")
+
+
+@dataclass(frozen=True)
+class Entry:
+    """One row of the log."""
+
+    id: int
+    kind: str
+    utc: str
+    operator: str
+    site: str
+    tank: str
+    title: str
+    reagent: str
+    scenario_toml: str | None
+    plan_json: str | None
+    planned_kg: float | None
+    dosed_kg: float | None
+    ph_start: float | None
+    ph_planned: float | None
+    ph_after: float | None
+    note: str
+    refers_to: int | None
+    engine_version: str
+
+    @property
+    def local_time(self) -> str:
+        """The entry's time in the machine's local zone."""
+        return datetime.fromisoformat(self.utc).astimezone().isoformat(timespec="seconds")
+
+    @property
+    def dosed_ratio(self) -> float | None:
+        """Actually dosed over planned [-], when both are known."""
+        if self.dosed_kg is None or not self.planned_kg:
+            return None
+        return self.dosed_kg / self.planned_kg
+
+    @property
+    def plan(self) -> dict[str, Any] | None:
+        """The stored plan JSON as data."""
+        return None if self.plan_json is None else json.loads(self.plan_json)
+
+
+_COLUMNS = ("id", "kind", "utc", "operator", "site", "tank", "title", "reagent",
+            "scenario_toml", "plan_json", "planned_kg", "dosed_kg", "ph_start",
+            "ph_planned", "ph_after", "note", "refers_to", "engine_version")
+
+
+class ShiftLog:
+    """An open shift log. Use as a context manager, or call :meth:`close`."""
+
+    def __init__(self, path: str | Path | None = None):
+        self.path = Path(path) if path is not None else default_log_path()
+        self._check_file()
+        self.path.parent.mkdir(parents=True, exist_ok=True)
+        try:
+            self._db = sqlite3.connect(str(self.path), timeout=30.0, isolation_level=None)
+            self._db.execute("PRAGMA busy_timeout = 30000")
+            self._prepare()
+        except sqlite3.DatabaseError as err:
+            raise ShiftLogError(f"{self.path}: cannot be used as a shift log ({err}); "
+                                "the file was not changed") from None
+
+    # ------------------------------------------------------------ opening --
+    def _check_file(self) -> None:
+        p = self.path
+        if p.is_dir():
+            raise ShiftLogError(f"{p}: is a folder; give a file path for the log")
+        if p.exists() and p.stat().st_size > 0:
+            with open(p, "rb") as fh:
+                head = fh.read(16)
+            if head != _SQLITE_MAGIC:
+                raise ShiftLogError(f"{p}: is not a shift log (not an SQLite database); "
+                                    "it was not changed. Give another path with --db "
+                                    f"or {ENV_VAR}")
+
+    def _prepare(self) -> None:
+        db = self._db
+        app_id = db.execute("PRAGMA application_id").fetchone()[0]
+        version = db.execute("PRAGMA user_version").fetchone()[0]
+        tables = db.execute("SELECT count(*) FROM sqlite_master").fetchone()[0]
+        if app_id != APPLICATION_ID and (tables or version):
+            raise ShiftLogError(f"{self.path}: is an SQLite database of another program, "
+                                "not a shift log; it was not changed")
+        if version > SCHEMA_VERSION:
+            raise ShiftLogError(f"{self.path}: was written by a newer version of the "
+                                f"planner (schema {version}, this one reads up to "
+                                f"{SCHEMA_VERSION}); upgrade before using it")
+        db.execute("PRAGMA journal_mode = WAL")
+        db.execute("PRAGMA synchronous = FULL")
+        db.execute("PRAGMA foreign_keys = ON")
+        for target, script in MIGRATIONS:
+            if version >= target:
+                continue
+            db.execute("BEGIN IMMEDIATE")
+            try:
+                # Another process may have migrated while we waited.
+                now = db.execute("PRAGMA user_version").fetchone()[0]
+                if now < target:
+                    for stmt in _statements(script):
+                        db.execute(stmt)
+                    db.execute(f"PRAGMA application_id = {APPLICATION_ID}")
+                    db.execute(f"PRAGMA user_version = {target}")
+                db.execute("COMMIT")
+            except BaseException:
+                db.execute("ROLLBACK")
+                raise
+            version = target
+
+    def close(self) -> None:
+        self._db.close()
+
+    def __enter__(self) -> "ShiftLog":
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self.close()
+
+    # ------------------------------------------------------------ writing --
+    def _insert(self, row: dict[str, Any]) -> int:
+        from . import __version__
+        row = dict(row, utc=datetime.now(timezone.utc).isoformat(timespec="microseconds"),
+                   engine_version=__version__)
+        keys = ", ".join(row)
+        marks = ", ".join("?" for _ in row)
+        db = self._db
+        db.execute("BEGIN IMMEDIATE")
+        try:
+            if row.get("refers_to") is not None:
+                self._require(int(row["refers_to"]))
+            cur = db.execute(f"INSERT INTO entries ({keys}) VALUES ({marks})",
+                             tuple(row.values()))
+            db.execute("COMMIT")
+        except BaseException:
+            db.execute("ROLLBACK")
+            raise
+        return int(cur.lastrowid)
+
+    def record_decision(self, *, operator: str, scenario_toml: str, plan: dict[str, Any],
+                        dosed_kg: float | None = None, ph_after: float | None = None,
+                        note: str = "", corrects: int | None = None) -> int:
+        """Append a decision (or a correction of entry ``corrects``); returns its id."""
+        if not operator.strip():
+            raise InputError("--operator", "give the operator's name")
+        for name, v, lo, hi in (("--dosed", dosed_kg, 0.0, 1e9), ("--ph-after", ph_after, 0, 14)):
+            if v is not None and not (lo <= v <= hi):
+                raise InputError(name, f"{v:g} is out of range; allowed: {lo:g} to {hi:g}")
+        dose = plan.get("dose", {})
+        planned = dose.get("kg_product", dose.get("kg_product_per_h"))
+        return self._insert({
+            "kind": "correction" if corrects is not None else "decision",
+            "operator": operator.strip(), "site": plan.get("site", ""),
+            "tank": plan.get("tank", ""), "title": plan.get("title", ""),
+            "reagent": plan.get("reagent", ""), "scenario_toml": scenario_toml,
+            "plan_json": json.dumps(plan, ensure_ascii=False), "planned_kg": planned,
+            "dosed_kg": dosed_kg, "ph_start": plan.get("ph_start"),
+            "ph_planned": plan.get("ph_end"), "ph_after": ph_after, "note": note,
+            "refers_to": corrects})
+
+    def record_follow_up(self, entry_id: int, *, ph_after: float, operator: str = "",
+                         note: str = "") -> int:
+        """Attach a later pH reading to entry ``entry_id``; returns the new id."""
+        if not (0 <= ph_after <= 14):
+            raise InputError("--ph-after", f"{ph_after:g} is not a pH; allowed: 0 to 14")
+        target = self.get(entry_id)
+        return self._insert({"kind": "follow_up", "operator": operator.strip() or "-",
+                             "site": target.site, "tank": target.tank, "title": target.title,
+                             "reagent": target.reagent, "ph_after": ph_after, "note": note,
+                             "refers_to": entry_id})
+
+    # ------------------------------------------------------------ reading --
+    def _require(self, entry_id: int) -> None:
+        if self._db.execute("SELECT 1 FROM entries WHERE id = ?", (entry_id,)).fetchone() is None:
+            raise ShiftLogError(f"no entry {entry_id} in {self.path}")
+
+    def get(self, entry_id: int) -> Entry:
+        """One entry by id."""
+        row = self._db.execute(f"SELECT {', '.join(_COLUMNS)} FROM entries WHERE id = ?",
+                               (entry_id,)).fetchone()
+        if row is None:
+            raise ShiftLogError(f"no entry {entry_id} in {self.path}")
+        return Entry(*row)
+
+    def related(self, entry_id: int) -> list[Entry]:
+        """Entries that refer to ``entry_id`` (corrections, follow-ups), oldest first."""
+        rows = self._db.execute(f"SELECT {', '.join(_COLUMNS)} FROM entries "
+                                "WHERE refers_to = ? ORDER BY id", (entry_id,)).fetchall()
+        return [Entry(*r) for r in rows]
+
+    def entries(self, *, since_utc: str | None = None, tank: str | None = None) -> Iterator[Entry]:
+        """All entries, oldest first, filtered by time and tank."""
+        sql = f"SELECT {', '.join(_COLUMNS)} FROM entries WHERE 1"
+        args: list[Any] = []
+        if since_utc:
+            sql += " AND utc >= ?"
+            args.append(since_utc)
+        if tank:
+            sql += " AND tank = ?"
+            args.append(tank)
+        for row in self._db.execute(sql + " ORDER BY id", args):
+            yield Entry(*row)
+
+    def count(self) -> int:
+        return self._db.execute("SELECT count(*) FROM entries").fetchone()[0]
+
+    def latest_ph(self, entry: Entry) -> float | None:
+        """The most recent pH after an entry: its own or its last follow-up's."""
+        row = self._db.execute("SELECT ph_after FROM entries WHERE refers_to = ? AND "
+                               "kind = 'follow_up' ORDER BY id DESC LIMIT 1",
+                               (entry.id,)).fetchone()
+        return row[0] if row else entry.ph_after
+
+    def frame(self, *, since_utc: str | None = None, tank: str | None = None):
+        """The log as a pandas DataFrame (one row per entry, plan JSON kept)."""
+        import pandas as pd
+        rows = [dict(zip(_COLUMNS, (getattr(e, c) for c in _COLUMNS)),
+                     local_time=e.local_time, dosed_ratio=e.dosed_ratio,
+                     latest_ph_after=self.latest_ph(e))
+                for e in self.entries(since_utc=since_utc, tank=tank)]
+        return pd.DataFrame(rows, columns=list(_COLUMNS) + ["local_time", "dosed_ratio",
+                                                          "latest_ph_after"])
+
+
+def _statements(script: str) -> list[str]:
+    """Split a schema script into statements (triggers kept whole)."""
+    out, buf = [], []
+    for line in script.strip().splitlines():
+        buf.append(line)
+        text = "\n".join(buf).strip()
+        if text.endswith(";") and (not text.upper().startswith("CREATE TRIGGER")
+                                   or text.upper().endswith("END;")):
+            out.append(text)
+            buf = []
+    return out
