@@ -44,6 +44,15 @@ def _parser() -> argparse.ArgumentParser:
     t.add_argument("scenario", nargs="?", help="scenario file to open")
     t.add_argument("--db", metavar="PATH", help="shift log for recording decisions")
     _log_parser(sub)
+    r = sub.add_parser("replay", help="replay logged flow and pH data through the planner")
+    r.add_argument("data", help="CSV (or Parquet) with timestamp, flow (m3/h) and pH columns")
+    r.add_argument("--scenario", required=True, help="scenario: water model, reagent, window")
+    r.add_argument("--json", action="store_true", help="print the summary as JSON")
+    r.add_argument("--csv", metavar="OUT.csv", help="write per-row results")
+    r.add_argument("--plot", metavar="FILE.png", help="write time series and daily use")
+    r.add_argument("--units", choices=("metric", "us"), default="metric")
+    r.add_argument("--chunk-rows", type=int, default=100_000, metavar="N",
+                   help="rows read at a time (memory stays constant)")
     return ap
 
 
@@ -125,6 +134,41 @@ def _cmd_tui(args) -> int:
     return run(args.scenario, db=args.db)
 
 
+def _cmd_replay(args) -> int:
+    from .files import atomic_text_writer
+    from .replay_io import run_replay
+    from .scenario import load_scenario
+    from .sheet import render_replay
+    for opt, ext in ((args.csv, ".csv"), (args.plot, ".png")):
+        if opt and not opt.lower().endswith(ext):
+            raise ScenarioError(opt, "", f"give a file name ending in {ext}")
+    if args.chunk_rows < 1000:
+        raise ScenarioError("--chunk-rows", "", "allowed: 1000 or more")
+    scenario = load_scenario(args.scenario)
+    show = sys.stderr.isatty()
+
+    def progress(n):
+        if show:
+            sys.stderr.write(f"\rreplay: {n:,} rows")
+            sys.stderr.flush()
+
+    if args.csv:
+        with atomic_text_writer(args.csv) as fh:
+            report, totals = run_replay(args.data, scenario, chunk_rows=args.chunk_rows,
+                                        rows_out=fh, progress=progress)
+    else:
+        report, totals = run_replay(args.data, scenario, chunk_rows=args.chunk_rows,
+                                    progress=progress)
+    if show:
+        sys.stderr.write("\n")
+    if args.plot:
+        from .plot import replay_figure_png
+        write_atomic(args.plot, replay_figure_png(totals, report, args.units))
+    sys.stdout.write(json.dumps(report, indent=2, ensure_ascii=False, default=str) + "\n"
+                     if args.json else render_replay(report, args.units))
+    return 0
+
+
 def _cmd_log(args) -> int:
     from .shiftlog import ShiftLog, parse_since
     from . import logview
@@ -167,7 +211,7 @@ def main(argv: list[str] | None = None) -> int:
     """Entry point of the ``dosing`` command; returns the exit code."""
     args = _parser().parse_args(argv)
     handler = {"plan": _cmd_plan, "reagents": _cmd_reagents, "solutes": _cmd_solutes,
-               "tui": _cmd_tui, "log": _cmd_log}[args.command]
+               "tui": _cmd_tui, "log": _cmd_log, "replay": _cmd_replay}[args.command]
     try:
         return handler(args)
     except DosingError as err:

@@ -38,7 +38,7 @@ import numpy as np
 from .activity import DAVIES_I_LIMIT
 from .equilibrium import (CARBONATE, N_SYSTEMS, Mixture, carbonate_for_alkalinity,
                           co2_in_air_mol_l, speciate, strong_balance_at_ph)
-from .errors import InputError
+from .errors import InputError, ModelError
 from .species import MOLAR_MASS, SYSTEM_IDS, get_system
 from .water import check_temperature
 
@@ -321,6 +321,9 @@ def infer_water(ph: float, temperature_c: float = 25.0, *,
     s, ionic = strong_balance_at_ph(vec, ph, temperature_c, davies=davies,
                                     extra_ionic_strength=extra_i)
     s = float(s[0])
+    if not math.isfinite(s):
+        raise ModelError("the ionic strength of this water did not settle; check the "
+                         "solute totals (Davies is not meant for brines)")
     strong_i = extra_i + 0.5 * abs(s)
     start = Mixture.build(vec, s, strong_i, temperature_c, math.nan, davies)
     alk_model = _alkalinity_of(start, ph)

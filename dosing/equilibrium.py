@@ -99,14 +99,24 @@ def constants_at(temperature_c) -> Constants:
     """Equilibrium constants at each temperature [°C] (0-60 °C).
 
     Carbonate uses Plummer & Busenberg (1982); water uses IAPWS R11-07; the
-    other systems use van 't Hoff from their 25 °C values.
+    other systems use van 't Hoff from their 25 °C values. Long arrays are
+    computed once per distinct temperature.
     """
     t = np.atleast_1d(np.asarray(temperature_c, dtype=float))
+    if t.size > 32:
+        uniq, inv = np.unique(t, return_inverse=True)
+        if uniq.size < t.size:
+            c = _constants(uniq)
+            return Constants(kw=c.kw[inv], k=c.k[inv], a=c.a[inv])
+    return _constants(t)
+
+
+def _constants(t: np.ndarray) -> Constants:
     pk = vant_hoff_pk(_PK25[None, :, :], _DH[None, :, :], t[:, None, None])
     pk1, pk2 = carbonate_pk(t)
     pk[:, CARBONATE, 0] = pk1
     pk[:, CARBONATE, 1] = pk2
-    k = np.where(np.isfinite(pk), 10.0 ** -np.where(np.isfinite(pk), pk, 0.0), 0.0)
+    k = 10.0 ** -pk          # a missing step has pK = inf, so K = 0
     return Constants(kw=10.0 ** -pkw(t), k=k, a=debye_huckel_a(t))
 
 
@@ -195,12 +205,14 @@ def _conditional_k(const: Constants, ionic_strength, davies: bool):
 
 def _alpha(ah, kc):
     """Fractions (n, m, 4) from a_H (n,) and mixed constants (n, m, 3)."""
-    r = kc / ah[:, None, None]
-    t1 = r[:, :, 0]
-    t2 = t1 * r[:, :, 1]
-    t3 = t2 * r[:, :, 2]
-    terms = np.stack([np.ones_like(t1), t1, t2, t3], axis=-1)
-    return terms / terms.sum(axis=-1, keepdims=True)
+    terms = np.empty(kc.shape[:2] + (4,))
+    terms[:, :, 0] = 1.0
+    inv = (1.0 / ah)[:, None]
+    np.multiply(kc[:, :, 0], inv, out=terms[:, :, 1])
+    np.multiply(terms[:, :, 1] * kc[:, :, 1], inv, out=terms[:, :, 2])
+    np.multiply(terms[:, :, 2] * kc[:, :, 2], inv, out=terms[:, :, 3])
+    terms /= terms.sum(axis=-1, keepdims=True)
+    return terms
 
 
 def _moments(alpha):
@@ -277,12 +289,21 @@ class _Rows:
                      self.kw[idx], self.k[idx], self.a[idx], self.z, self.carb, self.davies)
 
 
-def _restrict(mix: Mixture, const: Constants, extra_cols=()) -> _Rows:
-    """Keep only the systems with a non-zero total (plus ``extra_cols``)."""
+def _cols_of(mix: Mixture, reagent_totals=None) -> np.ndarray:
+    """Columns of the systems present in ``mix`` or added by a reagent."""
     used = np.any(mix.totals_mol_l != 0.0, axis=0)
-    used[list(extra_cols)] = True
+    if reagent_totals is not None:
+        used |= np.asarray(reagent_totals) != 0.0
     if mix.open_to_air.any():
         used[CARBONATE] = True
+    return np.flatnonzero(used)
+
+
+def _restrict(mix: Mixture, const: Constants, extra_cols=()) -> _Rows:
+    """Keep only the systems with a non-zero total (plus ``extra_cols``)."""
+    used = np.zeros(N_SYSTEMS, dtype=bool)
+    used[_cols_of(mix)] = True
+    used[list(extra_cols)] = True
     cols = np.flatnonzero(used)
     carb = int(np.searchsorted(cols, CARBONATE)) if used[CARBONATE] else -1
     return _Rows(mix.totals_mol_l[:, cols], mix.strong_eq_l, mix.strong_ionic_strength,
@@ -308,8 +329,8 @@ def _rows_state(r: _Rows, ph, ionic):
         resid = r.strong + h - oh
         return resid, _LN10 * (h + oh), 0.5 * (h + oh) + r.strong_i
     alpha = _alpha(ah, kc)
-    q = (alpha * r.z[None]).sum(-1)
-    m2 = (alpha * r.z[None] ** 2).sum(-1)
+    q = np.einsum("nmk,mk->nm", alpha, r.z)
+    m2 = np.einsum("nmk,mk->nm", alpha, r.z * r.z)
     var = m2 - q * q
     totals = r.totals
     opened = np.isfinite(r.co2)
@@ -424,7 +445,8 @@ def strong_balance_at_ph(totals_mol_l, ph, temperature_c, *, davies: bool,
     """Strong-ion balance S [eq/L] that puts each water at ``ph`` (direct).
 
     The strong ions are taken as monovalent for the ionic strength, plus
-    ``extra_ionic_strength`` [mol/L] (e.g. a known neutral salt load).
+    ``extra_ionic_strength`` [mol/L] (e.g. a known neutral salt load). Where
+    the ionic strength does not settle, S is NaN.
 
     Returns
     -------
@@ -433,21 +455,22 @@ def strong_balance_at_ph(totals_mol_l, ph, temperature_c, *, davies: bool,
     ph = np.atleast_1d(np.asarray(ph, dtype=float))
     mix = Mixture.build(totals_mol_l, np.zeros_like(ph), extra_ionic_strength,
                         temperature_c, co2_air_mol_l, davies)
-    const = constants_at(mix.temperature_c)
     extra = mix.strong_ionic_strength
-    s = np.zeros(mix.n)
-    ionic = extra.copy()
-    for _ in range(max_iter):
-        trial = Mixture(mix.totals_mol_l, np.zeros(mix.n), extra + 0.5 * np.abs(s),
-                        mix.temperature_c, mix.co2_air_mol_l, davies)
-        *_, resid, _, new_i = _state(trial, ph, const, ionic)
-        new_s = -resid
-        settled = (np.all(np.abs(new_s - s) <= 1e-16 + 1e-11 * np.abs(new_s))
-                   and np.all(np.abs(new_i - ionic) <= 1e-13 + 1e-10 * new_i))
-        s, ionic = new_s, new_i
-        if not davies or settled:
-            return s, ionic
-    raise ModelError("ionic strength did not settle while balancing the water")
+    bare = Mixture(mix.totals_mol_l, np.zeros(mix.n), np.zeros(mix.n), mix.temperature_c,
+                   mix.co2_air_mol_l, davies)
+    rows = _restrict(bare, constants_at(mix.temperature_c))
+
+    def at(ionic):
+        resid, _, i_weak = _rows_state(rows, ph, ionic)
+        s = -resid
+        return s, i_weak + extra + 0.5 * np.abs(s)
+
+    s, i1 = at(extra)
+    if not davies:
+        return s, i1
+    ionic = _settle(lambda i: at(i)[1], extra, i1, max_iter)
+    s, i_end = at(np.where(np.isfinite(ionic), ionic, 0.0))
+    return np.where(np.isfinite(ionic), s, np.nan), np.where(np.isfinite(ionic), i_end, np.nan)
 
 
 def carbonate_for_alkalinity(totals_mol_l, ph, temperature_c, alk_eq_l,
@@ -479,40 +502,59 @@ def carbonate_for_alkalinity(totals_mol_l, ph, temperature_c, alk_eq_l,
                           (ph.shape[0], N_SYSTEMS)).copy()
     tot[:, CARBONATE] = 0.0
     t = np.broadcast_to(np.asarray(temperature_c, dtype=float), ph.shape)
-    const = constants_at(t)
+    bare = Mixture.build(tot, 0.0, 0.0, t, np.nan, davies)
+    rows = _restrict(bare, constants_at(t), extra_cols=[CARBONATE])
+    car = rows.carb
     alk = np.broadcast_to(np.asarray(alk_eq_l, dtype=float), ph.shape)
     extra = np.broadcast_to(np.asarray(extra_ionic_strength, float), ph.shape)
-    ionic = extra.copy()       # sample
-    ionic_e = extra.copy()     # sample at the end point, titrant included
-    c = np.zeros_like(ph)
     ep = np.broadcast_to(np.asarray(endpoint_ph, float), ph.shape)
-    for _ in range(max_iter):
-        res = []
-        for p, i in ((ph, ionic), (ep, ionic_e)):
-            kc, g1 = _conditional_k(const, i, davies)
-            ah = 10.0 ** -p
-            q, m2 = _moments(_alpha(ah, kc))
-            h, oh = ah / g1, const.kw / (ah * g1)
-            res.append((q, m2, h - oh, h, oh))
-        (q, m2, w, h, oh), (qe, m2e, we, he, ohe) = res
-        known = (tot * (qe - q)).sum(-1) + we - w
-        coef = qe[:, CARBONATE] - q[:, CARBONATE]
+    z = rows.z[None]
+
+    def parts(p, i):
+        ah = 10.0 ** -p
+        if davies:
+            i = np.minimum(i, _I_CEILING)
+            lg = davies_log_gamma(rows.z[None, :, :], i[:, None, None], rows.a[:, None, None])
+            kc = rows.k * 10.0 ** (lg[:, :, :-1] - lg[:, :, 1:])
+            g1 = 10.0 ** davies_log_gamma(1, i, rows.a)
+        else:
+            kc, g1 = rows.k, 1.0
+        alpha = _alpha(ah, kc)
+        return ((alpha * z).sum(-1), (alpha * z ** 2).sum(-1), ah / g1,
+                rows.kw / (ah * g1))
+
+    def solve(ionic, ionic_e):
+        q, m2, h, oh = parts(ph, ionic)
+        qe, m2e, he, ohe = parts(ep, ionic_e)
+        known = (rows.totals * (qe - q)).sum(-1) + (he - ohe) - (h - oh)
+        coef = qe[:, car] - q[:, car]
         with np.errstate(divide="ignore", invalid="ignore"):
-            c_new = (alk - known) / coef
-        full = tot.copy()
-        full[:, CARBONATE] = c_new
+            c = (alk - known) / coef
+        full = rows.totals.copy()
+        full[:, car] = np.where(np.isfinite(c), c, 0.0)
         s = -(h - oh + (full * q).sum(-1))
         # Strong ions as monovalent; the titrant (HCl or NaOH) adds |A|/2.
         new_i = 0.5 * (h + oh + (full * m2).sum(-1)) + 0.5 * np.abs(s) + extra
         new_ie = (0.5 * (he + ohe + (full * m2e).sum(-1)) + 0.5 * np.abs(s)
                   + 0.5 * np.abs(alk) + extra)
-        settled = (np.all(np.abs(c_new - c) <= 1e-16 + 1e-11 * np.abs(c_new))
-                   and np.all(np.abs(new_i - ionic) <= 1e-12 + 1e-10 * new_i)
-                   and np.all(np.abs(new_ie - ionic_e) <= 1e-12 + 1e-10 * new_ie))
-        c = c_new
-        if not davies or settled:
-            break
-        ionic, ionic_e = new_i, new_ie
+        return c, coef, new_i, new_ie
+
+    ionic, ionic_e = extra.copy(), extra.copy()
+    c, coef, new_i, new_ie = solve(ionic, ionic_e)
+    if davies:
+        n = ph.shape[0]
+        # Settle both strengths at once: stack them as one fixed point.
+        def fn(x):
+            _, _, a_, b_ = solve(x[:n], x[n:])
+            return np.concatenate([a_, b_])
+        both = _settle(fn, np.concatenate([ionic, ionic_e]), np.concatenate([new_i, new_ie]),
+                       max_iter)
+        ok = np.isfinite(both[:n]) & np.isfinite(both[n:])
+        c, coef, new_i, _ = solve(np.where(ok, both[:n], 0.0), np.where(ok, both[n:], 0.0))
+        c = np.where(ok, c, np.nan)
+        ionic = np.where(ok, new_i, np.nan)
+    else:
+        ionic = new_i
     return c, coef, ionic
 
 
@@ -578,37 +620,53 @@ def dose_to_ph(mix: Mixture, reagent: ReagentVector, target_ph,
     """
     tp = np.broadcast_to(np.asarray(target_ph, dtype=float), (mix.n,)).copy()
     const = constants_at(mix.temperature_c)
-    n_r = np.asarray(reagent.totals_mol, dtype=float).copy()
+    n_full = np.asarray(reagent.totals_mol, dtype=float)
+    rows = _restrict(mix, const, extra_cols=np.flatnonzero(n_full))
+    n_r = n_full[_cols_of(mix, n_full)]   # the same columns as ``rows``
     opened = mix.open_to_air
     ah = 10.0 ** -tp
+    f_vol = reagent.volume_l
+    car = rows.carb
 
     def at(ionic):
-        kc, g1 = _conditional_k(const, ionic, mix.davies)
+        if mix.davies:
+            i_c = np.minimum(ionic, _I_CEILING)
+            lg = davies_log_gamma(rows.z[None, :, :], i_c[:, None, None], rows.a[:, None, None])
+            kc = rows.k * 10.0 ** (lg[:, :, :-1] - lg[:, :, 1:])
+            g1 = 10.0 ** davies_log_gamma(1, i_c, rows.a)
+        else:
+            kc, g1 = rows.k, 1.0
         alpha = _alpha(ah, kc)
-        q, m2 = _moments(alpha)
+        q = np.einsum("nmk,mk->nm", alpha, rows.z)
+        m2 = np.einsum("nmk,mk->nm", alpha, rows.z * rows.z)
         h = ah / g1
-        oh = const.kw / (ah * g1)
+        oh = rows.kw / (ah * g1)
         w = h - oh
-        tot = mix.totals_mol_l.copy()
-        nr = np.broadcast_to(n_r, tot.shape).copy()
+        tot = rows.totals
+        nr = np.broadcast_to(n_r, tot.shape)
         c_air = None
-        if opened.any():
-            c_air = mix.co2_air_mol_l[opened] / alpha[opened, CARBONATE, 0]
+        if car >= 0 and opened.any():
+            tot = tot.copy()
+            nr = nr.copy()
+            c_air = mix.co2_air_mol_l[opened] / alpha[opened, car, 0]
             w = w.copy()
-            w[opened] += c_air * q[opened, CARBONATE]
-            tot[opened, CARBONATE] = 0.0
-            nr[opened, CARBONATE] = 0.0
+            w[opened] += c_air * q[opened, car]
+            tot[opened, car] = 0.0
+            nr[opened, car] = 0.0
         num = mix.strong_eq_l + (tot * q).sum(-1) + w
-        den = reagent.strong_eq + (nr * q).sum(-1) + reagent.volume_l * w
+        den = reagent.strong_eq + (nr * q).sum(-1) + f_vol * w
         with np.errstate(divide="ignore", invalid="ignore"):
             dose = -num / den
+        if not mix.davies:
+            return dose, den, None
         # A negative dose cannot be given; its ionic strength is that of no dose.
         given = np.where(np.isfinite(dose), np.maximum(dose, 0.0), 0.0)
-        dosed = add_dose(mix, reagent, given)
-        tot_after = dosed.totals_mol_l.copy()
+        f = 1.0 / (1.0 + given * f_vol)
+        tot_after = f[:, None] * (rows.totals + given[:, None] * n_r[None, :])
         if c_air is not None:
-            tot_after[opened, CARBONATE] = c_air
-        new_i = 0.5 * (h + oh + (tot_after * m2).sum(-1)) + dosed.strong_ionic_strength
+            tot_after[opened, car] = c_air
+        strong_i = f * (mix.strong_ionic_strength + given * reagent.ionic_strength)
+        new_i = 0.5 * (h + oh + (tot_after * m2).sum(-1)) + strong_i
         return dose, den, new_i
 
     ionic = mix.strong_ionic_strength.copy()

@@ -13,7 +13,7 @@ from pathlib import Path
 
 from .errors import ScenarioError
 
-__all__ = ["write_atomic"]
+__all__ = ["write_atomic", "atomic_text_writer"]
 
 
 def write_atomic(path: str | Path, data: bytes) -> None:
@@ -38,3 +38,27 @@ def write_atomic(path: str | Path, data: bytes) -> None:
         if tmp and os.path.exists(tmp):
             os.unlink(tmp)
         raise ScenarioError(str(path), "", f"cannot be written ({err.strerror})") from None
+
+
+class atomic_text_writer:
+    """``with atomic_text_writer(path) as fh:`` - the file appears only on success."""
+
+    def __init__(self, path: str | Path):
+        self.path = Path(path)
+        folder = self.path.parent if str(self.path.parent) else Path(".")
+        if not folder.is_dir():
+            raise ScenarioError(str(path), "", f"folder {str(folder)!r} does not exist")
+        self._folder = folder
+
+    def __enter__(self):
+        fd, self._tmp = tempfile.mkstemp(dir=self._folder, prefix=".dosing-", suffix=".tmp")
+        self._fh = os.fdopen(fd, "w", encoding="utf-8", newline="")
+        return self._fh
+
+    def __exit__(self, exc_type, exc, tb):
+        self._fh.close()
+        if exc_type is None:
+            os.replace(self._tmp, self.path)
+        elif os.path.exists(self._tmp):
+            os.unlink(self._tmp)
+        return False

@@ -80,3 +80,58 @@ def plan_figure_png(plan: Plan, title: str = "", units: str = "metric") -> bytes
     fig.savefig(buf, format="png")
     plt.close(fig)
     return buf.getvalue()
+
+
+def replay_figure_png(totals, report: dict, units: str = "metric") -> bytes:
+    """PNG bytes: hourly raw pH and dose rate over time, and daily reagent use."""
+    import pandas as pd
+    u = UNIT_SYSTEMS[units]
+    hours = sorted(totals.hourly)
+    fig, (a1, a3) = plt.subplots(2, 1, figsize=(9.0, 6.4), dpi=110, sharex=True,
+                                 gridspec_kw={"height_ratios": [3, 2]})
+    if hours:
+        h = pd.to_datetime(hours)
+        vals = np.array([totals.hourly[k] for k in hours], dtype=float)
+        ph = np.where(vals[:, 1] > 0, vals[:, 0] / np.maximum(vals[:, 1], 1), np.nan)
+        conv = u.mass_per_kg if totals.rate_unit == "kg/h" else u.product_volume_per_l
+        rate = np.where(vals[:, 3] > 0, vals[:, 2] / np.maximum(vals[:, 3], 1), np.nan) * conv
+        frame = pd.DataFrame({"ph": ph, "rate": rate}, index=h)
+        span_days = (h[-1] - h[0]).total_seconds() / 86400 if len(h) > 1 else 0
+        if span_days > 14:
+            # Long records: daily mean with the range of the hourly means.
+            g = frame.resample("D")
+            mean, lo, hi = g.mean(), g.min(), g.max()
+            a1.fill_between(mean.index, lo["ph"], hi["ph"], color="tab:blue", alpha=0.2, lw=0)
+            a1.plot(mean.index, mean["ph"], color="tab:blue", lw=1.0,
+                    label="raw pH (daily mean, band: hourly range)")
+            frame, what = mean, "daily mean"
+        else:
+            a1.plot(h, ph, color="tab:blue", lw=0.8, label="raw pH (hourly mean)")
+            what = "hourly mean"
+        a1.set_ylabel("raw pH")
+        a2 = a1.twinx()
+        a2.plot(frame.index, frame["rate"], color="tab:red", lw=1.0, alpha=0.85,
+                label=f"dose rate ({what})")
+        unit = f"{u.mass}/h" if totals.rate_unit == "kg/h" else f"{u.product_volume}/h"
+        a2.set_ylabel(f"dose rate, {unit}", color="tab:red")
+        a2.tick_params(axis="y", colors="tab:red")
+        a2.set_ylim(bottom=0)
+        l1, n1 = a1.get_legend_handles_labels()
+        l2, n2 = a2.get_legend_handles_labels()
+        a1.legend(l1 + l2, n1 + n2, loc="upper left", fontsize=8)
+    a1.set_title(f"{report['scenario']}: {report['reagent']}", fontsize=11)
+    a1.grid(True, alpha=0.3)
+    days = sorted(totals.daily_kg)
+    if days:
+        a3.bar(pd.to_datetime(days), [totals.daily_kg[d] * u.mass_per_kg for d in days],
+               width=0.9, color="tab:orange")
+    a3.set_ylabel(f"{u.mass} product per day")
+    a3.grid(True, axis="y", alpha=0.3)
+    fig.text(0.01, 0.005, "Model estimate. Local codes, the discharge permit and a "
+             "licensed engineer have the final word.", fontsize=7, color="0.35")
+    fig.autofmt_xdate()
+    fig.tight_layout(rect=(0, 0.02, 1, 1))
+    buf = io.BytesIO()
+    fig.savefig(buf, format="png")
+    plt.close(fig)
+    return buf.getvalue()

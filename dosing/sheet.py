@@ -297,3 +297,42 @@ def render_sheet(scenario: Scenario, plan: Plan, units: str = "metric",
     for msg in plan.cautions:
         out.extend(_wrap(msg, width, "  - "))
     return "\n".join(out) + "\n"
+
+
+def render_replay(report: dict[str, Any], units: str = "metric", width: int = 78) -> str:
+    """The replay summary as text for the engineer."""
+    u = UNIT_SYSTEMS[units]
+    r = report
+    rate = r["dose_rate"]
+    conv = u.mass_per_kg if rate["unit"] == "kg/h" else u.product_volume_per_l
+    rate_unit = (f"{u.mass}/h" if rate["unit"] == "kg/h" else f"{u.product_volume}/h")
+    out = [f"REPLAY  {r['scenario']}  [{r['reagent']}]", "=" * 40,
+           f"data     {r['source']}: {r['rows']:,} rows, {r['first']} to {r['last']} "
+           f"({fmt(r['hours_covered'] / 24)} days)",
+           f"planned  {r['rows_planned']:,} rows; not planned {r['rows_not_planned']:,}"]
+    for key, v in r["not_planned"].items():
+        out.append(f"           {v['rows']:>9,}  {key}: {v['why']}")
+    t = r["total"]
+    out += ["", "REAGENT",
+            f"  total          {fmt(t['kg_product'] * u.mass_per_kg)} {u.mass}"
+            + (f" = {fmt(t['litres_product'] * u.product_volume_per_l)} {u.product_volume}"
+               if t["litres_product"] else "")
+            + (f", cost {fmt(t['cost'])}" if t["cost"] is not None else ""),
+            f"  per day        mean {fmt(r['daily']['mean_kg_product'] * u.mass_per_kg)} "
+            f"{u.mass}, max {fmt(r['daily']['max_kg_product'] * u.mass_per_kg)} {u.mass} "
+            f"over {r['daily']['days']} days"]
+    if r["days_of_supply"] is not None:
+        out.append(f"  storage lasts  {fmt(r['days_of_supply'])} days at the mean daily use")
+    out += ["", "DOSE RATE (metering pump sizing)",
+            f"  mean {fmt(rate['mean'] * conv)}  95th percentile {fmt(rate['p95'] * conv)}  "
+            f"max {fmt(rate['max'] * conv)}  {rate_unit}",
+            f"  lowest steady rate (5th percentile of non-zero) "
+            f"{fmt(rate['p5_nonzero'] * conv if rate['p5_nonzero'] else None)} {rate_unit}; "
+            f"turndown needed {fmt(rate['turndown'])} : 1",
+            "  (percentiles from 2.3 % wide bins)", "",
+            f"RAW EFFLUENT outside the window {fmt(r['hours_outside_window'])} h"
+            + (f" ({r['fraction_outside_window']:.0%} of the time)"
+               if r["fraction_outside_window"] is not None else ""), "", "CAUTIONS"]
+    for c in r["cautions"]:
+        out.extend(_wrap(c, width, "  - "))
+    return "\n".join(out) + "\n"

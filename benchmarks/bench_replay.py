@@ -1,0 +1,127 @@
+"""Replay speed and memory: rows per second and peak memory.
+
+1. The per-row dose solve on arrays (ideal and Davies), against a plain
+   per-row scalar baseline written here: for each row, brentq over the dose
+   with a nested brentq for the pH (ideal model).
+2. A year of one-minute rows (525,600) replayed end to end, CSV read
+   included, in a fresh process.
+3. Peak memory of a chunked replay of a 5,000,000-row file, in a fresh
+   process (``--big``; the file takes a minute to write).
+
+Prints figures; asserts nothing.
+
+    python benchmarks/bench_replay.py [--big]
+"""
+
+from __future__ import annotations
+
+import math
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+from scipy.optimize import brentq
+
+ROOT = Path(__file__).resolve().parents[1]
+SCEN = ROOT / "scenarios" / "flow-metering-pump.toml"
+
+
+def make_log(path: Path, n: int) -> None:
+    rng = np.random.default_rng(5)
+    step = 1_000_000
+    with open(path, "w") as fh:
+        for start in range(0, n, step):
+            m = min(step, n - start)
+            i = np.arange(start, start + m)
+            ts = pd.Timestamp("2025-01-01") + pd.to_timedelta(i, unit="min")
+            day = np.sin(i / 1440 * 2 * np.pi)
+            frame = pd.DataFrame({"timestamp": ts.strftime("%Y-%m-%d %H:%M"),
+                                  "flow_m3_h": (20 + 5 * day + rng.normal(0, 1, m)).round(3),
+                                  "ph": (10.1 + 0.5 * day + rng.normal(0, 0.1, m)).round(3)})
+            frame.to_csv(fh, header=start == 0, index=False)
+
+
+def dose_solve_rates() -> None:
+    from dosing.equilibrium import (Mixture, constants_at, dose_to_ph,
+                                    strong_balance_at_ph, system_index)
+    from dosing.reagents import get_reagent
+    from dosing.scenario import load_scenario
+    s = load_scenario(SCEN)
+    reagent = get_reagent("hydrochloric-32")
+    n = 500_000
+    rng = np.random.default_rng(1)
+    ph = rng.uniform(9.0, 11.0, n)
+    base = np.zeros((n, 13))
+    for k, v in s.water.totals_mol_l.items():
+        base[:, system_index(k)] = v
+    for davies in (False, True):
+        sb, _ = strong_balance_at_ph(base, ph, 32.0, davies=davies)
+        mix = Mixture.build(base, sb, 0.5 * np.abs(sb), 32.0, math.nan, davies)
+        t0 = time.perf_counter()
+        dose_to_ph(mix, reagent.vector(), 7.5)
+        dt = time.perf_counter() - t0
+        label = "Davies" if davies else "ideal "
+        print(f"dose solve, {label}: {n / dt:12,.0f} rows/s ({dt * 1000:.0f} ms for {n:,})")
+        if not davies:
+            ideal_rate = n / dt
+    # Plain per-row baseline: nested scalar root finding, ideal model.
+    const = constants_at(np.array([32.0]))
+    cols = [j for j in range(13) if base[0, j] > 0]
+    zs = {j: [(-1 if j == system_index("sulfate") else 0) - m for m in range(4)] for j in cols}
+    kw = float(const.kw[0])
+
+    def resid(p, s_eq, extra_cl):
+        h = 10.0 ** -p
+        r = s_eq - extra_cl + h - kw / h
+        for j in cols:
+            terms = [1.0]
+            for kk in const.k[0, j]:
+                terms.append(terms[-1] * kk / h if kk > 0 else 0.0)
+            tot = sum(terms)
+            r += base[0, j] * sum(z * t / tot for z, t in zip(zs[j], terms))
+        return r
+
+    rows = 200
+    sb, _ = strong_balance_at_ph(base[:rows], ph[:rows], 32.0, davies=False)
+    t0 = time.perf_counter()
+    for i in range(rows):
+        def ph_after(d):
+            return brentq(resid, -1.5, 15.5, args=(sb[i], d), xtol=1e-12)
+        brentq(lambda d: ph_after(d) - 7.5, 0.0, 1.0, xtol=1e-13)
+    base_rate = rows / (time.perf_counter() - t0)
+    print(f"scalar baseline (ideal): {base_rate:12,.0f} rows/s; vectorised ideal is "
+          f"x{ideal_rate / base_rate:,.0f} faster")
+
+
+def end_to_end(path: Path, label: str) -> None:
+    code = (f"import time, resource; from dosing.scenario import load_scenario; "
+            f"from dosing.replay_io import run_replay; s = load_scenario({str(SCEN)!r}); "
+            f"t = time.perf_counter(); r, _ = run_replay({str(path)!r}, s); "
+            f"dt = time.perf_counter() - t; "
+            f"print(r['rows'], dt, resource.getrusage(resource.RUSAGE_SELF).ru_maxrss)")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                         check=True).stdout.split()
+    rows, dt, rss_kb = int(out[0]), float(out[1]), int(out[2])
+    print(f"{label}: {rows:,} rows in {dt:.1f} s ({rows / dt:,.0f} rows/s end to end, "
+          f"CSV read included, Davies); peak memory {rss_kb / 1024:,.0f} MiB")
+
+
+def main() -> None:
+    dose_solve_rates()
+    with tempfile.TemporaryDirectory() as d:
+        year = Path(d) / "year.csv"
+        make_log(year, 525_600)
+        end_to_end(year, "one year of minute data")
+        if "--big" in sys.argv:
+            big = Path(d) / "big.csv"
+            make_log(big, 5_000_000)
+            print(f"5M-row file: {big.stat().st_size / 2**20:,.0f} MiB on disk")
+            end_to_end(big, "five million rows, chunked")
+
+
+if __name__ == "__main__":
+    main()

@@ -1,0 +1,362 @@
+"""Replay logged plant data through the planner: one dose per row, vectorised.
+
+For every row of a log (timestamp, flow, pH, optionally temperature and
+alkalinity) the dose that takes that water to the scenario's aim is found by
+the fixed-pH direct solve over numpy arrays, never a Python loop over rows.
+Rows that cannot be planned are flagged with the reason and counted, never
+dropped silently.
+
+The water model of a row: the scenario's weak-acid totals (carbonate
+included, from its alkalinity) with the strong-ion balance re-found from
+that row's pH and temperature. Where the log carries an alkalinity column,
+each row's carbonate comes from its own alkalinity instead.
+
+This module is pure: it takes pandas frames already read and returns frames
+and summaries. Reading files in chunks lives with the command line.
+"""
+
+from __future__ import annotations
+
+import math
+from collections import Counter
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from .effluent import ALKALINITY_ENDPOINT_PH, CACO3_MG_PER_MEQ, totals_vector
+from .equilibrium import (CARBONATE, Mixture, carbonate_for_alkalinity, co2_in_air_mol_l,
+                          dose_to_ph, strong_balance_at_ph)
+from .errors import ScenarioError
+from .scenario import Scenario
+from .water import T_MAX_C, T_MIN_C
+
+__all__ = ["COLUMN_NAMES", "normalise_columns", "ReplayState", "plan_rows",
+           "ReplayTotals", "replay_report", "FLAGS", "FLATLINE_ROWS", "GAP_LIMIT_S"]
+
+#: Accepted spellings of each column (lower case, units in brackets ignored).
+COLUMN_NAMES = {
+    "timestamp": ("timestamp", "time", "datetime", "date_time", "ts", "date"),
+    "flow_m3_h": ("flow_m3_h", "flow_m3_per_h", "flow", "q_m3_h", "flow_rate", "q"),
+    "ph": ("ph", "ph_value"),
+    "temperature_c": ("temperature_c", "temperature", "temp_c", "temp", "t_c"),
+    "alkalinity_mg_l_as_caco3": ("alkalinity_mg_l_as_caco3", "alkalinity", "alk",
+                                 "alkalinity_mg_l"),
+}
+REQUIRED = ("timestamp", "flow_m3_h", "ph")
+#: A pH reading unchanged for this many rows in a row is a stuck sensor
+#: (common practice: an hour of one-minute data).
+FLATLINE_ROWS = 60
+#: A gap between rows longer than this is not bridged [s] (common practice).
+GAP_LIMIT_S = 900.0
+FLAGS = {
+    "bad_timestamp": "timestamp missing or unreadable",
+    "time_not_increasing": "timestamp not after the previous row",
+    "flow_missing": "flow missing",
+    "flow_negative": "flow negative",
+    "ph_missing": "pH missing",
+    "ph_out_of_range": "pH outside 0-14",
+    "temperature_out_of_range": "temperature outside 0-60 °C or missing",
+    "alkalinity_bad": "alkalinity missing, negative or inconsistent with the pH",
+    "ph_flatline": f"pH unchanged for {FLATLINE_ROWS} rows or more (stuck sensor?)",
+    "wrong_direction": "the reagent moves the pH away from the aim for this water",
+    "cannot_reach": "the aim cannot be reached with this reagent",
+}
+
+
+def _key(name: str) -> str:
+    base = str(name).split("(")[0].split("[")[0]
+    return base.strip().lower().replace(" ", "_").replace("-", "_")
+
+
+def normalise_columns(columns, path: str) -> dict[str, str]:
+    """Map the file's column names to ours; raises ScenarioError if one is missing."""
+    found: dict[str, str] = {}
+    for col in columns:
+        k = _key(col)
+        for ours, spellings in COLUMN_NAMES.items():
+            if k in spellings and ours not in found:
+                found[ours] = col
+    missing = [c for c in REQUIRED if c not in found]
+    if missing:
+        raise ScenarioError(path, missing[0], "column missing; the data needs timestamp, "
+                            "flow (m3/h) and pH columns; found: "
+                            + ", ".join(map(str, columns)))
+    return found
+
+
+@dataclass
+class ReplayState:
+    """What one chunk hands the next: the last timestamp and the pH run."""
+
+    last_ts: Any = None
+    last_ph: float = math.nan
+    run: int = 0
+    nominal_s: float | None = None
+
+
+def _seconds(ts: pd.Series) -> np.ndarray:
+    """Timestamps as float seconds (NaN for missing)."""
+    vals = ts.to_numpy(dtype="datetime64[ns]")
+    out = vals.astype("int64").astype(float) / 1e9
+    out[np.isnat(vals)] = np.nan
+    return out
+
+
+def plan_rows(frame: pd.DataFrame, scenario: Scenario, state: ReplayState) -> pd.DataFrame:
+    """Plan every row of ``frame`` (columns already named as ours).
+
+    Returns a frame with, per row: ``dt_s`` (time the row stands for),
+    ``dose_mmol_l``, ``dose_kg_h`` and ``dose_l_h`` of product, ``kg`` and
+    ``litres`` of product for the row, ``outside`` (raw pH outside the
+    window) and ``flag`` ("" when planned).
+    """
+    n = len(frame)
+    flag = np.full(n, "", dtype=object)
+
+    def mark(mask, name):
+        sel = mask & (flag == "")
+        flag[sel] = name
+
+    t = _seconds(frame["timestamp"])
+    mark(np.isnan(t), "bad_timestamp")
+    prev = np.concatenate([[state.last_ts if state.last_ts is not None else np.nan], t[:-1]])
+    # carry the last valid time forward over bad rows
+    prev = pd.Series(prev).ffill().to_numpy(copy=True)
+    good_t = ~np.isnan(t)
+    if state.last_ts is None and good_t.any():
+        # The first valid row has no predecessor.
+        first = int(np.flatnonzero(good_t)[0])
+        prev[: first + 1] = np.nan
+    dt = t - prev
+    mark(good_t & ~np.isnan(dt) & (dt <= 0), "time_not_increasing")
+    if state.nominal_s is None:
+        steps = dt[np.isfinite(dt) & (dt > 0)]
+        state.nominal_s = float(np.median(steps)) if steps.size else 60.0
+    nominal = state.nominal_s
+    dt = np.where(np.isnan(dt), nominal, dt)
+    dt = np.where(dt > GAP_LIMIT_S, nominal, np.maximum(dt, 0.0))
+    dt[~good_t] = 0.0
+
+    flow = pd.to_numeric(frame["flow_m3_h"], errors="coerce").to_numpy(dtype=float)
+    ph = pd.to_numeric(frame["ph"], errors="coerce").to_numpy(dtype=float)
+    mark(np.isnan(flow), "flow_missing")
+    mark(flow < 0, "flow_negative")
+    mark(np.isnan(ph), "ph_missing")
+    mark((ph < 0) | (ph > 14), "ph_out_of_range")
+    w = scenario.water
+    if "temperature_c" in frame:
+        temp = pd.to_numeric(frame["temperature_c"], errors="coerce").to_numpy(dtype=float)
+    else:
+        temp = np.full(n, w.temperature_c)
+    mark(~((temp >= T_MIN_C) & (temp <= T_MAX_C)), "temperature_out_of_range")
+    # Stuck sensor: runs of the same pH, carried across chunks.
+    same = np.concatenate([[ph[0] == state.last_ph] if n else [], ph[1:] == ph[:-1]])
+    idx = np.arange(n)
+    last_reset = np.maximum.accumulate(np.where(~same, idx, -1)) if n else idx
+    run = np.where(last_reset < 0, state.run + idx + 1, idx - last_reset + 1)
+    mark(run >= FLATLINE_ROWS, "ph_flatline")
+    if n:
+        state.last_ph = ph[-1]
+        state.run = int(run[-1])
+    if good_t.any():
+        state.last_ts = t[good_t][-1]
+
+    ok = flag == ""
+    dose = np.full(n, np.nan)
+    if ok.any():
+        dose[ok] = _dose_for(scenario, ph[ok], temp[ok],
+                             frame["alkalinity_mg_l_as_caco3"].to_numpy()[ok]
+                             if "alkalinity_mg_l_as_caco3" in frame else None, flag, ok)
+    planned = flag == ""
+    r_ = scenario.reagent
+    kg_mol = r_.kg_product_per_mol
+    l_mol = r_.litres_product_per_mol
+    mol_h = np.where(planned, dose, np.nan) * np.where(np.isnan(flow), 0, flow) * 1000.0
+    out = pd.DataFrame({
+        "timestamp": frame["timestamp"].to_numpy(),
+        "flow_m3_h": flow, "ph": ph, "temperature_c": temp, "dt_s": dt,
+        "dose_mmol_l": np.where(planned, dose * 1000.0, np.nan),
+        "dose_kg_h": mol_h * kg_mol if kg_mol is not None else np.nan,
+        "dose_l_h": mol_h * l_mol if l_mol is not None else np.nan,
+    })
+    out["kg"] = out["dose_kg_h"] * dt / 3600.0
+    out["litres"] = out["dose_l_h"] * dt / 3600.0
+    t_ = scenario.target
+    out["outside"] = ~np.isnan(ph) & ((ph < t_.ph_min) | (ph > t_.ph_max))
+    out["flag"] = flag
+    return out
+
+
+def _dose_for(scenario: Scenario, ph, temp, alk, flag, ok) -> np.ndarray:
+    """Dose to the aim [mol/L] for rows that passed the data checks."""
+    w, reagent, target = scenario.water, scenario.reagent, scenario.target
+    m = ph.size
+    base = np.broadcast_to(totals_vector(w.totals_mol_l), (m, len(totals_vector({})))).copy()
+    extra = max(w.strong_ionic_strength - 0.5 * abs(w.strong_eq_l), 0.0)
+    positions = np.flatnonzero(ok)
+    bad = np.zeros(m, dtype=bool)
+    if alk is not None:
+        a = pd.to_numeric(pd.Series(alk), errors="coerce").to_numpy(dtype=float)
+        bad |= ~np.isfinite(a) | (a < 0)
+        a_eq = np.where(bad, 0.0, a) / CACO3_MG_PER_MEQ / 1000.0
+        carb, coef, _ = carbonate_for_alkalinity(base, ph, temp, a_eq, ALKALINITY_ENDPOINT_PH,
+                                                 davies=w.davies, extra_ionic_strength=extra)
+        carb = np.where((a_eq == 0) & (ph <= ALKALINITY_ENDPOINT_PH), 0.0, carb)
+        bad |= ~np.isfinite(carb) | (carb < 0)
+        base[:, CARBONATE] = np.where(bad, 0.0, carb)
+    s, _ = strong_balance_at_ph(base, ph, temp, davies=w.davies, extra_ionic_strength=extra)
+    co2 = (co2_in_air_mol_l(temp, w.pco2_atm) if w.open_to_air else np.full(m, np.nan))
+    mix = Mixture.build(base, s, extra + 0.5 * np.abs(s), temp, co2, w.davies)
+    dose, grip = dose_to_ph(mix, reagent.vector(), target.ph_aim)
+    direction = 1.0 if reagent.raises_ph else -1.0
+    inside = (ph >= target.ph_min) & (ph <= target.ph_max)
+    limit = ((reagent.min_practical_ph is not None and target.ph_aim < reagent.min_practical_ph)
+             or (reagent.max_practical_ph is not None
+                 and target.ph_aim > reagent.max_practical_ph))
+    no_grip = ~np.isfinite(dose) | (grip * direction <= 1e-9) | limit
+    wrong = ~no_grip & (dose < 0) & ~inside
+    dose = np.where(~no_grip & (dose < 0) & inside, 0.0, dose)
+    flag[positions[bad]] = "alkalinity_bad"
+    flag[positions[~bad & no_grip]] = "cannot_reach"
+    flag[positions[~bad & ~no_grip & wrong]] = "wrong_direction"
+    return np.where(bad | no_grip | wrong, np.nan, dose)
+
+
+# Histogram of dose rates for percentiles with constant memory: a zero bin
+# and 100 bins per decade from 1e-6 to 1e6 (2.3 % wide).
+_EDGES = np.concatenate([[0.0], np.logspace(-6, 6, 1201)])
+
+
+@dataclass
+class ReplayTotals:
+    """Sums that chunks add into; the report is made from these alone."""
+
+    rows: int = 0
+    planned: int = 0
+    flags: Counter = field(default_factory=Counter)
+    kg: float = 0.0
+    litres: float = 0.0
+    seconds: float = 0.0
+    seconds_outside: float = 0.0
+    seconds_planned: float = 0.0
+    rate_sum: float = 0.0
+    rate_max: float = 0.0
+    hist: np.ndarray = field(default_factory=lambda: np.zeros(_EDGES.size, dtype=np.int64))
+    daily_kg: dict = field(default_factory=dict)
+    daily_l: dict = field(default_factory=dict)
+    hourly: dict = field(default_factory=dict)
+    first: Any = None
+    last: Any = None
+    rate_unit: str = "kg/h"
+
+    def add(self, rows: pd.DataFrame) -> None:
+        """Add one chunk of :func:`plan_rows` output."""
+        self.rows += len(rows)
+        ok = (rows["flag"] == "").to_numpy()
+        self.planned += int(ok.sum())
+        self.flags.update(rows.loc[~ok, "flag"].tolist())
+        dt = rows["dt_s"].to_numpy()
+        self.seconds += float(dt.sum())
+        self.seconds_outside += float(dt[rows["outside"].to_numpy()].sum())
+        rate_col = "dose_kg_h" if self.rate_unit == "kg/h" else "dose_l_h"
+        rate = rows[rate_col].to_numpy()[ok]
+        rate = rate[np.isfinite(rate)]
+        self.seconds_planned += float(dt[ok].sum())
+        self.kg += float(np.nansum(rows["kg"].to_numpy()[ok]))
+        self.litres += float(np.nansum(rows["litres"].to_numpy()[ok]))
+        if rate.size:
+            self.rate_sum += float(rate.sum())
+            self.rate_max = max(self.rate_max, float(rate.max()))
+            idx = np.searchsorted(_EDGES, rate, side="right") - 1
+            idx[rate <= 0] = 0
+            np.add.at(self.hist, np.clip(idx, 0, _EDGES.size - 1), 1)
+        ts = pd.to_datetime(rows["timestamp"])
+        valid = ts.notna().to_numpy()
+        if valid.any():
+            tv = ts[valid]
+            self.first = tv.iloc[0] if self.first is None else min(self.first, tv.iloc[0])
+            self.last = tv.iloc[-1] if self.last is None else max(self.last, tv.iloc[-1])
+        planned = rows[ok & valid]
+        if len(planned):
+            day = pd.to_datetime(planned["timestamp"]).dt.strftime("%Y-%m-%d")
+            for d, v in planned.groupby(day.to_numpy())["kg"].sum().items():
+                self.daily_kg[d] = self.daily_kg.get(d, 0.0) + float(v)
+            for d, v in planned.groupby(day.to_numpy())["litres"].sum().items():
+                self.daily_l[d] = self.daily_l.get(d, 0.0) + float(v)
+        both = rows[valid]
+        if len(both):
+            hour = pd.to_datetime(both["timestamp"]).dt.floor("h")
+            g = both.assign(_h=hour.to_numpy()).groupby("_h")
+            agg = pd.DataFrame({"ph_sum": g["ph"].sum(), "ph_n": g["ph"].count(),
+                                "rate_sum": g[rate_col].sum(),
+                                "rate_n": g[rate_col].count()})
+            for h, row in agg.iterrows():
+                a = self.hourly.get(h, [0.0, 0, 0.0, 0])
+                self.hourly[h] = [a[0] + row.ph_sum, a[1] + int(row.ph_n),
+                                  a[2] + row.rate_sum, a[3] + int(row.rate_n)]
+
+    def percentile(self, q: float) -> float:
+        """Dose-rate percentile from the histogram (upper bin edge) [rate unit]."""
+        total = int(self.hist.sum())
+        if total == 0:
+            return math.nan
+        k = int(np.searchsorted(np.cumsum(self.hist), math.ceil(q / 100.0 * total)))
+        if k == 0:
+            return 0.0
+        return float(_EDGES[min(k + 1, _EDGES.size - 1)])
+
+
+def replay_report(totals: ReplayTotals, scenario: Scenario, source: str) -> dict[str, Any]:
+    """The replay summary as plain data (SI units, JSON-ready)."""
+    from .reagents import GENERAL_CAUTION
+    unit = totals.rate_unit
+    days = sorted(totals.daily_kg)
+    daily_kg = [totals.daily_kg[d] for d in days]
+    daily_l = [totals.daily_l.get(d, 0.0) for d in days]
+    hours = totals.seconds / 3600.0
+    mean_daily_kg = float(np.mean(daily_kg)) if daily_kg else 0.0
+    mean_daily_l = float(np.mean(daily_l)) if daily_l else 0.0
+    nonzero = totals.hist[1:].sum()
+    low = None
+    if nonzero:
+        # Smallest rate the pump must hold: 5th percentile of non-zero rates.
+        cum = np.cumsum(totals.hist[1:])
+        k = int(np.searchsorted(cum, math.ceil(0.05 * cum[-1])))
+        low = float(_EDGES[k + 1])
+    supply = None
+    if scenario.storage_m3 and mean_daily_l:
+        supply = scenario.storage_m3 * 1000.0 / mean_daily_l
+    elif scenario.storage_kg and mean_daily_kg:
+        supply = scenario.storage_kg / mean_daily_kg
+    cost = totals.kg * scenario.price_per_kg if scenario.price_per_kg else None
+    reasons = {k: {"rows": v, "why": FLAGS[k]} for k, v in sorted(totals.flags.items())}
+    return {
+        "source": source,
+        "scenario": scenario.title,
+        "reagent": scenario.reagent.id,
+        "rows": totals.rows,
+        "rows_planned": totals.planned,
+        "rows_not_planned": totals.rows - totals.planned,
+        "not_planned": reasons,
+        "first": None if totals.first is None else str(totals.first),
+        "last": None if totals.last is None else str(totals.last),
+        "hours_covered": hours,
+        "total": {"kg_product": totals.kg, "litres_product": totals.litres, "cost": cost},
+        "daily": {"days": len(days), "mean_kg_product": mean_daily_kg,
+                  "max_kg_product": max(daily_kg) if daily_kg else 0.0,
+                  "mean_litres_product": mean_daily_l},
+        "dose_rate": {"unit": unit,
+                      "mean": totals.rate_sum / totals.planned if totals.planned else math.nan,
+                      "p95": totals.percentile(95), "max": totals.rate_max,
+                      "p5_nonzero": low,
+                      "turndown": (totals.rate_max / low) if low else None,
+                      "percentile_resolution": "2.3 % bins"},
+        "days_of_supply": supply,
+        "hours_outside_window": totals.seconds_outside / 3600.0,
+        "fraction_outside_window": (totals.seconds_outside / totals.seconds
+                                    if totals.seconds else None),
+        "daily_kg_product": dict(zip(days, daily_kg)),
+        "cautions": list(scenario.reagent.cautions) + [GENERAL_CAUTION],
+    }
