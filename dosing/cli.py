@@ -53,6 +53,20 @@ def _parser() -> argparse.ArgumentParser:
     r.add_argument("--units", choices=("metric", "us"), default="metric")
     r.add_argument("--chunk-rows", type=int, default=100_000, metavar="N",
                    help="rows read at a time (memory stays constant)")
+    t = sub.add_parser("titration", help="scale a bench titration to a full-scale dose")
+    t.add_argument("data", help="CSV with titrant volume (mL) and pH columns")
+    t.add_argument("--sample-ml", type=float, required=True, help="sample volume, mL")
+    t.add_argument("--titrant", required=True,
+                   help="catalogue id or strength, e.g. '0.1 M NaOH', '0.02 N H2SO4'")
+    t.add_argument("--scenario", help="tank or flow, window and full-scale reagent "
+                   "(default: window 6-9, per m3, the titrant's catalogue product)")
+    t.add_argument("--unknown-acid", choices=("auto", "yes", "no"), default="auto",
+                   help="fit an unidentified weak acid too (default: when it helps)")
+    t.add_argument("--drop", type=int, action="append", default=[], metavar="ROW",
+                   help="leave out this file row (a known misread); repeatable")
+    t.add_argument("--json", action="store_true")
+    t.add_argument("--plot", metavar="FILE.png")
+    t.add_argument("--units", choices=("metric", "us"), default="metric")
     return ap
 
 
@@ -169,6 +183,45 @@ def _cmd_replay(args) -> int:
     return 0
 
 
+def _default_titration_scenario(titrant):
+    from .scenario import build_scenario
+    product = "caustic-50" if titrant.compound.raises_ph else "sulfuric-98"
+    return build_scenario({
+        "title": "bench titration (no scenario: per m3, window 6-9)",
+        "effluent": {"ph": 7.0, "alkalinity_mg_l_as_caco3": 0.0},
+        "batch": {"volume_m3": 1.0}, "target": {"ph_min": 6.0, "ph_max": 9.0},
+        "reagent": {"id": product}}, "defaults")
+
+
+def _cmd_titration(args) -> int:
+    from .errors import InputError
+    from .scenario import load_scenario
+    from .sheet import render_titration
+    from .titration import check_curve, compare, parse_titrant
+    from .titration_io import read_titration_csv
+    if args.plot and not args.plot.lower().endswith(".png"):
+        raise ScenarioError(args.plot, "", "give a file name ending in .png")
+    try:
+        titrant = parse_titrant(args.titrant)
+        vols, phs, lines, notes = read_titration_csv(args.data, args.drop)
+        curve = check_curve(args.sample_ml, titrant, vols, phs, lines, source="titration")
+    except InputError as err:
+        key = err.field if err.field.startswith("--") else ""
+        raise ScenarioError(args.data if not key else key, "", err.reason) from None
+    from dataclasses import replace
+    curve = replace(curve, notes=tuple(notes) + curve.notes)
+    scenario = (load_scenario(args.scenario) if args.scenario
+                else _default_titration_scenario(titrant))
+    report = compare(curve, scenario, unknown_acid=args.unknown_acid)
+    if args.plot:
+        from .plot import titration_figure_png
+        write_atomic(args.plot, titration_figure_png(curve, report, scenario.title))
+    public = {k: v for k, v in report.items() if not k.startswith("_")}
+    sys.stdout.write(json.dumps(public, indent=2, ensure_ascii=False, default=str) + "\n"
+                     if args.json else render_titration(scenario, report, args.units))
+    return 0
+
+
 def _cmd_log(args) -> int:
     from .shiftlog import ShiftLog, parse_since
     from . import logview
@@ -211,7 +264,8 @@ def main(argv: list[str] | None = None) -> int:
     """Entry point of the ``dosing`` command; returns the exit code."""
     args = _parser().parse_args(argv)
     handler = {"plan": _cmd_plan, "reagents": _cmd_reagents, "solutes": _cmd_solutes,
-               "tui": _cmd_tui, "log": _cmd_log, "replay": _cmd_replay}[args.command]
+               "tui": _cmd_tui, "log": _cmd_log, "replay": _cmd_replay,
+               "titration": _cmd_titration}[args.command]
     try:
         return handler(args)
     except DosingError as err:

@@ -111,6 +111,7 @@ class Water:
     alkalinity_eq_l: float
     notes: tuple[str, ...] = field(default=())
     ions_mg_l: Mapping[str, float] = field(default_factory=dict)
+    unknown_pka: float | None = None
 
     def mixture(self) -> Mixture:
         """The water as a one-row :class:`Mixture` for dosing.
@@ -122,7 +123,7 @@ class Water:
                if self.open_to_air else math.nan)
         return Mixture.build(totals_vector(self.totals_mol_l), self.strong_eq_l,
                              self.strong_ionic_strength, self.temperature_c,
-                             co2, self.davies)
+                             co2, self.davies, self.unknown_pka)
 
     @property
     def carbonate_mol_l(self) -> float:
@@ -183,7 +184,8 @@ def infer_water(ph: float, temperature_c: float = 25.0, *,
                 alkalinity_endpoint_ph: float = ALKALINITY_ENDPOINT_PH,
                 acidity_endpoint_ph: float = ACIDITY_ENDPOINT_PH,
                 extra_ionic_strength_mol_l: float = 0.0,
-                ions_mg_l: Mapping[str, float] | None = None) -> Water:
+                ions_mg_l: Mapping[str, float] | None = None,
+                unknown_pka: float | None = None) -> Water:
     """Build the :class:`Water` that matches what was measured.
 
     Parameters
@@ -212,6 +214,9 @@ def infer_water(ph: float, temperature_c: float = 25.0, *,
         (e.g. a known NaCl load) [mol/L].
     ions_mg_l : mapping, optional
         Background strong ions by name (:data:`BACKGROUND_IONS`) [mg/L].
+    unknown_pka : float, optional
+        pKa of the ``unknown`` solute (an unidentified monoprotic acid, e.g.
+        fitted to a bench titration) [-].
 
     Raises
     ------
@@ -238,6 +243,14 @@ def infer_water(ph: float, temperature_c: float = 25.0, *,
     pco2_uatm = _check_number("pco2_uatm", pco2_uatm, 0.0, 1e6, lo_open=True)
     extra_i = _check_number("extra_ionic_strength_mol_l", extra_ionic_strength_mol_l, 0.0, 5.0)
     totals = _collect_totals(solutes_mmol_l, solutes_mg_l)
+    if (solutes_mg_l or {}).get("unknown") is not None:
+        raise InputError("solutes_mg_l.unknown", "an unidentified acid has no mass basis; "
+                         "give it in solutes_mmol_l with its unknown_pka")
+    if "unknown" in totals and unknown_pka is None:
+        raise InputError("solutes_mmol_l.unknown", "give the pKa of the unidentified "
+                         "acid as unknown_pka")
+    if unknown_pka is not None:
+        unknown_pka = _check_number("unknown_pka", unknown_pka, 1.0, 13.0)
     ions = {}
     for key, value in (ions_mg_l or {}).items():
         if key not in BACKGROUND_IONS:
@@ -281,7 +294,8 @@ def infer_water(ph: float, temperature_c: float = 25.0, *,
         else:
             c, coef, _ = carbonate_for_alkalinity(vec, ph, temperature_c, value_eq_l,
                                                  ep, davies=davies,
-                                                 extra_ionic_strength=extra_i)
+                                                 extra_ionic_strength=extra_i,
+                                                 unknown_pka=unknown_pka)
             carb = float(c[0])
             if not np.isfinite(carb) or coef[0] == 0.0:
                 raise InputError(name, "carbonate cannot explain this value at "
@@ -306,7 +320,7 @@ def infer_water(ph: float, temperature_c: float = 25.0, *,
         if open_to_air:
             a0_c = float(co2_in_air_mol_l(temperature_c, pco2_uatm * 1e-6))
             probe = speciate(Mixture.build(vec, 0.0, extra_i, temperature_c,
-                                           a0_c, davies), ph)
+                                           a0_c, davies, unknown_pka), ph)
             carb = float(probe.totals_mol_l[0, CARBONATE])
             totals["carbonate"] = carb
             vec[CARBONATE] = carb
@@ -319,13 +333,13 @@ def infer_water(ph: float, temperature_c: float = 25.0, *,
                          "reliable")
 
     s, ionic = strong_balance_at_ph(vec, ph, temperature_c, davies=davies,
-                                    extra_ionic_strength=extra_i)
+                                    extra_ionic_strength=extra_i, unknown_pka=unknown_pka)
     s = float(s[0])
     if not math.isfinite(s):
         raise ModelError("the ionic strength of this water did not settle; check the "
                          "solute totals (Davies is not meant for brines)")
     strong_i = extra_i + 0.5 * abs(s)
-    start = Mixture.build(vec, s, strong_i, temperature_c, math.nan, davies)
+    start = Mixture.build(vec, s, strong_i, temperature_c, math.nan, davies, unknown_pka)
     alk_model = _alkalinity_of(start, ph)
     ionic = float(ionic[0])
     if ionic > DAVIES_I_LIMIT:
@@ -337,7 +351,7 @@ def infer_water(ph: float, temperature_c: float = 25.0, *,
                  strong_eq_l=s, strong_ionic_strength=strong_i,
                  ionic_strength=ionic, davies=davies, open_to_air=bool(open_to_air),
                  pco2_atm=pco2_uatm * 1e-6, alkalinity_eq_l=alk_model,
-                 notes=tuple(notes), ions_mg_l=ions)
+                 notes=tuple(notes), ions_mg_l=ions, unknown_pka=unknown_pka)
 
 
 def _alkalinity_of(mix: Mixture, ph: float) -> float:

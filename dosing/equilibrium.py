@@ -45,7 +45,7 @@ Concentrations are mol/L, taken equal to mol/kg (dilute water).
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -64,6 +64,7 @@ __all__ = [
 N_SYSTEMS = len(SYSTEMS)
 _MAXSTEP = 3
 CARBONATE = SYSTEM_IDS.index("carbonate")
+UNKNOWN = SYSTEM_IDS.index("unknown")
 _LN10 = np.log(10.0)
 
 # Charge of each form (most protonated first), shape (m, 4).
@@ -139,6 +140,8 @@ class Mixture:
         water, whose carbonate total is then ``totals_mol_l[:, CARBONATE]``.
     davies : bool
         Davies activity correction (True) or ideal solution (False).
+    unknown_pka : ndarray (n,) or None
+        pKa of the fitted unidentified acid (column ``unknown``) [-].
     """
 
     totals_mol_l: np.ndarray
@@ -147,10 +150,12 @@ class Mixture:
     temperature_c: np.ndarray
     co2_air_mol_l: np.ndarray
     davies: bool = True
+    unknown_pka: np.ndarray | None = None
 
     @classmethod
     def build(cls, totals_mol_l, strong_eq_l, strong_ionic_strength,
-              temperature_c, co2_air_mol_l=np.nan, davies=True) -> "Mixture":
+              temperature_c, co2_air_mol_l=np.nan, davies=True,
+              unknown_pka=None) -> "Mixture":
         """Broadcast the inputs to n waters and freeze them."""
         tot = np.atleast_2d(np.asarray(totals_mol_l, dtype=float))
         s = np.atleast_1d(np.asarray(strong_eq_l, dtype=float))
@@ -159,7 +164,18 @@ class Mixture:
             return np.broadcast_to(np.atleast_1d(np.asarray(x, dtype=float)), (n,)).copy()
         return cls(np.broadcast_to(tot, (n, N_SYSTEMS)).copy(), vec(s),
                    vec(strong_ionic_strength), vec(temperature_c),
-                   vec(co2_air_mol_l), bool(davies))
+                   vec(co2_air_mol_l), bool(davies),
+                   None if unknown_pka is None else vec(unknown_pka))
+
+    def constants(self) -> Constants:
+        """Constants at this mixture's temperatures, fitted pKa applied."""
+        const = constants_at(self.temperature_c)
+        if self.unknown_pka is not None:
+            k = const.k.copy()
+            k[:, UNKNOWN, 0] = np.where(np.isfinite(self.unknown_pka),
+                                        10.0 ** -np.nan_to_num(self.unknown_pka), k[:, UNKNOWN, 0])
+            const = Constants(const.kw, k, const.a)
+        return const
 
     @property
     def n(self) -> int:
@@ -252,7 +268,7 @@ def speciate(mix: Mixture, ph, *, max_iter: int = 60) -> Speciation:
     reported (ideal).
     """
     ph = np.broadcast_to(np.asarray(ph, dtype=float), (mix.n,)).copy()
-    const = constants_at(mix.temperature_c)
+    const = mix.constants()
     ionic = mix.strong_ionic_strength.copy()
     for _ in range(max_iter):
         alpha, q, totals, h, oh, resid, beta, new_i = _state(mix, ph, const, ionic)
@@ -361,7 +377,7 @@ def solve_ph(mix: Mixture, *, ph_guess=None, tol_ph: float = 1e-12,
     ModelError
         If any water fails to converge (the message gives how many).
     """
-    const = constants_at(mix.temperature_c)
+    const = mix.constants()
     rows = _restrict(mix, const)
     ionic = mix.strong_ionic_strength.copy()
     ph = np.full(mix.n, 7.0) if ph_guess is None else np.broadcast_to(
@@ -441,7 +457,7 @@ def _newton(rows: _Rows, ph, ionic, tol_ph, max_iter, update_ionic):
 
 def strong_balance_at_ph(totals_mol_l, ph, temperature_c, *, davies: bool,
                          extra_ionic_strength=0.0, co2_air_mol_l=np.nan,
-                         max_iter: int = 60):
+                         max_iter: int = 60, unknown_pka=None):
     """Strong-ion balance S [eq/L] that puts each water at ``ph`` (direct).
 
     The strong ions are taken as monovalent for the ionic strength, plus
@@ -454,11 +470,10 @@ def strong_balance_at_ph(totals_mol_l, ph, temperature_c, *, davies: bool,
     """
     ph = np.atleast_1d(np.asarray(ph, dtype=float))
     mix = Mixture.build(totals_mol_l, np.zeros_like(ph), extra_ionic_strength,
-                        temperature_c, co2_air_mol_l, davies)
+                        temperature_c, co2_air_mol_l, davies, unknown_pka)
     extra = mix.strong_ionic_strength
-    bare = Mixture(mix.totals_mol_l, np.zeros(mix.n), np.zeros(mix.n), mix.temperature_c,
-                   mix.co2_air_mol_l, davies)
-    rows = _restrict(bare, constants_at(mix.temperature_c))
+    bare = replace(mix, strong_eq_l=np.zeros(mix.n), strong_ionic_strength=np.zeros(mix.n))
+    rows = _restrict(bare, mix.constants())
 
     def at(ionic):
         resid, _, i_weak = _rows_state(rows, ph, ionic)
@@ -475,7 +490,8 @@ def strong_balance_at_ph(totals_mol_l, ph, temperature_c, *, davies: bool,
 
 def carbonate_for_alkalinity(totals_mol_l, ph, temperature_c, alk_eq_l,
                              endpoint_ph, *, davies: bool,
-                             extra_ionic_strength=0.0, max_iter: int = 60):
+                             extra_ionic_strength=0.0, max_iter: int = 60,
+                             unknown_pka=None):
     """Carbonate total [mol/L] that explains a titration to ``endpoint_ph``.
 
     ``alk_eq_l`` is the strong acid [eq/L] taken to titrate the water from
@@ -502,8 +518,8 @@ def carbonate_for_alkalinity(totals_mol_l, ph, temperature_c, alk_eq_l,
                           (ph.shape[0], N_SYSTEMS)).copy()
     tot[:, CARBONATE] = 0.0
     t = np.broadcast_to(np.asarray(temperature_c, dtype=float), ph.shape)
-    bare = Mixture.build(tot, 0.0, 0.0, t, np.nan, davies)
-    rows = _restrict(bare, constants_at(t), extra_cols=[CARBONATE])
+    bare = Mixture.build(tot, 0.0, 0.0, t, np.nan, davies, unknown_pka)
+    rows = _restrict(bare, bare.constants(), extra_cols=[CARBONATE])
     car = rows.carb
     alk = np.broadcast_to(np.asarray(alk_eq_l, dtype=float), ph.shape)
     extra = np.broadcast_to(np.asarray(extra_ionic_strength, float), ph.shape)
@@ -592,9 +608,10 @@ def add_dose(mix: Mixture, reagent: ReagentVector, dose_mol_l) -> Mixture:
     d = np.broadcast_to(np.asarray(dose_mol_l, dtype=float), (mix.n,))
     f = 1.0 / (1.0 + d * reagent.volume_l)
     tot = f[:, None] * (mix.totals_mol_l + d[:, None] * reagent.totals_mol[None, :])
-    return Mixture(tot, f * (mix.strong_eq_l + d * reagent.strong_eq),
-                   f * (mix.strong_ionic_strength + d * reagent.ionic_strength),
-                   mix.temperature_c, mix.co2_air_mol_l, mix.davies)
+    return replace(mix, totals_mol_l=tot,
+                   strong_eq_l=f * (mix.strong_eq_l + d * reagent.strong_eq),
+                   strong_ionic_strength=f * (mix.strong_ionic_strength
+                                              + d * reagent.ionic_strength))
 
 
 def dose_to_ph(mix: Mixture, reagent: ReagentVector, target_ph,
@@ -619,7 +636,7 @@ def dose_to_ph(mix: Mixture, reagent: ReagentVector, target_ph,
         reagent's direction. The caller decides what is reachable.
     """
     tp = np.broadcast_to(np.asarray(target_ph, dtype=float), (mix.n,)).copy()
-    const = constants_at(mix.temperature_c)
+    const = mix.constants()
     n_full = np.asarray(reagent.totals_mol, dtype=float)
     rows = _restrict(mix, const, extra_cols=np.flatnonzero(n_full))
     n_r = n_full[_cols_of(mix, n_full)]   # the same columns as ``rows``

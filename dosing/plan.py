@@ -21,7 +21,7 @@ dose past a product's practical limit.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Mapping
 
 import numpy as np
@@ -335,9 +335,7 @@ def plan_dose(water: Water, reagent: Reagent, target: Target,
 
 def mix_closed(water: Water) -> Mixture:
     """The water as measured, before any exchange with air."""
-    m = water.mixture()
-    return Mixture(m.totals_mol_l, m.strong_eq_l, m.strong_ionic_strength,
-                   m.temperature_c, np.full(1, math.nan), m.davies)
+    return replace(water.mixture(), co2_air_mol_l=np.full(1, math.nan))
 
 
 def titration_curve(water: Water, reagent: Reagent, max_dose_mol_l: float,
@@ -375,14 +373,13 @@ def _repeat(mix: Mixture, n: int) -> Mixture:
     return Mixture.build(np.repeat(mix.totals_mol_l, n, 0), np.repeat(mix.strong_eq_l, n),
                          np.repeat(mix.strong_ionic_strength, n),
                          np.repeat(mix.temperature_c, n), np.repeat(mix.co2_air_mol_l, n),
-                         mix.davies)
+                         mix.davies,
+                         None if mix.unknown_pka is None else np.repeat(mix.unknown_pka, n))
 
 
 def mix_closed(water: Water) -> Mixture:
     """The water as measured, before any exchange with air."""
-    m = water.mixture()
-    return Mixture(m.totals_mol_l, m.strong_eq_l, m.strong_ionic_strength,
-                   m.temperature_c, np.full(1, math.nan), m.davies)
+    return replace(water.mixture(), co2_air_mol_l=np.full(1, math.nan))
 
 
 def titration_curve(water: Water, reagent: Reagent, max_dose_mol_l: float,

@@ -135,3 +135,39 @@ def replay_figure_png(totals, report: dict, units: str = "metric") -> bytes:
     fig.savefig(buf, format="png")
     plt.close(fig)
     return buf.getvalue()
+
+
+def titration_figure_png(curve, report: dict, title: str = "") -> bytes:
+    """PNG bytes: measured points, PCHIP interpolation, model curve, window, dose."""
+    direct, fit = report["_direct"], report["_fit"]
+    plan = report["_plan"]
+    fig, ax = plt.subplots(figsize=(8.0, 5.4), dpi=110)
+    t = plan.target
+    ax.axhspan(t.ph_min, t.ph_max, color="tab:green", alpha=0.13,
+               label=f"window pH {t.ph_min:g}-{t.ph_max:g}")
+    ax.axhline(t.ph_aim, color="tab:green", ls="--", lw=1.0, label=f"aim pH {t.ph_aim:g}")
+    ph_grid = np.linspace(min(curve.ph), max(curve.ph), 400)
+    ml = direct.interpolant(ph_grid)
+    ax.plot(ml, ph_grid, color="0.4", lw=1.2, label="interpolation (PCHIP)")
+    v = np.linspace(0, curve.added_ml[-1], 300)
+    from .equilibrium import add_dose, solve_ph
+    from .plan import _repeat
+    mix = _repeat(fit.water.mixture(), v.size)
+    ph_model = solve_ph(add_dose(mix, curve.titrant.vector(),
+                                 v * curve.titrant.molarity_mol_l / curve.sample_ml))
+    ax.plot(v, ph_model, color="tab:blue", lw=1.8, label="fitted water (model)")
+    ax.plot(curve.added_ml, curve.ph, "o", color="k", ms=4, label="measured")
+    ax.axvline(direct.ml_at_aim, color="tab:red", ls=":", lw=1.0,
+               label=f"{direct.ml_at_aim:.2f} mL to the aim")
+    ax.set_xlabel(f"titrant added ({curve.titrant.label}), mL into {curve.sample_ml:g} mL")
+    ax.set_ylabel("pH")
+    ax.grid(True, alpha=0.3)
+    ax.legend(fontsize=8, loc="best")
+    ax.set_title(title or "Bench titration", fontsize=11)
+    fig.text(0.01, 0.01, "Model estimate. Local codes, the discharge permit and a "
+             "licensed engineer have the final word.", fontsize=7, color="0.35")
+    fig.tight_layout(rect=(0, 0.03, 1, 1))
+    buf = io.BytesIO()
+    fig.savefig(buf, format="png")
+    plt.close(fig)
+    return buf.getvalue()

@@ -47,6 +47,7 @@ _SCHEMA: dict[str, dict[str, tuple]] = {
         "solutes_mg_l": ((dict,), False),
         "extra_ionic_strength_mol_l": ((int, float), False),
         "ions_mg_l": ((dict,), False),
+        "unknown_pka": ((int, float), False),
     },
     "batch": {"volume_m3": ((int, float), True)},
     "flow": {"m3_per_h": ((int, float), True),
@@ -225,7 +226,7 @@ def build_scenario(data: Mapping[str, Any], path: str = "<scenario>") -> Scenari
             alkalinity_endpoint_ph=eff.get("alkalinity_endpoint_ph", 4.5),
             acidity_endpoint_ph=eff.get("acidity_endpoint_ph", 8.3),
             extra_ionic_strength_mol_l=eff.get("extra_ionic_strength_mol_l", 0.0),
-            ions_mg_l=eff.get("ions_mg_l"))
+            ions_mg_l=eff.get("ions_mg_l"), unknown_pka=eff.get("unknown_pka"))
         t = data["target"]
         target = Target(float(t["ph_min"]), float(t["ph_max"]),
                         None if "ph_aim" not in t else float(t["ph_aim"]))

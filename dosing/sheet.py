@@ -255,7 +255,7 @@ def render_sheet(scenario: Scenario, plan: Plan, units: str = "metric",
     else:
         amount = f"flow of {fmt(plan.basis.m3_per_h * u.flow_per_m3_h)} {u.flow}"
     eff = scenario.data.get("effluent", {})
-    measured = [f"pH {w.ph:g} at {w.temperature_c:g} °C"]
+    measured = [f"pH {w.ph:.2f} at {w.temperature_c:g} °C"]
     if "alkalinity_mg_l_as_caco3" in eff:
         measured.append(f"alkalinity {eff['alkalinity_mg_l_as_caco3']:g} mg/L as CaCO3")
     if "acidity_mg_l_as_caco3" in eff:
@@ -336,3 +336,48 @@ def render_replay(report: dict[str, Any], units: str = "metric", width: int = 78
     for c in r["cautions"]:
         out.extend(_wrap(c, width, "  - "))
     return "\n".join(out) + "\n"
+
+
+def render_titration(scenario: Scenario, report: dict[str, Any], units: str = "metric",
+                     width: int = 78) -> str:
+    """Both titration methods side by side, then the model plan's sheet."""
+    d, m = report["direct"], report["model"]
+    per = "per_h" if "kg_product_per_h" in d else "per_batch"
+    u = UNIT_SYSTEMS[units]
+    kg, lit = d[f"kg_product_{per}"], d[f"litres_product_{per}"]
+    plan: Plan = report["_plan"]
+    a = plan.amounts()
+    label = "per hour" if per == "per_h" else "per batch"
+
+    def prod(k, l_):
+        parts = []
+        if k is not None:
+            parts.append(f"{fmt(k * u.mass_per_kg)} {u.mass}")
+        if l_ is not None:
+            parts.append(f"{fmt(l_ * u.product_volume_per_l)} {u.product_volume}")
+        return " = ".join(parts) or "n/a"
+
+    out = [f"BENCH TITRATION  {report['points']} points, {fmt(report['sample_ml'])} mL "
+           f"sample, titrant {report['titrant']}", "=" * 40,
+           f"direct scaling  {fmt(d['ml_titrant_at_aim'])} mL titrant to pH "
+           f"{plan.target.ph_aim:g} -> {fmt(d['dose_mmol_per_l'])} mmol/L, "
+           f"{prod(kg, lit)} {label}",
+           f"model fit       {fmt(a.mmol_per_l)} mmol/L, {prod(a.kg_product, a.litres_product)} "
+           f"{label}"]
+    gap = report["gap_model_vs_direct"]
+    if gap is not None:
+        out.append(f"                the model is {gap:+.1%} against the direct scaling")
+    names = {"carbonate_mmol_l": ("carbonate", " mmol/L"),
+             "strong_ion_balance_meq_l": ("strong-ion balance", " meq/L"),
+             "unknown_acid_mmol_l": ("unlisted acid", " mmol/L"),
+             "unknown_acid_pka": ("its pKa", "")}
+    out.append("fitted water    " + ", ".join(
+        f"{names[k][0]} {fmt(v)} ± {fmt(m['stderr'][k], 2)}{names[k][1]}"
+        for k, v in m["fitted"].items()) + f"; pH misfit {m['rms_ph']:.3f} RMS")
+    if report["warnings"]:
+        out += ["", "TITRATION WARNINGS"]
+        for w in report["warnings"]:
+            out.extend(_wrap(w, width, "  ! "))
+    out += ["", "PLAN WITH THE FITTED WATER", ""]
+    out.append(render_sheet(report["_scenario"], plan, units, width))
+    return "\n".join(out)

@@ -167,6 +167,12 @@ SYSTEMS: tuple[AcidSystem, ...] = (
                (9.21,), (43.6,), 0, "CN", _mm(C=1, N=1),
                "pKa 9.21 [CRC]; enthalpy +43.6 kJ/mol [NBS] (both from "
                "memory)."),
+    AcidSystem("unknown", "unidentified weak acid (fitted)", "HX",
+               (7.0,), (0.0,), 0, "mmol", 1000.0,
+               "Not a published constant: a monoprotic acid whose total and pKa "
+               "are fitted to a bench titration; the pKa of each water is set on "
+               "its Mixture (7.0 is only a placeholder) and not moved with "
+               "temperature."),
 )
 
 #: Catalogue ids in the fixed order used by the vectorised engine.

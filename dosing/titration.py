@@ -1,0 +1,442 @@
+"""Bench titration to full-scale dose, two ways side by side.
+
+An operator titrates a sample (``sample_ml`` of effluent) with a titrant of
+known strength and reads the pH after each addition. From that curve:
+
+1. **Direct scaling** (model-free): a monotone PCHIP interpolation of the
+   titrant volume against pH gives the volume at the aim and at the window
+   edges; scaled by tank-to-sample volume and by equivalents of titrant to
+   product it gives the dose.
+2. **Model fit**: the engine's water (carbonate total and strong-ion
+   balance, optionally one unidentified monoprotic acid with its pKa) is
+   fitted by least squares to the curve, with uncertainties from the
+   Jacobian; the fitted water is then planned like any other, with any
+   reagent.
+
+The fit compares volumes, not pH: at each measured pH the model's titrant
+volume comes from the direct fixed-pH solve (no root finding), which is
+well-conditioned in buffer regions and fast. The pH misfit is reported too.
+
+References
+----------
+Fritsch, F. N.; Carlson, R. E. (1980). Monotone piecewise cubic
+interpolation. SIAM J. Numer. Anal. 17, 238-246 (scipy's PchipInterpolator).
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from dataclasses import dataclass, field, replace
+from typing import Any
+
+import numpy as np
+from scipy.interpolate import PchipInterpolator
+from scipy.optimize import least_squares
+
+from .effluent import Water
+from .equilibrium import (CARBONATE, UNKNOWN, Mixture, ReagentVector, add_dose, dose_to_ph,
+                          solve_ph, speciate)
+from .errors import InputError, UnreachableError
+from .plan import Batch, Flow, Plan, Target, amounts_for, plan_dose
+from .reagents import COMPOUNDS, Compound, Reagent, get_reagent
+from .scenario import Scenario
+
+__all__ = ["Titrant", "parse_titrant", "BenchCurve", "check_curve", "DirectScaling",
+           "direct_scaling", "WaterFit", "fit_water", "compare", "MISREAD_PH",
+           "GAP_WARN", "equivalents_per_mol"]
+
+#: A pH step against the titrant's direction larger than this is a misread
+#: (smaller ones are meter noise and are flagged) [pH] (common practice).
+MISREAD_PH = 0.05
+#: Direct and model doses further apart than this are worth a warning [-]
+#: (common practice).
+GAP_WARN = 0.15
+MIN_POINTS = 5
+
+
+def equivalents_per_mol(compound: Compound) -> float | None:
+    """Strong acid or base equivalents one mole delivers [eq/mol].
+
+    None for CO2, whose acid strength depends on the pH.
+    """
+    if compound.formula == "CO2":
+        return None
+    if compound.raises_ph:
+        return compound.strong_eq
+    if "sulfate" in compound.adds:
+        return 2.0          # H2SO4: both protons, above about pH 3
+    return -compound.strong_eq
+
+
+@dataclass(frozen=True)
+class Titrant:
+    """The bench titrant: compound and molarity [mol/L]."""
+
+    compound: Compound
+    molarity_mol_l: float
+    label: str
+
+    def vector(self) -> ReagentVector:
+        return self.compound.vector(1.0 / self.molarity_mol_l)
+
+    @property
+    def normality_eq_l(self) -> float:
+        return self.molarity_mol_l * equivalents_per_mol(self.compound)
+
+
+_STRENGTH = re.compile(r"^\s*(?:(?P<n1>[\d.]+)\s*(?P<u1>[MN])\s+(?P<c1>\S+)"
+                       r"|(?P<c2>[A-Za-z()0-9]+)\s*[:\s]\s*(?P<n2>[\d.]+)\s*(?P<u2>[MN]?))\s*$")
+
+
+def parse_titrant(text: str) -> Titrant:
+    """A titrant from a catalogue id or a strength: ``0.1 M NaOH``,
+    ``0.02 N H2SO4``, ``HCl:0.1`` (molar).
+    """
+    text = text.strip()
+    try:
+        r = get_reagent(text)
+    except InputError:
+        r = None
+    if r is not None:
+        if r.litres_product_per_mol is None:
+            raise InputError("--titrant", f"{text} is not a solution; titrate with a "
+                             "solution of known strength")
+        return Titrant(r.compound, 1.0 / r.litres_product_per_mol, r.name)
+    m = _STRENGTH.match(text)
+    if not m:
+        raise InputError("--titrant", f"{text!r}: give a catalogue id or a strength "
+                         "such as '0.1 M NaOH', '0.02 N H2SO4' or 'HCl:0.1'")
+    comp = m.group("c1") or m.group("c2")
+    value = float(m.group("n1") or m.group("n2"))
+    unit = m.group("u1") or m.group("u2") or "M"
+    if comp not in COMPOUNDS:
+        raise InputError("--titrant", f"unknown compound {comp!r}; allowed: "
+                         + ", ".join(COMPOUNDS))
+    c = COMPOUNDS[comp]
+    eq = equivalents_per_mol(c)
+    if eq is None:
+        raise InputError("--titrant", "CO2 is not a titrant; use a strong acid")
+    molarity = value / eq if unit == "N" else value
+    if not 1e-4 <= molarity <= 20:
+        raise InputError("--titrant", f"{value:g} {unit} is not a plausible titrant "
+                         "strength; allowed: 0.0001 to 20 mol/L")
+    return Titrant(c, molarity, f"{molarity:g} M {comp}")
+
+
+@dataclass(frozen=True)
+class BenchCurve:
+    """A checked bench titration (volumes increasing, pH monotone)."""
+
+    sample_ml: float
+    titrant: Titrant
+    added_ml: np.ndarray
+    ph: np.ndarray
+    rows: np.ndarray                 #: file row number of each point
+    notes: tuple[str, ...] = field(default=())
+
+
+def check_curve(sample_ml: float, titrant: Titrant, added_ml, ph, rows=None,
+                source: str = "titration") -> BenchCurve:
+    """Validate a titration; raises InputError with the row at fault."""
+    v = np.asarray(added_ml, dtype=float)
+    p = np.asarray(ph, dtype=float)
+    rows = np.arange(1, v.size + 1) if rows is None else np.asarray(rows)
+    if not (math.isfinite(sample_ml) and 1.0 <= sample_ml <= 1e5):
+        raise InputError("--sample-ml", f"{sample_ml:g}; allowed: 1 to 100,000 mL")
+    bad = ~np.isfinite(v) | ~np.isfinite(p)
+    if bad.any():
+        raise InputError(source, "rows with a missing or unreadable number: "
+                         + ", ".join(str(r) for r in rows[bad][:10])
+                         + "; fix or delete them (nothing is guessed)")
+    if v.size < MIN_POINTS:
+        raise InputError(source, f"{v.size} points; a titration needs at least "
+                         f"{MIN_POINTS}")
+    if np.any(v < 0) or np.any((p < 0) | (p > 14)):
+        raise InputError(source, "volumes must be 0 or more mL and pH 0 to 14")
+    dv = np.diff(v)
+    if np.any(dv == 0):
+        i = int(np.flatnonzero(dv == 0)[0])
+        raise InputError(source, f"rows {rows[i]} and {rows[i + 1]} have the same "
+                         f"volume {v[i]:g} mL; keep one reading per addition")
+    if np.any(dv < 0):
+        i = int(np.flatnonzero(dv < 0)[0])
+        raise InputError(source, f"volume goes down at row {rows[i + 1]} "
+                         f"({v[i]:g} -> {v[i + 1]:g} mL); the titrant added must be "
+                         "cumulative")
+    if v[-1] > 10 * sample_ml:
+        raise InputError(source, f"{v[-1]:g} mL of titrant for a {sample_ml:g} mL "
+                         "sample: the volumes look like the wrong unit; give mL")
+    direction = 1.0 if titrant.compound.raises_ph else -1.0
+    dp = np.diff(p) * direction
+    notes: list[str] = []
+    if np.any(dp < -MISREAD_PH):
+        i = int(np.flatnonzero(dp < -MISREAD_PH)[0])
+        verb = "falls" if direction > 0 else "rises"
+        raise InputError(source, f"pH {verb} from {p[i]:g} to {p[i + 1]:g} at row "
+                         f"{rows[i + 1]} while {titrant.label} is added: a misread? "
+                         "Fix the reading or drop that row (--drop ROW)")
+    small = np.flatnonzero(dp < 0)
+    if small.size:
+        notes.append("pH readings against the trend by up to "
+                     f"{MISREAD_PH:g} at rows " + ", ".join(str(rows[i + 1]) for i in small)
+                     + ": taken as meter noise and held level for the interpolation")
+    if v[0] != 0:
+        notes.append(f"the first reading is at {v[0]:g} mL, not 0: the sample's own pH "
+                     "is not in the data")
+    return BenchCurve(float(sample_ml), titrant, v, p, rows, tuple(notes))
+
+
+@dataclass(frozen=True)
+class DirectScaling:
+    """Model-free result of the curve."""
+
+    ml_at_aim: float
+    ml_at_edges: tuple[float | None, float | None]   #: at ph_min, ph_max
+    eq_per_l: float                    #: titrant equivalents per L of effluent
+    dose_mol_l: float | None           #: full-scale reagent, mol active per L
+    band_mol_l: tuple[float | None, float | None]
+    interpolant: PchipInterpolator     #: volume [mL] as a function of pH
+    notes: tuple[str, ...]
+
+
+def _monotone_ph(curve: BenchCurve) -> np.ndarray:
+    direction = 1.0 if curve.titrant.compound.raises_ph else -1.0
+    return direction * np.maximum.accumulate(direction * curve.ph)
+
+
+def direct_scaling(curve: BenchCurve, reagent: Reagent, target: Target) -> DirectScaling:
+    """Titrant volume at the aim and window edges, scaled to the reagent."""
+    p = _monotone_ph(curve)
+    keep = np.concatenate([[True], np.diff(p) != 0])     # PCHIP needs strict order
+    x, y = p[keep], curve.added_ml[keep]
+    if curve.titrant.compound.raises_ph != reagent.raises_ph:
+        raise InputError("--titrant", f"the titrant {curve.titrant.label} and the "
+                         f"reagent {reagent.name} push the pH opposite ways")
+    if x[0] > x[-1]:
+        x, y = x[::-1], y[::-1]
+    f = PchipInterpolator(x, y, extrapolate=False)
+    last = curve.ph[-1]
+    lo, hi = float(x[0]), float(x[-1])
+    aim = target.ph_aim
+    if not lo <= aim <= hi:
+        raise UnreachableError(
+            f"the titration does not reach the aim pH {aim:g}: it ends at pH {last:g} "
+            f"after {curve.added_ml[-1]:g} mL (range pH {lo:g} to {hi:g}); no "
+            "extrapolation is made. Extend the titration past the aim")
+    notes = []
+
+    def ml(ph):
+        if lo <= ph <= hi:
+            return float(f(ph))
+        notes.append(f"the curve does not reach pH {ph:g}, so that edge of the window "
+                     "has no volume")
+        return None
+
+    v_aim = ml(aim)
+    edges = (ml(target.ph_min), ml(target.ph_max))
+    eq_per_l_at = lambda v_ml: (None if v_ml is None else
+                                v_ml / 1000.0 * curve.titrant.normality_eq_l
+                                / (curve.sample_ml / 1000.0))
+    eq_r = equivalents_per_mol(reagent.compound)
+    if eq_r is None:
+        notes.append(f"{reagent.name} cannot be scaled by equivalents (its strength "
+                     "as an acid depends on the pH): use the model dose")
+        to_mol = lambda e: None
+    else:
+        to_mol = lambda e: None if e is None else e / eq_r
+    if curve.titrant.compound.formula != reagent.compound.formula:
+        notes.append(f"titrant {curve.titrant.compound.formula} and reagent "
+                     f"{reagent.compound.formula} differ: direct scaling by equivalents "
+                     "ignores the carbonate, sulfate or calcium the product brings")
+    band = sorted([to_mol(eq_per_l_at(e)) for e in edges if e is not None])
+    band_t = (band[0] if band else None, band[1] if len(band) > 1 else None)
+    return DirectScaling(v_aim, edges, eq_per_l_at(v_aim), to_mol(eq_per_l_at(v_aim)),
+                         band_t, f, tuple(notes))
+
+
+@dataclass(frozen=True)
+class WaterFit:
+    """Fitted water and how good the fit is."""
+
+    water: Water
+    params: dict[str, float]          #: fitted values, mmol/L, meq/L, pKa
+    stderr: dict[str, float]          #: one standard error of each
+    residual_ml: np.ndarray           #: model minus measured volume [mL]
+    residual_ph: np.ndarray           #: model minus measured pH at each volume
+    rms_ph: float
+    unknown_acid: bool
+    warnings: tuple[str, ...]
+
+
+def _model_ml(params, curve: BenchCurve, base: Water, with_unknown: bool):
+    c_mm, s_meq = params[0], params[1]
+    tot = base.mixture().totals_mol_l.copy()
+    tot[0, CARBONATE] = c_mm / 1000.0
+    pka = None
+    if with_unknown:
+        tot[0, UNKNOWN] = params[2] / 1000.0
+        pka = params[3]
+    n = curve.ph.size
+    mix = Mixture.build(np.repeat(tot, n, 0), s_meq / 1000.0, 0.5 * abs(s_meq) / 1000.0,
+                        base.temperature_c, math.nan, base.davies, pka)
+    d, _ = dose_to_ph(mix, curve.titrant.vector(), curve.ph)
+    return d * curve.sample_ml / curve.titrant.molarity_mol_l, mix
+
+
+def _fit(curve, base, with_unknown, starts):
+    scale = max(curve.added_ml[-1], 1e-6)
+
+    def resid(x):
+        ml, _ = _model_ml(x, curve, base, with_unknown)
+        r = (ml - curve.added_ml) / scale
+        return np.where(np.isfinite(r), r, 10.0)
+
+    lo = [0.0, -2000.0] + ([0.0, 2.0] if with_unknown else [])
+    hi = [2000.0, 2000.0] + ([2000.0, 12.0] if with_unknown else [])
+    best = None
+    for x0 in starts:
+        try:
+            res = least_squares(resid, x0, bounds=(lo, hi), x_scale="jac", method="trf")
+        except ValueError:
+            continue
+        if best is None or res.cost < best.cost:
+            best = res
+    return best, scale
+
+
+def fit_water(curve: BenchCurve, base: Water, *, unknown_acid: str = "auto") -> WaterFit:
+    """Fit the carbonate total and strong-ion balance (and optionally an
+    unidentified acid) of the sample to the curve.
+
+    ``base`` gives temperature, activity model and the known solutes (its
+    carbonate is replaced by the fit). ``unknown_acid``: "auto" (added when
+    it halves the pH misfit), "yes" or "no".
+    """
+    # Starting points: the strong balance that matches the first reading
+    # for a few carbonate totals.
+    from .equilibrium import strong_balance_at_ph
+    starts = []
+    for c in (0.0, 1.0, 5.0, 20.0):
+        tot = base.mixture().totals_mol_l.copy()
+        tot[0, CARBONATE] = c / 1000.0
+        s, _ = strong_balance_at_ph(tot, curve.ph[0], base.temperature_c, davies=base.davies)
+        starts.append([c, float(s[0]) * 1000.0])
+    plain, scale = _fit(curve, base, False, starts)
+    if plain is None:
+        raise InputError("titration", "the model could not be fitted to this curve")
+    chosen, with_u = plain, False
+    ph_rms_plain = _ph_rms(plain.x, curve, base, False)
+    if unknown_acid == "yes" or (unknown_acid == "auto" and ph_rms_plain > 0.05):
+        u_starts = [[plain.x[0], plain.x[1], 1.0, pk] for pk in (3.5, 5.0, 6.5, 8.0, 9.5)]
+        withu, _ = _fit(curve, base, True, u_starts)
+        if withu is not None:
+            rms_u = _ph_rms(withu.x, curve, base, True)
+            if unknown_acid == "yes" or rms_u < 0.5 * ph_rms_plain:
+                chosen, with_u = withu, True
+    x = chosen.x
+    names = ["carbonate_mmol_l", "strong_ion_balance_meq_l"] + (
+        ["unknown_acid_mmol_l", "unknown_acid_pka"] if with_u else [])
+    warnings: list[str] = []
+    j = chosen.jac
+    dof = max(curve.ph.size - len(x), 1)
+    s2 = 2 * chosen.cost / dof
+    try:
+        jtj = j.T @ j
+        cond = np.linalg.cond(jtj)
+        cov = np.linalg.inv(jtj) * s2
+        std = np.sqrt(np.maximum(np.diag(cov), 0.0))
+    except np.linalg.LinAlgError:
+        cond, std = math.inf, np.full(len(x), math.inf)
+    if not math.isfinite(cond) or cond > 1e12:
+        warnings.append("the fitted values are not identifiable from this curve (the "
+                        "parameters trade off against each other); titrate further "
+                        "past the buffer regions")
+    for name, value, err in zip(names, x, std):
+        if abs(value) > 1e-9 and err > 0.5 * abs(value) and "pka" not in name:
+            warnings.append(f"{name.replace('_', ' ')} is poorly determined "
+                            f"({value:.3g} ± {err:.2g})")
+    ml, mix = _model_ml(x, curve, base, with_u)
+    r_ml = ml - curve.added_ml
+    r_ph, rms = _ph_resid(x, curve, base, with_u)
+    if rms > 0.1:
+        warnings.append(f"poor fit: the model misses the measured pH by {rms:.2f} "
+                        "(RMS); a buffer the listed solutes do not explain, or a "
+                        "misread; trust the direct scaling more")
+    if with_u:
+        warnings.append(f"an unlisted buffer explains the curve: about {x[2]:.3g} mmol/L "
+                        f"of a weak acid with pKa {x[3]:.2f}; identify it if you can")
+    totals = dict(base.totals_mol_l)
+    totals["carbonate"] = x[0] / 1000.0
+    if with_u:
+        totals["unknown"] = x[2] / 1000.0
+    start = Mixture.build(mix.totals_mol_l[:1], x[1] / 1000.0, 0.5 * abs(x[1]) / 1000.0,
+                          base.temperature_c, math.nan, base.davies,
+                          x[3] if with_u else None)
+    ph0 = float(solve_ph(start)[0])
+    sp = speciate(start, ph0)
+    water = replace(base, ph=ph0, totals_mol_l=totals, strong_eq_l=x[1] / 1000.0,
+                    strong_ionic_strength=0.5 * abs(x[1]) / 1000.0,
+                    ionic_strength=float(sp.ionic_strength[0]), open_to_air=base.open_to_air,
+                    unknown_pka=float(x[3]) if with_u else None,
+                    notes=("water fitted to the bench titration",))
+    return WaterFit(water, dict(zip(names, map(float, x))), dict(zip(names, map(float, std))),
+                    r_ml, r_ph, rms, with_u, tuple(warnings))
+
+
+def _ph_resid(x, curve, base, with_u):
+    """Model pH at each measured volume (forward solves) minus measured."""
+    _, mix = _model_ml(x, curve, base, with_u)
+    d = curve.added_ml * curve.titrant.molarity_mol_l / curve.sample_ml
+    ph = solve_ph(add_dose(mix, curve.titrant.vector(), d), ph_guess=curve.ph)
+    r = ph - curve.ph
+    return r, float(np.sqrt(np.mean(r * r)))
+
+
+def _ph_rms(x, curve, base, with_u) -> float:
+    return _ph_resid(x, curve, base, with_u)[1]
+
+
+def compare(curve: BenchCurve, scenario: Scenario, *, unknown_acid: str = "auto"
+            ) -> dict[str, Any]:
+    """Both methods for a scenario's reagent, window and tank, as plain data."""
+    from .reagents import GENERAL_CAUTION
+    from .sheet import sheet_dict
+    target, reagent, basis = scenario.target, scenario.reagent, scenario.basis
+    direct = direct_scaling(curve, reagent, target)
+    fit = fit_water(curve, scenario.water, unknown_acid=unknown_acid)
+    plan = plan_dose(fit.water, reagent, target, basis, permit=scenario.permit)
+    eff = {"ph": round(fit.water.ph, 3), "temperature_c": fit.water.temperature_c}
+    fitted = replace(scenario, water=fit.water, data=dict(scenario.data, effluent=eff))
+    warnings = list(curve.notes) + list(direct.notes) + list(fit.warnings)
+    gap = None
+    if direct.dose_mol_l and plan.dose_mol_l:
+        gap = (plan.dose_mol_l - direct.dose_mol_l) / direct.dose_mol_l
+        if abs(gap) > GAP_WARN:
+            warnings.append(f"the model dose and the direct scaling differ by {gap:+.0%}: "
+                            "check the titrant strength, the sample volume and the "
+                            "water model before dosing; dose in stages")
+    a = amounts_for(direct.dose_mol_l, reagent, basis) if direct.dose_mol_l is not None \
+        else None
+    per = "per_h" if isinstance(basis, Flow) else "per_batch"
+    return {
+        "sample_ml": curve.sample_ml, "titrant": curve.titrant.label,
+        "points": int(curve.ph.size),
+        "direct": {
+            "ml_titrant_at_aim": direct.ml_at_aim,
+            "ml_titrant_at_window": list(direct.ml_at_edges),
+            "titrant_eq_per_l_effluent": direct.eq_per_l,
+            "dose_mmol_per_l": None if direct.dose_mol_l is None else direct.dose_mol_l * 1000,
+            f"kg_product_{per}": None if a is None else a.kg_product,
+            f"litres_product_{per}": None if a is None else a.litres_product,
+            "band_mmol_per_l": [None if b is None else b * 1000 for b in direct.band_mol_l],
+        },
+        "model": {"fitted": fit.params, "stderr": fit.stderr, "rms_ph": fit.rms_ph,
+                  "unknown_acid": fit.unknown_acid,
+                  "residual_ml": [float(r) for r in fit.residual_ml],
+                  "plan": sheet_dict(fitted, plan)},
+        "gap_model_vs_direct": gap,
+        "warnings": warnings,
+        "cautions": list(plan.cautions) if plan.cautions else [GENERAL_CAUTION],
+        "_plan": plan, "_direct": direct, "_fit": fit, "_scenario": fitted,
+    }
