@@ -207,18 +207,6 @@ class Speciation:
         return self.totals_mol_l[:, system] * self.alpha[:, system, form]
 
 
-def _conditional_k(const: Constants, ionic_strength, davies: bool):
-    """Mixed constants K' = Ka·γ(HA)/γ(A) and γ(H+), for use with a_H."""
-    if not davies:
-        return const.k, np.ones_like(const.kw)
-    ionic_strength = np.minimum(ionic_strength, _I_CEILING)
-    lg = davies_log_gamma(_Z[None, :, :], ionic_strength[:, None, None],
-                          const.a[:, None, None])
-    kc = const.k * 10.0 ** (lg[:, :, :-1] - lg[:, :, 1:])
-    g1 = 10.0 ** davies_log_gamma(1, ionic_strength, const.a)
-    return kc, g1
-
-
 def _alpha(ah, kc):
     """Fractions (n, m, 4) from a_H (n,) and mixed constants (n, m, 3)."""
     terms = np.empty(kc.shape[:2] + (4,))
@@ -231,33 +219,12 @@ def _alpha(ah, kc):
     return terms
 
 
-def _moments(alpha):
-    q = (alpha * _Z[None]).sum(-1)
-    m2 = (alpha * _Z[None] ** 2).sum(-1)
-    return q, m2
-
-
 def _state(mix: Mixture, ph, const: Constants, ionic_strength):
-    """Species, residual, derivative and new ionic strength at ``ph``."""
-    ah = 10.0 ** -ph
-    kc, g1 = _conditional_k(const, ionic_strength, mix.davies)
-    h = ah / g1
-    oh = const.kw / (ah * g1)
-    alpha = _alpha(ah, kc)
-    q, m2 = _moments(alpha)
-    var = m2 - q * q
-    totals = mix.totals_mol_l
-    opened = mix.open_to_air
-    if opened.any():
-        totals = totals.copy()
-        a0 = alpha[:, CARBONATE, 0]
-        totals[opened, CARBONATE] = mix.co2_air_mol_l[opened] / a0[opened]
-        # Open carbonate: d(T q)/dpH = -ln10 T m2 instead of -ln10 T var.
-        var = var.copy()
-        var[opened, CARBONATE] = m2[opened, CARBONATE]
-    resid = mix.strong_eq_l + h - oh + (totals * q).sum(-1)
-    beta = _LN10 * (h + oh + (totals * var).sum(-1))
-    ionic = 0.5 * (h + oh + (totals * m2).sum(-1)) + mix.strong_ionic_strength
+    """Species of all systems, residual, β and new ionic strength at ``ph``."""
+    r = _Rows(mix.totals_mol_l, mix.strong_eq_l, mix.strong_ionic_strength,
+              mix.co2_air_mol_l, const.kw, const.k, const.a, _Z, CARBONATE, mix.davies)
+    alpha, q, m2, h, oh = _species(r, 10.0 ** -ph, ionic_strength)
+    totals, resid, beta, ionic = _balance(r, alpha, q, m2, h, oh)
     return alpha, q, totals, h, oh, resid, beta, ionic
 
 
@@ -327,38 +294,49 @@ def _restrict(mix: Mixture, const: Constants, extra_cols=()) -> _Rows:
                  mix.davies)
 
 
-def _rows_state(r: _Rows, ph, ionic):
-    """Residual [eq/L], β [eq/(L pH)] and ionic strength [mol/L] at ``ph``."""
-    ah = 10.0 ** -ph
+def _species(r: _Rows, ah, ionic):
+    """Fractions and charge moments of the view's systems, [H+] and [OH-].
+
+    Returns (alpha (n, mc, 4), mean charge (n, mc), mean squared charge
+    (n, mc), [H+] (n,), [OH-] (n,)) at activity ``ah`` and ionic strength
+    ``ionic`` (mixed constants from the Davies equation, or ideal).
+    """
     if r.davies:
         # Trial pH values far from the root can imply absurd ionic strengths;
         # capping them keeps the trial finite (the answer never sits there).
-        ionic = np.minimum(ionic, _I_CEILING)
-        lg = davies_log_gamma(r.z[None, :, :], ionic[:, None, None], r.a[:, None, None])
+        i_c = np.minimum(ionic, _I_CEILING)
+        lg = davies_log_gamma(r.z[None, :, :], i_c[:, None, None], r.a[:, None, None])
         kc = r.k * 10.0 ** (lg[:, :, :-1] - lg[:, :, 1:])
-        g1 = 10.0 ** davies_log_gamma(1, ionic, r.a)
+        g1 = 10.0 ** davies_log_gamma(1, i_c, r.a)
     else:
         kc, g1 = r.k, 1.0
-    h = ah / g1
-    oh = r.kw / (ah * g1)
-    if r.z.shape[0] == 0:
-        resid = r.strong + h - oh
-        return resid, _LN10 * (h + oh), 0.5 * (h + oh) + r.strong_i
     alpha = _alpha(ah, kc)
     q = np.einsum("nmk,mk->nm", alpha, r.z)
     m2 = np.einsum("nmk,mk->nm", alpha, r.z * r.z)
+    return alpha, q, m2, ah / g1, r.kw / (ah * g1)
+
+
+def _balance(r: _Rows, alpha, q, m2, h, oh):
+    """Totals in effect, charge residual, β and ionic strength of a view."""
     var = m2 - q * q
     totals = r.totals
     opened = np.isfinite(r.co2)
     if r.carb >= 0 and opened.any():
         totals = totals.copy()
         totals[opened, r.carb] = r.co2[opened] / alpha[opened, r.carb, 0]
+        # Open carbonate: d(T q)/dpH = -ln10 T m2 instead of -ln10 T var.
         var = var.copy()
         var[opened, r.carb] = m2[opened, r.carb]
     resid = r.strong + h - oh + (totals * q).sum(-1)
     beta = _LN10 * (h + oh + (totals * var).sum(-1))
     new_i = 0.5 * (h + oh + (totals * m2).sum(-1)) + r.strong_i
-    return resid, beta, new_i
+    return totals, resid, beta, new_i
+
+
+def _rows_state(r: _Rows, ph, ionic):
+    """Residual [eq/L], β [eq/(L pH)] and ionic strength [mol/L] at ``ph``."""
+    alpha, q, m2, h, oh = _species(r, 10.0 ** -ph, ionic)
+    return _balance(r, alpha, q, m2, h, oh)[1:]
 
 
 def solve_ph(mix: Mixture, *, ph_guess=None, tol_ph: float = 1e-12,
@@ -524,20 +502,9 @@ def carbonate_for_alkalinity(totals_mol_l, ph, temperature_c, alk_eq_l,
     alk = np.broadcast_to(np.asarray(alk_eq_l, dtype=float), ph.shape)
     extra = np.broadcast_to(np.asarray(extra_ionic_strength, float), ph.shape)
     ep = np.broadcast_to(np.asarray(endpoint_ph, float), ph.shape)
-    z = rows.z[None]
 
     def parts(p, i):
-        ah = 10.0 ** -p
-        if davies:
-            i = np.minimum(i, _I_CEILING)
-            lg = davies_log_gamma(rows.z[None, :, :], i[:, None, None], rows.a[:, None, None])
-            kc = rows.k * 10.0 ** (lg[:, :, :-1] - lg[:, :, 1:])
-            g1 = 10.0 ** davies_log_gamma(1, i, rows.a)
-        else:
-            kc, g1 = rows.k, 1.0
-        alpha = _alpha(ah, kc)
-        return ((alpha * z).sum(-1), (alpha * z ** 2).sum(-1), ah / g1,
-                rows.kw / (ah * g1))
+        return _species(rows, 10.0 ** -p, i)[1:]
 
     def solve(ionic, ionic_e):
         q, m2, h, oh = parts(ph, ionic)
@@ -646,18 +613,7 @@ def dose_to_ph(mix: Mixture, reagent: ReagentVector, target_ph,
     car = rows.carb
 
     def at(ionic):
-        if mix.davies:
-            i_c = np.minimum(ionic, _I_CEILING)
-            lg = davies_log_gamma(rows.z[None, :, :], i_c[:, None, None], rows.a[:, None, None])
-            kc = rows.k * 10.0 ** (lg[:, :, :-1] - lg[:, :, 1:])
-            g1 = 10.0 ** davies_log_gamma(1, i_c, rows.a)
-        else:
-            kc, g1 = rows.k, 1.0
-        alpha = _alpha(ah, kc)
-        q = np.einsum("nmk,mk->nm", alpha, rows.z)
-        m2 = np.einsum("nmk,mk->nm", alpha, rows.z * rows.z)
-        h = ah / g1
-        oh = rows.kw / (ah * g1)
+        alpha, q, m2, h, oh = _species(rows, ah, ionic)
         w = h - oh
         tot = rows.totals
         nr = np.broadcast_to(n_r, tot.shape)

@@ -18,7 +18,20 @@ from .plan import Batch, Plan  # noqa: E402
 from .numbers import fmt  # noqa: E402
 from .sheet import UNIT_SYSTEMS  # noqa: E402
 
-__all__ = ["plan_figure_png"]
+__all__ = ["plan_figure_png", "replay_figure_png", "titration_figure_png"]
+
+FOOTER = ("Model estimate. Local codes, the discharge permit and a licensed engineer "
+          "have the final word.")
+
+
+def _png(fig) -> bytes:
+    """Add the final-word footer, lay out, render to PNG bytes and close."""
+    fig.text(0.01, 0.01, FOOTER, fontsize=7, color="0.35")
+    fig.tight_layout(rect=(0, 0.03, 1, 1))
+    buf = io.BytesIO()
+    fig.savefig(buf, format="png")
+    plt.close(fig)
+    return buf.getvalue()
 
 
 def plan_figure_png(plan: Plan, title: str = "", units: str = "metric") -> bytes:
@@ -73,13 +86,7 @@ def plan_figure_png(plan: Plan, title: str = "", units: str = "metric") -> bytes
     ax.legend(h1 + h2, l1 + l2, loc="upper center", bbox_to_anchor=(0.5, -0.13),
               ncol=3, fontsize=8, frameon=False)
     ax.set_title(title or "Titration curve", fontsize=11)
-    fig.text(0.01, 0.01, "Model estimate. Local codes, the discharge permit and a licensed "
-             "engineer have the final word.", fontsize=7, color="0.35")
-    fig.tight_layout(rect=(0, 0.03, 1, 1))
-    buf = io.BytesIO()
-    fig.savefig(buf, format="png")
-    plt.close(fig)
-    return buf.getvalue()
+    return _png(fig)
 
 
 def replay_figure_png(totals, report: dict, units: str = "metric") -> bytes:
@@ -127,14 +134,8 @@ def replay_figure_png(totals, report: dict, units: str = "metric") -> bytes:
                width=0.9, color="tab:orange")
     a3.set_ylabel(f"{u.mass} product per day")
     a3.grid(True, axis="y", alpha=0.3)
-    fig.text(0.01, 0.005, "Model estimate. Local codes, the discharge permit and a "
-             "licensed engineer have the final word.", fontsize=7, color="0.35")
     fig.autofmt_xdate()
-    fig.tight_layout(rect=(0, 0.02, 1, 1))
-    buf = io.BytesIO()
-    fig.savefig(buf, format="png")
-    plt.close(fig)
-    return buf.getvalue()
+    return _png(fig)
 
 
 def titration_figure_png(curve, report: dict, title: str = "") -> bytes:
@@ -164,10 +165,4 @@ def titration_figure_png(curve, report: dict, title: str = "") -> bytes:
     ax.grid(True, alpha=0.3)
     ax.legend(fontsize=8, loc="best")
     ax.set_title(title or "Bench titration", fontsize=11)
-    fig.text(0.01, 0.01, "Model estimate. Local codes, the discharge permit and a "
-             "licensed engineer have the final word.", fontsize=7, color="0.35")
-    fig.tight_layout(rect=(0, 0.03, 1, 1))
-    buf = io.BytesIO()
-    fig.savefig(buf, format="png")
-    plt.close(fig)
-    return buf.getvalue()
+    return _png(fig)

@@ -22,7 +22,8 @@ from .plan import Batch, Flow, Plan, plan_dose
 from .scenario import Scenario
 
 __all__ = ["Units", "UNIT_SYSTEMS", "make_plan", "sheet_dict", "render_sheet",
-           "fmt", "dose_lines", "check_lines", "caution_lines"]
+           "fmt", "product_text", "dose_lines", "check_lines", "caution_lines",
+           "render_replay", "render_titration"]
 
 L_PER_US_GAL = 3.785411784     # exact by definition (NIST SP 811)
 KG_PER_LB = 0.45359237         # exact by definition (NIST SP 811)
@@ -48,6 +49,18 @@ UNIT_SYSTEMS = {
     "us": Units("us", "lb", 1.0 / KG_PER_LB, "gal", 1.0 / L_PER_US_GAL,
                 "gal", 1000.0 / L_PER_US_GAL, "gpm", 1000.0 / L_PER_US_GAL / 60.0),
 }
+
+
+def product_text(kg: float | None, litres: float | None, units: str = "metric",
+                 digits: int = 3) -> str:
+    """An amount of product as "16.8 kg = 11.0 L" in the unit system."""
+    u = UNIT_SYSTEMS[units]
+    parts = []
+    if kg is not None:
+        parts.append(f"{fmt(kg * u.mass_per_kg, digits)} {u.mass}")
+    if litres is not None:
+        parts.append(f"{fmt(litres * u.product_volume_per_l, digits)} {u.product_volume}")
+    return " = ".join(parts) if parts else "n/a"
 
 
 def make_plan(scenario: Scenario) -> Plan:
@@ -167,13 +180,7 @@ def dose_lines(scenario: Scenario, plan: Plan, units: str = "metric") -> list[tu
     rows: list[tuple[str, str]] = []
 
     def product(am, digits: int = 3) -> str:
-        parts = []
-        if am.kg_product is not None:
-            parts.append(f"{fmt(am.kg_product * u.mass_per_kg, digits)} {u.mass}")
-        if am.litres_product is not None:
-            parts.append(f"{fmt(am.litres_product * u.product_volume_per_l, digits)} "
-                         f"{u.product_volume}")
-        return " = ".join(parts) if parts else "n/a"
+        return product_text(am.kg_product, am.litres_product, units, digits)
 
     rows.append((f"product {per}", product(a)))
     rows.append(("active compound",
@@ -343,19 +350,13 @@ def render_titration(scenario: Scenario, report: dict[str, Any], units: str = "m
     """Both titration methods side by side, then the model plan's sheet."""
     d, m = report["direct"], report["model"]
     per = "per_h" if "kg_product_per_h" in d else "per_batch"
-    u = UNIT_SYSTEMS[units]
     kg, lit = d[f"kg_product_{per}"], d[f"litres_product_{per}"]
     plan: Plan = report["_plan"]
     a = plan.amounts()
     label = "per hour" if per == "per_h" else "per batch"
 
     def prod(k, l_):
-        parts = []
-        if k is not None:
-            parts.append(f"{fmt(k * u.mass_per_kg)} {u.mass}")
-        if l_ is not None:
-            parts.append(f"{fmt(l_ * u.product_volume_per_l)} {u.product_volume}")
-        return " = ".join(parts) or "n/a"
+        return product_text(k, l_, units)
 
     out = [f"BENCH TITRATION  {report['points']} points, {fmt(report['sample_ml'])} mL "
            f"sample, titrant {report['titrant']}", "=" * 40,

@@ -13,3 +13,13 @@ def totals(**mol_l) -> np.ndarray:
     for key, value in mol_l.items():
         v[system_index(key)] = value
     return v
+
+
+def run_cli(*args, env=None, timeout=300):
+    """Run ``python -m dosing.cli ARGS`` from the project root; returns the result."""
+    import subprocess
+    import sys
+    from pathlib import Path
+    root = Path(__file__).resolve().parents[1]
+    return subprocess.run([sys.executable, "-m", "dosing.cli", *args], capture_output=True,
+                          text=True, cwd=root, timeout=timeout, env=env)

@@ -7,6 +7,8 @@ from pathlib import Path
 
 import pytest
 
+from tests.helpers import run_cli
+
 from dosing.scenario import load_scenario, parse_scenario, scenario_to_toml
 from dosing.sheet import make_plan, render_sheet, sheet_dict
 
@@ -15,9 +17,7 @@ SCENARIOS = sorted((ROOT / "scenarios").glob("*.toml"))
 FINAL_WORD = "local codes, the discharge permit and a licensed engineer have the final word"
 
 
-def run(*args, cwd=None):
-    return subprocess.run([sys.executable, "-m", "dosing.cli", *args], capture_output=True,
-                          text=True, cwd=cwd or ROOT, timeout=120)
+run = run_cli
 
 
 def test_there_are_at_least_six_demo_scenarios():

@@ -10,6 +10,8 @@ import numpy as np
 import pandas as pd
 import pytest
 
+from tests.helpers import run_cli
+
 from dosing import plan_dose
 from dosing.effluent import infer_water
 from dosing.replay_io import run_replay
@@ -19,9 +21,7 @@ ROOT = Path(__file__).resolve().parents[1]
 SCEN = ROOT / "scenarios" / "flow-metering-pump.toml"
 
 
-def cli(*args):
-    return subprocess.run([sys.executable, "-m", "dosing.cli", *args], capture_output=True,
-                          text=True, cwd=ROOT, timeout=300)
+cli = run_cli
 
 
 SMALL = """timestamp,flow (m3/h),pH,temperature_c

@@ -13,6 +13,8 @@ from pathlib import Path
 import pandas as pd
 import pytest
 
+from tests.helpers import run_cli
+
 from dosing.errors import InputError
 from dosing.shiftlog import SCHEMA_VERSION, ShiftLog, ShiftLogError, parse_since
 
@@ -23,9 +25,7 @@ PLAN = {"title": "t", "site": "s", "tank": "T-1", "reagent": "caustic-50",
         "warnings": [], "cautions": ["final word"]}
 
 
-def cli(*args, env=None):
-    return subprocess.run([sys.executable, "-m", "dosing.cli", *args], capture_output=True,
-                          text=True, cwd=ROOT, timeout=120, env=env)
+cli = run_cli
 
 
 def test_add_list_show_follow_up_and_correction(tmp_path):

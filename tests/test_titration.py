@@ -8,6 +8,8 @@ from pathlib import Path
 import numpy as np
 import pytest
 
+from tests.helpers import run_cli
+
 from dosing.effluent import infer_water
 from dosing.equilibrium import Mixture, add_dose, solve_ph
 from dosing.errors import InputError, UnreachableError
@@ -117,9 +119,7 @@ def test_small_noise_is_flagged_large_misreads_refused():
         check_curve(50, tit, v, [3.0, 3.5, 3.2, 4.0, 4.5, 5.0])
 
 
-def _cli(*args):
-    return subprocess.run([sys.executable, "-m", "dosing.cli", *args], capture_output=True,
-                          text=True, cwd=ROOT, timeout=120)
+_cli = run_cli
 
 
 @pytest.mark.parametrize("text, says", [

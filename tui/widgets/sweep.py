@@ -5,7 +5,7 @@ from __future__ import annotations
 from textual.widgets import DataTable
 
 from dosing.numbers import fmt
-from dosing.sheet import UNIT_SYSTEMS
+from dosing.sheet import UNIT_SYSTEMS, product_text
 from dosing.sweep import Sweep
 
 __all__ = ["SweepTable"]
@@ -30,11 +30,5 @@ class SweepTable(DataTable):
                 if a is None:
                     cells.append("cannot: " + cell.problem[:40])
                     continue
-                parts = []
-                if a.kg_product is not None:
-                    parts.append(f"{fmt(a.kg_product * u.mass_per_kg)} {u.mass}")
-                if a.litres_product is not None:
-                    parts.append(f"{fmt(a.litres_product * u.product_volume_per_l)} "
-                                 f"{u.product_volume}")
-                cells.append(" = ".join(parts))
+                cells.append(product_text(a.kg_product, a.litres_product, units))
             self.add_row(*cells)
