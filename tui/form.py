@@ -91,6 +91,7 @@ class ScenarioForm(VerticalScroll):
         yield Static("Effluent", classes="section")
         for f in FIELDS[:5]:
             yield from self._row(f)
+        yield Static("", classes="kept", id="kept-effluent")
         yield Static("Tank or flow", classes="section")
         with Horizontal(classes="row"):
             yield Label("treat as", classes="label")
@@ -162,6 +163,13 @@ class ScenarioForm(VerticalScroll):
             self.query_one("#f-model--open-to-air", Switch).value = bool(
                 m.get("open_to_air", False))
             self._show_custom(rid not in CATALOGUE)
+            shown = {f.key.split(".")[1] for f in FIELDS if f.key.startswith("effluent.")}
+            kept = {k: v for k, v in data.get("effluent", {}).items() if k not in shown}
+            note = self.query_one("#kept-effluent", Static)
+            note.update("kept from the file: " + "; ".join(f"{k} {_fmt(v)}"
+                                                         for k, v in kept.items())
+                        if kept else "")
+            note.display = bool(kept)
         finally:
             self._loading = False
 
