@@ -155,7 +155,7 @@ class ShiftLog:
         try:
             self._db = sqlite3.connect(str(self.path), timeout=30.0, isolation_level=None)
             self._db.execute("PRAGMA busy_timeout = 30000")
-            self._prepare()
+            self._prepare_with_retry()
         except sqlite3.DatabaseError as err:
             raise ShiftLogError(f"{self.path}: cannot be used as a shift log ({err}); "
                                 "the file was not changed") from None
@@ -172,6 +172,26 @@ class ShiftLog:
                 raise ShiftLogError(f"{p}: is not a shift log (not an SQLite database); "
                                     "it was not changed. Give another path with --db "
                                     f"or {ENV_VAR}")
+
+    def _prepare_with_retry(self, seconds: float = 30.0) -> None:
+        """Prepare, waiting while another process holds the file.
+
+        Switching a new file to WAL needs the file to itself and SQLite does
+        not wait for that on its own; two writers starting at once would
+        otherwise see "database is locked".
+        """
+        import random
+        import time
+        deadline = time.monotonic() + seconds
+        while True:
+            try:
+                self._prepare()
+                return
+            except sqlite3.OperationalError as err:
+                text = str(err).lower()
+                if ("locked" not in text and "busy" not in text) or time.monotonic() > deadline:
+                    raise
+                time.sleep(0.02 + random.random() * 0.05)
 
     def _prepare(self) -> None:
         db = self._db
