@@ -148,6 +148,16 @@ def _cmd_tui(args) -> int:
     return run(args.scenario, db=args.db)
 
 
+def _count_lines(path: str) -> int | None:
+    """Data rows in a text file (for the progress bar), or None if unknown."""
+    try:
+        with open(path, "rb") as fh:
+            return max(sum(buf.count(b"\n") for buf in iter(lambda: fh.read(1 << 20), b""))
+                       - 1, 1)
+    except OSError:
+        return None
+
+
 def _cmd_replay(args) -> int:
     from .files import atomic_text_writer
     from .replay_io import run_replay
@@ -160,11 +170,18 @@ def _cmd_replay(args) -> int:
         raise ScenarioError("--chunk-rows", "", "allowed: 1000 or more")
     scenario = load_scenario(args.scenario)
     show = sys.stderr.isatty()
+    expected = _count_lines(args.data) if show else None
 
     def progress(n):
-        if show:
+        if not show:
+            return
+        if expected:
+            frac = min(n / expected, 1.0)
+            bar = "#" * int(30 * frac) + "-" * (30 - int(30 * frac))
+            sys.stderr.write(f"\rreplay [{bar}] {frac:4.0%}  {n:,} of ~{expected:,} rows")
+        else:
             sys.stderr.write(f"\rreplay: {n:,} rows")
-            sys.stderr.flush()
+        sys.stderr.flush()
 
     if args.csv:
         with atomic_text_writer(args.csv) as fh:

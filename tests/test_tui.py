@@ -149,3 +149,27 @@ def test_starts_without_a_file():
 def _toml(data):
     from dosing.scenario import scenario_to_toml
     return scenario_to_toml(data)
+
+
+def test_loads_a_bench_titration(tmp_path):
+    from tests.test_titration import synthetic
+    from tests.helpers import totals
+    from dosing.titration import parse_titrant
+    import numpy as np
+    tit = parse_titrant("0.1 N H2SO4")
+    v = np.linspace(0, 12, 30)
+    ph = synthetic(totals(carbonate=0.004), 0.008, tit, 50.0, v, t_c=45.0)
+    jar = tmp_path / "jar.csv"
+    jar.write_text("ml,pH\n" + "".join(f"{a:.3f},{b:.4f}\n" for a, b in zip(v, ph)))
+
+    async def check(app, pilot):
+        app.load_titration(f"{jar}; 50; 0.1 N H2SO4")
+        await pilot.pause()
+        text = str(app.query_one("#titration-text").content)
+        assert "direct scaling" in text and "model fit" in text
+        assert "[sulfuric-98]" in text         # shown as text, not eaten as markup
+        assert "against direct scaling" in app.status
+        app.load_titration(f"{tmp_path / 'none.csv'}; 50; 0.1 N H2SO4")
+        await pilot.pause()
+        assert "no such file" in app.status
+    drive(check)

@@ -9,9 +9,11 @@ tests.
 from __future__ import annotations
 
 import time
+from dataclasses import replace
 from pathlib import Path
 from typing import Any
 
+from rich.text import Text
 from textual import on
 from textual.app import App, ComposeResult
 from textual.containers import Horizontal, VerticalScroll
@@ -24,7 +26,9 @@ from dosing.files import write_atomic
 from dosing.plan import Plan
 from dosing.reagents import CATALOGUE, GENERAL_CAUTION
 from dosing.scenario import Scenario, build_scenario, load_scenario, scenario_to_toml
-from dosing.sheet import make_plan, render_sheet, sheet_dict
+from dosing.sheet import make_plan, render_sheet, render_titration, sheet_dict
+from dosing.titration import check_curve, compare, parse_titrant
+from dosing.titration_io import read_titration_csv
 from dosing.shiftlog import ShiftLog
 from dosing.sweep import default_alternative, default_sizes, sweep
 
@@ -75,6 +79,7 @@ class Workbench(App):
         ("ctrl+s", "save", "save"),
         ("f6", "toggle_units", "metric/US"),
         ("f7", "record", "record"),
+        ("f8", "titration", "titration"),
         ("ctrl+q", "quit", "quit"),
     ]
 
@@ -118,6 +123,10 @@ class Workbench(App):
                 with TabPane("Sheet", id="sheet"):
                     with VerticalScroll():
                         yield Static(id="sheet-text")
+                with TabPane("Titration", id="titration"):
+                    with VerticalScroll():
+                        yield Static("Press F8 to load a bench titration (CSV of titrant "
+                                     "mL and pH).", id="titration-text")
         yield Static("", id="status")
         yield Static(CAUTION, id="caution")
         yield Footer()
@@ -181,7 +190,7 @@ class Workbench(App):
         self._render_views()
 
     def watch_status(self, value: str) -> None:
-        self.query_one("#status", Static).update(value)
+        self.query_one("#status", Static).update(Text(value))
 
     def _render_views(self) -> None:
         if self.plan is None or self.scenario is None:
@@ -189,7 +198,8 @@ class Workbench(App):
         s, p, u = self.scenario, self.plan, self.units
         self.query_one(DosePanel).show(s, p, u, self.stale)
         self.query_one(CurvePlot).show(p, u)
-        self.query_one("#sheet-text", Static).update(render_sheet(s, p, u))
+        # Plain text: the sheet's [reagent-id] must not be read as markup.
+        self.query_one("#sheet-text", Static).update(Text(render_sheet(s, p, u)))
         self._render_sweep()
 
     def _render_sweep(self) -> None:
@@ -287,6 +297,45 @@ class Workbench(App):
             self.status = f"not recorded: {err}"
             return
         self.status = f"recorded as entry {entry} in {where}"
+
+
+    def action_titration(self) -> None:
+        if self.stale or self.scenario is None:
+            self.status = "fix the field marked in red before scaling a titration"
+            return
+        self.push_screen(PathScreen("Bench titration: FILE.csv; sample mL; titrant "
+                                    "(e.g. jar.csv; 50; 0.02 N H2SO4):", ""),
+                         self.load_titration)
+
+    def load_titration(self, answer: str | None) -> None:
+        """Scale a bench titration with the current scenario (same code as the CLI)."""
+        if not answer:
+            return
+        parts = [p.strip() for p in answer.split(";")]
+        if len(parts) != 3:
+            self.status = "give three parts: FILE.csv; sample mL; titrant"
+            return
+        path, sample, titrant_text = parts
+        try:
+            sample_ml = float(sample)
+        except ValueError:
+            self.status = f"not loaded: sample volume {sample!r} is not a number of mL"
+            return
+        try:
+            titrant = parse_titrant(titrant_text)
+            vols, phs, lines, notes = read_titration_csv(path)
+            curve = check_curve(sample_ml, titrant, vols, phs, lines, source=path)
+            curve = replace(curve, notes=tuple(notes) + curve.notes)
+            report = compare(curve, self.scenario)
+        except DosingError as err:
+            self.status = f"titration not loaded: {err}"
+            return
+        self.query_one("#titration-text", Static).update(
+            Text(render_titration(self.scenario, report, self.units)))
+        self.query_one(TabbedContent).active = "titration"
+        gap = report["gap_model_vs_direct"]
+        self.status = (f"titration {path}: model {gap:+.0%} against direct scaling"
+                       if gap is not None else f"titration {path} loaded")
 
 
 def make_app(path: str | None = None, data: dict[str, Any] | None = None,

@@ -22,6 +22,7 @@ Change any value on the left: the dose is planned again at once.
 | Ctrl+S | save the scenario (TOML, same as `dosing plan` reads) |
 | F6 | metric / US units |
 | F7 | record this decision in the shift log (name; kg dosed; note) |
+| F8 | scale a bench titration (file; sample mL; titrant) with this scenario |
 | F1 | this help |
 | Ctrl+Q | quit |
 
