@@ -375,31 +375,3 @@ def _repeat(mix: Mixture, n: int) -> Mixture:
                          np.repeat(mix.temperature_c, n), np.repeat(mix.co2_air_mol_l, n),
                          mix.davies,
                          None if mix.unknown_pka is None else np.repeat(mix.unknown_pka, n))
-
-
-def mix_closed(water: Water) -> Mixture:
-    """The water as measured, before any exchange with air."""
-    return replace(water.mixture(), co2_air_mol_l=np.full(1, math.nan))
-
-
-def titration_curve(water: Water, reagent: Reagent, max_dose_mol_l: float,
-                    *, points: int = 301) -> TitrationCurve:
-    """pH and buffer intensity against dose, from 0 to ``max_dose_mol_l``.
-
-    All points are solved at once by the vectorised forward solver.
-    """
-    if not (math.isfinite(max_dose_mol_l) and max_dose_mol_l > 0):
-        raise InputError("max_dose_mol_l", f"{max_dose_mol_l!r}; allowed: above 0")
-    if points < 2:
-        raise InputError("points", "a curve needs at least 2 points")
-    mix = water.mixture()
-    d = np.linspace(0.0, max_dose_mol_l, points)
-    rep = Mixture.build(np.repeat(mix.totals_mol_l, points, 0),
-                        np.repeat(mix.strong_eq_l, points),
-                        np.repeat(mix.strong_ionic_strength, points),
-                        np.repeat(mix.temperature_c, points),
-                        np.repeat(mix.co2_air_mol_l, points), mix.davies)
-    dosed = add_dose(rep, reagent.vector(), d)
-    ph = solve_ph(dosed, ph_guess=np.full(points, water.ph))
-    beta = speciate(dosed, ph).buffer_intensity_eq_l
-    return TitrationCurve(d, ph, beta)

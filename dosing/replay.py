@@ -26,7 +26,7 @@ import numpy as np
 import pandas as pd
 
 from .effluent import ALKALINITY_ENDPOINT_PH, CACO3_MG_PER_MEQ, totals_vector
-from .equilibrium import (CARBONATE, Mixture, carbonate_for_alkalinity, co2_in_air_mol_l,
+from .equilibrium import (CARBONATE, N_SYSTEMS, Mixture, carbonate_for_alkalinity, co2_in_air_mol_l,
                           dose_to_ph, strong_balance_at_ph)
 from .errors import ScenarioError
 from .scenario import Scenario
@@ -62,6 +62,7 @@ FLAGS = {
     "ph_flatline": f"pH unchanged for {FLATLINE_ROWS} rows or more (stuck sensor?)",
     "wrong_direction": "the reagent moves the pH away from the aim for this water",
     "cannot_reach": "the aim cannot be reached with this reagent",
+    "model_failed": "the ionic strength of this water did not settle (a brine?)",
 }
 
 
@@ -193,7 +194,8 @@ def _dose_for(scenario: Scenario, ph, temp, alk, flag, ok) -> np.ndarray:
     """Dose to the aim [mol/L] for rows that passed the data checks."""
     w, reagent, target = scenario.water, scenario.reagent, scenario.target
     m = ph.size
-    base = np.broadcast_to(totals_vector(w.totals_mol_l), (m, len(totals_vector({})))).copy()
+    base = np.broadcast_to(totals_vector(w.totals_mol_l), (m, N_SYSTEMS)).copy()
+    pka = w.unknown_pka
     extra = max(w.strong_ionic_strength - 0.5 * abs(w.strong_eq_l), 0.0)
     positions = np.flatnonzero(ok)
     bad = np.zeros(m, dtype=bool)
@@ -202,13 +204,17 @@ def _dose_for(scenario: Scenario, ph, temp, alk, flag, ok) -> np.ndarray:
         bad |= ~np.isfinite(a) | (a < 0)
         a_eq = np.where(bad, 0.0, a) / CACO3_MG_PER_MEQ / 1000.0
         carb, coef, _ = carbonate_for_alkalinity(base, ph, temp, a_eq, ALKALINITY_ENDPOINT_PH,
-                                                 davies=w.davies, extra_ionic_strength=extra)
+                                                 davies=w.davies, extra_ionic_strength=extra,
+                                                 unknown_pka=pka)
         carb = np.where((a_eq == 0) & (ph <= ALKALINITY_ENDPOINT_PH), 0.0, carb)
         bad |= ~np.isfinite(carb) | (carb < 0)
         base[:, CARBONATE] = np.where(bad, 0.0, carb)
-    s, _ = strong_balance_at_ph(base, ph, temp, davies=w.davies, extra_ionic_strength=extra)
+    s, _ = strong_balance_at_ph(base, ph, temp, davies=w.davies, extra_ionic_strength=extra,
+                                unknown_pka=pka)
     co2 = (co2_in_air_mol_l(temp, w.pco2_atm) if w.open_to_air else np.full(m, np.nan))
-    mix = Mixture.build(base, s, extra + 0.5 * np.abs(s), temp, co2, w.davies)
+    unsettled = ~np.isfinite(s) & ~bad
+    s = np.where(np.isfinite(s), s, 0.0)
+    mix = Mixture.build(base, s, extra + 0.5 * np.abs(s), temp, co2, w.davies, pka)
     dose, grip = dose_to_ph(mix, reagent.vector(), target.ph_aim)
     direction = 1.0 if reagent.raises_ph else -1.0
     inside = (ph >= target.ph_min) & (ph <= target.ph_max)
@@ -219,6 +225,8 @@ def _dose_for(scenario: Scenario, ph, temp, alk, flag, ok) -> np.ndarray:
     wrong = ~no_grip & (dose < 0) & ~inside
     dose = np.where(~no_grip & (dose < 0) & inside, 0.0, dose)
     flag[positions[bad]] = "alkalinity_bad"
+    flag[positions[unsettled]] = "model_failed"
+    bad = bad | unsettled
     flag[positions[~bad & no_grip]] = "cannot_reach"
     flag[positions[~bad & ~no_grip & wrong]] = "wrong_direction"
     return np.where(bad | no_grip | wrong, np.nan, dose)

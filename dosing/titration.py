@@ -38,7 +38,7 @@ from .effluent import Water
 from .equilibrium import (CARBONATE, UNKNOWN, Mixture, ReagentVector, add_dose, dose_to_ph,
                           solve_ph, speciate)
 from .errors import InputError, UnreachableError
-from .plan import Batch, Flow, Plan, Target, amounts_for, plan_dose
+from .plan import Flow, Target, amounts_for, plan_dose
 from .reagents import COMPOUNDS, Compound, Reagent, get_reagent
 from .scenario import Scenario
 

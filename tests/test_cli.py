@@ -1,8 +1,6 @@
 """End-to-end: the ``dosing`` command on the demo scenarios and on bad input."""
 
 import json
-import subprocess
-import sys
 from pathlib import Path
 
 import pytest

@@ -2,12 +2,11 @@
 
 import math
 
-import numpy as np
 import pytest
 
 from dosing import Batch, Target, get_reagent, infer_water, plan_dose
 from dosing.equilibrium import speciate
-from dosing.hazards import DH_WATER_KJ_MOL, reaction_heat_kj_l
+from dosing.hazards import DH_WATER_KJ_MOL
 from dosing.water import calcite_pksp
 
 

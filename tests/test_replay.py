@@ -1,9 +1,6 @@
 """Replay of logged data: per-row doses, chunking, bad data."""
 
 import json
-import math
-import subprocess
-import sys
 from pathlib import Path
 
 import numpy as np

@@ -1,8 +1,6 @@
 """Bench titration: synthetic fits, a textbook titration, bad data."""
 
 import math
-import subprocess
-import sys
 from pathlib import Path
 
 import numpy as np

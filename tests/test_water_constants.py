@@ -6,7 +6,6 @@ re-read in the source text.
 
 import math
 
-import numpy as np
 import pytest
 
 from dosing.activity import davies_log_gamma, debye_huckel_a
