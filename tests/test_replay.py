@@ -145,3 +145,17 @@ def test_plot_is_written(tmp_path):
     assert r.returncode == 0, r.stderr
     assert png.read_bytes()[:4] == b"\x89PNG"
     assert "DOSE RATE" in r.stdout and "final word" in r.stdout
+
+
+def test_parquet_gives_the_same_totals_as_csv(tmp_path):
+    pytest.importorskip("pyarrow")
+    data = _year_like(5_000)
+    csv_file = tmp_path / "log.csv"
+    pq_file = tmp_path / "log.parquet"
+    data.to_csv(csv_file, index=False)
+    data.to_parquet(pq_file, index=False)
+    s = load_scenario(SCEN)
+    a, _ = run_replay(str(csv_file), s, chunk_rows=2_000)
+    b, _ = run_replay(str(pq_file), s, chunk_rows=2_000)
+    assert b["rows_planned"] == a["rows_planned"] == 5_000
+    assert b["total"]["kg_product"] == pytest.approx(a["total"]["kg_product"], rel=1e-12)
