@@ -100,7 +100,7 @@ def dose_solve_rates() -> None:
 def end_to_end(path: Path, label: str) -> None:
     code = (f"import time, resource; from dosing.scenario import load_scenario; "
             f"from dosing.replay_io import run_replay; s = load_scenario({str(SCEN)!r}); "
-            f"t = time.perf_counter(); r, _ = run_replay({str(path)!r}, s); "
+            f"t = time.perf_counter(); r, _ = run_replay({str(path)!r}, s, keep_hourly=False); "
             f"dt = time.perf_counter() - t; "
             f"print(r['rows'], dt, resource.getrusage(resource.RUSAGE_SELF).ru_maxrss)")
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,

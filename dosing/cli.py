@@ -186,10 +186,11 @@ def _cmd_replay(args) -> int:
     if args.csv:
         with atomic_text_writer(args.csv) as fh:
             report, totals = run_replay(args.data, scenario, chunk_rows=args.chunk_rows,
-                                        rows_out=fh, progress=progress)
+                                        rows_out=fh, progress=progress,
+                                        keep_hourly=bool(args.plot))
     else:
         report, totals = run_replay(args.data, scenario, chunk_rows=args.chunk_rows,
-                                    progress=progress)
+                                    progress=progress, keep_hourly=bool(args.plot))
     if show:
         sys.stderr.write("\n")
     if args.plot:

@@ -258,6 +258,7 @@ class ReplayTotals:
     first: Any = None
     last: Any = None
     rate_unit: str = "kg/h"
+    keep_hourly: bool = True     #: hourly means for the plot (grows with hours covered)
 
     def add(self, rows: pd.DataFrame) -> None:
         """Add one chunk of :func:`plan_rows` output."""
@@ -293,7 +294,7 @@ class ReplayTotals:
                 self.daily_kg[d] = self.daily_kg.get(d, 0.0) + float(v)
             for d, v in planned.groupby(day.to_numpy())["litres"].sum().items():
                 self.daily_l[d] = self.daily_l.get(d, 0.0) + float(v)
-        both = rows[valid]
+        both = rows[valid] if self.keep_hourly else rows.iloc[:0]
         if len(both):
             hour = pd.to_datetime(both["timestamp"]).dt.floor("h")
             g = both.assign(_h=hour.to_numpy()).groupby("_h")

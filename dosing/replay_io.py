@@ -75,14 +75,16 @@ def _parquet_chunks(path: str, chunk_rows: int) -> Iterator[pd.DataFrame]:
 
 def run_replay(path: str, scenario: Scenario, *, chunk_rows: int = CHUNK_ROWS,
                rows_out: io.TextIOBase | None = None,
-               progress: Callable[[int], None] | None = None):
+               progress: Callable[[int], None] | None = None, keep_hourly: bool = True):
     """Replay the whole file; returns (report dict, totals).
 
-    ``rows_out``, if given, receives the per-row results as CSV.
+    ``rows_out``, if given, receives the per-row results as CSV. Hourly
+    means (for the plot) are the only state that grows with the length of
+    the record; ``keep_hourly=False`` drops them.
     """
     state = ReplayState()
     unit = "kg/h" if scenario.reagent.kg_product_per_mol is not None else "L/h"
-    totals = ReplayTotals(rate_unit=unit)
+    totals = ReplayTotals(rate_unit=unit, keep_hourly=keep_hourly)
     header = True
     for chunk in iter_chunks(path, chunk_rows):
         rows = plan_rows(chunk.reset_index(drop=True), scenario, state)
