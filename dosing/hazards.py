@@ -71,6 +71,10 @@ H2S_PH = 8.0
 NH3_PH = 9.0
 #: Calcite saturation index above which scale is likely (common practice).
 CALCITE_SI_WARN = 0.3
+#: log10 Ksp of gypsum, CaSO4·2H2O = Ca2+ + SO4 2- + 2 H2O, at 25 °C
+#: (-4.58; Langmuir 1997, Aqueous Environmental Geochemistry, from memory).
+#: Its small enthalpy is neglected over 0-60 °C.
+GYPSUM_LOG_KSP = -4.58
 #: Excess CO2 over air equilibrium worth reporting as off-gas [mmol/L].
 CO2_OFFGAS_NOTE_MMOL_L = 1.0
 #: Excess CO2 at which fizzing and foam are expected [mmol/L] (common
@@ -275,6 +279,23 @@ def assess(water: Water, reagent: Reagent, dose_mol_l: float, before: Speciation
                else (": at or under saturation, no calcite scale expected" if si <= 0
                      else ": slightly over saturation")),
             {"calcite_si": si, "calcium_mg_l": ca_mg}))
+    so4_total = float(after.totals_mol_l[0, system_index("sulfate")])
+    if ca_mg is not None and ca_mg > 0 and so4_total > 0:
+        lg2 = 0.0
+        if water.davies:
+            lg2 = float(davies_log_gamma(2, float(after.ionic_strength[0]),
+                                         float(debye_huckel_a(t))))
+        so4 = so4_total * float(after.alpha[0, system_index("sulfate"), 1])
+        si = (math.log10(ca_mg / 1000.0 / MOLAR_MASS["Ca"] * so4) + 2 * lg2
+              - GYPSUM_LOG_KSP)
+        level = "warning" if si > 0 else "info"
+        checks.append(Check(
+            "gypsum", level,
+            f"gypsum saturation index after dosing {si:+.2f}"
+            + (": calcium sulfate will crystallise as scale and sludge (lime on sulfate "
+               "water); expect deposits in the tank and lines" if level == "warning"
+               else ": under saturation, no gypsum scale expected"),
+            {"gypsum_si": si}))
     return tuple(checks)
 
 

@@ -168,3 +168,20 @@ def test_every_plan_has_heat_and_discharge_checks():
         plan = plan_dose(w, get_reagent(rid), Target(6, 8), Batch(5))
         ids = {c.id for c in plan.checks}
         assert {"heat", "discharge"} <= ids
+
+
+def test_gypsum_saturation_after_lime_on_sulfate_water():
+    # Gypsum SI = log(a_Ca a_SO4) - log Ksp, log Ksp = -4.58 at 25 °C
+    # (Langmuir 1997, from memory). Ideal model for the hand value: Ca =
+    # background 400 mg/L + lime dose; SO4 2- = sulfate total x its fraction
+    # beyond HSO4- (pKa 1.99, CRC) at the end pH.
+    w = infer_water(2.5, 25.0, activity="ideal", alkalinity_mg_l_as_caco3=0,
+                    solutes_mmol_l={"sulfate": 30.0}, ions_mg_l={"calcium": 400})
+    plan = plan_dose(w, get_reagent("lime"), Target(6.5, 8.5, 7.5), Batch(10))
+    c = checks(plan)["gypsum"]
+    ca = 400 / 40.078 / 1000 + plan.dose_mol_l
+    so4 = 0.030 / (1 + 10 ** (1.99 - 7.5))
+    si = math.log10(ca * so4) + 4.58
+    assert c.values["gypsum_si"] == pytest.approx(si, abs=0.01)
+    assert c.level == ("warning" if si > 0 else "info")
+    assert si > 0        # 10 mM Ca x 30 mM SO4 is well past gypsum's solubility
