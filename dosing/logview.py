@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from .numbers import fmt
+from .reagents import GENERAL_CAUTION
 from .shiftlog import Entry, ShiftLog
 
 __all__ = ["render_list", "render_entry"]
@@ -28,6 +29,8 @@ def render_list(log: ShiftLog, *, since_utc: str | None = None, tank: str | None
             f"{_n(log.latest_ph(e)):>8}  {e.refers_to or ''}")
     if n == 0:
         lines.append("(no entries)")
+    lines.append("")
+    lines.append(GENERAL_CAUTION)
     return "\n".join(lines) + "\n"
 
 
