@@ -222,7 +222,8 @@ def _alpha(ah, kc):
 def _state(mix: Mixture, ph, const: Constants, ionic_strength):
     """Species of all systems, residual, β and new ionic strength at ``ph``."""
     r = _Rows(mix.totals_mol_l, mix.strong_eq_l, mix.strong_ionic_strength,
-              mix.co2_air_mol_l, const.kw, const.k, const.a, _Z, CARBONATE, mix.davies)
+              mix.co2_air_mol_l, const.kw, const.k, const.a, _Z, CARBONATE, mix.davies,
+              np.arange(N_SYSTEMS))
     alpha, q, m2, h, oh = _species(r, 10.0 ** -ph, ionic_strength)
     totals, resid, beta, ionic = _balance(r, alpha, q, m2, h, oh)
     return alpha, q, totals, h, oh, resid, beta, ionic
@@ -266,32 +267,25 @@ class _Rows:
     z: np.ndarray           # (mc, 4)
     carb: int               # column of carbonate in the view, or -1
     davies: bool
+    cols: np.ndarray        # (mc,) catalogue columns the view keeps
 
     def take(self, idx) -> "_Rows":
-        return _Rows(self.totals[idx], self.strong[idx], self.strong_i[idx], self.co2[idx],
-                     self.kw[idx], self.k[idx], self.a[idx], self.z, self.carb, self.davies)
-
-
-def _cols_of(mix: Mixture, reagent_totals=None) -> np.ndarray:
-    """Columns of the systems present in ``mix`` or added by a reagent."""
-    used = np.any(mix.totals_mol_l != 0.0, axis=0)
-    if reagent_totals is not None:
-        used |= np.asarray(reagent_totals) != 0.0
-    if mix.open_to_air.any():
-        used[CARBONATE] = True
-    return np.flatnonzero(used)
+        return replace(self, totals=self.totals[idx], strong=self.strong[idx],
+                       strong_i=self.strong_i[idx], co2=self.co2[idx], kw=self.kw[idx],
+                       k=self.k[idx], a=self.a[idx])
 
 
 def _restrict(mix: Mixture, const: Constants, extra_cols=()) -> _Rows:
     """Keep only the systems with a non-zero total (plus ``extra_cols``)."""
-    used = np.zeros(N_SYSTEMS, dtype=bool)
-    used[_cols_of(mix)] = True
+    used = np.any(mix.totals_mol_l != 0.0, axis=0)
     used[list(extra_cols)] = True
+    if mix.open_to_air.any():
+        used[CARBONATE] = True
     cols = np.flatnonzero(used)
     carb = int(np.searchsorted(cols, CARBONATE)) if used[CARBONATE] else -1
     return _Rows(mix.totals_mol_l[:, cols], mix.strong_eq_l, mix.strong_ionic_strength,
                  mix.co2_air_mol_l, const.kw, const.k[:, cols], const.a, _Z[cols], carb,
-                 mix.davies)
+                 mix.davies, cols)
 
 
 def _species(r: _Rows, ah, ionic):
@@ -606,7 +600,7 @@ def dose_to_ph(mix: Mixture, reagent: ReagentVector, target_ph,
     const = mix.constants()
     n_full = np.asarray(reagent.totals_mol, dtype=float)
     rows = _restrict(mix, const, extra_cols=np.flatnonzero(n_full))
-    n_r = n_full[_cols_of(mix, n_full)]   # the same columns as ``rows``
+    n_r = n_full[rows.cols]
     opened = mix.open_to_air
     ah = 10.0 ** -tp
     f_vol = reagent.volume_l

@@ -42,9 +42,9 @@ from typing import Mapping
 import numpy as np
 
 from .activity import davies_log_gamma, debye_huckel_a
-from .effluent import Water
+from .effluent import BACKGROUND_IONS, Water
 from .numbers import fmt
-from .equilibrium import CARBONATE, Mixture, Speciation, co2_in_air_mol_l, system_index
+from .equilibrium import CARBONATE, Speciation, co2_in_air_mol_l, system_index
 from .reagents import Reagent
 from .species import MOLAR_MASS, SYSTEMS
 from .water import calcite_pksp, density
@@ -81,6 +81,9 @@ CO2_OFFGAS_NOTE_MMOL_L = 1.0
 #: practice: about 220 mg/L of CO2).
 CO2_FOAM_MMOL_L = 5.0
 _R = 0.082057  # L atm / (K mol), CODATA
+#: Strong ions a dose can add, by formula, with the names used for the
+#: background ions of an effluent (dosing.effluent.BACKGROUND_IONS).
+_ION_NAMES = {formula: name for name, formula in BACKGROUND_IONS.items()} | {"SO4": "sulfate"}
 _GAS_MOLAR_MASS = {"H2S": 34.08, "NH3": 17.031, "HCN": 27.025}  # g/mol, IUPAC
 
 # Henry's constants at 25 °C [mol/(kg atm)] and d ln KH / d(1/T) [K]
@@ -142,7 +145,7 @@ def reaction_heat_kj_l(before: Speciation, after: Speciation, reagent: Reagent,
 
 
 def assess(water: Water, reagent: Reagent, dose_mol_l: float, before: Speciation,
-           after: Speciation, dosed: Mixture, *, batch_litres: float,
+           after: Speciation, *, batch_litres: float,
            permit: Mapping[str, float] | None = None) -> tuple[Check, ...]:
     """All checks for a dose; see the module notes.
 
@@ -236,8 +239,7 @@ def assess(water: Water, reagent: Reagent, dose_mol_l: float, before: Speciation
     added = {}
     for ion, n in reagent.compound.ions.items():
         added[ion] = n * d * f * MOLAR_MASS[ion] * 1000.0
-    names = {"Na": "sodium", "Ca": "calcium", "K": "potassium", "Cl": "chloride",
-             "NO3": "nitrate", "SO4": "sulfate"}
+    names = _ION_NAMES
     tds = sum(added.values())
     if "carbonate" in reagent.compound.adds and reagent.raises_ph:
         # Carbonate from soda ash or bicarbonate stays as HCO3-/CO3 2- except
@@ -281,10 +283,7 @@ def assess(water: Water, reagent: Reagent, dose_mol_l: float, before: Speciation
             {"calcite_si": si, "calcium_mg_l": ca_mg}))
     so4_total = float(after.totals_mol_l[0, system_index("sulfate")])
     if ca_mg is not None and ca_mg > 0 and so4_total > 0:
-        lg2 = 0.0
-        if water.davies:
-            lg2 = float(davies_log_gamma(2, float(after.ionic_strength[0]),
-                                         float(debye_huckel_a(t))))
+        lg2 = _log_gamma2(after, t, water.davies)
         so4 = so4_total * float(after.alpha[0, system_index("sulfate"), 1])
         si = (math.log10(ca_mg / 1000.0 / MOLAR_MASS["Ca"] * so4) + 2 * lg2
               - GYPSUM_LOG_KSP)
@@ -303,11 +302,9 @@ def _after_mg_l(water: Water, added: Mapping[str, float], after: Speciation,
                 f: float) -> dict[str, tuple[float, str]]:
     """Concentration after dosing of each ion a permit may cap [mg/L]."""
     out: dict[str, tuple[float, str]] = {}
-    names = {"Na": "sodium", "Ca": "calcium", "K": "potassium", "Cl": "chloride",
-             "NO3": "nitrate"}
     for ion, mg in added.items():
-        if ion in names:
-            out[names[ion]] = (mg, "added by the dose; background not given")
+        if ion != "SO4":      # sulfate is a weak-acid total, counted below
+            out[_ION_NAMES[ion]] = (mg, "added by the dose; background not given")
     for name, mg in water.ions_mg_l.items():
         prev = out.get(name, (0.0, ""))[0]
         out[name] = (prev + mg * f, "background plus dose")
@@ -322,8 +319,11 @@ def _calcite_si(ca_mol_l: float, after: Speciation, t: float, davies: bool) -> f
     co3 = float(after.concentration(CARBONATE, 2)[0])
     if co3 <= 0:
         return -math.inf
-    lg2 = 0.0
-    if davies:
-        lg2 = float(davies_log_gamma(2, float(after.ionic_strength[0]),
-                                     float(debye_huckel_a(t))))
-    return math.log10(ca_mol_l * co3) + 2 * lg2 + float(calcite_pksp(t))
+    return math.log10(ca_mol_l * co3) + 2 * _log_gamma2(after, t, davies) + float(calcite_pksp(t))
+
+
+def _log_gamma2(after: Speciation, t: float, davies: bool) -> float:
+    """log10 γ of a divalent ion in the dosed water (0 for the ideal model)."""
+    if not davies:
+        return 0.0
+    return float(davies_log_gamma(2, float(after.ionic_strength[0]), float(debye_huckel_a(t))))

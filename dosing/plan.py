@@ -195,12 +195,9 @@ def _reach_problem(water: Water, reagent: Reagent, ph: float, dose: float,
     """Why ``reagent`` cannot bring the water to ``ph``, or None if it can."""
     d = _direction(reagent)
     verb = "raises" if d > 0 else "lowers"
-    if reagent.min_practical_ph is not None and ph < reagent.min_practical_ph:
-        return (f"{reagent.name} cannot take a water below about pH "
-                f"{reagent.min_practical_ph:g} in practice")
-    if reagent.max_practical_ph is not None and ph > reagent.max_practical_ph:
-        return (f"{reagent.name} cannot take a water above about pH "
-                f"{reagent.max_practical_ph:g} in practice")
+    limit = reagent.practical_limit(ph)
+    if limit is not None:
+        return limit
     if not math.isfinite(dose) or grip * d <= 1e-9:
         return f"{reagent.name} has no grip on the pH near {ph:g}"
     if dose < -1e-12:
@@ -322,7 +319,7 @@ def plan_dose(water: Water, reagent: Reagent, target: Target,
     curve = titration_curve(water, reagent, top, points=curve_points)
     cautions = tuple(reagent.cautions) + (GENERAL_CAUTION,)
     before = speciate(mix_closed(water), water.ph)
-    checks = assess(water, reagent, dose, before, end_state, dosed,
+    checks = assess(water, reagent, dose, before, end_state,
                     batch_litres=basis.litres, permit=permit)
     return Plan(water=water, reagent=reagent, target=target, basis=basis,
                 ph_start=water.ph, dose_mol_l=dose, ph_end=ph_end,

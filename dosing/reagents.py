@@ -194,6 +194,16 @@ class Reagent:
             return 1.0 / self.molarity_mol_l
         return self.kg_product_per_mol / self.density_kg_l
 
+    def practical_limit(self, ph: float) -> str | None:
+        """Why the product cannot take a water to ``ph`` in practice, or None."""
+        if self.min_practical_ph is not None and ph < self.min_practical_ph:
+            return (f"{self.name} cannot take a water below about pH "
+                    f"{self.min_practical_ph:g} in practice")
+        if self.max_practical_ph is not None and ph > self.max_practical_ph:
+            return (f"{self.name} cannot take a water above about pH "
+                    f"{self.max_practical_ph:g} in practice")
+        return None
+
     def vector(self) -> ReagentVector:
         """What dosing one mole adds, with the product's own volume."""
         return self.compound.vector(self.litres_product_per_mol or 0.0)

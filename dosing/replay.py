@@ -218,9 +218,7 @@ def _dose_for(scenario: Scenario, ph, temp, alk, flag, ok) -> np.ndarray:
     dose, grip = dose_to_ph(mix, reagent.vector(), target.ph_aim)
     direction = 1.0 if reagent.raises_ph else -1.0
     inside = (ph >= target.ph_min) & (ph <= target.ph_max)
-    limit = ((reagent.min_practical_ph is not None and target.ph_aim < reagent.min_practical_ph)
-             or (reagent.max_practical_ph is not None
-                 and target.ph_aim > reagent.max_practical_ph))
+    limit = reagent.practical_limit(target.ph_aim) is not None
     no_grip = ~np.isfinite(dose) | (grip * direction <= 1e-9) | limit
     wrong = ~no_grip & (dose < 0) & ~inside
     dose = np.where(~no_grip & (dose < 0) & inside, 0.0, dose)

@@ -326,14 +326,15 @@ def fit_water(curve: BenchCurve, base: Water, *, unknown_acid: str = "auto") -> 
     if plain is None:
         raise InputError("titration", "the model could not be fitted to this curve")
     chosen, with_u = plain, False
-    ph_rms_plain = _ph_rms(plain.x, curve, base, False)
+    misfit = _ph_resid(plain.x, curve, base, False)
+    ph_rms_plain = misfit[1]
     if unknown_acid == "yes" or (unknown_acid == "auto" and ph_rms_plain > 0.05):
         u_starts = [[plain.x[0], plain.x[1], 1.0, pk] for pk in (3.5, 5.0, 6.5, 8.0, 9.5)]
         withu, _ = _fit(curve, base, True, u_starts)
         if withu is not None:
-            rms_u = _ph_rms(withu.x, curve, base, True)
-            if unknown_acid == "yes" or rms_u < 0.5 * ph_rms_plain:
-                chosen, with_u = withu, True
+            misfit_u = _ph_resid(withu.x, curve, base, True)
+            if unknown_acid == "yes" or misfit_u[1] < 0.5 * ph_rms_plain:
+                chosen, with_u, misfit = withu, True, misfit_u
     x = chosen.x
     names = ["carbonate_mmol_l", "strong_ion_balance_meq_l"] + (
         ["unknown_acid_mmol_l", "unknown_acid_pka"] if with_u else [])
@@ -358,7 +359,7 @@ def fit_water(curve: BenchCurve, base: Water, *, unknown_acid: str = "auto") -> 
                             f"({value:.3g} ± {err:.2g})")
     ml, mix = _model_ml(x, curve, base, with_u)
     r_ml = ml - curve.added_ml
-    r_ph, rms = _ph_resid(x, curve, base, with_u)
+    r_ph, rms = misfit
     if rms > 0.1:
         warnings.append(f"poor fit: the model misses the measured pH by {rms:.2f} "
                         "(RMS); a buffer the listed solutes do not explain, or a "
@@ -393,14 +394,9 @@ def _ph_resid(x, curve, base, with_u):
     return r, float(np.sqrt(np.mean(r * r)))
 
 
-def _ph_rms(x, curve, base, with_u) -> float:
-    return _ph_resid(x, curve, base, with_u)[1]
-
-
 def compare(curve: BenchCurve, scenario: Scenario, *, unknown_acid: str = "auto"
             ) -> dict[str, Any]:
     """Both methods for a scenario's reagent, window and tank, as plain data."""
-    from .reagents import GENERAL_CAUTION
     from .sheet import sheet_dict
     target, reagent, basis = scenario.target, scenario.reagent, scenario.basis
     direct = direct_scaling(curve, reagent, target)
@@ -437,6 +433,6 @@ def compare(curve: BenchCurve, scenario: Scenario, *, unknown_acid: str = "auto"
                   "plan": sheet_dict(fitted, plan)},
         "gap_model_vs_direct": gap,
         "warnings": warnings,
-        "cautions": list(plan.cautions) if plan.cautions else [GENERAL_CAUTION],
+        "cautions": list(plan.cautions),
         "_plan": plan, "_direct": direct, "_fit": fit, "_scenario": fitted,
     }
