@@ -46,7 +46,7 @@ def make_log(path: Path, n: int) -> None:
 
 
 def dose_solve_rates() -> None:
-    from dosing.equilibrium import (Mixture, constants_at, dose_to_ph,
+    from dosing.equilibrium import (N_SYSTEMS, Mixture, constants_at, dose_to_ph,
                                     strong_balance_at_ph, system_index)
     from dosing.reagents import get_reagent
     from dosing.scenario import load_scenario
@@ -55,7 +55,7 @@ def dose_solve_rates() -> None:
     n = 500_000
     rng = np.random.default_rng(1)
     ph = rng.uniform(9.0, 11.0, n)
-    base = np.zeros((n, 13))
+    base = np.zeros((n, N_SYSTEMS))
     for k, v in s.water.totals_mol_l.items():
         base[:, system_index(k)] = v
     for davies in (False, True):
@@ -70,7 +70,7 @@ def dose_solve_rates() -> None:
             ideal_rate = n / dt
     # Plain per-row baseline: nested scalar root finding, ideal model.
     const = constants_at(np.array([32.0]))
-    cols = [j for j in range(13) if base[0, j] > 0]
+    cols = [j for j in range(N_SYSTEMS) if base[0, j] > 0]
     zs = {j: [(-1 if j == system_index("sulfate") else 0) - m for m in range(4)] for j in cols}
     kw = float(const.kw[0])
 
@@ -98,11 +98,14 @@ def dose_solve_rates() -> None:
 
 
 def end_to_end(path: Path, label: str) -> None:
-    code = (f"import time, resource; from dosing.scenario import load_scenario; "
+    # Peak memory from VmHWM of the child: it starts afresh at exec, whereas
+    # ru_maxrss carries over the parent's high-water mark on Linux.
+    code = (f"import time; from dosing.scenario import load_scenario; "
             f"from dosing.replay_io import run_replay; s = load_scenario({str(SCEN)!r}); "
             f"t = time.perf_counter(); r, _ = run_replay({str(path)!r}, s, keep_hourly=False); "
             f"dt = time.perf_counter() - t; "
-            f"print(r['rows'], dt, resource.getrusage(resource.RUSAGE_SELF).ru_maxrss)")
+            f"hwm = [l.split()[1] for l in open('/proc/self/status') if l.startswith('VmHWM')]; "
+            f"print(r['rows'], dt, hwm[0])")
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
                          check=True).stdout.split()
     rows, dt, rss_kb = int(out[0]), float(out[1]), int(out[2])

@@ -16,14 +16,14 @@ import time
 import numpy as np
 from scipy.optimize import brentq
 
-from dosing.equilibrium import (Mixture, constants_at, dose_to_ph, solve_ph,
+from dosing.equilibrium import (N_SYSTEMS, Mixture, constants_at, dose_to_ph, solve_ph,
                                 system_index)
 from dosing.reagents import get_reagent
 
 
 def waters(n: int, davies: bool, seed: int = 7) -> Mixture:
     rng = np.random.default_rng(seed)
-    tot = np.zeros((n, 13))
+    tot = np.zeros((n, N_SYSTEMS))
     tot[:, system_index("carbonate")] = rng.uniform(0.0, 0.01, n)
     tot[:, system_index("sulfate")] = rng.uniform(0.0, 0.01, n)
     tot[:, system_index("acetate")] = rng.uniform(0.0, 0.005, n)
