@@ -14,11 +14,11 @@ with code 2; nothing is written when a run fails.
 from __future__ import annotations
 
 import argparse
-import json
 import sys
 
-from .errors import DosingError, ScenarioError
+from .errors import DosingError, ScenarioError, UsageError
 from .files import write_atomic
+from .numbers import require_finite, to_json
 
 __all__ = ["main"]
 
@@ -114,8 +114,8 @@ def _cmd_plan(args) -> int:
     if args.plot:
         from .plot import plan_figure_png
         png = plan_figure_png(plan, scenario.title, args.units)
-    text = (json.dumps(sheet_dict(scenario, plan), indent=2, ensure_ascii=False) + "\n"
-            if args.json else render_sheet(scenario, plan, args.units))
+    data = require_finite(sheet_dict(scenario, plan), "plan")
+    text = to_json(data) if args.json else render_sheet(scenario, plan, args.units)
     if png is not None:
         write_atomic(args.plot, png)
     sys.stdout.write(text)
@@ -167,7 +167,7 @@ def _cmd_replay(args) -> int:
         if opt and not opt.lower().endswith(ext):
             raise ScenarioError(opt, "", f"give a file name ending in {ext}")
     if args.chunk_rows < 1000:
-        raise ScenarioError("--chunk-rows", "", "allowed: 1000 or more")
+        raise UsageError("--chunk-rows", "allowed: 1000 or more")
     scenario = load_scenario(args.scenario)
     show = sys.stderr.isatty()
     expected = _count_lines(args.data) if show else None
@@ -196,8 +196,8 @@ def _cmd_replay(args) -> int:
     if args.plot:
         from .plot import replay_figure_png
         write_atomic(args.plot, replay_figure_png(totals, report, args.units))
-    sys.stdout.write(json.dumps(report, indent=2, ensure_ascii=False, default=str) + "\n"
-                     if args.json else render_replay(report, args.units))
+    require_finite(report, "replay")
+    sys.stdout.write(to_json(report) if args.json else render_replay(report, args.units))
     return 0
 
 
@@ -235,8 +235,9 @@ def _cmd_titration(args) -> int:
         from .plot import titration_figure_png
         write_atomic(args.plot, titration_figure_png(curve, report, scenario.title))
     public = {k: v for k, v in report.items() if not k.startswith("_")}
-    sys.stdout.write(json.dumps(public, indent=2, ensure_ascii=False, default=str) + "\n"
-                     if args.json else render_titration(scenario, report, args.units))
+    require_finite(public, "titration")
+    sys.stdout.write(to_json(public) if args.json
+                     else render_titration(scenario, report, args.units))
     return 0
 
 

@@ -14,8 +14,14 @@ Assumptions
   4.5, the end point Standard Methods 2320 B gives for industrial wastes and
   complex systems) and all of it that the listed solutes do not explain is
   carbonate. Acidity likewise to pH 8.3.
-* Strong ions are taken as monovalent for the ionic strength unless an
-  extra ionic strength (e.g. from a known salt load) is given.
+* Strong ions the lab measured (sodium, potassium, chloride, nitrate) count
+  in the ionic strength with their charges; the rest of the strong-ion
+  balance is taken as monovalent. A known salt load can be added as an
+  extra ionic strength.
+* Dissolved metals (a filtered sample, mg/L as the element) are dissolved
+  at the measured pH; calcium and magnesium given among the ions are the
+  same metals. Along a dose they precipitate as hydroxides wherever the
+  water is supersaturated (:mod:`dosing.metals`).
 * A tank "open to air" has its dissolved CO2 held at equilibrium with air
   (default 420 µatm) while it is dosed; the measured pH and alkalinity
   describe the water as it arrives.
@@ -37,13 +43,14 @@ import numpy as np
 
 from .activity import DAVIES_I_LIMIT
 from .equilibrium import (CARBONATE, N_SYSTEMS, Mixture, carbonate_for_alkalinity,
-                          co2_in_air_mol_l, speciate, strong_balance_at_ph)
+                          co2_in_air_mol_l, speciate, strong_balance_at_ph, system_index)
 from .errors import InputError, ModelError
+from .metals import METAL_IDS, get_metal
 from .species import MOLAR_MASS, SYSTEM_IDS, get_system
 from .water import check_temperature
 
 __all__ = ["CACO3_MG_PER_MEQ", "ALKALINITY_ENDPOINT_PH", "ACIDITY_ENDPOINT_PH",
-           "DEFAULT_PCO2_UATM", "BACKGROUND_IONS", "Water", "infer_water",
+           "DEFAULT_PCO2_UATM", "BACKGROUND_IONS", "STRONG_IONS", "Water", "infer_water",
            "totals_vector"]
 
 #: Equivalent weight of CaCO3 [mg/meq]: M(CaCO3)/2 with IUPAC atomic weights.
@@ -53,15 +60,35 @@ CACO3_MG_PER_MEQ = MOLAR_MASS["CaCO3"] / 2.0
 ALKALINITY_ENDPOINT_PH = 4.5
 #: Acidity end point, Standard Methods 2310 B (phenolphthalein) [pH].
 ACIDITY_ENDPOINT_PH = 8.3
-#: Background strong ions a scenario may give, with the formula used for
-#: their molar mass.
+#: Background ions a scenario may give in ``ions_mg_l``, with the formula
+#: used for their molar mass. Calcium and magnesium are metals of
+#: :mod:`dosing.metals` (they take part in the solids); the rest are strong
+#: ions.
 BACKGROUND_IONS = {"sodium": "Na", "potassium": "K", "calcium": "Ca",
                    "magnesium": "Mg", "chloride": "Cl", "nitrate": "NO3"}
+#: Strong ions (never precipitated, never protonated): their charge [-].
+STRONG_IONS = {"sodium": 1, "potassium": 1, "chloride": -1, "nitrate": -1}
 #: A laboratory alkalinity or acidity at or below this is taken as "not
 #: detected" [mg/L as CaCO3] (common practice: a usual reporting limit).
 LOW_READING_MG_L = 2.0
+#: Relative precision of a routine alkalinity or acidity titration [-]
+#: (common practice: duplicates agree within a few per cent; Standard
+#: Methods 2320 quotes single-operator deviations of this order).
+LAB_PRECISION = 0.03
 #: CO2 in today's outdoor air, about 420 µatm (common practice, 2020s).
 DEFAULT_PCO2_UATM = 420.0
+#: Largest inorganic carbon a water may be inferred to hold [mol/L]: a
+#: saturated sodium carbonate/bicarbonate brine holds about 2 mol/L (CRC
+#: Handbook aqueous solubilities, from memory); past that no water can.
+MAX_CARBONATE_MOL_L = 2.0
+#: Largest carbonate a water open to air is taken to hold without a lab
+#: alkalinity [mol/L] (common practice: about 250 mg/L as CaCO3; a tank or
+#: pond takes days to weeks to take up more from air).
+MAX_AIR_CARBONATE_MOL_L = 5e-3
+#: Largest ionic strength accepted for an inferred water [mol/L]: beyond
+#: about 5 mol/L even specific-interaction models are stretched (common
+#: practice) and Davies is far outside its range.
+MAX_IONIC_STRENGTH = 5.0
 
 
 @dataclass(frozen=True)
@@ -94,9 +121,21 @@ class Water:
     notes : tuple of str
         What the inference assumed or found worth saying.
     ions_mg_l : Mapping[str, float]
-        Measured background strong ions (sodium, calcium ...) [mg/L]; used by
-        the discharge and scale checks, not by the charge balance (which the
-        measured pH already fixes).
+        Measured background strong ions (sodium, chloride ...) [mg/L]; used
+        by the ionic strength and the discharge checks.
+    unknown_pka : float or None
+        pKa of the fitted unidentified acid [-].
+    metals_mol_l : Mapping[str, float]
+        Total of each dissolved metal as sampled (calcium and magnesium
+        included) [mol/L]; with ``ferrous_oxidised`` the ferrous iron is
+        already moved to ferric.
+    ferrous_oxidised : bool
+        Ferrous iron planned as oxidised by aeration before dosing.
+    known_strong_eq_l : float
+        Net charge of the measured strong ions [eq/L].
+    known_ionic_strength : float
+        Ionic strength of the measured strong ions and any extra salt load
+        [mol/L].
     """
 
     ph: float
@@ -112,6 +151,10 @@ class Water:
     notes: tuple[str, ...] = field(default=())
     ions_mg_l: Mapping[str, float] = field(default_factory=dict)
     unknown_pka: float | None = None
+    metals_mol_l: Mapping[str, float] = field(default_factory=dict)
+    ferrous_oxidised: bool = False
+    known_strong_eq_l: float = 0.0
+    known_ionic_strength: float = 0.0
 
     def mixture(self) -> Mixture:
         """The water as a one-row :class:`Mixture` for dosing.
@@ -121,9 +164,18 @@ class Water:
         """
         co2 = (float(co2_in_air_mol_l(self.temperature_c, self.pco2_atm))
                if self.open_to_air else math.nan)
-        return Mixture.build(totals_vector(self.totals_mol_l), self.strong_eq_l,
-                             self.strong_ionic_strength, self.temperature_c,
-                             co2, self.davies, self.unknown_pka)
+        return Mixture.build(totals_vector(self.totals_mol_l, self.metals_mol_l),
+                             self.strong_eq_l, self.strong_ionic_strength,
+                             self.temperature_c, co2, self.davies, self.unknown_pka)
+
+    def strong_ionic_strength_for(self, strong_eq_l):
+        """Ionic strength of the strong ions for another balance [mol/L].
+
+        The measured ions count with their charges; what the balance needs
+        beyond them is taken as monovalent.
+        """
+        return self.known_ionic_strength + 0.5 * np.abs(
+            np.asarray(strong_eq_l, dtype=float) - self.known_strong_eq_l)
 
     @property
     def carbonate_mol_l(self) -> float:
@@ -131,18 +183,21 @@ class Water:
         return self.totals_mol_l.get("carbonate", 0.0)
 
 
-def totals_vector(totals_mol_l: Mapping[str, float]) -> np.ndarray:
-    """Totals as an (m,) array in catalogue order [mol/L]."""
+def totals_vector(totals_mol_l: Mapping[str, float],
+                  metals_mol_l: Mapping[str, float] | None = None) -> np.ndarray:
+    """Totals (weak acids, then metals) as an (m,) array in engine order [mol/L]."""
     v = np.zeros(N_SYSTEMS)
     for key, value in totals_mol_l.items():
         v[SYSTEM_IDS.index(get_system(key).id)] = value
+    for key, value in (metals_mol_l or {}).items():
+        v[system_index(get_metal(key).id)] = value
     return v
 
 
 def _check_number(field_name: str, value, lo=None, hi=None, *, lo_open=False):
     try:
         x = float(value)
-    except (TypeError, ValueError):
+    except (TypeError, ValueError, OverflowError):
         raise InputError(field_name, f"expected a number, got {value!r}") from None
     if not math.isfinite(x):
         raise InputError(field_name, f"expected a finite number, got {value!r}")
@@ -174,6 +229,184 @@ def _collect_totals(solutes_mmol_l, solutes_mg_l):
     return totals
 
 
+def _collect_ions(ions_mg_l, metals_mg_l):
+    """Strong ions [mg/L] and metals [mol/L] from the two tables, each once."""
+    ions: dict[str, float] = {}
+    metals: dict[str, float] = {}
+    for key, value in (ions_mg_l or {}).items():
+        where = f"ions_mg_l.{key}"
+        if key not in BACKGROUND_IONS:
+            raise InputError(where, "unknown ion; allowed: " + ", ".join(BACKGROUND_IONS))
+        x = _check_number(where, value, 0.0, 2e5)
+        if key in STRONG_IONS:
+            ions[key] = x
+        else:
+            metals[key] = x / 1000.0 / get_metal(key).molar_mass_g_mol
+    for key, value in (metals_mg_l or {}).items():
+        where = f"metals_mg_l.{key}"
+        if key not in METAL_IDS:
+            raise InputError(where, "unknown metal; allowed: " + ", ".join(METAL_IDS))
+        x = _check_number(where, value, 0.0, 1e5)
+        if key in metals:
+            raise InputError(where, f"{key} is also given in ions_mg_l; give it once")
+        metals[key] = x / 1000.0 / get_metal(key).molar_mass_g_mol
+    return ions, {k: v for k, v in metals.items() if v > 0}
+
+
+def _known_strong(ions_mg_l: Mapping[str, float], extra_i: float) -> tuple[float, float]:
+    """Net charge [eq/L] and ionic strength [mol/L] of the measured strong ions."""
+    eq = ionic = 0.0
+    for name, mg in ions_mg_l.items():
+        mol = mg / 1000.0 / MOLAR_MASS[BACKGROUND_IONS[name]]
+        z = STRONG_IONS[name]
+        eq += z * mol
+        ionic += 0.5 * z * z * mol
+    return eq, ionic + extra_i
+
+
+@dataclass(frozen=True)
+class _Measured:
+    """A lab alkalinity or acidity, as the engine uses it."""
+
+    field: str              #: scenario key it came from
+    eq_l: float             #: + alkalinity, - acidity [eq/L]
+    endpoint_ph: float      #: titration end point [pH]
+    mg_l: float             #: the value as reported [mg/L as CaCO3]
+
+    @property
+    def kind(self) -> str:
+        return "alkalinity" if self.eq_l >= 0 and self.field.startswith("alk") else "acidity"
+
+
+def _measured(ph, alkalinity, acidity, alk_ep, acid_ep) -> _Measured | None:
+    """Check the lab alkalinity or acidity against the pH; None if neither."""
+    if alkalinity is not None and acidity is not None:
+        raise InputError("acidity_mg_l_as_caco3", "give alkalinity or acidity, "
+                         "not both: either one fixes the carbonate total")
+    if alkalinity is not None:
+        alk = _check_number("alkalinity_mg_l_as_caco3", alkalinity, 0.0, 1e5)
+        ep = _check_number("alkalinity_endpoint_ph", alk_ep, 3.5, 5.5)
+        if alk > 0 and ph <= ep:
+            raise InputError("alkalinity_mg_l_as_caco3", f"{alk:g} mg/L as CaCO3 "
+                             f"cannot be measured on a water at pH {ph:g}: total "
+                             f"alkalinity is titrated down to pH {ep:g}, so a water "
+                             f"at or below that pH has none. Give 0, or an acidity "
+                             "instead")
+        return _Measured("alkalinity_mg_l_as_caco3", alk / CACO3_MG_PER_MEQ / 1000.0, ep, alk)
+    if acidity is not None:
+        acid = _check_number("acidity_mg_l_as_caco3", acidity, 0.0, 1e5)
+        ep = _check_number("acidity_endpoint_ph", acid_ep, 7.5, 9.0)
+        if acid > 0 and ph >= ep:
+            raise InputError("acidity_mg_l_as_caco3", f"{acid:g} mg/L as CaCO3 "
+                             f"cannot be measured on a water at pH {ph:g}: acidity "
+                             f"is titrated up to pH {ep:g}, so a water at or above "
+                             "that pH has none. Give 0, or an alkalinity instead")
+        return _Measured("acidity_mg_l_as_caco3", -acid / CACO3_MG_PER_MEQ / 1000.0, ep, acid)
+    return None
+
+
+@dataclass(frozen=True)
+class _Job:
+    """Validated inputs of :func:`infer_water`."""
+
+    ph: float
+    temperature_c: float
+    davies: bool
+    pco2_uatm: float
+    known_eq: float
+    known_i: float
+    unknown_pka: float | None
+    vec: np.ndarray         # totals (acids and metals) as sampled [mol/L]
+
+
+def _carbonate_from_lab(job: _Job, m: _Measured, notes: list[str]) -> float:
+    """Carbonate total that explains a lab alkalinity or acidity [mol/L]."""
+    at_end = (m.eq_l >= 0 and job.ph <= m.endpoint_ph) or (m.eq_l < 0 and job.ph >= m.endpoint_ph)
+    if m.eq_l == 0.0 and at_end:
+        return 0.0
+    metals = bool(np.any(job.vec[N_SYSTEMS - len(METAL_IDS):] > 0))
+    c, coef, _ = carbonate_for_alkalinity(
+        job.vec, job.ph, job.temperature_c, m.eq_l, m.endpoint_ph, davies=job.davies,
+        extra_ionic_strength=job.known_i, unknown_pka=job.unknown_pka,
+        ferrous_oxidised=m.eq_l < 0)
+    carb = float(c[0])
+    if not np.isfinite(carb) or coef[0] == 0.0:
+        raise InputError(m.field, f"carbonate cannot explain this value at pH {job.ph:g}")
+    if carb >= 0.0:
+        return carb
+    # What the pH, the solutes and the metals alone imply, in the lab's units.
+    floor_mg = abs(m.eq_l - carb * float(coef[0])) * CACO3_MG_PER_MEQ * 1000.0
+    slack = max(LOW_READING_MG_L, LAB_PRECISION * floor_mg)
+    others = "the listed solutes" + (", the metals" if metals else "") + " and the pH"
+    if m.mg_l <= LOW_READING_MG_L:
+        notes.append(f"the {m.kind} of {m.mg_l:g} mg/L as CaCO3 is at the reporting "
+                     f"limit and below what {others} alone imply; the water is taken "
+                     "to hold no inorganic carbon")
+        return 0.0
+    if floor_mg - m.mg_l <= slack:
+        notes.append(f"the {m.kind} of {m.mg_l:g} mg/L as CaCO3 is within the lab's "
+                     f"precision of the {fmt_mg(floor_mg)} mg/L that {others} alone "
+                     "imply; the water is taken to hold no inorganic carbon")
+        return 0.0
+    raise InputError(m.field, f"the {m.kind} of {m.mg_l:g} mg/L as CaCO3 is smaller "
+                     f"than the {fmt_mg(floor_mg)} mg/L that {others} alone account "
+                     "for; no water can be both. Check the laboratory value, the pH, "
+                     "the solute totals" + (" and the metals" if metals else ""))
+
+
+def fmt_mg(x: float) -> str:
+    """A lab figure to four significant digits."""
+    return f"{x:.4g}"
+
+
+def _carbonate_from_air(job: _Job, notes: list[str]) -> float:
+    """Carbonate of a water at equilibrium with air at its pH [mol/L]."""
+    a0_c = float(co2_in_air_mol_l(job.temperature_c, job.pco2_uatm * 1e-6))
+    probe = speciate(Mixture.build(job.vec, 0.0, job.known_i, job.temperature_c,
+                                   a0_c, job.davies, job.unknown_pka), job.ph, solids=False)
+    carb = float(probe.totals_mol_l[0, CARBONATE])
+    if not math.isfinite(carb) or carb > MAX_AIR_CARBONATE_MOL_L:
+        raise InputError("alkalinity_mg_l_as_caco3", "no alkalinity given, and a water "
+                         f"at pH {job.ph:g} in equilibrium with air would hold "
+                         f"{carb * 1000:.3g} mmol/L of carbonate, more than a tank or "
+                         "pond takes up from air in days: measure the alkalinity "
+                         "(Standard Methods 2320 B) and give it")
+    notes.append("no alkalinity given: carbonate taken at equilibrium with "
+                 f"air at the measured pH ({carb * 1000:.3g} mmol/L)")
+    return carb
+
+
+def _strong_balance(job: _Job) -> tuple[float, float]:
+    """Strong-ion balance [eq/L] and ionic strength [mol/L] at the measured pH."""
+    s, ionic = strong_balance_at_ph(job.vec, job.ph, job.temperature_c, davies=job.davies,
+                                    extra_ionic_strength=job.known_i,
+                                    unknown_pka=job.unknown_pka,
+                                    known_strong_eq_l=job.known_eq)
+    s, ionic = float(s[0]), float(ionic[0])
+    if not math.isfinite(s) or not math.isfinite(ionic) or ionic > MAX_IONIC_STRENGTH:
+        raise ModelError("the measurements imply an ionic strength "
+                         + (f"of {ionic:.3g} mol/L, " if math.isfinite(ionic) else "that does "
+                            "not settle, ")
+                         + "which no water treated by dosing can have; check the pH, the "
+                         "alkalinity or acidity and the solute and metal totals")
+    return s, ionic
+
+
+def _supersaturation_note(job: _Job, s: float, strong_i: float) -> str | None:
+    """A note when a metal is above its hydroxide's solubility as sampled."""
+    mix = Mixture.build(job.vec, s, strong_i, job.temperature_c, math.nan, job.davies,
+                        job.unknown_pka)
+    sp = speciate(mix, job.ph)
+    over = [METAL_IDS[j] for j, x in enumerate(sp.solids_mol_l[0, N_SYSTEMS - len(METAL_IDS):])
+            if x > 1e-3 * job.vec[N_SYSTEMS - len(METAL_IDS) + j]]
+    if not over:
+        return None
+    return (f"{', '.join(over)} above its hydroxide's solubility at the measured pH "
+            f"{job.ph:g}: the sample may still be precipitating (or was not filtered). "
+            "The plan takes it as dissolved until dosed; the dose covers its "
+            "precipitation")
+
+
 def infer_water(ph: float, temperature_c: float = 25.0, *,
                 alkalinity_mg_l_as_caco3: float | None = None,
                 acidity_mg_l_as_caco3: float | None = None,
@@ -185,7 +418,9 @@ def infer_water(ph: float, temperature_c: float = 25.0, *,
                 acidity_endpoint_ph: float = ACIDITY_ENDPOINT_PH,
                 extra_ionic_strength_mol_l: float = 0.0,
                 ions_mg_l: Mapping[str, float] | None = None,
-                unknown_pka: float | None = None) -> Water:
+                unknown_pka: float | None = None,
+                metals_mg_l: Mapping[str, float] | None = None,
+                oxidise_ferrous: bool = False) -> Water:
     """Build the :class:`Water` that matches what was measured.
 
     Parameters
@@ -197,7 +432,9 @@ def infer_water(ph: float, temperature_c: float = 25.0, *,
     alkalinity_mg_l_as_caco3 : float, optional
         Total alkalinity to ``alkalinity_endpoint_ph`` [mg/L as CaCO3].
     acidity_mg_l_as_caco3 : float, optional
-        Acidity to ``acidity_endpoint_ph`` [mg/L as CaCO3].
+        Acidity to ``acidity_endpoint_ph`` [mg/L as CaCO3]; with metals, the
+        hot-peroxide acidity of Standard Methods 2310 (metal acidity
+        included, ferrous iron counted as oxidised).
     solutes_mmol_l : mapping, optional
         Known totals by solute id [mmol/L]; ``carbonate`` allowed when
         neither alkalinity nor acidity is given.
@@ -210,13 +447,19 @@ def infer_water(ph: float, temperature_c: float = 25.0, *,
     pco2_uatm : float
         CO2 partial pressure of that air [µatm].
     extra_ionic_strength_mol_l : float
-        Ionic strength of strong ions beyond those the charge balance shows
-        (e.g. a known NaCl load) [mol/L].
+        Ionic strength of strong ions beyond those given (e.g. a known salt
+        load) [mol/L].
     ions_mg_l : mapping, optional
-        Background strong ions by name (:data:`BACKGROUND_IONS`) [mg/L].
+        Background ions by name (:data:`BACKGROUND_IONS`) [mg/L].
     unknown_pka : float, optional
         pKa of the ``unknown`` solute (an unidentified monoprotic acid, e.g.
         fitted to a bench titration) [-].
+    metals_mg_l : mapping, optional
+        Dissolved metals of a filtered sample by id (:data:`dosing.metals.METAL_IDS`)
+        [mg/L as the element].
+    oxidise_ferrous : bool
+        Plan with ferrous iron oxidised by aeration before dosing
+        (4 Fe2+ + O2 + 10 H2O -> 4 Fe(OH)3 + 8 H+).
 
     Raises
     ------
@@ -233,15 +476,50 @@ def infer_water(ph: float, temperature_c: float = 25.0, *,
     >>> round(w.carbonate_mol_l * 1000, 3)
     2.029
     """
+    job, totals, metals, ions, measured = _validate(
+        ph, temperature_c, alkalinity_mg_l_as_caco3, acidity_mg_l_as_caco3, solutes_mmol_l,
+        solutes_mg_l, activity, pco2_uatm, alkalinity_endpoint_ph, acidity_endpoint_ph,
+        extra_ionic_strength_mol_l, ions_mg_l, unknown_pka, metals_mg_l, oxidise_ferrous,
+        open_to_air)
+    notes: list[str] = []
+    carb = _carbonate(job, measured, "carbonate" in totals, open_to_air, notes)
+    if carb is not None:
+        totals["carbonate"] = carb
+        job.vec[CARBONATE] = carb
+    s, ionic = _strong_balance(job)
+    strong_i = job.known_i + 0.5 * abs(s - job.known_eq)
+    note = _supersaturation_note(job, s, strong_i) if metals else None
+    if note:
+        notes.append(note)
+    if oxidise_ferrous:
+        metals = _oxidised(metals, notes)
+    start = Mixture.build(job.vec, s, strong_i, job.temperature_c, math.nan, job.davies,
+                          job.unknown_pka)
+    alk_model = _alkalinity_of(start, job.ph)
+    if ionic > DAVIES_I_LIMIT:
+        notes.append(f"ionic strength {ionic:.2f} mol/L is above the range where "
+                     "the Davies equation is trusted (about 0.5 mol/L); confirm "
+                     "the dose with a bench titration")
+    return Water(ph=job.ph, temperature_c=job.temperature_c, totals_mol_l=dict(totals),
+                 strong_eq_l=s, strong_ionic_strength=strong_i, ionic_strength=ionic,
+                 davies=job.davies, open_to_air=bool(open_to_air),
+                 pco2_atm=job.pco2_uatm * 1e-6, alkalinity_eq_l=alk_model,
+                 notes=tuple(notes), ions_mg_l=ions, unknown_pka=job.unknown_pka,
+                 metals_mol_l=metals, ferrous_oxidised=bool(oxidise_ferrous),
+                 known_strong_eq_l=job.known_eq, known_ionic_strength=job.known_i)
+
+
+def _validate(ph, temperature_c, alkalinity, acidity, solutes_mmol_l, solutes_mg_l,
+              activity, pco2_uatm, alk_ep, acid_ep, extra_i, ions_mg_l, unknown_pka,
+              metals_mg_l, oxidise_ferrous, open_to_air):
+    """Check every input; the job, totals, metals, strong ions and lab value."""
     ph = _check_number("ph", ph, 0.0, 14.0)
     check_temperature(temperature_c)
-    temperature_c = float(temperature_c)
     if activity not in ("davies", "ideal"):
         raise InputError("activity", f"{activity!r} is not a model; allowed: "
                          "'davies' or 'ideal'")
-    davies = activity == "davies"
     pco2_uatm = _check_number("pco2_uatm", pco2_uatm, 0.0, 1e6, lo_open=True)
-    extra_i = _check_number("extra_ionic_strength_mol_l", extra_ionic_strength_mol_l, 0.0, 5.0)
+    extra_i = _check_number("extra_ionic_strength_mol_l", extra_i, 0.0, 5.0)
     totals = _collect_totals(solutes_mmol_l, solutes_mg_l)
     if (solutes_mg_l or {}).get("unknown") is not None:
         raise InputError("solutes_mg_l.unknown", "an unidentified acid has no mass basis; "
@@ -251,114 +529,59 @@ def infer_water(ph: float, temperature_c: float = 25.0, *,
                          "acid as unknown_pka")
     if unknown_pka is not None:
         unknown_pka = _check_number("unknown_pka", unknown_pka, 1.0, 13.0)
-    ions = {}
-    for key, value in (ions_mg_l or {}).items():
-        if key not in BACKGROUND_IONS:
-            raise InputError(f"ions_mg_l.{key}", "unknown ion; allowed: "
-                             + ", ".join(BACKGROUND_IONS))
-        ions[key] = _check_number(f"ions_mg_l.{key}", value, 0.0, 2e5)
-    notes: list[str] = []
-    if alkalinity_mg_l_as_caco3 is not None and acidity_mg_l_as_caco3 is not None:
-        raise InputError("acidity_mg_l_as_caco3", "give alkalinity or acidity, "
-                         "not both: either one fixes the carbonate total")
-    measured = None
-    if alkalinity_mg_l_as_caco3 is not None:
-        alk = _check_number("alkalinity_mg_l_as_caco3", alkalinity_mg_l_as_caco3, 0.0, 1e5)
-        ep = _check_number("alkalinity_endpoint_ph", alkalinity_endpoint_ph, 3.5, 5.5)
-        measured = ("alkalinity_mg_l_as_caco3", alk / CACO3_MG_PER_MEQ / 1000.0, ep)
-        if alk > 0 and ph <= ep:
-            raise InputError("alkalinity_mg_l_as_caco3", f"{alk:g} mg/L as CaCO3 "
-                             f"cannot be measured on a water at pH {ph:g}: total "
-                             f"alkalinity is titrated down to pH {ep:g}, so a water "
-                             f"at or below that pH has none. Give 0, or an acidity "
-                             "instead")
-    elif acidity_mg_l_as_caco3 is not None:
-        acid = _check_number("acidity_mg_l_as_caco3", acidity_mg_l_as_caco3, 0.0, 1e5)
-        ep = _check_number("acidity_endpoint_ph", acidity_endpoint_ph, 7.5, 9.0)
-        measured = ("acidity_mg_l_as_caco3", -acid / CACO3_MG_PER_MEQ / 1000.0, ep)
-        if acid > 0 and ph >= ep:
-            raise InputError("acidity_mg_l_as_caco3", f"{acid:g} mg/L as CaCO3 "
-                             f"cannot be measured on a water at pH {ph:g}: acidity "
-                             f"is titrated up to pH {ep:g}, so a water at or above "
-                             "that pH has none. Give 0, or an alkalinity instead")
+    ions, metals = _collect_ions(ions_mg_l, metals_mg_l)
+    if oxidise_ferrous and not metals.get("iron_ii"):
+        raise InputError("oxidise_ferrous", "there is no ferrous iron to oxidise; give "
+                         "metals_mg_l.iron_ii or leave oxidise_ferrous out")
+    measured = _measured(ph, alkalinity, acidity, alk_ep, acid_ep)
     if measured is not None and "carbonate" in totals:
-        raise InputError(measured[0], "give carbonate as a solute or an "
+        raise InputError(measured.field, "give carbonate as a solute or an "
                          "alkalinity/acidity, not both: either one fixes it")
+    known_eq, known_i = _known_strong(ions, extra_i)
+    job = _Job(ph, float(temperature_c), activity == "davies", pco2_uatm, known_eq,
+               known_i, unknown_pka, totals_vector(totals, metals))
+    return job, totals, metals, ions, measured
 
-    vec = totals_vector(totals)
+
+def _carbonate(job: _Job, measured: _Measured | None, given: bool, open_to_air: bool,
+               notes: list[str]) -> float | None:
+    """The carbonate total to use, or None when it was given as a solute."""
     if measured is not None:
-        name, value_eq_l, ep = measured
-        is_alk = name.startswith("alkalinity")
-        if value_eq_l == 0.0 and ((is_alk and ph <= ep) or (not is_alk and ph >= ep)):
-            carb = 0.0
-        else:
-            c, coef, _ = carbonate_for_alkalinity(vec, ph, temperature_c, value_eq_l,
-                                                 ep, davies=davies,
-                                                 extra_ionic_strength=extra_i,
-                                                 unknown_pka=unknown_pka)
-            carb = float(c[0])
-            if not np.isfinite(carb) or coef[0] == 0.0:
-                raise InputError(name, "carbonate cannot explain this value at "
-                                 f"pH {ph:g}")
-            if carb < 0.0:
-                kind = "alkalinity" if is_alk else "acidity"
-                given = abs(value_eq_l) * CACO3_MG_PER_MEQ * 1000.0
-                if given <= LOW_READING_MG_L:
-                    notes.append(f"the {kind} of {given:g} mg/L as CaCO3 is at the "
-                                 "reporting limit and below what the pH alone "
-                                 "implies; the water is taken to hold no "
-                                 "inorganic carbon")
-                    carb = 0.0
-                else:
-                    raise InputError(name, f"the {kind} is smaller than the listed "
-                                     "solutes and the pH alone account for; check "
-                                     "the laboratory value, the pH and the solute "
-                                     "totals")
-        totals["carbonate"] = carb
-        vec[CARBONATE] = carb
-    elif "carbonate" not in totals:
-        if open_to_air:
-            a0_c = float(co2_in_air_mol_l(temperature_c, pco2_uatm * 1e-6))
-            probe = speciate(Mixture.build(vec, 0.0, extra_i, temperature_c,
-                                           a0_c, davies, unknown_pka), ph)
-            carb = float(probe.totals_mol_l[0, CARBONATE])
-            totals["carbonate"] = carb
-            vec[CARBONATE] = carb
-            notes.append("no alkalinity given: carbonate taken at equilibrium with "
-                         f"air at the measured pH ({carb * 1000:.3g} mmol/L)")
-        else:
-            notes.append("no alkalinity, acidity or carbonate given: the water "
-                         "is taken to hold no inorganic carbon, which is rare in "
-                         "practice; a laboratory alkalinity makes the dose more "
-                         "reliable")
+        carb = _carbonate_from_lab(job, measured, notes)
+    elif given:
+        return None
+    elif open_to_air:
+        carb = _carbonate_from_air(job, notes)
+    else:
+        notes.append("no alkalinity, acidity or carbonate given: the water "
+                     "is taken to hold no inorganic carbon, which is rare in "
+                     "practice; a laboratory alkalinity makes the dose more "
+                     "reliable")
+        return 0.0
+    if carb > MAX_CARBONATE_MOL_L:
+        raise InputError(measured.field if measured else "alkalinity_mg_l_as_caco3",
+                         f"the measurements imply {carb:.3g} mol/L of dissolved "
+                         "carbonate, more than any water holds; check the pH and the "
+                         "laboratory value")
+    return carb
 
-    s, ionic = strong_balance_at_ph(vec, ph, temperature_c, davies=davies,
-                                    extra_ionic_strength=extra_i, unknown_pka=unknown_pka)
-    s = float(s[0])
-    if not math.isfinite(s):
-        raise ModelError("the ionic strength of this water did not settle; check the "
-                         "solute totals (Davies is not meant for brines)")
-    strong_i = extra_i + 0.5 * abs(s)
-    start = Mixture.build(vec, s, strong_i, temperature_c, math.nan, davies, unknown_pka)
-    alk_model = _alkalinity_of(start, ph)
-    ionic = float(ionic[0])
-    if ionic > DAVIES_I_LIMIT:
-        notes.append(f"ionic strength {ionic:.2f} mol/L is above the range where "
-                     "the Davies equation is trusted (about 0.5 mol/L); confirm "
-                     "the dose with a bench titration")
-    return Water(ph=ph, temperature_c=temperature_c,
-                 totals_mol_l={k: v for k, v in totals.items()},
-                 strong_eq_l=s, strong_ionic_strength=strong_i,
-                 ionic_strength=ionic, davies=davies, open_to_air=bool(open_to_air),
-                 pco2_atm=pco2_uatm * 1e-6, alkalinity_eq_l=alk_model,
-                 notes=tuple(notes), ions_mg_l=ions, unknown_pka=unknown_pka)
+
+def _oxidised(metals: dict[str, float], notes: list[str]) -> dict[str, float]:
+    """Metals with ferrous iron moved to ferric (aeration before dosing)."""
+    out = dict(metals)
+    fe2 = out.pop("iron_ii")
+    out["iron_iii"] = out.get("iron_iii", 0.0) + fe2
+    notes.append(f"ferrous iron ({fe2 * 1000:.3g} mmol/L) planned as oxidised to ferric by "
+                 "aeration before dosing (4 Fe2+ + O2 + 10 H2O -> 4 Fe(OH)3 + 8 H+): "
+                 "aerate fully first, or the dose overshoots as the iron oxidises later")
+    return out
 
 
 def _alkalinity_of(mix: Mixture, ph: float) -> float:
     """Total alkalinity to pH 4.5 of a closed one-row mixture [eq/L]."""
-    here = speciate(mix, ph)
+    here = speciate(mix, ph, solids=False)
     end = speciate(mix, ALKALINITY_ENDPOINT_PH)
     w = here.h_mol_l - here.oh_mol_l
     we = end.h_mol_l - end.oh_mol_l
-    return float((mix.totals_mol_l * (end.mean_charge - here.mean_charge)).sum(-1)[0]
-                 + we[0] - w[0])
+    return float((end.totals_mol_l * end.mean_charge).sum(-1)[0]
+                 - (here.totals_mol_l * here.mean_charge).sum(-1)[0] + we[0] - w[0])

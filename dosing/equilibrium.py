@@ -51,35 +51,54 @@ import numpy as np
 
 from .activity import davies_log_gamma, debye_huckel_a
 from .errors import ModelError
+from .metals import METALS, METAL_IDS
 from .species import SYSTEMS, SYSTEM_IDS
 from .water import carbonate_pk, henry_co2, pkw, vant_hoff_pk
 
 __all__ = [
-    "N_SYSTEMS", "CARBONATE", "system_index", "Mixture", "Speciation",
+    "N_SYSTEMS", "N_ACIDS", "COLUMN_IDS", "METAL_COLUMNS", "CARBONATE", "system_index", "Mixture", "Speciation",
     "constants_at", "speciate", "charge_residual", "solve_ph",
     "strong_balance_at_ph", "carbonate_for_alkalinity", "dose_to_ph",
     "ReagentVector", "add_dose", "co2_in_air_mol_l",
 ]
 
-N_SYSTEMS = len(SYSTEMS)
-_MAXSTEP = 3
+#: Columns of the totals arrays: the weak-acid systems, then the metals.
+COLUMN_IDS: tuple[str, ...] = SYSTEM_IDS + METAL_IDS
+N_ACIDS = len(SYSTEMS)
+N_SYSTEMS = len(COLUMN_IDS)
+#: Columns that carry a metal (and its hydroxide solid).
+METAL_COLUMNS = np.arange(N_ACIDS, N_SYSTEMS)
+_MAXSTEP = 4
 CARBONATE = SYSTEM_IDS.index("carbonate")
 UNKNOWN = SYSTEM_IDS.index("unknown")
 _LN10 = np.log(10.0)
 
-# Charge of each form (most protonated first), shape (m, 4).
-_Z = np.array([[s.top_charge - k for k in range(_MAXSTEP + 1)] for s in SYSTEMS],
-              dtype=float)
+# Charge of each form (most protonated first), shape (m, 5). A metal's
+# hydrolysis series is carried as an acid whose top form is the free ion.
+_TOP = [s.top_charge for s in SYSTEMS] + [m.charge for m in METALS]
+_Z = np.array([[z - k for k in range(_MAXSTEP + 1)] for z in _TOP], dtype=float)
 _PK25 = np.full((N_SYSTEMS, _MAXSTEP), np.inf)
 _DH = np.zeros((N_SYSTEMS, _MAXSTEP))
 for _j, _s in enumerate(SYSTEMS):
     _PK25[_j, :_s.steps] = _s.pka25
     _DH[_j, :_s.steps] = _s.enthalpy_kj_mol
+for _j, _m in enumerate(METALS, start=N_ACIDS):
+    _PK25[_j, :_m.steps] = _m.stepwise_pk()
+    _DH[_j, :_m.steps] = _m.stepwise_enthalpy()
+# Hydroxide solids: log *Ks0 at 25 °C, its enthalpy and the ion's charge;
+# NaN (no solid) for the weak acids.
+_SOLID_LOGK = np.full(N_SYSTEMS, np.nan)
+_SOLID_DH = np.zeros(N_SYSTEMS)
+_SOLID_Z = np.zeros(N_SYSTEMS)
+for _j, _m in enumerate(METALS, start=N_ACIDS):
+    _SOLID_LOGK[_j] = _m.log_ks0
+    _SOLID_DH[_j] = _m.enthalpy_ks0_kj_mol or 0.0
+    _SOLID_Z[_j] = _m.charge
 
 
 def system_index(system_id: str) -> int:
-    """Column of ``system_id`` in the totals arrays."""
-    return SYSTEM_IDS.index(system_id)
+    """Column of ``system_id`` (a weak-acid system or a metal) in the totals arrays."""
+    return COLUMN_IDS.index(system_id)
 
 
 def co2_in_air_mol_l(temperature_c, pco2_atm):
@@ -92,8 +111,9 @@ class Constants:
     """Thermodynamic constants for n temperatures."""
 
     kw: np.ndarray          #: (n,) ion product of water [-]
-    k: np.ndarray           #: (n, m, 3) Ka of each step, 0 where no step [-]
+    k: np.ndarray           #: (n, m, 4) Ka of each step, 0 where no step [-]
     a: np.ndarray           #: (n,) Debye-Hückel A [(kg/mol)^(1/2)]
+    ks0: np.ndarray         #: (n, m) *Ks0 of each column's hydroxide, NaN if none [-]
 
 
 def constants_at(temperature_c) -> Constants:
@@ -108,7 +128,7 @@ def constants_at(temperature_c) -> Constants:
         uniq, inv = np.unique(t, return_inverse=True)
         if uniq.size < t.size:
             c = _constants(uniq)
-            return Constants(kw=c.kw[inv], k=c.k[inv], a=c.a[inv])
+            return Constants(kw=c.kw[inv], k=c.k[inv], a=c.a[inv], ks0=c.ks0[inv])
     return _constants(t)
 
 
@@ -118,7 +138,9 @@ def _constants(t: np.ndarray) -> Constants:
     pk[:, CARBONATE, 0] = pk1
     pk[:, CARBONATE, 1] = pk2
     k = 10.0 ** -pk          # a missing step has pK = inf, so K = 0
-    return Constants(kw=10.0 ** -pkw(t), k=k, a=debye_huckel_a(t))
+    # log *Ks0 = -pK, and a pK moves by +dH/(R ln10) (1/T - 1/298.15).
+    log_ks0 = -vant_hoff_pk(-_SOLID_LOGK[None, :], _SOLID_DH[None, :], t[:, None])
+    return Constants(kw=10.0 ** -pkw(t), k=k, a=debye_huckel_a(t), ks0=10.0 ** log_ks0)
 
 
 @dataclass(frozen=True)
@@ -158,6 +180,9 @@ class Mixture:
               unknown_pka=None) -> "Mixture":
         """Broadcast the inputs to n waters and freeze them."""
         tot = np.atleast_2d(np.asarray(totals_mol_l, dtype=float))
+        if tot.shape[1] < N_SYSTEMS:
+            # Totals of the weak acids only: no metals.
+            tot = np.pad(tot, ((0, 0), (0, N_SYSTEMS - tot.shape[1])))
         s = np.atleast_1d(np.asarray(strong_eq_l, dtype=float))
         n = max(tot.shape[0], s.shape[0])
         def vec(x):
@@ -174,7 +199,7 @@ class Mixture:
             k = const.k.copy()
             k[:, UNKNOWN, 0] = np.where(np.isfinite(self.unknown_pka),
                                         10.0 ** -np.nan_to_num(self.unknown_pka), k[:, UNKNOWN, 0])
-            const = Constants(const.kw, k, const.a)
+            const = Constants(const.kw, k, const.a, const.ks0)
         return const
 
     @property
@@ -201,6 +226,7 @@ class Speciation:
     ionic_strength: np.ndarray      #: (n,) [mol/L]
     charge_residual_eq_l: np.ndarray  #: (n,) charge balance residual [eq/L]
     buffer_intensity_eq_l: np.ndarray  #: (n,) β = dC_base/dpH [eq/(L pH)]
+    solids_mol_l: np.ndarray | None = None  #: (n, m) hydroxide precipitated [mol/L]
 
     def concentration(self, system: int, form: int) -> np.ndarray:
         """(n,) concentration of one form of one system [mol/L]."""
@@ -208,44 +234,52 @@ class Speciation:
 
 
 def _alpha(ah, kc):
-    """Fractions (n, m, 4) from a_H (n,) and mixed constants (n, m, 3)."""
-    terms = np.empty(kc.shape[:2] + (4,))
+    """Fractions (n, m, s+1) from a_H (n,) and mixed constants (n, m, s)."""
+    steps = kc.shape[2]
+    terms = np.empty(kc.shape[:2] + (steps + 1,))
     terms[:, :, 0] = 1.0
     inv = (1.0 / ah)[:, None]
     np.multiply(kc[:, :, 0], inv, out=terms[:, :, 1])
-    np.multiply(terms[:, :, 1] * kc[:, :, 1], inv, out=terms[:, :, 2])
-    np.multiply(terms[:, :, 2] * kc[:, :, 2], inv, out=terms[:, :, 3])
+    for i in range(1, steps):
+        np.multiply(terms[:, :, i] * kc[:, :, i], inv, out=terms[:, :, i + 1])
     terms /= terms.sum(axis=-1, keepdims=True)
     return terms
 
 
-def _state(mix: Mixture, ph, const: Constants, ionic_strength):
+def _state(r: "_Rows", ph, ionic_strength):
     """Species of all systems, residual, β and new ionic strength at ``ph``."""
-    r = _Rows(mix.totals_mol_l, mix.strong_eq_l, mix.strong_ionic_strength,
-              mix.co2_air_mol_l, const.kw, const.k, const.a, _Z, CARBONATE, mix.davies,
-              np.arange(N_SYSTEMS))
-    alpha, q, m2, h, oh = _species(r, 10.0 ** -ph, ionic_strength)
-    totals, resid, beta, ionic = _balance(r, alpha, q, m2, h, oh)
+    alpha, q, m2, h, oh, sol = _species(r, 10.0 ** -ph, ionic_strength)
+    totals, resid, beta, ionic = _balance(r, alpha, q, m2, h, oh, sol)
     return alpha, q, totals, h, oh, resid, beta, ionic
 
 
-def speciate(mix: Mixture, ph, *, max_iter: int = 60) -> Speciation:
+def speciate(mix: Mixture, ph, *, max_iter: int = 60, solids: bool = True) -> Speciation:
     """Speciation of every water at the given activity pH.
 
     The ionic strength is found self-consistently (Davies) or is only
-    reported (ideal).
+    reported (ideal). With ``solids`` (the default) each metal is capped at
+    its hydroxide's solubility and the rest is reported as precipitated;
+    ``solids=False`` keeps every metal dissolved (the water as sampled).
     """
     ph = np.broadcast_to(np.asarray(ph, dtype=float), (mix.n,)).copy()
     const = mix.constants()
+    r = _Rows(mix.totals_mol_l, mix.strong_eq_l, mix.strong_ionic_strength,
+              mix.co2_air_mol_l, const.kw, const.k, const.a, _Z, CARBONATE, mix.davies,
+              np.arange(N_SYSTEMS), const.ks0, _SOLID_Z, bool(solids))
     ionic = mix.strong_ionic_strength.copy()
     for _ in range(max_iter):
-        alpha, q, totals, h, oh, resid, beta, new_i = _state(mix, ph, const, ionic)
+        alpha, q, totals, h, oh, resid, beta, new_i = _state(r, ph, ionic)
         done = np.all(np.abs(new_i - ionic) <= 1e-13 + 1e-10 * new_i)
         ionic = new_i
         if done or not mix.davies:
             break
-    alpha, q, totals, h, oh, resid, beta, _ = _state(mix, ph, const, ionic)
-    return Speciation(ph, h, oh, alpha, q, totals, ionic, resid, beta)
+    alpha, q, totals, h, oh, resid, beta, _ = _state(r, ph, ionic)
+    precipitated = np.zeros_like(totals)
+    precipitated[:, METAL_COLUMNS] = np.maximum(
+        mix.totals_mol_l[:, METAL_COLUMNS] - totals[:, METAL_COLUMNS], 0.0)
+    if mix.open_to_air.any():
+        precipitated[:, CARBONATE] = 0.0
+    return Speciation(ph, h, oh, alpha, q, totals, ionic, resid, beta, precipitated)
 
 
 def charge_residual(mix: Mixture, ph) -> np.ndarray:
@@ -268,14 +302,21 @@ class _Rows:
     carb: int               # column of carbonate in the view, or -1
     davies: bool
     cols: np.ndarray        # (mc,) catalogue columns the view keeps
+    ks0: np.ndarray         # (n, mc) *Ks0 of each column's hydroxide, NaN if none
+    zs: np.ndarray          # (mc,) charge of the free metal ion, 0 if no solid
+    cap: bool               # cap metals at their hydroxide's solubility
+
+    @property
+    def has_solids(self) -> bool:
+        return self.cap and bool(np.any(self.zs > 0))
 
     def take(self, idx) -> "_Rows":
         return replace(self, totals=self.totals[idx], strong=self.strong[idx],
                        strong_i=self.strong_i[idx], co2=self.co2[idx], kw=self.kw[idx],
-                       k=self.k[idx], a=self.a[idx])
+                       k=self.k[idx], a=self.a[idx], ks0=self.ks0[idx])
 
 
-def _restrict(mix: Mixture, const: Constants, extra_cols=()) -> _Rows:
+def _restrict(mix: Mixture, const: Constants, extra_cols=(), *, cap: bool = True) -> _Rows:
     """Keep only the systems with a non-zero total (plus ``extra_cols``)."""
     used = np.any(mix.totals_mol_l != 0.0, axis=0)
     used[list(extra_cols)] = True
@@ -285,15 +326,18 @@ def _restrict(mix: Mixture, const: Constants, extra_cols=()) -> _Rows:
     carb = int(np.searchsorted(cols, CARBONATE)) if used[CARBONATE] else -1
     return _Rows(mix.totals_mol_l[:, cols], mix.strong_eq_l, mix.strong_ionic_strength,
                  mix.co2_air_mol_l, const.kw, const.k[:, cols], const.a, _Z[cols], carb,
-                 mix.davies, cols)
+                 mix.davies, cols, const.ks0[:, cols], _SOLID_Z[cols], cap)
 
 
 def _species(r: _Rows, ah, ionic):
     """Fractions and charge moments of the view's systems, [H+] and [OH-].
 
-    Returns (alpha (n, mc, 4), mean charge (n, mc), mean squared charge
-    (n, mc), [H+] (n,), [OH-] (n,)) at activity ``ah`` and ionic strength
-    ``ionic`` (mixed constants from the Davies equation, or ideal).
+    Returns (alpha (n, mc, 5), mean charge (n, mc), mean squared charge
+    (n, mc), [H+] (n,), [OH-] (n,), solubility (n, mc) or None) at activity
+    ``ah`` and ionic strength ``ionic`` (mixed constants from the Davies
+    equation, or ideal). The solubility is the dissolved total each
+    column's hydroxide allows, [Me z+]/alpha_0 with [Me z+] = *Ks0 {H+}^z /
+    gamma_z (NaN for columns without a solid); None when the view has none.
     """
     if r.davies:
         # Trial pH values far from the root can imply absurd ionic strengths;
@@ -303,24 +347,49 @@ def _species(r: _Rows, ah, ionic):
         kc = r.k * 10.0 ** (lg[:, :, :-1] - lg[:, :, 1:])
         g1 = 10.0 ** davies_log_gamma(1, i_c, r.a)
     else:
-        kc, g1 = r.k, 1.0
+        lg, kc, g1 = None, r.k, 1.0
     alpha = _alpha(ah, kc)
     q = np.einsum("nmk,mk->nm", alpha, r.z)
     m2 = np.einsum("nmk,mk->nm", alpha, r.z * r.z)
-    return alpha, q, m2, ah / g1, r.kw / (ah * g1)
+    sol = None
+    if r.has_solids:
+        log_free = np.log10(r.ks0) + r.zs[None, :] * np.log10(ah)[:, None]
+        if lg is not None:
+            log_free = log_free - lg[:, :, 0]
+        with np.errstate(divide="ignore", over="ignore"):
+            sol = 10.0 ** np.minimum(log_free, 300.0) / alpha[:, :, 0]
+    return alpha, q, m2, ah / g1, r.kw / (ah * g1), sol
 
 
-def _balance(r: _Rows, alpha, q, m2, h, oh):
-    """Totals in effect, charge residual, β and ionic strength of a view."""
+def _capped(r: _Rows, sol, totals) -> np.ndarray | None:
+    """(n, mc) True where a metal total exceeds its hydroxide's solubility."""
+    if sol is None:
+        return None
+    with np.errstate(invalid="ignore"):
+        return (r.zs[None, :] > 0) & (totals > sol)
+
+
+def _balance(r: _Rows, alpha, q, m2, h, oh, sol=None):
+    """Totals in effect, charge residual, β and ionic strength of a view.
+
+    Two kinds of column hold a total fixed by a phase rather than by the
+    water: carbonate open to air (CO2* fixed) and a metal whose hydroxide
+    is present (free ion fixed by *Ks0). For both the total in effect is
+    fixed / alpha_0 and d(T q)/dpH = -ln10 T m2 instead of -ln10 T var.
+    """
     var = m2 - q * q
     totals = r.totals
     opened = np.isfinite(r.co2)
-    if r.carb >= 0 and opened.any():
+    capped = _capped(r, sol, totals)
+    if (r.carb >= 0 and opened.any()) or (capped is not None and capped.any()):
         totals = totals.copy()
-        totals[opened, r.carb] = r.co2[opened] / alpha[opened, r.carb, 0]
-        # Open carbonate: d(T q)/dpH = -ln10 T m2 instead of -ln10 T var.
         var = var.copy()
+    if r.carb >= 0 and opened.any():
+        totals[opened, r.carb] = r.co2[opened] / alpha[opened, r.carb, 0]
         var[opened, r.carb] = m2[opened, r.carb]
+    if capped is not None and capped.any():
+        totals[capped] = sol[capped]
+        var[capped] = m2[capped]
     resid = r.strong + h - oh + (totals * q).sum(-1)
     beta = _LN10 * (h + oh + (totals * var).sum(-1))
     new_i = 0.5 * (h + oh + (totals * m2).sum(-1)) + r.strong_i
@@ -329,8 +398,8 @@ def _balance(r: _Rows, alpha, q, m2, h, oh):
 
 def _rows_state(r: _Rows, ph, ionic):
     """Residual [eq/L], β [eq/(L pH)] and ionic strength [mol/L] at ``ph``."""
-    alpha, q, m2, h, oh = _species(r, 10.0 ** -ph, ionic)
-    return _balance(r, alpha, q, m2, h, oh)[1:]
+    alpha, q, m2, h, oh, sol = _species(r, 10.0 ** -ph, ionic)
+    return _balance(r, alpha, q, m2, h, oh, sol)[1:]
 
 
 def solve_ph(mix: Mixture, *, ph_guess=None, tol_ph: float = 1e-12,
@@ -429,12 +498,16 @@ def _newton(rows: _Rows, ph, ionic, tol_ph, max_iter, update_ionic):
 
 def strong_balance_at_ph(totals_mol_l, ph, temperature_c, *, davies: bool,
                          extra_ionic_strength=0.0, co2_air_mol_l=np.nan,
-                         max_iter: int = 60, unknown_pka=None):
+                         max_iter: int = 60, unknown_pka=None,
+                         known_strong_eq_l=0.0):
     """Strong-ion balance S [eq/L] that puts each water at ``ph`` (direct).
 
-    The strong ions are taken as monovalent for the ionic strength, plus
-    ``extra_ionic_strength`` [mol/L] (e.g. a known neutral salt load). Where
-    the ionic strength does not settle, S is NaN.
+    Every metal is taken as dissolved (the water as sampled). For the ionic
+    strength, ``extra_ionic_strength`` [mol/L] counts the strong ions that
+    are known (measured sodium, chloride ... with their charges, or a known
+    salt load), ``known_strong_eq_l`` [eq/L] is their net charge, and the
+    rest of S, S - known, is taken as monovalent. Where the ionic strength
+    does not settle, S is NaN.
 
     Returns
     -------
@@ -444,13 +517,14 @@ def strong_balance_at_ph(totals_mol_l, ph, temperature_c, *, davies: bool,
     mix = Mixture.build(totals_mol_l, np.zeros_like(ph), extra_ionic_strength,
                         temperature_c, co2_air_mol_l, davies, unknown_pka)
     extra = mix.strong_ionic_strength
+    known = np.broadcast_to(np.asarray(known_strong_eq_l, dtype=float), ph.shape)
     bare = replace(mix, strong_eq_l=np.zeros(mix.n), strong_ionic_strength=np.zeros(mix.n))
-    rows = _restrict(bare, mix.constants())
+    rows = _restrict(bare, mix.constants(), cap=False)
 
     def at(ionic):
         resid, _, i_weak = _rows_state(rows, ph, ionic)
         s = -resid
-        return s, i_weak + extra + 0.5 * np.abs(s)
+        return s, i_weak + extra + 0.5 * np.abs(s - known)
 
     s, i1 = at(extra)
     if not davies:
@@ -463,7 +537,7 @@ def strong_balance_at_ph(totals_mol_l, ph, temperature_c, *, davies: bool,
 def carbonate_for_alkalinity(totals_mol_l, ph, temperature_c, alk_eq_l,
                              endpoint_ph, *, davies: bool,
                              extra_ionic_strength=0.0, max_iter: int = 60,
-                             unknown_pka=None):
+                             unknown_pka=None, ferrous_oxidised: bool = False):
     """Carbonate total [mol/L] that explains a titration to ``endpoint_ph``.
 
     ``alk_eq_l`` is the strong acid [eq/L] taken to titrate the water from
@@ -476,7 +550,11 @@ def carbonate_for_alkalinity(totals_mol_l, ph, temperature_c, alk_eq_l,
     which is linear in the carbonate total. The ionic strength at the end
     point includes the titrant's ions (a monovalent strong acid or base);
     dilution by the titrant is neglected, as in the method's own
-    calculation.
+    calculation. Metals are dissolved at ``ph`` (a filtered sample) and, at
+    the end point, capped at their hydroxide's solubility: the base they
+    take to precipitate is part of an acidity. With ``ferrous_oxidised``
+    (the hot-peroxide acidity of Standard Methods 2310) ferrous iron ends
+    as Fe(OH)3 and counts 2 eq/mol.
 
     Returns
     -------
@@ -496,23 +574,32 @@ def carbonate_for_alkalinity(totals_mol_l, ph, temperature_c, alk_eq_l,
     alk = np.broadcast_to(np.asarray(alk_eq_l, dtype=float), ph.shape)
     extra = np.broadcast_to(np.asarray(extra_ionic_strength, float), ph.shape)
     ep = np.broadcast_to(np.asarray(endpoint_ph, float), ph.shape)
+    fe2 = np.flatnonzero(rows.cols == system_index("iron_ii"))
 
-    def parts(p, i):
-        return _species(rows, 10.0 ** -p, i)[1:]
+    def end_totals(sol_e):
+        t_e = rows.totals.copy()
+        if ferrous_oxidised and fe2.size:
+            t_e[:, fe2] = 0.0
+        capped = _capped(rows, sol_e, t_e)
+        if capped is not None:
+            t_e[capped] = sol_e[capped]
+        return t_e
 
     def solve(ionic, ionic_e):
-        q, m2, h, oh = parts(ph, ionic)
-        qe, m2e, he, ohe = parts(ep, ionic_e)
-        known = (rows.totals * (qe - q)).sum(-1) + (he - ohe) - (h - oh)
+        _, q, m2, h, oh, _ = _species(rows, 10.0 ** -ph, ionic)
+        _, qe, m2e, he, ohe, sol_e = _species(rows, 10.0 ** -ep, ionic_e)
+        t_e = end_totals(sol_e)
+        known = (t_e * qe - rows.totals * q).sum(-1) + (he - ohe) - (h - oh)
         coef = qe[:, car] - q[:, car]
         with np.errstate(divide="ignore", invalid="ignore"):
             c = (alk - known) / coef
         full = rows.totals.copy()
         full[:, car] = np.where(np.isfinite(c), c, 0.0)
+        t_e[:, car] = full[:, car]
         s = -(h - oh + (full * q).sum(-1))
         # Strong ions as monovalent; the titrant (HCl or NaOH) adds |A|/2.
         new_i = 0.5 * (h + oh + (full * m2).sum(-1)) + 0.5 * np.abs(s) + extra
-        new_ie = (0.5 * (he + ohe + (full * m2e).sum(-1)) + 0.5 * np.abs(s)
+        new_ie = (0.5 * (he + ohe + (t_e * m2e).sum(-1)) + 0.5 * np.abs(s)
                   + 0.5 * np.abs(alk) + extra)
         return c, coef, new_i, new_ie
 
@@ -584,67 +671,109 @@ def dose_to_ph(mix: Mixture, reagent: ReagentVector, target_ph,
 
     d = -(S + Σ T_j z̄_j + w) / (s_r + Σ n_j z̄_j + v·w)
 
-    with all fractions taken at the target pH. The ionic strength of the
-    dosed water is iterated to a fixed point for the Davies model.
+    with all fractions taken at the target pH. A metal whose hydroxide is
+    present at the target contributes its solubility there (a concentration
+    in the dosed water, like CO2 held by air) instead of its total, so the
+    equation stays linear; which metals are capped depends on the dose, so
+    that choice is iterated (a few passes at most). The ionic strength of
+    the dosed water is iterated to a fixed point for the Davies model.
 
     Returns
     -------
     (dose_mol_l, slope) : tuple of ndarray
         ``slope`` is the denominator above [eq/mol]: positive for a reagent
         that raises pH at the target, negative for one that lowers it, near
-        zero where the reagent has no grip on pH (e.g. CO2 at low pH). A
-        negative dose means the water is already past the target in the
-        reagent's direction. The caller decides what is reachable.
+        zero where the reagent has no grip on pH (e.g. CO2 at low pH, lime
+        past portlandite saturation). A negative dose means the water is
+        already past the target in the reagent's direction. The caller
+        decides what is reachable.
     """
     tp = np.broadcast_to(np.asarray(target_ph, dtype=float), (mix.n,)).copy()
-    const = mix.constants()
     n_full = np.asarray(reagent.totals_mol, dtype=float)
-    rows = _restrict(mix, const, extra_cols=np.flatnonzero(n_full))
-    n_r = n_full[rows.cols]
-    opened = mix.open_to_air
-    ah = 10.0 ** -tp
-    f_vol = reagent.volume_l
-    car = rows.carb
+    rows = _restrict(mix, mix.constants(), extra_cols=np.flatnonzero(n_full))
+    job = _DoseJob(mix, rows, n_full[rows.cols], reagent, 10.0 ** -tp)
+    capped = np.zeros(rows.totals.shape, dtype=bool)
+    for _ in range(_CAP_PASSES if rows.has_solids else 1):
+        dose, den, sol = job.solve(capped, max_iter)
+        if sol is None:
+            break
+        now = job.capped_after(dose, sol)
+        if np.array_equal(now, capped):
+            break
+        capped = now
+    return dose, den
 
-    def at(ionic):
-        alpha, q, m2, h, oh = _species(rows, ah, ionic)
+
+#: Passes over the choice of capped metals in :func:`dose_to_ph`; one more
+#: than the longest chain seen (metal from the reagent itself, e.g. lime).
+_CAP_PASSES = 5
+
+
+@dataclass(frozen=True)
+class _DoseJob:
+    """The fixed parts of one :func:`dose_to_ph` call."""
+
+    mix: Mixture
+    rows: _Rows
+    n_r: np.ndarray          # (mc,) reagent moles per column
+    reagent: ReagentVector
+    ah: np.ndarray           # (n,) target activity of H+
+
+    def given(self, dose):
+        """Dose as given to the water: a negative or missing dose is none."""
+        return np.where(np.isfinite(dose), np.maximum(dose, 0.0), 0.0)
+
+    def capped_after(self, dose, sol):
+        """Metals whose diluted total after ``dose`` exceeds their solubility."""
+        g = self.given(dose)
+        f = 1.0 / (1.0 + g * self.reagent.volume_l)
+        after = f[:, None] * (self.rows.totals + g[:, None] * self.n_r[None, :])
+        return _capped(self.rows, sol, after) & (after > 0)
+
+    def at(self, ionic, capped):
+        """Dose, slope, new ionic strength and solubilities at ``ionic``."""
+        rows, mix, v = self.rows, self.mix, self.reagent.volume_l
+        alpha, q, m2, h, oh, sol = _species(rows, self.ah, ionic)
         w = h - oh
         tot = rows.totals
-        nr = np.broadcast_to(n_r, tot.shape)
-        c_air = None
-        if car >= 0 and opened.any():
-            tot = tot.copy()
-            nr = nr.copy()
-            c_air = mix.co2_air_mol_l[opened] / alpha[opened, car, 0]
-            w = w.copy()
-            w[opened] += c_air * q[opened, car]
-            tot[opened, car] = 0.0
-            nr[opened, car] = 0.0
+        nr = np.broadcast_to(self.n_r, tot.shape)
+        fixed = np.zeros(tot.shape, dtype=bool)
+        held = np.zeros(tot.shape)        # concentrations fixed by a phase
+        opened = mix.open_to_air
+        if rows.carb >= 0 and opened.any():
+            fixed[opened, rows.carb] = True
+            held[opened, rows.carb] = mix.co2_air_mol_l[opened] / alpha[opened, rows.carb, 0]
+        if capped.any():
+            fixed |= capped
+            held[capped] = sol[capped]
+        if fixed.any():
+            w = w + (held * q).sum(-1)
+            tot = np.where(fixed, 0.0, tot)
+            nr = np.where(fixed, 0.0, nr)
         num = mix.strong_eq_l + (tot * q).sum(-1) + w
-        den = reagent.strong_eq + (nr * q).sum(-1) + f_vol * w
+        den = self.reagent.strong_eq + (nr * q).sum(-1) + v * w
         with np.errstate(divide="ignore", invalid="ignore"):
             dose = -num / den
         if not mix.davies:
-            return dose, den, None
-        # A negative dose cannot be given; its ionic strength is that of no dose.
-        given = np.where(np.isfinite(dose), np.maximum(dose, 0.0), 0.0)
-        f = 1.0 / (1.0 + given * f_vol)
-        tot_after = f[:, None] * (rows.totals + given[:, None] * n_r[None, :])
-        if c_air is not None:
-            tot_after[opened, car] = c_air
-        strong_i = f * (mix.strong_ionic_strength + given * reagent.ionic_strength)
+            return dose, den, None, sol
+        g = self.given(dose)
+        f = 1.0 / (1.0 + g * v)
+        tot_after = np.where(fixed, held, f[:, None] * (rows.totals + g[:, None] * self.n_r))
+        strong_i = f * (mix.strong_ionic_strength + g * self.reagent.ionic_strength)
         new_i = 0.5 * (h + oh + (tot_after * m2).sum(-1)) + strong_i
-        return dose, den, new_i
+        return dose, den, new_i, sol
 
-    ionic = mix.strong_ionic_strength.copy()
-    dose, den, new_i = at(ionic)
-    if not mix.davies:
-        return dose, den
-    ionic = _settle(lambda i: at(i)[2], ionic, new_i, max_iter)
-    dose, den, _ = at(np.where(np.isfinite(ionic), ionic, 0.0))
-    # Waters whose ionic strength does not settle (a dose without bound,
-    # where the reagent has no grip) get no number.
-    return np.where(np.isfinite(ionic), dose, np.nan), den
+    def solve(self, capped, max_iter):
+        """(dose, slope, solubilities) with the capped metals given."""
+        ionic = self.mix.strong_ionic_strength.copy()
+        dose, den, new_i, sol = self.at(ionic, capped)
+        if not self.mix.davies:
+            return dose, den, sol
+        ionic = _settle(lambda i: self.at(i, capped)[2], ionic, new_i, max_iter)
+        dose, den, _, sol = self.at(np.where(np.isfinite(ionic), ionic, 0.0), capped)
+        # Waters whose ionic strength does not settle (a dose without bound,
+        # where the reagent has no grip) get no number.
+        return np.where(np.isfinite(ionic), dose, np.nan), den, sol
 
 
 #: Ionic strength above which a fixed point is abandoned [mol/L].

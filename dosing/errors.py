@@ -15,6 +15,8 @@ __all__ = [
     "UnreachableError",
     "ModelError",
     "ScenarioError",
+    "ShiftLogError",
+    "UsageError",
 ]
 
 
@@ -37,6 +39,10 @@ class InputError(DosingError, ValueError):
         self.field = field
         self.reason = message
         super().__init__(f"{field}: {message}")
+
+    def __reduce__(self):
+        # Rebuilt from its fields, so it crosses process boundaries (pickle).
+        return (type(self), (self.field, self.reason))
 
 
 class UnreachableError(DosingError, ValueError):
@@ -66,3 +72,30 @@ class ScenarioError(DosingError, ValueError):
         self.reason = message
         where = f"{path}: {key}" if key else f"{path}"
         super().__init__(f"{where}: {message}")
+
+    def __reduce__(self):
+        return (type(self), (self.path, self.key, self.reason))
+
+
+class ShiftLogError(DosingError, ValueError):
+    """The log file is unusable, or a request names something not in it."""
+
+
+class UsageError(DosingError, ValueError):
+    """A command-line option has a value the command cannot use.
+
+    Parameters
+    ----------
+    option : str
+        The option as typed (``--chunk-rows``).
+    message : str
+        What is wrong and what is allowed.
+    """
+
+    def __init__(self, option: str, message: str):
+        self.option = option
+        self.reason = message
+        super().__init__(f"{option}: {message}")
+
+    def __reduce__(self):
+        return (type(self), (self.option, self.reason))

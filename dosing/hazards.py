@@ -47,9 +47,10 @@ from .numbers import fmt
 from .equilibrium import CARBONATE, Speciation, co2_in_air_mol_l, system_index
 from .reagents import Reagent
 from .species import MOLAR_MASS, SYSTEMS
-from .water import calcite_pksp, density
+from .water import R_J_MOL_K, calcite_pksp, density
 
-__all__ = ["Check", "assess", "reaction_heat_kj_l", "DH_WATER_KJ_MOL"]
+__all__ = ["Check", "assess", "reaction_heat_kj_l", "DH_WATER_KJ_MOL", "gypsum_si",
+           "ION_PERMIT_KEYS", "GYPSUM_LOG_KSP"]
 
 #: Enthalpy of water ionisation at 25 °C [kJ/mol] (Olofsson & Hepler 1975).
 DH_WATER_KJ_MOL = 55.8
@@ -80,11 +81,14 @@ CO2_OFFGAS_NOTE_MMOL_L = 1.0
 #: Excess CO2 at which fizzing and foam are expected [mmol/L] (common
 #: practice: about 220 mg/L of CO2).
 CO2_FOAM_MMOL_L = 5.0
-_R = 0.082057  # L atm / (K mol), CODATA
+#: Molar gas constant in L atm/(K mol), from R [J/(mol K)] and 1 atm = 101 325 Pa.
+R_L_ATM = R_J_MOL_K / 101.325
+#: Permit keys on ions and dissolved solids (metal caps are in dosing.solids).
+ION_PERMIT_KEYS = ("sodium_mg_l", "calcium_mg_l", "sulfate_mg_l", "chloride_mg_l",
+                   "magnesium_mg_l", "tds_increase_mg_l")
 #: Strong ions a dose can add, by formula, with the names used for the
 #: background ions of an effluent (dosing.effluent.BACKGROUND_IONS).
 _ION_NAMES = {formula: name for name, formula in BACKGROUND_IONS.items()} | {"SO4": "sulfate"}
-_GAS_MOLAR_MASS = {"H2S": 34.08, "NH3": 17.031, "HCN": 27.025}  # g/mol, IUPAC
 
 # Henry's constants at 25 °C [mol/(kg atm)] and d ln KH / d(1/T) [K]
 # (Sander 2015; from memory), and NIOSH IDLH [ppm] (from memory).
@@ -151,13 +155,23 @@ def assess(water: Water, reagent: Reagent, dose_mol_l: float, before: Speciation
 
     ``before`` and ``after`` are the speciation of the water before and after
     the dose; ``batch_litres`` is the water a batch (or an hour of flow)
-    holds, for moles and litres of gas.
+    holds, for moles and litres of gas. ``permit`` caps on metals are
+    checked by :mod:`dosing.solids`, not here.
     """
-    checks: list[Check] = []
+    f = 1.0 / (1.0 + dose_mol_l * (reagent.litres_product_per_mol or 0.0))
+    added = {ion: n * dose_mol_l * f * MOLAR_MASS[ion] * 1000.0
+             for ion, n in reagent.compound.ions.items()}
+    after_mg = _after_mg_l(water, added, after, f)
+    return (_heat_checks(water, reagent, dose_mol_l, before, after)
+            + _gas_checks(water, after, batch_litres)
+            + _discharge_checks(reagent, dose_mol_l, f, added, after, after_mg, permit)
+            + _scale_checks(water, after, after_mg))
+
+
+def _heat_checks(water: Water, reagent: Reagent, d: float, before: Speciation,
+                 after: Speciation) -> tuple[Check, ...]:
+    """Temperature rise of the batch, and local boiling of strong product."""
     t = water.temperature_c
-    ph_after = float(after.ph[0])
-    d = dose_mol_l
-    # ---------------------------------------------------------------- heat
     q_rx, water_formed = reaction_heat_kj_l(before, after, reagent, d, t)
     q_dil = 0.0 if reagent.dilution_heat_kj_mol is None else -reagent.dilution_heat_kj_mol * d
     rho = float(density(t)) / 1000.0
@@ -177,7 +191,7 @@ def assess(water: Water, reagent: Reagent, dose_mol_l: float, before: Speciation
     elif t + rise > DISCHARGE_TEMP_WARN_C:
         msg += (f"; the water is near {t + rise:.0f} °C already: permits often cap the "
                 f"discharge temperature near {DISCHARGE_TEMP_WARN_C:g} °C")
-    checks.append(Check("heat", level, msg, values))
+    checks = [Check("heat", level, msg, values)]
     if reagent.dilution_heat_kj_mol is not None and reagent.kg_product_per_mol:
         per_kg = -reagent.dilution_heat_kj_mol / reagent.kg_product_per_mol
         if per_kg > LOCAL_BOIL_KJ_KG:
@@ -187,13 +201,19 @@ def assess(water: Water, reagent: Reagent, dose_mol_l: float, before: Speciation
                 "it meets a little water (a dry dosing point, a splash, a wet drum) it "
                 "can boil and spit. Dose below the surface into strong mixing; never add "
                 "water to the product.", {"dilution_heat_kj_per_kg_product": per_kg}))
-    # ----------------------------------------------------------------- gas
+    return tuple(checks)
+
+
+def _gas_checks(water: Water, after: Speciation, batch_litres: float) -> tuple[Check, ...]:
+    """CO2 off-gas, and toxic gases formed at the final pH."""
+    checks = []
+    t = water.temperature_c
     co2_star = float(after.concentration(CARBONATE, 0)[0])
-    co2_air = float(co2_in_air_mol_l(t, 420e-6))
+    co2_air = float(co2_in_air_mol_l(t, water.pco2_atm))
     excess = co2_star - co2_air
     if excess * 1000 > CO2_OFFGAS_NOTE_MMOL_L and not water.open_to_air:
         mol = excess * batch_litres
-        gas_l = mol * _R * (t + 273.15)
+        gas_l = mol * R_L_ATM * (t + 273.15)
         level = "warning" if excess * 1000 > CO2_FOAM_MMOL_L else "info"
         checks.append(Check(
             "co2", level,
@@ -203,42 +223,46 @@ def assess(water: Water, reagent: Reagent, dose_mol_l: float, before: Speciation
                if level == "warning" else " as it stands open"),
             {"co2_excess_mmol_l": excess * 1000, "co2_gas_litres": gas_l,
              "co2_mol": mol}))
-    for sid, (gas, _, _, idlh) in _GASES.items():
-        j = system_index(sid)
-        total = float(after.totals_mol_l[0, j])
-        if total <= 0.0:
-            continue
-        if sid == "ammonia":
-            frac = float(after.alpha[0, j, 1])
-            conc = total * frac
-            if ph_after <= NH3_PH:
-                continue
-        else:
-            frac = float(after.alpha[0, j, 0])
-            conc = total * frac
-            if sid == "sulfide" and ph_after >= H2S_PH:
-                continue
-            if sid == "cyanide" and frac < 0.1:
-                continue
-        ppm = conc / _henry(sid, t) * 1e6
-        mg = conc * _GAS_MOLAR_MASS[gas] * 1000
-        level = "danger" if (sid != "ammonia" or ppm > idlh) else "warning"
-        what = {"sulfide": "toxic hydrogen sulfide", "cyanide": "deadly hydrogen cyanide",
-                "ammonia": "ammonia (odour, irritant)"}[sid]
-        checks.append(Check(
-            sid, level,
-            f"at pH {ph_after:.2f} {frac:.0%} of the {sid} is {gas} ({fmt(mg)} mg/L): "
-            f"{what} gas; air in contact with the water could reach about {ppm:,.0f} ppm "
-            f"(IDLH {idlh:g} ppm). "
-            + ("Do not acidify this waste in the open: closed tank, gas detection, "
-               "scrubbed vent, or oxidise first." if sid != "ammonia" else
-               "Keep covered and ventilated, or strip under control."),
-            {"fraction_as_gas_former": frac, "mg_per_l": mg, "headspace_ppm": ppm}))
-    # --------------------------------------------------------- discharge ions
-    f = 1.0 / (1.0 + d * (reagent.litres_product_per_mol or 0.0))
-    added = {}
-    for ion, n in reagent.compound.ions.items():
-        added[ion] = n * d * f * MOLAR_MASS[ion] * 1000.0
+    for sid in _GASES:
+        check = _toxic_gas_check(sid, after, t)
+        if check is not None:
+            checks.append(check)
+    return tuple(checks)
+
+
+def _toxic_gas_check(sid: str, after: Speciation, t: float) -> Check | None:
+    """H2S, HCN or NH3 from the dosed water, or None when not a concern."""
+    gas, _, _, idlh = _GASES[sid]
+    ph_after = float(after.ph[0])
+    j = system_index(sid)
+    total = float(after.totals_mol_l[0, j])
+    if total <= 0.0:
+        return None
+    form = 1 if sid == "ammonia" else 0
+    frac = float(after.alpha[0, j, form])
+    if ((sid == "ammonia" and ph_after <= NH3_PH) or (sid == "sulfide" and ph_after >= H2S_PH)
+            or (sid == "cyanide" and frac < 0.1)):
+        return None
+    conc = total * frac
+    ppm = conc / _henry(sid, t) * 1e6
+    mg = conc * MOLAR_MASS[gas] * 1000
+    level = "danger" if (sid != "ammonia" or ppm > idlh) else "warning"
+    what = {"sulfide": "toxic hydrogen sulfide", "cyanide": "deadly hydrogen cyanide",
+            "ammonia": "ammonia (odour, irritant)"}[sid]
+    return Check(
+        sid, level,
+        f"at pH {ph_after:.2f} {frac:.0%} of the {sid} is {gas} ({fmt(mg)} mg/L): "
+        f"{what} gas; air in contact with the water could reach about {ppm:,.0f} ppm "
+        f"(IDLH {idlh:g} ppm). "
+        + ("Do not acidify this waste in the open: closed tank, gas detection, "
+           "scrubbed vent, or oxidise first." if sid != "ammonia" else
+           "Keep covered and ventilated, or strip under control."),
+        {"fraction_as_gas_former": frac, "mg_per_l": mg, "headspace_ppm": ppm})
+
+
+def _discharge_checks(reagent: Reagent, d: float, f: float, added: Mapping[str, float],
+                      after: Speciation, after_mg, permit) -> tuple[Check, ...]:
+    """Ions and dissolved solids the dose adds, and the permit's ion caps."""
     names = _ION_NAMES
     tds = sum(added.values())
     if "carbonate" in reagent.compound.adds and reagent.raises_ph:
@@ -249,11 +273,12 @@ def assess(water: Water, reagent: Reagent, dose_mol_l: float, before: Speciation
     values = {f"{names[k]}_added_mg_l": v for k, v in added.items()}
     values["tds_increase_mg_l"] = tds
     parts = [f"{names[k]} +{fmt(v)} mg/L" for k, v in added.items()]
-    checks.append(Check("discharge", "info",
-                        "the dose adds " + (", ".join(parts) if parts else "no strong ions")
-                        + f"; dissolved solids rise by about {fmt(tds)} mg/L", values))
-    after_mg = _after_mg_l(water, added, after, f)
+    checks = [Check("discharge", "info",
+                    "the dose adds " + (", ".join(parts) if parts else "no strong ions")
+                    + f"; dissolved solids rise by about {fmt(tds)} mg/L", values)]
     for key, cap in (permit or {}).items():
+        if key not in ION_PERMIT_KEYS:
+            continue
         if key == "tds_increase_mg_l":
             value, basis = tds, "increase from the dose"
         else:
@@ -268,10 +293,17 @@ def assess(water: Water, reagent: Reagent, dose_mol_l: float, before: Speciation
             f"{fmt(value)} mg/L ({basis})" + (" - EXCEEDS THE CAP" if value > cap else
                                             " - within the cap"),
             {"value_mg_l": value, "cap_mg_l": cap}))
-    # ------------------------------------------------------------------ scale
-    ca_mg = after_mg.get("calcium", (None, ""))[0]
-    if ca_mg is not None and ca_mg > 0 and float(after.totals_mol_l[0, CARBONATE]) > 0:
-        si = _calcite_si(ca_mg / 1000.0 / MOLAR_MASS["Ca"], after, t, water.davies)
+    return tuple(checks)
+
+
+def _scale_checks(water: Water, after: Speciation, after_mg) -> tuple[Check, ...]:
+    """Calcite and gypsum saturation of the dosed water."""
+    checks = []
+    t = water.temperature_c
+    ca_free = _free_calcium_mol_l(after)
+    ca_mg = ca_free * MOLAR_MASS["Ca"] * 1000.0
+    if ca_free > 0 and float(after.totals_mol_l[0, CARBONATE]) > 0:
+        si = _calcite_si(ca_free, after, t, water.davies)
         level = "warning" if si > CALCITE_SI_WARN else "info"
         checks.append(Check(
             "calcite", level,
@@ -282,11 +314,8 @@ def assess(water: Water, reagent: Reagent, dose_mol_l: float, before: Speciation
                      else ": slightly over saturation")),
             {"calcite_si": si, "calcium_mg_l": ca_mg}))
     so4_total = float(after.totals_mol_l[0, system_index("sulfate")])
-    if ca_mg is not None and ca_mg > 0 and so4_total > 0:
-        lg2 = _log_gamma2(after, t, water.davies)
-        so4 = so4_total * float(after.alpha[0, system_index("sulfate"), 1])
-        si = (math.log10(ca_mg / 1000.0 / MOLAR_MASS["Ca"] * so4) + 2 * lg2
-              - GYPSUM_LOG_KSP)
+    if ca_free > 0 and so4_total > 0:
+        si = gypsum_si(after, t, water.davies)
         level = "warning" if si > 0 else "info"
         checks.append(Check(
             "gypsum", level,
@@ -298,16 +327,36 @@ def assess(water: Water, reagent: Reagent, dose_mol_l: float, before: Speciation
     return tuple(checks)
 
 
+def _free_calcium_mol_l(sp: Speciation) -> float:
+    """Free Ca2+ of the first water of ``sp`` [mol/L]."""
+    j = system_index("calcium")
+    return float(sp.totals_mol_l[0, j] * sp.alpha[0, j, 0])
+
+
+def gypsum_si(sp: Speciation, temperature_c: float, davies: bool) -> float:
+    """Gypsum saturation index log10(a_Ca a_SO4 / Ksp) of the first water [-]."""
+    ca = _free_calcium_mol_l(sp)
+    so4 = sp.concentration(system_index("sulfate"), 1)[0]
+    if ca <= 0 or so4 <= 0:
+        return -math.inf
+    return (math.log10(ca * float(so4)) + 2 * _log_gamma2(sp, temperature_c, davies)
+            - GYPSUM_LOG_KSP)
+
+
 def _after_mg_l(water: Water, added: Mapping[str, float], after: Speciation,
                 f: float) -> dict[str, tuple[float, str]]:
     """Concentration after dosing of each ion a permit may cap [mg/L]."""
     out: dict[str, tuple[float, str]] = {}
     for ion, mg in added.items():
-        if ion != "SO4":      # sulfate is a weak-acid total, counted below
+        if ion not in ("SO4", "Ca", "Mg"):   # weak-acid or metal totals, counted below
             out[_ION_NAMES[ion]] = (mg, "added by the dose; background not given")
     for name, mg in water.ions_mg_l.items():
         prev = out.get(name, (0.0, ""))[0]
         out[name] = (prev + mg * f, "background plus dose")
+    for name, formula in (("calcium", "Ca"), ("magnesium", "Mg")):
+        mol = float(after.totals_mol_l[0, system_index(name)])
+        if mol > 0 or formula in added:
+            out[name] = (mol * MOLAR_MASS[formula] * 1000, "dissolved after the dose")
     s = float(after.totals_mol_l[0, system_index("sulfate")]) * MOLAR_MASS["SO4"] * 1000
     if s > 0 or "SO4" in added:
         out["sulfate"] = (s, "water plus dose")

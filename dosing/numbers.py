@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import math
 
-__all__ = ["fmt"]
+__all__ = ["fmt", "require_finite", "to_json"]
 
 
 def fmt(x: float | None, digits: int = 3) -> str:
@@ -24,3 +24,45 @@ def fmt(x: float | None, digits: int = 3) -> str:
     mag = math.floor(math.log10(abs(x)))
     decimals = max(0, digits - 1 - mag)
     return f"{x:,.{decimals}f}"
+
+
+def require_finite(data, where: str = "output"):
+    """Return ``data`` unchanged, or raise if any number in it is NaN or infinite.
+
+    Every output (sheet, JSON, log record) passes through here: a number the
+    model could not produce is an error, never printed.
+
+    Raises
+    ------
+    ModelError
+        Naming the first key that holds a non-finite number.
+    """
+    from .errors import ModelError
+    bad = _first_non_finite(data, where)
+    if bad is not None:
+        raise ModelError(f"{bad} could not be computed (the result is not a finite "
+                         "number); check the inputs that set it")
+    return data
+
+
+def _first_non_finite(x, path: str):
+    if isinstance(x, float):
+        return None if math.isfinite(x) else path
+    if isinstance(x, dict):
+        for k, v in x.items():
+            hit = _first_non_finite(v, f"{path}.{k}")
+            if hit:
+                return hit
+    elif isinstance(x, (list, tuple)):
+        for i, v in enumerate(x):
+            hit = _first_non_finite(v, f"{path}[{i}]")
+            if hit:
+                return hit
+    return None
+
+
+def to_json(data) -> str:
+    """Indented JSON of ``data`` after :func:`require_finite` (never NaN/Infinity)."""
+    import json
+    return json.dumps(require_finite(data, "result"), indent=2, ensure_ascii=False,
+                      allow_nan=False, default=str) + "\n"

@@ -82,9 +82,9 @@ class Batch:
 
     def __post_init__(self):
         if not (isinstance(self.volume_m3, (int, float)) and math.isfinite(self.volume_m3)
-                and 0 < self.volume_m3 <= 1e6):
+                and 1e-3 <= self.volume_m3 <= 1e6):
             raise InputError("batch.volume_m3", f"{self.volume_m3!r}; allowed: "
-                             "above 0 and up to 1,000,000 m3")
+                             "above 0 (at least 0.001 m3, one litre) and up to 1,000,000 m3")
 
     @property
     def litres(self) -> float:
@@ -100,9 +100,9 @@ class Flow:
 
     def __post_init__(self):
         if not (isinstance(self.m3_per_h, (int, float)) and math.isfinite(self.m3_per_h)
-                and 0 < self.m3_per_h <= 1e5):
+                and 1e-3 <= self.m3_per_h <= 1e5):
             raise InputError("flow.m3_per_h", f"{self.m3_per_h!r}; allowed: "
-                             "above 0 and up to 100,000 m3/h")
+                             "above 0 (at least 0.001 m3/h, one litre an hour) and up to 100,000 m3/h")
 
     @property
     def litres(self) -> float:

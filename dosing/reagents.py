@@ -90,22 +90,36 @@ class Compound:
         return ReagentVector(v, self.strong_eq, self.ionic_strength, litres_per_mol)
 
 
-def _c(formula, strong_eq, adds, ions, ionic, raises, enters=None, oh=0.0, h=0.0):
-    return Compound(formula, MOLAR_MASS[formula], strong_eq, adds, ions, ionic, raises,
-                    enters or {}, oh, h)
+def _c(formula: str, strong_eq: float, ions: Mapping[str, float], ionic_strength: float,
+       raises_ph: bool, *, adds: Mapping[str, float] | None = None,
+       enters_as: Mapping[str, int] | None = None, oh: float = 0.0,
+       h: float = 0.0) -> Compound:
+    return Compound(formula=formula, molar_mass_g_mol=MOLAR_MASS[formula],
+                    strong_eq=strong_eq, adds=adds or {}, ions=ions,
+                    ionic_strength=ionic_strength, raises_ph=raises_ph,
+                    enters_as=enters_as or {}, oh_added=oh, h_added=h)
 
 
-#: Active compounds the planner can dose.
+#: Active compounds the planner can dose. Calcium and magnesium enter as
+#: metals (their hydroxides, gypsum and the lime ceiling follow from the
+#: metal catalogue); sodium, potassium, chloride and nitrate as strong ions.
 COMPOUNDS: dict[str, Compound] = {c.formula: c for c in (
-    _c("NaOH", 1.0, {}, {"Na": 1.0}, 0.5, True, oh=1.0),
-    _c("KOH", 1.0, {}, {"K": 1.0}, 0.5, True, oh=1.0),
-    _c("Ca(OH)2", 2.0, {}, {"Ca": 1.0}, 2.0, True, oh=2.0),
-    _c("Na2CO3", 2.0, {"carbonate": 1.0}, {"Na": 2.0}, 1.0, True, {"carbonate": 2}),
-    _c("NaHCO3", 1.0, {"carbonate": 1.0}, {"Na": 1.0}, 0.5, True, {"carbonate": 1}),
-    _c("H2SO4", 0.0, {"sulfate": 1.0}, {"SO4": 1.0}, 0.0, False, {"sulfate": 0}, h=1.0),
-    _c("HCl", -1.0, {}, {"Cl": 1.0}, 0.5, False, h=1.0),
-    _c("HNO3", -1.0, {}, {"NO3": 1.0}, 0.5, False, h=1.0),
-    _c("CO2", 0.0, {"carbonate": 1.0}, {}, 0.0, False, {"carbonate": 0}),
+    _c("NaOH", 1.0, {"Na": 1.0}, 0.5, True, oh=1.0),
+    _c("KOH", 1.0, {"K": 1.0}, 0.5, True, oh=1.0),
+    _c("Ca(OH)2", 0.0, {"Ca": 1.0}, 0.0, True, adds={"calcium": 1.0}, oh=2.0),
+    _c("CaO", 0.0, {"Ca": 1.0}, 0.0, True, adds={"calcium": 1.0}, oh=2.0),
+    _c("Mg(OH)2", 0.0, {"Mg": 1.0}, 0.0, True, adds={"magnesium": 1.0}, oh=2.0),
+    _c("CaCO3", 0.0, {"Ca": 1.0}, 0.0, True, adds={"calcium": 1.0, "carbonate": 1.0},
+       enters_as={"carbonate": 2}),
+    _c("Na2CO3", 2.0, {"Na": 2.0}, 1.0, True, adds={"carbonate": 1.0},
+       enters_as={"carbonate": 2}),
+    _c("NaHCO3", 1.0, {"Na": 1.0}, 0.5, True, adds={"carbonate": 1.0},
+       enters_as={"carbonate": 1}),
+    _c("H2SO4", 0.0, {"SO4": 1.0}, 0.0, False, adds={"sulfate": 1.0},
+       enters_as={"sulfate": 0}, h=1.0),
+    _c("HCl", -1.0, {"Cl": 1.0}, 0.5, False, h=1.0),
+    _c("HNO3", -1.0, {"NO3": 1.0}, 0.5, False, h=1.0),
+    _c("CO2", 0.0, {}, 0.0, False, adds={"carbonate": 1.0}, enters_as={"carbonate": 0}),
 )}
 
 _CAUSTIC = ("Caustic burns skin and eyes on contact: face shield, "

@@ -71,6 +71,10 @@ _SCHEMA: dict[str, dict[str, tuple]] = {
               "pco2_uatm": ((int, float), False)},
     "permit": {k: ((int, float), False) for k in PERMIT_KEYS},
 }
+#: Plant figures with their largest believable value (common practice: far
+#: above any real plant, low enough that no total or cost overflows).
+_REAGENT_EXTRAS = (("price_per_kg", 1e6, "per kg"), ("storage_m3", 1e6, "m3"),
+                   ("storage_kg", 1e9, "kg"))
 _TOP = {"title": (str,), "site": (str,), "tank": (str,)}
 _SECTIONS_REQUIRED = ("effluent", "target", "reagent")
 
@@ -122,6 +126,15 @@ def _is_number(v) -> bool:
     return isinstance(v, (int, float)) and not isinstance(v, bool)
 
 
+def _finite(v) -> bool:
+    """True for a number a float can hold and that is finite (TOML integers
+    may be far larger than any float)."""
+    try:
+        return math.isfinite(float(v))
+    except OverflowError:
+        return False
+
+
 def _check_types(path: str, data: Mapping[str, Any]) -> None:
     for key, value in data.items():
         if key in _TOP:
@@ -144,8 +157,9 @@ def _check_types(path: str, data: Mapping[str, Any]) -> None:
                 want = {(int, float): "a number", (str,): "text in quotes",
                         (bool,): "true or false", (dict,): "a table"}[types]
                 raise ScenarioError(path, where, f"expected {want}, got {v!r}")
-            if _is_number(v) and not math.isfinite(v):
-                raise ScenarioError(path, where, f"expected a finite number, got {v!r}")
+            if _is_number(v) and not _finite(v):
+                raise ScenarioError(path, where, "expected a finite number of "
+                                    "ordinary size, got " + _short(v))
         for sub, (_, required) in schema.items():
             if required and sub not in value:
                 raise ScenarioError(path, f"{key}.{sub}", "missing; this key is required")
@@ -165,8 +179,14 @@ def _check_types(path: str, data: Mapping[str, Any]) -> None:
                 raise ScenarioError(path, where, "unknown "
                                     + ("ion" if table == "ions_mg_l" else "solute")
                                     + "; allowed: " + ", ".join(allowed))
-            if not _is_number(v) or not math.isfinite(v):
-                raise ScenarioError(path, where, f"expected a number, got {v!r}")
+            if not _is_number(v) or not _finite(v):
+                raise ScenarioError(path, where, f"expected a finite number, got {_short(v)}")
+
+
+def _short(v) -> str:
+    """A value as the user wrote it, cut to one readable line."""
+    text = repr(v)
+    return text if len(text) <= 40 else text[:20] + "..." + text[-8:]
 
 
 def _where(field_name: str) -> str:
@@ -233,9 +253,10 @@ def build_scenario(data: Mapping[str, Any], path: str = "<scenario>") -> Scenari
         basis = (Batch(float(data["batch"]["volume_m3"])) if "batch" in data
                  else Flow(float(data["flow"]["m3_per_h"])))
         reagent = _reagent(r)
-        for key in ("price_per_kg", "storage_m3", "storage_kg"):
-            if key in r and not r[key] > 0:
-                raise InputError(f"reagent.{key}", f"{r[key]:g}; allowed: above 0")
+        for key, top, unit in _REAGENT_EXTRAS:
+            if key in r and not 0 < r[key] <= top:
+                raise InputError(f"reagent.{key}", f"{r[key]:g}; allowed: above 0 "
+                                 f"and up to {top:,.0f} {unit}")
         if "storage_m3" in r and reagent.form != "liquid":
             raise InputError("reagent.storage_m3", "storage by volume is for a "
                              "solution; give storage_kg for a solid or a gas")
@@ -262,10 +283,15 @@ def build_scenario(data: Mapping[str, Any], path: str = "<scenario>") -> Scenari
 
 def parse_scenario(text: str, path: str = "<scenario>") -> Scenario:
     """Parse TOML text into a :class:`Scenario`."""
+    # A byte-order mark from a Windows editor is not part of the TOML.
+    text = text.removeprefix("\ufeff")
     try:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as err:
         raise ScenarioError(path, "", f"not valid TOML ({err})") from None
+    except RecursionError:
+        raise ScenarioError(path, "", "nested too deeply to be a scenario (tables "
+                            "inside tables, hundreds of levels)") from None
     return build_scenario(data, path)
 
 
@@ -273,6 +299,9 @@ def load_scenario(path: str | Path) -> Scenario:
     """Read and validate a scenario file."""
     p = Path(path)
     try:
+        if p.exists() and not p.is_dir() and not p.is_file():
+            raise ScenarioError(str(path), "", "is not a regular file (a pipe or a "
+                                "device); give a scenario file")
         text = p.read_text(encoding="utf-8")
     except FileNotFoundError:
         raise ScenarioError(str(path), "", "no such file") from None

@@ -29,7 +29,7 @@ from datetime import datetime, timezone
 from pathlib import Path
 from typing import Any, Iterator
 
-from .errors import DosingError, InputError
+from .errors import InputError, ShiftLogError
 
 __all__ = ["ShiftLogError", "Entry", "ShiftLog", "default_log_path", "SCHEMA_VERSION",
            "MIGRATIONS", "ENV_VAR", "parse_since"]
@@ -73,10 +73,6 @@ BEGIN SELECT RAISE(ABORT, 'the shift log is append-only: entries are never delet
 
 #: (version reached, SQL script) in order. The next schema adds a row here.
 MIGRATIONS: tuple[tuple[int, str], ...] = ((1, _V1),)
-
-
-class ShiftLogError(DosingError, ValueError):
-    """The log file is unusable, or a request names something not in it."""
 
 
 def default_log_path() -> Path:

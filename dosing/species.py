@@ -63,6 +63,9 @@ MOLAR_MASS = {
     "Na": _AW["Na"], "Ca": _AW["Ca"], "Cl": _AW["Cl"], "K": _AW["K"], "Mg": _AW["Mg"],
     "SO4": _mm(S=1, O=4), "NO3": _mm(N=1, O=3),
     "H2O": _mm(H=2, O=1),
+    "H2S": _mm(H=2, S=1), "NH3": _mm(N=1, H=3), "HCN": _mm(H=1, C=1, N=1),
+    "Mg(OH)2": _mm(Mg=1, O=2, H=2), "CaO": _mm(Ca=1, O=1),
+    "CaSO4·2H2O": _mm(Ca=1, S=1, O=6, H=4),
 }
 
 
@@ -128,9 +131,10 @@ SYSTEMS: tuple[AcidSystem, ...] = (
                "enthalpies (from memory). The first step of H2SO4 is taken "
                "as complete."),
     AcidSystem("acetate", "acetate", "CH3COOH",
-               (4.756,), (0.41,), 0, "CH3COO", _mm(C=2, H=3, O=2),
-               "pKa 4.756 and enthalpy +0.41 kJ/mol [G2002] (from memory); "
-               "CRC 4.76."),
+               (4.756,), (-0.41,), 0, "CH3COO", _mm(C=2, H=3, O=2),
+               "pKa 4.756 and enthalpy -0.41 kJ/mol [G2002] (from memory; "
+               "the ionisation is very slightly exothermic at 25 °C, which is "
+               "why Ka peaks near room temperature); CRC 4.76."),
     AcidSystem("formate", "formate", "HCOOH",
                (3.75,), (-0.1,), 0, "HCOO", _mm(C=1, H=1, O=2),
                "pKa 3.75 [CRC]; enthalpy -0.1 kJ/mol from [NBS] (from "
@@ -145,9 +149,13 @@ SYSTEMS: tuple[AcidSystem, ...] = (
                "pKa 9.245 and enthalpy +51.95 kJ/mol [G2002] (from memory); "
                "CRC 9.25."),
     AcidSystem("sulfide", "sulfide (H2S/HS-)", "H2S",
-               (7.05,), (22.1,), 0, "S", _AW["S"],
-               "pKa 7.05 [CRC]; enthalpy +22.1 kJ/mol from [NBS] (from "
-               "memory). The second step (pKa above 17) is ignored."),
+               (6.99,), (22.1,), 0, "S", _AW["S"],
+               "pKa 6.99 (a tabulation of thermodynamic pKa values, read; "
+               "recent high-temperature studies give about 6.98 at 25 °C, from "
+               "memory). Sources disagree: CRC gives 7.05, an older value; "
+               "the choice moves sulfide doses near pH 7 by a few per cent. "
+               "Enthalpy +22.1 kJ/mol from [NBS] (from memory). The second "
+               "step (pKa above 17) is ignored."),
     AcidSystem("borate", "borate", "B(OH)3",
                (9.237,), (13.8,), 0, "B", _AW["B"],
                "pKa 9.237 and enthalpy +13.8 kJ/mol [G2002] (from memory)."),
