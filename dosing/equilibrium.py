@@ -452,6 +452,8 @@ def solve_ph(mix: Mixture, *, ph_guess=None, tol_ph: float = 1e-12,
                      f"{idx.size} of {mix.n} waters")
 
 
+#: Newton steps before every third step is a bisection (see _newton).
+_NEWTON_FREE_STEPS = 24
 #: Newton steps during which the ionic strength moves with the pH; after
 #: that it is held, and solve_ph's polishing loop settles it.
 _JOINT_STEPS = 30
@@ -479,6 +481,10 @@ def _newton(rows: _Rows, ph, ionic, tol_ph, max_iter, update_ionic):
         small = (np.abs(step) < tol_ph) | (np.abs(resid) <= 8 * np.finfo(float).eps * scale)
         # The bracket is closed: the root may sit exactly on an end.
         bad = ~small & (~((new >= l) & (new <= u)) | ~np.isfinite(new))
+        if it >= _NEWTON_FREE_STEPS and it % 3 == 0:
+            # Newton can stall across a kink (a hydroxide starting to form):
+            # every third step from here on bisects, so the bracket halves.
+            bad = ~small
         new = np.where(bad, 0.5 * (l + u), new)
         done = small | (u - l < tol_ph)
         if update_ionic and it < _JOINT_STEPS:

@@ -45,6 +45,13 @@ Sources
         enthalpies; from memory.)
 [SM96]  Stumm, W.; Morgan, J. J. (1996). Aquatic Chemistry, 3rd ed., Wiley,
         chapter 6 tables. (From memory.)
+[P07]   Powell, K. J. et al. (2007). Chemical speciation of environmentally
+        significant metals with inorganic ligands. Part 2: The Cu2+-OH-,
+        Cl-, CO3 2-, SO4 2- and PO4 3- systems (IUPAC Technical Report).
+        Pure Appl. Chem. 79, 895-950. (From memory.)
+[P13]   Powell, K. J. et al. (2013). Part 5: The Zn2+ + OH-, Cl-, CO3 2-,
+        SO4 2- and PO4 3- systems (IUPAC Technical Report). Pure Appl. Chem.
+        85, 2249-2311. (From memory.)
 [R87]   Rai, D.; Sass, B. M.; Moore, D. A. (1987). Chromium(III) hydrolysis
         constants and solubility of chromium(III) hydroxide. Inorg. Chem. 26,
         345-349. (From memory.)
@@ -165,17 +172,20 @@ METALS: tuple[Metal, ...] = (
           "only on ageing)", 10.8, -26.5 * KCAL,
           "[N90] hydrolysis, enthalpies and amorphous Al(OH)3 (from memory)."),
     Metal("zinc", "zinc", "Zn", 2,
-          (-8.96, -16.9, -28.4, -41.2), None,
-          "Zn(OH)2", "amorphous Zn(OH)2, log *Ks0 12.45 (epsilon-Zn(OH)2 11.5 "
+          (-8.96, -17.82, -28.05, -40.41), None,
+          "Zn(OH)2", "amorphous Zn(OH)2, log *Ks0 12.45 (epsilon-Zn(OH)2 11.4 "
           "after ageing)", 12.45, None,
-          "[BM76] hydrolysis and amorphous Zn(OH)2 (from memory); amphoteric: "
+          "hydrolysis [P13] (from memory; [BM76] gives -16.9 for Zn(OH)2°, "
+          "which would hold about 2 mg/L in solution at the minimum, more than "
+          "plants see); amorphous Zn(OH)2 [BM76] (from memory). Amphoteric: "
           "zincate above about pH 10."),
     Metal("copper", "copper(II)", "Cu", 2,
-          (-8.0, -13.68, -26.9, -39.6), None,
+          (-7.95, -16.23, -26.60, -39.74), None,
           "Cu(OH)2", "Cu(OH)2, log *Ks0 8.64 (tenorite CuO 7.65 after ageing)",
           8.64, None,
-          "[BM76] hydrolysis and Cu(OH)2 (from memory); the neutral complex "
-          "Cu(OH)2° is poorly known and sets the minimum."),
+          "hydrolysis [P07] (from memory; [BM76] gives -13.68 for Cu(OH)2°); "
+          "Cu(OH)2 [BM76] (from memory). The neutral complex is poorly known "
+          "and sets the minimum; polynuclear Cu2(OH)2 2+ is not modelled."),
     Metal("nickel", "nickel", "Ni", 2,
           (-9.86, -19.0, -30.0), None,
           "Ni(OH)2", "fresh Ni(OH)2, log *Ks0 12.8 (aged 10.8)", 12.8, None,

@@ -27,11 +27,16 @@ from typing import Mapping
 import numpy as np
 
 from .effluent import Water
+from .activity import DAVIES_I_LIMIT
 from .equilibrium import (CARBONATE, Mixture, add_dose, dose_to_ph, solve_ph,
                           speciate)
 from .errors import InputError, ModelError, UnreachableError
 from .hazards import Check, assess
+from .metals import METAL_IDS
+from .numbers import fmt
 from .reagents import GENERAL_CAUTION, Reagent
+from .solids import (METAL_PERMIT_KEYS, CapWindow, Solid, cap_window, metals_after_mg_l,
+                     solids_after)
 from .water import henry_co2
 
 __all__ = ["Target", "Batch", "Flow", "Amounts", "TitrationCurve", "Plan",
@@ -174,6 +179,10 @@ class Plan:
     warnings: tuple[str, ...] = field(default=())
     cautions: tuple[str, ...] = field(default=())
     checks: tuple[Check, ...] = field(default=())
+    solids: tuple[Solid, ...] = field(default=())        #: solids at the aim
+    metals_after_mg_l: Mapping[str, float] = field(default_factory=dict)
+    cap_window: CapWindow | None = None   #: pH range meeting the metal caps
+    ph_ceiling: float | None = None       #: highest pH an overdose reaches [-]
 
     def amounts(self, dose_mol_l: float | None = None) -> Amounts:
         """A dose (default: the planned one) in operator units."""
@@ -191,13 +200,17 @@ def _doses_at(mix: Mixture, reagent: Reagent, ph) -> tuple[np.ndarray, np.ndarra
 
 
 def _reach_problem(water: Water, reagent: Reagent, ph: float, dose: float,
-                   grip: float) -> str | None:
+                   grip: float, ceiling: float | None = None) -> str | None:
     """Why ``reagent`` cannot bring the water to ``ph``, or None if it can."""
     d = _direction(reagent)
     verb = "raises" if d > 0 else "lowers"
     limit = reagent.practical_limit(ph)
     if limit is not None:
         return limit
+    if ceiling is not None and ph > ceiling - 0.01:
+        return (f"{reagent.name} takes this water no higher than about pH "
+                f"{ceiling:.2f} at {water.temperature_c:g} °C, where the water is "
+                "saturated with it (more only stays undissolved)")
     if not math.isfinite(dose) or grip * d <= 1e-9:
         return f"{reagent.name} has no grip on the pH near {ph:g}"
     if dose < -1e-12:
@@ -235,9 +248,10 @@ def plan_dose(water: Water, reagent: Reagent, target: Target,
     basis : Batch or Flow
         A tank volume or a flow; scales kilograms and litres.
     permit : mapping, optional
-        Discharge caps [mg/L] (``sulfate_mg_l``, ``chloride_mg_l``,
+        Discharge caps [mg/L]: ions (``sulfate_mg_l``, ``chloride_mg_l``,
         ``sodium_mg_l``, ``calcium_mg_l``, ``tds_increase_mg_l``), checked by
-        :func:`dosing.hazards.assess`.
+        :func:`dosing.hazards.assess`, and dissolved metals (``zinc_mg_l``
+        ...), checked at the aim with the pH range that meets them.
     curve_points : int
         Points on the titration curve.
 
@@ -250,47 +264,100 @@ def plan_dose(water: Water, reagent: Reagent, target: Target,
         The forward solve does not reproduce the aim (never expected).
     """
     mix = water.mixture()
-    direction = _direction(reagent)
-    edges = (target.ph_min, target.ph_aim, target.ph_max)
-    doses, grips = _doses_at(mix, reagent, edges)
-    warnings: list[str] = list(water.notes)
+    ceiling = _ceiling(water, reagent)
+    edges = _edge_doses(water, reagent, target, ceiling)
+    dose = edges.aim if edges.needed else 0.0
+    dosed = add_dose(mix, reagent.vector(), dose)
+    ph_end = float(solve_ph(dosed, ph_guess=target.ph_aim if edges.needed else water.ph)[0])
+    if edges.needed and abs(ph_end - target.ph_aim) > 1e-6:
+        raise ModelError(f"forward solve gives pH {ph_end:.6f} for the dose to "
+                         f"pH {target.ph_aim:g}; the model is not trustworthy here")
+    end_state = speciate(dosed, ph_end)
+    slope, ph_lo, ph_hi = _sensitivity(mix, reagent, target.ph_aim, dose, ph_end)
+    solids = solids_after(end_state, water.temperature_c, water.davies)
+    present = dict(water.metals_mol_l) | {k: 0.0 for k in reagent.compound.adds
+                                          if k in METAL_IDS}
+    metals_after = metals_after_mg_l(end_state, present)
+    caps = _metal_caps(water, permit, metals_after)
+    window = (None if not caps else cap_window(
+        _diluted(water, dose, reagent), caps, water.temperature_c, water.davies,
+        float(end_state.ionic_strength[0]), (target.ph_min, target.ph_max), target.ph_aim))
+    hi_curve = edges.far if edges.far is not None else dose
+    top = max(hi_curve, dose, edges.near) * 1.5 or 1e-4
+    before = speciate(mix_closed(water), water.ph, solids=False)
+    checks = (assess(water, reagent, dose, before, end_state, batch_litres=basis.litres,
+                     permit=permit)
+              + _metal_checks(metals_after, caps, window, target))
+    plan = Plan(water=water, reagent=reagent, target=target, basis=basis,
+                ph_start=water.ph, dose_mol_l=dose, ph_end=ph_end,
+                band_mol_l=(edges.near, edges.far), slope_ph_per_mmol_l=float(slope),
+                ph_low_dose=float(ph_lo), ph_high_dose=float(ph_hi),
+                ionic_strength_end=float(end_state.ionic_strength[0]),
+                curve=titration_curve(water, reagent, top, points=curve_points),
+                dose_needed=edges.needed, cautions=tuple(reagent.cautions) + (GENERAL_CAUTION,),
+                checks=checks, solids=solids, metals_after_mg_l=metals_after,
+                cap_window=window, ph_ceiling=ceiling)
+    return replace(plan, warnings=plan_warnings(plan, edges.notes))
 
+
+@dataclass(frozen=True)
+class _Edges:
+    """Doses at the window's edges and the aim, and what could not be reached."""
+
+    aim: float
+    near: float
+    far: float | None
+    needed: bool
+    notes: tuple[str, ...]
+
+
+def _edge_doses(water: Water, reagent: Reagent, target: Target,
+                ceiling: float | None) -> _Edges:
+    """Dose to the aim and the window band; refuse an unreachable aim."""
+    edges = (target.ph_min, target.ph_aim, target.ph_max)
+    doses, grips = _doses_at(water.mixture(), reagent, edges)
     inside = target.contains(water.ph)
-    aim_problem = _reach_problem(water, reagent, target.ph_aim, doses[1], grips[1])
+    aim_problem = _reach_problem(water, reagent, target.ph_aim, doses[1], grips[1], ceiling)
     if aim_problem is not None and not (inside and doses[1] < 0):
         raise UnreachableError(f"cannot reach the aim pH {target.ph_aim:g}: "
                                f"{aim_problem}")
     # The window edge nearer the start is the low end of the band.
-    near, far = (0, 2) if direction > 0 else (2, 0)
-    near_dose = max(float(doses[near]), 0.0)
-    far_problem = _reach_problem(water, reagent, edges[far], doses[far], grips[far])
-    far_dose = None if far_problem is not None else float(doses[far])
+    near, far = (0, 2) if reagent.raises_ph else (2, 0)
+    far_problem = _reach_problem(water, reagent, edges[far], doses[far], grips[far], ceiling)
+    notes = []
     if far_problem is not None and not (inside and doses[far] < 0):
-        warnings.append(f"the far edge of the window (pH {edges[far]:g}) cannot "
-                        f"be reached ({far_problem}): overdosing cannot push the "
-                        "pH out of the window on that side")
-    dose_needed = doses[1] > 0
-    dose = float(doses[1]) if dose_needed else 0.0
-    if not dose_needed:
-        warnings.append(f"the water at pH {water.ph:g} is already inside the "
-                        f"window and on the far side of the aim: no dose needed")
+        notes.append(f"the far edge of the window (pH {edges[far]:g}) cannot "
+                     f"be reached ({far_problem}): overdosing cannot push the "
+                     "pH out of the window on that side")
+    needed = bool(doses[1] > 0)
+    if not needed:
+        notes.append(f"the water at pH {water.ph:g} is already inside the "
+                     f"window and on the far side of the aim: no dose needed")
+    return _Edges(float(doses[1]), max(float(doses[near]), 0.0),
+                  None if far_problem is not None else float(doses[far]), needed,
+                  tuple(notes))
 
-    dosed = add_dose(mix, reagent.vector(), dose)
-    ph_end = float(solve_ph(dosed, ph_guess=target.ph_aim if dose_needed else water.ph)[0])
-    if dose_needed and abs(ph_end - target.ph_aim) > 1e-6:
-        raise ModelError(f"forward solve gives pH {ph_end:.6f} for the dose to "
-                         f"pH {target.ph_aim:g}; the model is not trustworthy here")
-    end_state = speciate(dosed, ph_end)
 
-    # Sensitivity at the aim.
+def _sensitivity(mix: Mixture, reagent: Reagent, aim: float, dose: float,
+                 ph_end: float) -> tuple[float, float, float]:
+    """dpH/d(dose) at the aim [pH per mmol/L] and the pH at the dose -/+ 5 %."""
     h = 1e-3
-    pair, _ = _doses_at(mix, reagent, (target.ph_aim - h, target.ph_aim + h))
+    pair, _ = _doses_at(mix, reagent, (aim - h, aim + h))
     ddose_dph = (pair[1] - pair[0]) / (2 * h)
     slope = 1.0 / (ddose_dph * 1000.0) if ddose_dph != 0 else math.inf
     lo_hi = add_dose(_repeat(mix, 2), reagent.vector(),
                      dose * np.array([1 - METERING_ERROR, 1 + METERING_ERROR]))
     ph_lo, ph_hi = solve_ph(lo_hi, ph_guess=np.array([ph_end, ph_end]))
-    if dose_needed:
+    return slope, ph_lo, ph_hi
+
+
+def plan_warnings(plan: Plan, notes: tuple[str, ...]) -> tuple[str, ...]:
+    """The words that go with the numbers of a plan (one place for the prose)."""
+    target, water, dose = plan.target, plan.water, plan.dose_mol_l
+    warnings: list[str] = list(water.notes) + list(notes)
+    near, far = plan.band_mol_l
+    if plan.dose_needed:
+        ph_lo, ph_hi = plan.ph_low_dose, plan.ph_high_dose
         out = [p for p in (ph_lo, ph_hi) if not target.contains(float(p))]
         phrase = (f"a {METERING_ERROR:.0%} dosing error moves the pH from "
                   f"{target.ph_aim:.2f} to between {min(ph_lo, ph_hi):.2f} and "
@@ -299,35 +366,105 @@ def plan_dose(water: Water, reagent: Reagent, target: Target,
             warnings.append(f"narrow window: {phrase}, outside the window "
                             f"{target.ph_min:g} to {target.ph_max:g}. Dose in "
                             "stages and measure before the last part")
-        elif far_dose is not None and (far_dose - near_dose) < NARROW_BAND * dose:
+        elif far is not None and (far - near) < NARROW_BAND * dose:
             warnings.append(f"narrow window in dose terms: the whole window spans "
-                            f"{(far_dose - near_dose) / dose:.0%} of the dose; {phrase}")
-    if end_state.ionic_strength[0] > 0.5:
-        warnings.append(f"ionic strength after dosing {end_state.ionic_strength[0]:.2f} "
+                            f"{(far - near) / dose:.0%} of the dose; {phrase}")
+    if plan.ionic_strength_end > DAVIES_I_LIMIT:
+        warnings.append(f"ionic strength after dosing {plan.ionic_strength_end:.2f} "
                         "mol/L is beyond the Davies equation's range: confirm with a "
                         "bench titration")
-    if reagent.solubility_g_l is not None:
-        g_l = dose * reagent.compound.molar_mass_g_mol
-        if g_l > reagent.solubility_g_l:
-            warnings.append(f"the dose ({g_l:.2f} g/L of {reagent.compound.formula}) "
-                            f"is above its solubility of about "
-                            f"{reagent.solubility_g_l:g} g/L near 20 °C: it stays "
-                            "as undissolved solid for a while; mix well, allow "
-                            "reaction time and re-measure before adding more")
-    hi_curve = far_dose if far_dose is not None else dose
-    top = max(hi_curve, dose, near_dose) * 1.5 or 1e-4
-    curve = titration_curve(water, reagent, top, points=curve_points)
-    cautions = tuple(reagent.cautions) + (GENERAL_CAUTION,)
-    before = speciate(mix_closed(water), water.ph)
-    checks = assess(water, reagent, dose, before, end_state,
-                    batch_litres=basis.litres, permit=permit)
-    return Plan(water=water, reagent=reagent, target=target, basis=basis,
-                ph_start=water.ph, dose_mol_l=dose, ph_end=ph_end,
-                band_mol_l=(near_dose, far_dose), slope_ph_per_mmol_l=float(slope),
-                ph_low_dose=float(ph_lo), ph_high_dose=float(ph_hi),
-                ionic_strength_end=float(end_state.ionic_strength[0]),
-                curve=curve, dose_needed=bool(dose_needed),
-                warnings=tuple(warnings), cautions=cautions, checks=checks)
+    undissolved = [s for s in plan.solids if s.id in ("calcium_hydroxide",
+                                                      "magnesium_hydroxide")
+                   and s.id.split("_")[0] in plan.reagent.compound.adds]
+    for s in undissolved:
+        warnings.append(f"{fmt(s.mg_per_l)} mg/L of the {s.formula} dosed stays "
+                        f"undissolved at pH {plan.ph_end:.2f}: the water is saturated "
+                        "with it; mix well, allow reaction time and re-measure "
+                        "before adding more")
+    if plan.cap_window is not None:
+        warnings.extend(_cap_words(plan.cap_window, target))
+    return tuple(warnings)
+
+
+def _cap_words(cw: CapWindow, target: Target) -> list[str]:
+    """Warnings about the metal caps against the discharge window."""
+    names = ", ".join(cw.caps_mg_l)
+    if cw.ph_range is None:
+        return [f"no pH meets every metal cap ({names}) by hydroxide precipitation "
+                "alone: the plant needs another step (sulfide, coagulation, ion "
+                "exchange); the permit and a licensed engineer decide"]
+    lo, hi = cw.ph_range
+    if cw.overlap is None:
+        return [f"the metal caps ({names}) are met only between pH {lo:.2f} and "
+                f"{hi:.2f}, which does not overlap the discharge window "
+                f"{target.ph_min:g} to {target.ph_max:g}: precipitate at that pH, "
+                "separate the sludge, then adjust the pH into the window"]
+    if not cw.met_at_aim:
+        return [f"the aim pH {target.ph_aim:g} misses a metal cap; the caps "
+                f"({names}) are met between pH {cw.overlap[0]:.2f} and "
+                f"{cw.overlap[1]:.2f} inside the window: move the aim there"]
+    return []
+
+
+def _ceiling(water: Water, reagent: Reagent) -> float | None:
+    """Highest pH an overdose of a sparingly soluble base reaches, or None.
+
+    For lime, quicklime and magnesia the hydroxide's solubility caps the
+    pH (what makes magnesia safe against overdosing); found by a forward
+    solve with a dose far past any plan.
+    """
+    metal = [k for k in reagent.compound.adds if k in METAL_IDS]
+    if not metal or not reagent.raises_ph:
+        return None
+    dosed = add_dose(water.mixture(), reagent.vector(), _OVERDOSE_MOL_L)
+    return float(solve_ph(dosed, ph_guess=12.0)[0])
+
+
+#: Overdose used to find a sparingly soluble base's ceiling [mol/L]:
+#: several times any dose a water needs.
+_OVERDOSE_MOL_L = 1.0
+
+
+def _diluted(water: Water, dose: float, reagent: Reagent) -> dict[str, float]:
+    """Metal totals of the dosed water [mol/L] (product volume included)."""
+    f = 1.0 / (1.0 + dose * (reagent.litres_product_per_mol or 0.0))
+    out = {k: v * f for k, v in water.metals_mol_l.items()}
+    for k, n in reagent.compound.adds.items():
+        if k in METAL_IDS:
+            out[k] = out.get(k, 0.0) + n * dose * f
+    return out
+
+
+def _metal_caps(water: Water, permit, metals_after) -> dict[str, float]:
+    """The permit's caps on dissolved metals, by metal id [mg/L]."""
+    caps = {}
+    for key, cap in (permit or {}).items():
+        if key in METAL_PERMIT_KEYS:
+            metal = key.removesuffix("_mg_l")
+            if metal not in metals_after:
+                raise InputError(f"permit.{key}", f"a cap on {metal} but the effluent "
+                                 f"gives no {metal}; add metals_mg_l.{metal} or remove "
+                                 "the cap")
+            caps[metal] = float(cap)
+    return caps
+
+
+def _metal_checks(metals_after: Mapping[str, float], caps: Mapping[str, float],
+                  window: CapWindow | None, target: Target) -> tuple[Check, ...]:
+    """One permit check per capped metal, at the aim."""
+    out = []
+    for metal, cap in caps.items():
+        value = metals_after[metal]
+        over = value > cap
+        rng = ("" if window is None or window.ph_range is None else
+               f"; every metal cap is met between pH {window.ph_range[0]:.2f} and "
+               f"{window.ph_range[1]:.2f}")
+        out.append(Check(f"permit-{metal}_mg_l", "danger" if over else "info",
+                         f"permit cap {metal.replace('_', ' ')} {cap:g} mg/L: "
+                         f"{fmt(value)} mg/L dissolved at pH {target.ph_aim:g}"
+                         + (" - EXCEEDS THE CAP" if over else " - within the cap") + rng,
+                         {"value_mg_l": value, "cap_mg_l": cap}))
+    return tuple(out)
 
 
 def mix_closed(water: Water) -> Mixture:

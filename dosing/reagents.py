@@ -18,9 +18,12 @@ Densities at 20 °C
   94 % 1.8312).
 * HCl 32 %: 1.1594 g/cm³, CRC Handbook, same table.
 
-Solubility of Ca(OH)2: about 1.7 g/L near 20 °C (CRC Handbook, aqueous
-solubility of inorganic compounds; from memory). Purities of the solid
-products are typical commercial grades (common practice) and can be set.
+How far lime, quicklime and magnesia can raise the pH follows from the
+solubility of portlandite and brucite in :mod:`dosing.metals` (with
+temperature), not from a fixed limit. Limestone stops near pH 6.5 in
+practice (common practice: its surface coats and CO2 builds up). Purities
+of the solid products are typical commercial grades (common practice) and
+can be set.
 """
 
 from __future__ import annotations
@@ -223,6 +226,9 @@ class Reagent:
         return self.compound.vector(self.litres_product_per_mol or 0.0)
 
 
+_LIME = ("Lime dust burns eyes and airways: goggles and dust mask when loading.",
+         "Lime dissolves slowly: feed it as a slurry, mix well and allow "
+         "reaction time before reading the pH.")
 _NAOH = COMPOUNDS["NaOH"]
 _H2SO4 = COMPOUNDS["H2SO4"]
 
@@ -240,11 +246,27 @@ CATALOGUE: dict[str, Reagent] = {r.id: r for r in (
             "(24 % and 26 % interpolated)", _CAUSTIC),
     Reagent("lime", "hydrated lime, 93 % Ca(OH)2", COMPOUNDS["Ca(OH)2"], 0.93,
             None, "solid", "",
-            ("Lime dust burns eyes and airways: goggles and dust mask when "
-             "loading.",
-             "Lime dissolves slowly: feed it as a slurry, mix well and allow "
-             "reaction time before reading the pH."),
-            max_practical_ph=12.4, solubility_g_l=1.7),
+            _LIME),
+    Reagent("quicklime", "quicklime, 90 % CaO", COMPOUNDS["CaO"], 0.90, None, "solid", "",
+            ("Quicklime slakes with water violently and hot (about 65 kJ per mol): "
+             "slake in the slaker, never in a closed container; keep it dry in store.",)
+            + _LIME),
+    Reagent("magnesia", "magnesium hydroxide slurry 60 %", COMPOUNDS["Mg(OH)2"], 0.60,
+            1.52, "liquid",
+            "computed for 60 % solids from Mg(OH)2 2.34 g/cm3 (CRC Handbook, physical "
+            "constants of inorganic compounds, from memory) and water: 1/(0.6/2.34 + 0.4)",
+            ("Magnesium hydroxide slurry settles: keep it stirred and the lines "
+             "flushed, or they block.",
+             "It reacts slowly: allow reaction time (tens of minutes) before "
+             "reading the pH; its own solubility caps the pH near 10, so an "
+             "overdose cannot run away.")),
+    Reagent("limestone", "limestone, 95 % CaCO3", COMPOUNDS["CaCO3"], 0.95, None, "solid",
+            "",
+            ("Limestone reacts slowly and stops near pH 6-7 as its surface "
+             "coats; it releases CO2 (foam, gas in enclosed spaces): ventilate.",
+             "On waters with iron or aluminium it armours with hydroxide; use a "
+             "bed that is stirred or renewed."),
+            max_practical_ph=6.5),
     Reagent("soda-ash", "soda ash, 99 % Na2CO3", COMPOUNDS["Na2CO3"], 0.99, None,
             "solid", "",
             ("Soda ash dust irritates eyes and skin.",
@@ -333,8 +355,9 @@ def custom_reagent(compound: str, *, mass_fraction: float | None = None,
     Parameters
     ----------
     compound : str
-        Key of :data:`COMPOUNDS` (``NaOH``, ``KOH``, ``Ca(OH)2``, ``Na2CO3``,
-        ``NaHCO3``, ``H2SO4``, ``HCl``, ``HNO3``, ``CO2``).
+        Key of :data:`COMPOUNDS` (``NaOH``, ``KOH``, ``Ca(OH)2``, ``CaO``,
+        ``Mg(OH)2``, ``CaCO3``, ``Na2CO3``, ``NaHCO3``, ``H2SO4``, ``HCl``,
+        ``HNO3``, ``CO2``); a slurry is a mass fraction with its density.
     mass_fraction : float, optional
         [-], 0 < w <= 1.
     density_kg_l : float, optional
@@ -378,7 +401,8 @@ def custom_reagent(compound: str, *, mass_fraction: float | None = None,
         raise InputError("reagent.form", f"{form!r}; allowed: liquid, solid, gas")
     like = {"NaOH": "caustic-25", "KOH": "caustic-25", "Ca(OH)2": "lime",
             "Na2CO3": "soda-ash", "NaHCO3": "bicarbonate", "H2SO4": "sulfuric-93",
-            "HCl": "hydrochloric-32", "HNO3": "hydrochloric-32", "CO2": "co2"}[compound]
+            "HCl": "hydrochloric-32", "HNO3": "hydrochloric-32", "CO2": "co2",
+            "CaO": "quicklime", "Mg(OH)2": "magnesia", "CaCO3": "limestone"}[compound]
     model = CATALOGUE[like]
     return Reagent("custom", name or f"custom {label}", comp, frac,
                    density_kg_l if form == "liquid" else None, form,

@@ -108,11 +108,31 @@ def test_narrow_window_warning_in_operator_terms():
     assert not any("dosing error" in m for m in plan.warnings)
 
 
-def test_lime_solubility_caution():
+def test_lime_undissolved_is_judged_after_neutralising_issue_16():
+    # Issue 16 changed this check: a lime dose above lime's solubility in
+    # pure water (about 1.7 g/L) dissolves as it neutralises an acid water,
+    # so no "stays undissolved" warning; the slow-dissolution caution stays.
     w = infer_water(1.5, 20.0, solutes_mmol_l={"sulfate": 40})
     plan = plan_dose(w, get_reagent("lime"), Target(6, 9), Batch(50))
     assert plan.dose_mol_l * 74.09 > 1.7
-    assert any("solubility" in m for m in plan.warnings)
+    assert not any("undissolved" in m for m in plan.warnings)
+    assert any("dissolves slowly" in c for c in plan.cautions)
+    assert not any(s.id == "calcium_hydroxide" for s in plan.solids)
+
+
+def test_lime_ceiling_follows_temperature():
+    # Saturated Ca(OH)2 is the NIST/NBS pH standard: pH 12.45 at 25 °C and
+    # 11.70 at 50 °C (Bates 1973, Determination of pH, from memory). The
+    # planner's ceiling for lime on clean water comes from portlandite's
+    # log *Ks0 22.8 and its enthalpy (Nordstrom et al. 1990, from memory).
+    for t, ref in ((25.0, 12.45), (50.0, 11.70)):
+        w = infer_water(7.0, t, alkalinity_mg_l_as_caco3=0)
+        plan = plan_dose(w, get_reagent("lime"), Target(7.5, 9.0, 8.0), Batch(1))
+        assert plan.ph_ceiling == pytest.approx(ref, abs=0.08)
+    # An aim a warm water cannot reach with lime is refused, naming the ceiling.
+    w = infer_water(7.0, 50.0, alkalinity_mg_l_as_caco3=0)
+    with pytest.raises(UnreachableError, match="no higher than about pH 11.6"):
+        plan_dose(w, get_reagent("lime"), Target(11.8, 12.2, 12.0), Batch(1))
 
 
 def test_every_plan_carries_the_cautions():

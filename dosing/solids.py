@@ -1,0 +1,192 @@
+"""Solids a dose makes, the sludge they form, and metals left in solution.
+
+Pure functions over the engine's speciation of the dosed water:
+
+* :func:`solids_after` - each solid formed (metal hydroxides from the
+  charge balance; gypsum, which takes no part in the charge balance above
+  pH 4, worked out afterwards from its supersaturation).
+* :func:`metals_after_mg_l` - dissolved metals after the dose [mg/L].
+* :func:`sludge_of` - dry solids and the wet cake they make.
+* :func:`dissolved_vs_ph` and :func:`cap_window` - dissolved metal against
+  pH, and the pH range over which every capped metal meets its permit cap.
+
+Sludge conventions (common practice for sludge estimates): metal solids are
+reported as Me(OH)z, gypsum as CaSO4·2H2O, undissolved lime as Ca(OH)2.
+The wet cake of a filter press typically holds 20-35 % dry solids at a bulk
+density near 1.2 kg/L (common practice); 25 % and 1.2 kg/L are the defaults.
+
+Calcite is not precipitated by the model: at the saturation indices of
+treated water it forms slowly, as scale rather than sludge; the hazard
+checks give its saturation index.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Mapping
+
+import numpy as np
+
+from .equilibrium import METAL_COLUMNS, Mixture, N_ACIDS, Speciation, speciate, system_index
+from .hazards import GYPSUM_LOG_KSP, gypsum_si
+from .metals import METALS, METAL_IDS
+from .species import MOLAR_MASS
+
+__all__ = ["Solid", "Sludge", "CapWindow", "METAL_PERMIT_KEYS", "CAKE_SOLIDS_FRACTION",
+           "CAKE_DENSITY_KG_L", "solids_after", "metals_after_mg_l", "sludge_of",
+           "dissolved_vs_ph", "cap_window"]
+
+#: Dry-solids fraction of a typical filter-press cake [-] (common practice).
+CAKE_SOLIDS_FRACTION = 0.25
+#: Bulk density of that cake [kg/L] (common practice).
+CAKE_DENSITY_KG_L = 1.2
+#: Permit keys on dissolved metals [mg/L as the element].
+METAL_PERMIT_KEYS = tuple(f"{m}_mg_l" for m in METAL_IDS if m not in ("calcium", "magnesium"))
+#: A solid below this is not reported [mol/L] (far below what a balance weighs).
+_SOLID_FLOOR_MOL_L = 1e-9
+
+
+@dataclass(frozen=True)
+class Solid:
+    """One solid in the dosed water, per litre of water."""
+
+    id: str                 #: ``iron_iii_hydroxide``, ``gypsum`` ...
+    name: str               #: plain name for the sheet
+    formula: str            #: formula the mass is reported as
+    mmol_per_l: float       #: [mmol/L]
+    mg_per_l: float         #: [mg/L] as ``formula``
+
+
+@dataclass(frozen=True)
+class Sludge:
+    """Dry solids and the wet cake they make, per batch or per hour."""
+
+    dry_kg: float                 #: [kg] per batch or per hour
+    cake_kg: float                #: wet cake mass [kg]
+    cake_m3: float                #: wet cake volume [m3]
+    solids_fraction: float        #: dry solids in the cake [-]
+    cake_density_kg_l: float      #: [kg/L]
+
+
+@dataclass(frozen=True)
+class CapWindow:
+    """Where the capped metals meet their caps, beside the pH window."""
+
+    caps_mg_l: Mapping[str, float]        #: metal id -> cap [mg/L]
+    ph_range: tuple[float, float] | None  #: pH range meeting every cap, or None
+    overlap: tuple[float, float] | None   #: that range inside the discharge window
+    met_at_aim: bool                      #: every cap met at the aim
+
+
+def solids_after(sp: Speciation, temperature_c: float, davies: bool) -> tuple[Solid, ...]:
+    """Solids in the first water of ``sp`` (the dosed water) [per L of water]."""
+    out: list[Solid] = []
+    for j, metal in zip(METAL_COLUMNS, METALS):
+        mol = float(sp.solids_mol_l[0, j]) if sp.solids_mol_l is not None else 0.0
+        if mol > _SOLID_FLOOR_MOL_L:
+            name = (f"{metal.solid} (undissolved lime)" if metal.id == "calcium"
+                    else f"{metal.name} hydroxide")
+            out.append(Solid(f"{metal.id}_hydroxide", name, metal.solid, mol * 1000,
+                             mol * metal.solid_molar_mass_g_mol * 1000))
+    gyp = _gypsum_mol_l(sp, temperature_c, davies)
+    if gyp > _SOLID_FLOOR_MOL_L:
+        out.append(Solid("gypsum", "gypsum", "CaSO4·2H2O", gyp * 1000,
+                         gyp * MOLAR_MASS["CaSO4·2H2O"] * 1000))
+    return tuple(out)
+
+
+def _gypsum_mol_l(sp: Speciation, temperature_c: float, davies: bool) -> float:
+    """Gypsum that crystallises until saturation [mol/L]; 0 when undersaturated.
+
+    Solves (a - x)(b - x) = Ksp / gamma2^2 for the free Ca2+ (a) and SO4 2-
+    (b) of the dosed water, activity coefficients held at their value
+    before crystallisation.
+    """
+    si = gypsum_si(sp, temperature_c, davies)
+    if not si > 0:
+        return 0.0
+    ca = float(sp.concentration(system_index("calcium"), 0)[0])
+    so4 = float(sp.concentration(system_index("sulfate"), 1)[0])
+    k = ca * so4 / 10.0 ** si          # Ksp over gamma^2, in concentrations
+    return 0.5 * ((ca + so4) - math.sqrt((ca - so4) ** 2 + 4.0 * k))
+
+
+def metals_after_mg_l(sp: Speciation, present: Mapping[str, float]) -> dict[str, float]:
+    """Dissolved total of each metal in ``present`` after the dose [mg/L]."""
+    out = {}
+    for metal in METALS:
+        if metal.id in present:
+            j = system_index(metal.id)
+            out[metal.id] = float(sp.totals_mol_l[0, j]) * metal.molar_mass_g_mol * 1000
+    return out
+
+
+def sludge_of(solids: tuple[Solid, ...], litres: float, *,
+              solids_fraction: float = CAKE_SOLIDS_FRACTION,
+              cake_density_kg_l: float = CAKE_DENSITY_KG_L) -> Sludge:
+    """Dry solids [kg] and wet cake for ``litres`` of dosed water."""
+    dry = sum(s.mg_per_l for s in solids) * litres / 1e6
+    cake = dry / solids_fraction
+    return Sludge(dry, cake, cake / cake_density_kg_l / 1000.0, solids_fraction,
+                  cake_density_kg_l)
+
+
+def dissolved_vs_ph(metals_mol_l: Mapping[str, float], temperature_c: float, davies: bool,
+                    ionic_strength: float, ph: np.ndarray) -> dict[str, np.ndarray]:
+    """Dissolved total of each metal against pH [mg/L], hydroxide present.
+
+    At each pH the dissolved part is the lesser of the total and the
+    hydroxide's solubility there. The ionic strength is held at
+    ``ionic_strength`` [mol/L] (that of the dosed water).
+    """
+    ph = np.asarray(ph, dtype=float)
+    tot = np.zeros((ph.size, N_ACIDS + len(METALS)))
+    for mid, mol in metals_mol_l.items():
+        tot[:, system_index(mid)] = mol
+    mix = Mixture.build(tot, np.zeros(ph.size), ionic_strength, temperature_c, np.nan, davies)
+    sp = speciate(mix, ph, max_iter=1)
+    return {m.id: sp.totals_mol_l[:, system_index(m.id)] * m.molar_mass_g_mol * 1000
+            for m in METALS if m.id in metals_mol_l}
+
+
+#: pH grid for the cap window [pH]; 0.01 pH steps.
+_CAP_GRID = np.round(np.arange(0.0, 14.0 + 1e-9, 0.01), 2)
+
+
+def cap_window(metals_mol_l: Mapping[str, float], caps_mg_l: Mapping[str, float],
+               temperature_c: float, davies: bool, ionic_strength: float,
+               window: tuple[float, float], aim: float) -> CapWindow:
+    """The pH range over which every capped metal meets its cap.
+
+    Where several separate ranges qualify, the one holding the aim, else the
+    one nearest the window, is given.
+    """
+    curves = dissolved_vs_ph(metals_mol_l, temperature_c, davies, ionic_strength, _CAP_GRID)
+    ok = np.ones(_CAP_GRID.size, dtype=bool)
+    for mid, cap in caps_mg_l.items():
+        ok &= curves[mid] <= cap
+    at_aim = dissolved_vs_ph(metals_mol_l, temperature_c, davies, ionic_strength,
+                             np.array([aim]))
+    met = all(float(at_aim[m][0]) <= cap for m, cap in caps_mg_l.items())
+    runs = _runs(ok)
+    if not runs:
+        return CapWindow(dict(caps_mg_l), None, None, met)
+    lo_w, hi_w = window
+
+    def distance(run):
+        a, b = _CAP_GRID[run[0]], _CAP_GRID[run[1]]
+        return 0.0 if a <= aim <= b else min(abs(a - hi_w), abs(b - lo_w), abs(a - lo_w))
+
+    best = min(runs, key=distance)
+    lo, hi = float(_CAP_GRID[best[0]]), float(_CAP_GRID[best[1]])
+    overlap = (max(lo, lo_w), min(hi, hi_w)) if max(lo, lo_w) <= min(hi, hi_w) else None
+    return CapWindow(dict(caps_mg_l), (lo, hi), overlap, met)
+
+
+def _runs(mask: np.ndarray) -> list[tuple[int, int]]:
+    """(first, last) index of each run of True in ``mask``."""
+    edges = np.diff(np.concatenate([[0], mask.astype(int), [0]]))
+    starts = np.flatnonzero(edges == 1)
+    ends = np.flatnonzero(edges == -1) - 1
+    return list(zip(starts.tolist(), ends.tolist()))
