@@ -287,7 +287,7 @@ def plan_dose(water: Water, reagent: Reagent, target: Target,
     before = speciate(mix_closed(water), water.ph, solids=False)
     checks = (assess(water, reagent, dose, before, end_state, batch_litres=basis.litres,
                      permit=permit)
-              + _metal_checks(metals_after, caps, window, target))
+              + _metal_checks(metals_after, caps, target))
     plan = Plan(water=water, reagent=reagent, target=target, basis=basis,
                 ph_start=water.ph, dose_mol_l=dose, ph_end=ph_end,
                 band_mol_l=(edges.near, edges.far), slope_ph_per_mmol_l=float(slope),
@@ -450,19 +450,16 @@ def _metal_caps(water: Water, permit, metals_after) -> dict[str, float]:
 
 
 def _metal_checks(metals_after: Mapping[str, float], caps: Mapping[str, float],
-                  window: CapWindow | None, target: Target) -> tuple[Check, ...]:
+                  target: Target) -> tuple[Check, ...]:
     """One permit check per capped metal, at the aim."""
     out = []
     for metal, cap in caps.items():
         value = metals_after[metal]
         over = value > cap
-        rng = ("" if window is None or window.ph_range is None else
-               f"; every metal cap is met between pH {window.ph_range[0]:.2f} and "
-               f"{window.ph_range[1]:.2f}")
         out.append(Check(f"permit-{metal}_mg_l", "danger" if over else "info",
                          f"permit cap {metal.replace('_', ' ')} {cap:g} mg/L: "
                          f"{fmt(value)} mg/L dissolved at pH {target.ph_aim:g}"
-                         + (" - EXCEEDS THE CAP" if over else " - within the cap") + rng,
+                         + (" - EXCEEDS THE CAP" if over else " - within the cap"),
                          {"value_mg_l": value, "cap_mg_l": cap}))
     return tuple(out)
 

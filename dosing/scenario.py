@@ -25,14 +25,17 @@ from .effluent import BACKGROUND_IONS, Water, infer_water
 from .errors import InputError, ScenarioError
 from .plan import Batch, Flow, Target
 from .reagents import Reagent, custom_reagent, get_reagent, with_purity
+from .hazards import ION_PERMIT_KEYS
+from .metals import METAL_IDS
+from .solids import CAKE_DENSITY_KG_L, CAKE_SOLIDS_FRACTION, METAL_PERMIT_KEYS
 from .species import SYSTEM_IDS
 
 __all__ = ["Scenario", "PERMIT_KEYS", "parse_scenario", "load_scenario",
-           "scenario_to_toml", "build_scenario"]
+           "scenario_to_toml", "build_scenario", "scenario_key"]
 
-#: Keys of the optional [permit] table: caps on the discharge [mg/L].
-PERMIT_KEYS = ("sodium_mg_l", "calcium_mg_l", "sulfate_mg_l", "chloride_mg_l",
-               "tds_increase_mg_l")
+#: Keys of the optional [permit] table: caps on the discharge [mg/L]
+#: (ions and dissolved solids, then dissolved metals as the element).
+PERMIT_KEYS = ION_PERMIT_KEYS + METAL_PERMIT_KEYS
 
 _SCHEMA: dict[str, dict[str, tuple]] = {
     # section: key -> (types, required)
@@ -48,6 +51,8 @@ _SCHEMA: dict[str, dict[str, tuple]] = {
         "extra_ionic_strength_mol_l": ((int, float), False),
         "ions_mg_l": ((dict,), False),
         "unknown_pka": ((int, float), False),
+        "metals_mg_l": ((dict,), False),
+        "oxidise_ferrous": ((bool,), False),
     },
     "batch": {"volume_m3": ((int, float), True)},
     "flow": {"m3_per_h": ((int, float), True),
@@ -70,6 +75,8 @@ _SCHEMA: dict[str, dict[str, tuple]] = {
     "model": {"activity": ((str,), False), "open_to_air": ((bool,), False),
               "pco2_uatm": ((int, float), False)},
     "permit": {k: ((int, float), False) for k in PERMIT_KEYS},
+    "sludge": {"cake_solids_fraction": ((int, float), False),
+               "cake_density_kg_l": ((int, float), False)},
 }
 #: Plant figures with their largest believable value (common practice: far
 #: above any real plant, low enough that no total or cost overflows).
@@ -103,6 +110,10 @@ class Scenario:
         Hours a flow runs each day [h].
     permit : Mapping[str, float]
         Caps from the [permit] table [mg/L].
+    sludge : (float, float)
+        Dry-solids fraction [-] and density [kg/L] of the wet sludge cake.
+    source : str
+        The file it came from, for messages.
     data : Mapping
         The scenario as plain data (what :func:`scenario_to_toml` writes).
     """
@@ -120,6 +131,8 @@ class Scenario:
     hours_per_day: float
     permit: Mapping[str, float] = field(default_factory=dict)
     data: Mapping[str, Any] = field(default_factory=dict)
+    sludge: tuple[float, float] = (CAKE_SOLIDS_FRACTION, CAKE_DENSITY_KG_L)
+    source: str = "<scenario>"
 
 
 def _is_number(v) -> bool:
@@ -171,22 +184,30 @@ def _check_types(path: str, data: Mapping[str, Any]) -> None:
     if ("batch" in data) == ("flow" in data):
         raise ScenarioError(path, "[batch]/[flow]", "give exactly one of [batch] "
                             "(a tank volume) or [flow] (a continuous stream)")
-    for table in ("solutes_mmol_l", "solutes_mg_l", "ions_mg_l"):
-        allowed = BACKGROUND_IONS if table == "ions_mg_l" else SYSTEM_IDS
+    for table, (kind, allowed) in _TABLES.items():
         for sid, v in data["effluent"].get(table, {}).items():
             where = f"effluent.{table}.{sid}"
             if sid not in allowed:
-                raise ScenarioError(path, where, "unknown "
-                                    + ("ion" if table == "ions_mg_l" else "solute")
-                                    + "; allowed: " + ", ".join(allowed))
+                raise ScenarioError(path, where, f"unknown {kind}; allowed: "
+                                    + ", ".join(allowed))
             if not _is_number(v) or not _finite(v):
                 raise ScenarioError(path, where, f"expected a finite number, got {_short(v)}")
+
+
+#: Tables of [effluent] keyed by name: what they hold and the names allowed.
+_TABLES = {"solutes_mmol_l": ("solute", SYSTEM_IDS), "solutes_mg_l": ("solute", SYSTEM_IDS),
+           "ions_mg_l": ("ion", tuple(BACKGROUND_IONS)), "metals_mg_l": ("metal", METAL_IDS)}
 
 
 def _short(v) -> str:
     """A value as the user wrote it, cut to one readable line."""
     text = repr(v)
     return text if len(text) <= 40 else text[:20] + "..." + text[-8:]
+
+
+def scenario_key(field_name: str) -> str:
+    """The scenario key an engine field name came from (``ph`` -> ``effluent.ph``)."""
+    return _where(field_name)
 
 
 def _where(field_name: str) -> str:
@@ -246,7 +267,9 @@ def build_scenario(data: Mapping[str, Any], path: str = "<scenario>") -> Scenari
             alkalinity_endpoint_ph=eff.get("alkalinity_endpoint_ph", 4.5),
             acidity_endpoint_ph=eff.get("acidity_endpoint_ph", 8.3),
             extra_ionic_strength_mol_l=eff.get("extra_ionic_strength_mol_l", 0.0),
-            ions_mg_l=eff.get("ions_mg_l"), unknown_pka=eff.get("unknown_pka"))
+            ions_mg_l=eff.get("ions_mg_l"), unknown_pka=eff.get("unknown_pka"),
+            metals_mg_l=eff.get("metals_mg_l"),
+            oxidise_ferrous=eff.get("oxidise_ferrous", False))
         t = data["target"]
         target = Target(float(t["ph_min"]), float(t["ph_max"]),
                         None if "ph_aim" not in t else float(t["ph_aim"]))
@@ -269,8 +292,16 @@ def build_scenario(data: Mapping[str, Any], path: str = "<scenario>") -> Scenari
                              "and up to 24")
         permit = dict(data.get("permit", {}))
         for key, cap in permit.items():
-            if not cap > 0:
-                raise InputError(f"permit.{key}", f"{cap:g}; allowed: above 0 mg/L")
+            if not 0 < cap <= 1e6:
+                raise InputError(f"permit.{key}", f"{cap:g}; allowed: above 0 and up "
+                                 "to 1,000,000 mg/L")
+            metal = key.removesuffix("_mg_l")
+            if key in METAL_PERMIT_KEYS and metal not in water.metals_mol_l and not (
+                    metal == "iron_iii" and water.ferrous_oxidised):
+                raise InputError(f"permit.{key}", f"a cap on {metal} but the effluent "
+                                 f"gives no {metal}; add effluent.metals_mg_l.{metal} "
+                                 "or remove the cap")
+        sludge = _sludge(data.get("sludge", {}))
     except InputError as err:
         raise ScenarioError(path, _where(err.field), err.reason) from None
     return Scenario(title=data.get("title", Path(path).stem),
@@ -278,7 +309,18 @@ def build_scenario(data: Mapping[str, Any], path: str = "<scenario>") -> Scenari
                     water=water, basis=basis, target=target, reagent=reagent,
                     price_per_kg=r.get("price_per_kg"), storage_m3=r.get("storage_m3"),
                     storage_kg=r.get("storage_kg"), hours_per_day=float(hours),
-                    permit=permit, data=data)
+                    permit=permit, data=data, sludge=sludge, source=path)
+
+
+def _sludge(table: Mapping[str, Any]) -> tuple[float, float]:
+    """Cake solids fraction [-] and density [kg/L] from the [sludge] table."""
+    frac = table.get("cake_solids_fraction", CAKE_SOLIDS_FRACTION)
+    dens = table.get("cake_density_kg_l", CAKE_DENSITY_KG_L)
+    if not 0.01 <= frac <= 0.9:
+        raise InputError("sludge.cake_solids_fraction", f"{frac:g}; allowed: 0.01 to 0.9")
+    if not 0.9 <= dens <= 2.5:
+        raise InputError("sludge.cake_density_kg_l", f"{dens:g}; allowed: 0.9 to 2.5 kg/L")
+    return float(frac), float(dens)
 
 
 def parse_scenario(text: str, path: str = "<scenario>") -> Scenario:

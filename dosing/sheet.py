@@ -19,9 +19,12 @@ from . import __version__
 from .effluent import CACO3_MG_PER_MEQ
 from .numbers import fmt
 from .plan import Batch, Flow, Plan, plan_dose
-from .scenario import Scenario
+from .solids import sludge_of
+from .errors import InputError, ModelError, ScenarioError, UnreachableError
+from .scenario import Scenario, scenario_key
 
 __all__ = ["Units", "UNIT_SYSTEMS", "make_plan", "sheet_dict", "render_sheet",
+           "metals_dict", "metal_lines",
            "fmt", "product_text", "dose_lines", "check_lines", "caution_lines",
            "render_replay", "render_titration"]
 
@@ -64,9 +67,23 @@ def product_text(kg: float | None, litres: float | None, units: str = "metric",
 
 
 def make_plan(scenario: Scenario) -> Plan:
-    """Plan the dose a scenario asks for (with its permit caps)."""
-    return plan_dose(scenario.water, scenario.reagent, scenario.target, scenario.basis,
-                     permit=scenario.permit)
+    """Plan the dose a scenario asks for (with its permit caps).
+
+    Raises
+    ------
+    ScenarioError
+        Naming the scenario file and the key at fault when the aim cannot
+        be reached, an input is refused, or the model cannot give a number.
+    """
+    try:
+        return plan_dose(scenario.water, scenario.reagent, scenario.target, scenario.basis,
+                         permit=scenario.permit)
+    except UnreachableError as err:
+        raise ScenarioError(scenario.source, "target.ph_aim", str(err)) from None
+    except InputError as err:
+        raise ScenarioError(scenario.source, scenario_key(err.field), err.reason) from None
+    except ModelError as err:
+        raise ScenarioError(scenario.source, "[effluent]", str(err)) from None
 
 
 def _per(plan: Plan) -> str:
@@ -160,12 +177,83 @@ def sheet_dict(scenario: Scenario, plan: Plan) -> dict[str, Any]:
             "ionic_strength_mol_l": w.ionic_strength,
             "alkalinity_mg_l_as_caco3": w.alkalinity_eq_l * CACO3_MG_PER_MEQ * 1000.0,
             "ionic_strength_after_mol_l": plan.ionic_strength_end,
+            "metals_mmol_l": {k: v * 1000 for k, v in w.metals_mol_l.items()},
+            "ferrous_oxidised": w.ferrous_oxidised,
         },
+        **metals_dict(scenario, plan),
         "checks": [{"id": c.id, "level": c.level, "message": c.message,
                     "values": dict(c.values)} for c in plan.checks],
         "warnings": list(plan.warnings),
         "cautions": list(plan.cautions),
     }
+
+
+def metals_dict(scenario: Scenario, plan: Plan) -> dict[str, Any]:
+    """Solids, sludge, dissolved metals and metal caps as JSON-ready data."""
+    sfx = "_per_h" if isinstance(plan.basis, Flow) else ""
+    litres = plan.basis.litres
+    sludge = sludge_of(plan.solids, litres, solids_fraction=scenario.sludge[0],
+                       cake_density_kg_l=scenario.sludge[1])
+    cw = plan.cap_window
+    return {
+        "ph_ceiling": plan.ph_ceiling,
+        "metals_after_mg_l": dict(plan.metals_after_mg_l),
+        "solids": [{"id": x.id, "name": x.name, "formula": x.formula,
+                    "mmol_per_l": x.mmol_per_l, "mg_per_l": x.mg_per_l,
+                    "kg" + sfx: x.mg_per_l * litres / 1e6} for x in plan.solids],
+        "sludge": {"dry_kg" + sfx: sludge.dry_kg, "cake_kg" + sfx: sludge.cake_kg,
+                   "cake_m3" + sfx: sludge.cake_m3,
+                   "cake_solids_fraction": sludge.solids_fraction,
+                   "cake_density_kg_l": sludge.cake_density_kg_l},
+        "metal_caps": None if cw is None else {
+            "caps_mg_l": dict(cw.caps_mg_l),
+            "ph_range": None if cw.ph_range is None else list(cw.ph_range),
+            "overlap_with_window": None if cw.overlap is None else list(cw.overlap),
+            "met_at_aim": cw.met_at_aim},
+    }
+
+
+def metal_lines(scenario: Scenario, plan: Plan, units: str = "metric") -> list[tuple[str, str]]:
+    """Solids, sludge, metals left and metal caps as (label, value) rows.
+
+    Empty when the water holds no metal and the dose forms no solid. Shared
+    by the text sheet and the terminal view.
+    """
+    u = UNIT_SYSTEMS[units]
+    per = _per(plan)
+    rows: list[tuple[str, str]] = []
+    if plan.ph_ceiling is not None:
+        rows.append(("pH ceiling", f"an overdose of {plan.reagent.name} takes this water "
+                     f"no higher than about pH {plan.ph_ceiling:.2f}"))
+    litres = plan.basis.litres
+    for x in plan.solids:
+        rows.append(("solid formed", f"{x.formula} {fmt(x.mg_per_l)} mg/L = "
+                     f"{fmt(x.mg_per_l * litres / 1e6 * u.mass_per_kg)} {u.mass} {per}"))
+    if plan.solids:
+        sl = sludge_of(plan.solids, litres, solids_fraction=scenario.sludge[0],
+                       cake_density_kg_l=scenario.sludge[1])
+        rows.append(("sludge", f"{fmt(sl.dry_kg * u.mass_per_kg)} {u.mass} dry {per}; as "
+                     f"wet cake at {sl.solids_fraction:.0%} solids about "
+                     f"{fmt(sl.cake_kg * u.mass_per_kg)} {u.mass} = "
+                     f"{fmt(sl.cake_m3 * u.water_volume_per_m3)} {u.water_volume}"))
+    metals = {k: v for k, v in plan.metals_after_mg_l.items()
+              if k in plan.water.metals_mol_l and k not in ("calcium", "magnesium")}
+    if metals:
+        rows.append(("metals left", ", ".join(f"{k.replace('_', ' ')} {fmt(v)} mg/L"
+                                             for k, v in metals.items())
+                     + f" dissolved at pH {plan.ph_end:.2f} (estimate: a jar test is "
+                     "the check)"))
+    cw = plan.cap_window
+    if cw is not None:
+        if cw.ph_range is None:
+            text = "no pH meets every cap by hydroxide precipitation alone"
+        else:
+            text = (f"every cap met between pH {cw.ph_range[0]:.2f} and "
+                    f"{cw.ph_range[1]:.2f}; " + (
+                        f"inside the window {cw.overlap[0]:.2f} to {cw.overlap[1]:.2f}"
+                        if cw.overlap else "DOES NOT OVERLAP THE pH WINDOW"))
+        rows.append(("metal caps", text))
+    return rows
 
 
 def dose_lines(scenario: Scenario, plan: Plan, units: str = "metric") -> list[tuple[str, str]]:
@@ -246,6 +334,15 @@ def _wrap(text: str, width: int, indent: str) -> list[str]:
                          subsequent_indent=" " * len(indent))
 
 
+def _table(out: list[str], rows: list[tuple[str, str]], width: int) -> None:
+    """Append (label, value) rows, values wrapped under their column."""
+    label_w = max(len(r[0]) for r in rows)
+    for label, value in rows:
+        first, *rest = _wrap(value, width - label_w - 4, "") or [""]
+        out.append(f"  {label:<{label_w}}  {first}")
+        out.extend(" " * (label_w + 4) + r.strip() for r in rest)
+
+
 def render_sheet(scenario: Scenario, plan: Plan, units: str = "metric",
                  width: int = 78) -> str:
     """The operator's dose sheet as plain text."""
@@ -268,7 +365,8 @@ def render_sheet(scenario: Scenario, plan: Plan, units: str = "metric",
     if "acidity_mg_l_as_caco3" in eff:
         measured.append(f"acidity {eff['acidity_mg_l_as_caco3']:g} mg/L as CaCO3")
     out.append(f"water    {amount}; {', '.join(measured)}")
-    solutes = ", ".join(f"{k} {fmt(v * 1000)}" for k, v in w.totals_mol_l.items())
+    solutes = ", ".join(f"{k.replace('_', ' ')} {fmt(v * 1000)}"
+                        for k, v in (w.totals_mol_l | w.metals_mol_l).items())
     if solutes:
         out.extend(_wrap(f"modelled totals, mmol/L: {solutes}", width, "         "))
     out.append(f"         strong-ion balance {fmt(w.strong_eq_l * 1000)} meq/L, ionic strength "
@@ -284,12 +382,12 @@ def render_sheet(scenario: Scenario, plan: Plan, units: str = "metric",
         out.append("DOSE")
     else:
         out.append("DOSE  none needed")
-    rows = dose_lines(scenario, plan, units)
-    label_w = max(len(r[0]) for r in rows)
-    for label, value in rows:
-        first, *rest = _wrap(value, width - label_w - 4, "") or [""]
-        out.append(f"  {label:<{label_w}}  {first}")
-        out.extend(" " * (label_w + 4) + r.strip() for r in rest)
+    _table(out, dose_lines(scenario, plan, units), width)
+    metal_rows = metal_lines(scenario, plan, units)
+    if metal_rows:
+        out.append("")
+        out.append("SOLIDS AND METALS")
+        _table(out, metal_rows, width)
     out.append("")
     out.append("CHECKS")
     for mark, msg in check_lines(plan):
