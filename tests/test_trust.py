@@ -1,0 +1,116 @@
+"""Regression tests for issues 11 (trust) and 12 (robustness), named after
+the defect they guard."""
+
+from __future__ import annotations
+
+import os
+import pickle
+
+import pytest
+
+from dosing import Batch, Target, get_reagent, infer_water, plan_dose
+from dosing.errors import InputError, ScenarioError, ShiftLogError, UsageError
+from tests.helpers import run_cli
+
+GOOD = ("[effluent]\nph = 3.0\nalkalinity_mg_l_as_caco3 = 0\n[batch]\nvolume_m3 = 5\n"
+        "[target]\nph_min = 6\nph_max = 9\n[reagent]\nid = \"caustic-50\"\n")
+
+
+def _one_line_exit_2(r, path, *words):
+    assert r.returncode == 2, r.stdout
+    assert "Traceback" not in r.stderr
+    line = r.stderr.strip()
+    assert len(line.splitlines()) == 1
+    assert str(path) in line
+    for w in words:
+        assert w in line
+
+
+@pytest.mark.parametrize("err", [InputError("ph", "too high"),
+                                 ScenarioError("a.toml", "effluent.ph", "too high"),
+                                 UsageError("--chunk-rows", "allowed: 1000 or more"),
+                                 ShiftLogError("no entry 3")])
+def test_issue_15_errors_survive_pickling(err):
+    back = pickle.loads(pickle.dumps(err))
+    assert type(back) is type(err) and str(back) == str(err)
+
+
+def test_issue_12_byte_order_mark_is_accepted(tmp_path):
+    f = tmp_path / "bom.toml"
+    f.write_bytes(b"\xef\xbb\xbf" + GOOD.encode())
+    r = run_cli("plan", str(f))
+    assert r.returncode == 0, r.stderr
+
+
+def test_issue_12_integer_too_large_for_a_float(tmp_path):
+    f = tmp_path / "big.toml"
+    f.write_text(GOOD.replace("volume_m3 = 5", "volume_m3 = 1" + "0" * 309))
+    _one_line_exit_2(run_cli("plan", str(f)), f, "batch.volume_m3", "ordinary size")
+
+
+def test_issue_12_deep_nesting(tmp_path):
+    f = tmp_path / "deep.toml"
+    f.write_text("x = " + "[" * 600 + "]" * 600 + "\n")
+    _one_line_exit_2(run_cli("plan", str(f)), f, "nested")
+
+
+def test_issue_12_a_pipe_is_not_read(tmp_path):
+    f = tmp_path / "pipe.toml"
+    os.mkfifo(f)
+    _one_line_exit_2(run_cli("plan", str(f), timeout=30), f, "not a regular file")
+
+
+@pytest.mark.parametrize("edit, key", [
+    (("[reagent]\n", "[reagent]\nprice_per_kg = 1e308\n"), "reagent.price_per_kg"),
+    (("[reagent]\n", "[reagent]\nstorage_kg = 1e308\n"), "reagent.storage_kg"),
+    (("volume_m3 = 5", "volume_m3 = 1e-310"), "batch.volume_m3"),
+])
+def test_issue_12_values_that_would_print_infinity(tmp_path, edit, key):
+    f = tmp_path / "inf.toml"
+    f.write_text(GOOD.replace(*edit))
+    _one_line_exit_2(run_cli("plan", str(f), "--json"), f, key)
+
+
+def test_issue_12_unreachable_aim_names_file_and_key(tmp_path):
+    f = tmp_path / "up.toml"
+    f.write_text(GOOD.replace('"caustic-50"', '"sulfuric-98"'))
+    _one_line_exit_2(run_cli("plan", str(f)), f, "target.ph_aim", "cannot reach")
+
+
+def test_issue_11_open_to_air_without_alkalinity_is_refused():
+    # pH 12 open to air would imply ~0.3 mol/L of carbonate from air: no
+    # tank takes that up while it is dosed.
+    with pytest.raises(InputError, match="measure the alkalinity"):
+        infer_water(12.0, 25.0, open_to_air=True)
+
+
+def test_issue_11_rounded_lab_acidity_is_accepted():
+    # pH 3.0 alone implies 50.1 mg/L as CaCO3 of acidity; a lab reporting 50
+    # is within its precision (carbonate zero, with a note).
+    w = infer_water(3.0, 25.0, acidity_mg_l_as_caco3=50)
+    assert w.carbonate_mol_l == 0.0
+    assert any("precision" in n for n in w.notes)
+    with pytest.raises(InputError, match="smaller than"):
+        infer_water(3.0, 25.0, acidity_mg_l_as_caco3=30)
+
+
+def test_issue_11_background_salt_counts_in_the_ionic_strength():
+    # 0.5 mol/L NaCl given as ions (29.2 g/L Cl, 11.5 g/L Na) raises the
+    # ionic strength like the same salt given as extra ionic strength.
+    ions = {"sodium": 0.5 * 22.990e3, "chloride": 0.5 * 35.45e3}
+    a = infer_water(4.0, 25.0, acidity_mg_l_as_caco3=100, ions_mg_l=ions)
+    b = infer_water(4.0, 25.0, acidity_mg_l_as_caco3=100, extra_ionic_strength_mol_l=0.5)
+    bare = infer_water(4.0, 25.0, acidity_mg_l_as_caco3=100)
+    assert a.ionic_strength == pytest.approx(b.ionic_strength, rel=0.01)
+    assert a.ionic_strength > 0.4 > bare.ionic_strength
+    r, t = get_reagent("caustic-50"), Target(6, 9, 7.5)
+    da = plan_dose(a, r, t, Batch(1)).dose_mol_l
+    assert da == pytest.approx(plan_dose(b, r, t, Batch(1)).dose_mol_l, rel=0.01)
+    assert abs(da / plan_dose(bare, r, t, Batch(1)).dose_mol_l - 1) > 1e-3
+
+
+def test_issue_11_calcium_counts_as_divalent():
+    # 10 mmol/L of calcium chloride: I = 0.5 (0.01 x 4 + 0.02 x 1) = 0.03.
+    w = infer_water(7.0, 25.0, alkalinity_mg_l_as_caco3=0, activity="ideal",
+                    ions_mg_l={"calcium": 400.78, "chloride": 709.0})
+    assert w.ionic_strength == pytest.approx(0.030, rel=0.01)
