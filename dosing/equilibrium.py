@@ -116,31 +116,41 @@ class Constants:
     ks0: np.ndarray         #: (n, m) *Ks0 of each column's hydroxide, NaN if none [-]
 
 
-def constants_at(temperature_c) -> Constants:
+def constants_at(temperature_c, cols=None) -> Constants:
     """Equilibrium constants at each temperature [°C] (0-60 °C).
 
     Carbonate uses Plummer & Busenberg (1982); water uses IAPWS R11-07; the
     other systems use van 't Hoff from their 25 °C values. Long arrays are
-    computed once per distinct temperature.
+    computed once per distinct temperature. With ``cols`` only those
+    columns are filled (the others read as no step and no solid), which is
+    what a solver restricted to the systems present needs.
     """
     t = np.atleast_1d(np.asarray(temperature_c, dtype=float))
+    cols = np.arange(N_SYSTEMS) if cols is None else np.asarray(cols, dtype=int)
     if t.size > 32:
         uniq, inv = np.unique(t, return_inverse=True)
         if uniq.size < t.size:
-            c = _constants(uniq)
+            c = _constants(uniq, cols)
             return Constants(kw=c.kw[inv], k=c.k[inv], a=c.a[inv], ks0=c.ks0[inv])
-    return _constants(t)
+    return _constants(t, cols)
 
 
-def _constants(t: np.ndarray) -> Constants:
-    pk = vant_hoff_pk(_PK25[None, :, :], _DH[None, :, :], t[:, None, None])
-    pk1, pk2 = carbonate_pk(t)
-    pk[:, CARBONATE, 0] = pk1
-    pk[:, CARBONATE, 1] = pk2
-    k = 10.0 ** -pk          # a missing step has pK = inf, so K = 0
+def _constants(t: np.ndarray, cols: np.ndarray) -> Constants:
+    pk = vant_hoff_pk(_PK25[None, cols, :], _DH[None, cols, :], t[:, None, None])
+    carb = np.flatnonzero(cols == CARBONATE)
+    if carb.size:
+        pk1, pk2 = carbonate_pk(t)
+        pk[:, carb[0], 0] = pk1
+        pk[:, carb[0], 1] = pk2
+    k = np.zeros((t.size, N_SYSTEMS, _MAXSTEP))
+    k[:, cols] = 10.0 ** -pk          # a missing step has pK = inf, so K = 0
     # log *Ks0 = -pK, and a pK moves by +dH/(R ln10) (1/T - 1/298.15).
-    log_ks0 = -vant_hoff_pk(-_SOLID_LOGK[None, :], _SOLID_DH[None, :], t[:, None])
-    return Constants(kw=10.0 ** -pkw(t), k=k, a=debye_huckel_a(t), ks0=10.0 ** log_ks0)
+    ks0 = np.full((t.size, N_SYSTEMS), np.nan)
+    solid = cols[np.isfinite(_SOLID_LOGK[cols])]
+    if solid.size:
+        ks0[:, solid] = 10.0 ** -vant_hoff_pk(-_SOLID_LOGK[None, solid],
+                                              _SOLID_DH[None, solid], t[:, None])
+    return Constants(kw=10.0 ** -pkw(t), k=k, a=debye_huckel_a(t), ks0=ks0)
 
 
 @dataclass(frozen=True)
@@ -192,9 +202,12 @@ class Mixture:
                    vec(co2_air_mol_l), bool(davies),
                    None if unknown_pka is None else vec(unknown_pka))
 
-    def constants(self) -> Constants:
-        """Constants at this mixture's temperatures, fitted pKa applied."""
-        const = constants_at(self.temperature_c)
+    def constants(self, cols=None) -> Constants:
+        """Constants at this mixture's temperatures, fitted pKa applied.
+
+        ``cols``: fill only these columns (see :func:`constants_at`).
+        """
+        const = constants_at(self.temperature_c, cols)
         if self.unknown_pka is not None:
             k = const.k.copy()
             k[:, UNKNOWN, 0] = np.where(np.isfinite(self.unknown_pka),
@@ -262,7 +275,7 @@ def speciate(mix: Mixture, ph, *, max_iter: int = 60, solids: bool = True) -> Sp
     ``solids=False`` keeps every metal dissolved (the water as sampled).
     """
     ph = np.broadcast_to(np.asarray(ph, dtype=float), (mix.n,)).copy()
-    const = mix.constants()
+    const = mix.constants(_used(mix))
     r = _Rows(mix.totals_mol_l, mix.strong_eq_l, mix.strong_ionic_strength,
               mix.co2_air_mol_l, const.kw, const.k, const.a, _Z, CARBONATE, mix.davies,
               np.arange(N_SYSTEMS), const.ks0, _SOLID_Z, bool(solids))
@@ -316,13 +329,21 @@ class _Rows:
                        k=self.k[idx], a=self.a[idx], ks0=self.ks0[idx])
 
 
-def _restrict(mix: Mixture, const: Constants, extra_cols=(), *, cap: bool = True) -> _Rows:
-    """Keep only the systems with a non-zero total (plus ``extra_cols``)."""
+def _used(mix: Mixture, extra_cols=()) -> np.ndarray:
+    """Columns with a non-zero total (plus ``extra_cols``, and open carbonate)."""
     used = np.any(mix.totals_mol_l != 0.0, axis=0)
     used[list(extra_cols)] = True
     if mix.open_to_air.any():
         used[CARBONATE] = True
-    cols = np.flatnonzero(used)
+    return np.flatnonzero(used)
+
+
+def _restrict(mix: Mixture, extra_cols=(), *, cap: bool = True) -> _Rows:
+    """Keep only the systems with a non-zero total (plus ``extra_cols``)."""
+    cols = _used(mix, extra_cols)
+    used = np.zeros(N_SYSTEMS, dtype=bool)
+    used[cols] = True
+    const = mix.constants(cols)
     carb = int(np.searchsorted(cols, CARBONATE)) if used[CARBONATE] else -1
     return _Rows(mix.totals_mol_l[:, cols], mix.strong_eq_l, mix.strong_ionic_strength,
                  mix.co2_air_mol_l, const.kw, const.k[:, cols], const.a, _Z[cols], carb,
@@ -418,8 +439,7 @@ def solve_ph(mix: Mixture, *, ph_guess=None, tol_ph: float = 1e-12,
     ModelError
         If any water fails to converge (the message gives how many).
     """
-    const = mix.constants()
-    rows = _restrict(mix, const)
+    rows = _restrict(mix)
     ionic = mix.strong_ionic_strength.copy()
     ph = np.full(mix.n, 7.0) if ph_guess is None else np.broadcast_to(
         np.asarray(ph_guess, dtype=float), (mix.n,)).copy()
@@ -525,7 +545,7 @@ def strong_balance_at_ph(totals_mol_l, ph, temperature_c, *, davies: bool,
     extra = mix.strong_ionic_strength
     known = np.broadcast_to(np.asarray(known_strong_eq_l, dtype=float), ph.shape)
     bare = replace(mix, strong_eq_l=np.zeros(mix.n), strong_ionic_strength=np.zeros(mix.n))
-    rows = _restrict(bare, mix.constants(), cap=False)
+    rows = _restrict(bare, cap=False)
 
     def at(ionic):
         resid, _, i_weak = _rows_state(rows, ph, ionic)
@@ -575,7 +595,7 @@ def carbonate_for_alkalinity(totals_mol_l, ph, temperature_c, alk_eq_l,
     tot[:, CARBONATE] = 0.0
     t = np.broadcast_to(np.asarray(temperature_c, dtype=float), ph.shape)
     bare = Mixture.build(tot, 0.0, 0.0, t, np.nan, davies, unknown_pka)
-    rows = _restrict(bare, bare.constants(), extra_cols=[CARBONATE])
+    rows = _restrict(bare, extra_cols=[CARBONATE])
     car = rows.carb
     alk = np.broadcast_to(np.asarray(alk_eq_l, dtype=float), ph.shape)
     extra = np.broadcast_to(np.asarray(extra_ionic_strength, float), ph.shape)
@@ -696,7 +716,7 @@ def dose_to_ph(mix: Mixture, reagent: ReagentVector, target_ph,
     """
     tp = np.broadcast_to(np.asarray(target_ph, dtype=float), (mix.n,)).copy()
     n_full = np.asarray(reagent.totals_mol, dtype=float)
-    rows = _restrict(mix, mix.constants(), extra_cols=np.flatnonzero(n_full))
+    rows = _restrict(mix, extra_cols=np.flatnonzero(n_full))
     job = _DoseJob(mix, rows, n_full[rows.cols], reagent, 10.0 ** -tp)
     capped = np.zeros(rows.totals.shape, dtype=bool)
     for _ in range(_CAP_PASSES if rows.has_solids else 1):

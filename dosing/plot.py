@@ -17,6 +17,7 @@ import numpy as np  # noqa: E402
 from .plan import Batch, Plan  # noqa: E402
 from .numbers import fmt  # noqa: E402
 from .sheet import UNIT_SYSTEMS  # noqa: E402
+from .solids import dissolved_vs_ph  # noqa: E402
 
 __all__ = ["plan_figure_png", "replay_figure_png", "titration_figure_png"]
 
@@ -86,7 +87,45 @@ def plan_figure_png(plan: Plan, title: str = "", units: str = "metric") -> bytes
     ax.legend(h1 + h2, l1 + l2, loc="upper center", bbox_to_anchor=(0.5, -0.13),
               ncol=3, fontsize=8, frameon=False)
     ax.set_title(title or "Titration curve", fontsize=11)
+    if plan.water.metals_mol_l:
+        _metals_panel(fig, plan)
     return _png(fig)
+
+
+def _metals_panel(fig, plan: Plan) -> None:
+    """Dissolved metal against pH (log scale), with caps, window and aim."""
+    fig.set_size_inches(8.0, 10.0)
+    ax, ax3 = fig.axes[0], fig.add_subplot(2, 1, 2)
+    ax.set_subplotspec(fig.add_gridspec(2, 1)[0])
+    for other in fig.axes[1:-1]:
+        other.set_subplotspec(ax.get_subplotspec())
+    grid = np.linspace(4.0, 13.0, 451)
+    metals = {k: v for k, v in plan.water.metals_mol_l.items()
+              if k not in ("calcium", "magnesium")} or dict(plan.water.metals_mol_l)
+    curves = dissolved_vs_ph(metals, plan.water.temperature_c, plan.water.davies,
+                             plan.ionic_strength_end, grid)
+    ax3.axvspan(plan.target.ph_min, plan.target.ph_max, color="tab:green", alpha=0.13,
+                label="permit pH window")
+    caps = {} if plan.cap_window is None else plan.cap_window.caps_mg_l
+    for i, (mid, mg) in enumerate(curves.items()):
+        color = f"C{i}"
+        ax3.plot(grid, np.maximum(mg, 1e-6), color=color, lw=1.8,
+                 label=f"{mid.replace('_', ' ')} dissolved")
+        if mid in caps:
+            ax3.axhline(caps[mid], color=color, ls="--", lw=1.0,
+                        label=f"{mid.replace('_', ' ')} cap {caps[mid]:g} mg/L")
+    ax3.axvline(plan.target.ph_aim, color="tab:red", ls=":", lw=1.0,
+                label=f"aim pH {plan.target.ph_aim:g}")
+    ax3.set_yscale("log")
+    ax3.set_ylim(1e-4, None)
+    ax3.set_xlim(grid[0], grid[-1])
+    ax3.set_xlabel("pH")
+    ax3.set_ylabel("dissolved metal, mg/L (log scale)")
+    ax3.grid(True, which="both", alpha=0.25)
+    ax3.legend(loc="upper center", bbox_to_anchor=(0.5, -0.12), ncol=3, fontsize=8,
+               frameon=False)
+    ax3.set_title("Metals left in solution with the hydroxide present (model estimate; "
+                  "a jar test is the check)", fontsize=9)
 
 
 def replay_figure_png(totals, report: dict, units: str = "metric") -> bytes:

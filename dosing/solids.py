@@ -29,7 +29,7 @@ from typing import Mapping
 import numpy as np
 
 from .equilibrium import METAL_COLUMNS, Mixture, N_ACIDS, Speciation, speciate, system_index
-from .hazards import GYPSUM_LOG_KSP, gypsum_si
+from .hazards import gypsum_si
 from .metals import METALS, METAL_IDS
 from .species import MOLAR_MASS
 

@@ -9,7 +9,7 @@ from textual.widgets import Static
 
 from dosing.plan import Plan
 from dosing.scenario import Scenario
-from dosing.sheet import caution_lines, check_lines, dose_lines
+from dosing.sheet import caution_lines, check_lines, dose_lines, metal_lines
 
 __all__ = ["DosePanel"]
 
@@ -23,7 +23,8 @@ class DosePanel(Static):
         table = Table.grid(padding=(0, 2))
         table.add_column(style="bold")
         table.add_column()
-        for label, value in dose_lines(scenario, plan, units):
+        for label, value in dose_lines(scenario, plan, units) + metal_lines(scenario, plan,
+                                                                            units):
             table.add_row(label, value)
         head = Text()
         if stale:
