@@ -51,6 +51,7 @@ def render_entry(log: ShiftLog, e: Entry) -> str:
         out.append(f"  planned: {_n(e.planned_kg)} kg{per} of {plan.get('reagent_name', e.reagent)}"
                    f" ({_n(dose.get('mmol_per_l'))} mmol/L), pH {_n(e.ph_start)} to "
                    f"{_n(e.ph_planned)}")
+        out.extend(_solid_lines(plan, per))
     if e.dosed_kg is not None:
         out.append(f"  actually dosed: {_n(e.dosed_kg)} kg"
                    + (f" ({fmt(e.dosed_ratio)} of plan)" if e.dosed_ratio else ""))
@@ -71,3 +72,18 @@ def render_entry(log: ShiftLog, e: Entry) -> str:
         for c in plan.get("cautions", []):
             out.append(f"  - {c}")
     return "\n".join(out) + "\n"
+
+
+def _solid_lines(plan: dict, per: str) -> list[str]:
+    """Solids, sludge and metals left, as recorded with the plan."""
+    sfx = "_per_h" if per else ""
+    out = [f"  solid: {x['formula']} {_n(x['mg_per_l'])} mg/L = {_n(x.get('kg' + sfx))} kg{per}"
+           for x in plan.get("solids", [])]
+    sludge = plan.get("sludge") or {}
+    if plan.get("solids") and sludge.get("dry_kg" + sfx) is not None:
+        out.append(f"  sludge: {_n(sludge['dry_kg' + sfx])} kg dry{per}")
+    left = plan.get("metals_after_mg_l") or {}
+    if left:
+        out.append("  metals left: " + ", ".join(f"{k.replace('_', ' ')} {_n(v)} mg/L"
+                                                 for k, v in left.items()))
+    return out

@@ -238,3 +238,12 @@ def test_caps_that_miss_the_window_are_said():
     assert plan.cap_window.overlap is None
     assert any("does not overlap" in m for m in plan.warnings)
     assert any(c.id == "permit-nickel_mg_l" and c.level == "danger" for c in plan.checks)
+
+
+def test_shift_log_records_solids_and_metals(tmp_path):
+    db = tmp_path / "log.sqlite"
+    r = run_cli("log", "add", "scenarios/plating-rinse-metals.toml", "--operator", "A. Test",
+                "--db", str(db))
+    assert r.returncode == 0, r.stderr
+    assert "solid: Zn(OH)2" in r.stdout and "metals left: zinc" in r.stdout
+    assert "final word" in r.stdout
