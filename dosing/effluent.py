@@ -42,8 +42,9 @@ from typing import Mapping
 import numpy as np
 
 from .activity import DAVIES_I_LIMIT
-from .equilibrium import (CARBONATE, N_SYSTEMS, Mixture, carbonate_for_alkalinity,
-                          co2_in_air_mol_l, speciate, strong_balance_at_ph, system_index)
+from .equilibrium import (CARBONATE, METAL_COLUMNS, N_SYSTEMS, Mixture,
+                          carbonate_for_alkalinity, co2_in_air_mol_l, speciate,
+                          strong_balance_at_ph, system_index)
 from .errors import InputError, ModelError
 from .metals import METAL_IDS, get_metal
 from .species import MOLAR_MASS, SYSTEM_IDS, get_system
@@ -51,7 +52,7 @@ from .water import check_temperature
 
 __all__ = ["CACO3_MG_PER_MEQ", "ALKALINITY_ENDPOINT_PH", "ACIDITY_ENDPOINT_PH",
            "DEFAULT_PCO2_UATM", "BACKGROUND_IONS", "STRONG_IONS", "Water", "infer_water",
-           "totals_vector"]
+           "totals_vector", "aerate"]
 
 #: Equivalent weight of CaCO3 [mg/meq]: M(CaCO3)/2 with IUPAC atomic weights.
 #: Standard Methods rounds it to 50.0 (its factor 50 000).
@@ -127,10 +128,10 @@ class Water:
         pKa of the fitted unidentified acid [-].
     metals_mol_l : Mapping[str, float]
         Total of each dissolved metal as sampled (calcium and magnesium
-        included) [mol/L]; with ``ferrous_oxidised`` the ferrous iron is
-        already moved to ferric.
+        included) [mol/L].
     ferrous_oxidised : bool
-        Ferrous iron planned as oxidised by aeration before dosing.
+        Ferrous iron planned as oxidised by aeration before dosing: the tank
+        (:meth:`mixture`) holds it as ferric iron.
     known_strong_eq_l : float
         Net charge of the measured strong ions [eq/L].
     known_ionic_strength : float
@@ -164,9 +165,17 @@ class Water:
         """
         co2 = (float(co2_in_air_mol_l(self.temperature_c, self.pco2_atm))
                if self.open_to_air else math.nan)
-        return Mixture.build(totals_vector(self.totals_mol_l, self.metals_mol_l),
+        vec = totals_vector(self.totals_mol_l, self.metals_mol_l)
+        return Mixture.build(aerate(vec) if self.ferrous_oxidised else vec,
                              self.strong_eq_l, self.strong_ionic_strength,
                              self.temperature_c, co2, self.davies, self.unknown_pka)
+
+    @property
+    def tank_metals_mol_l(self) -> dict[str, float]:
+        """Metals in the tank as dosed (after aeration, if planned) [mol/L]."""
+        tot = self.mixture().totals_mol_l[0]
+        return {m: float(tot[system_index(m)]) for m in METAL_IDS
+                if tot[system_index(m)] > 0}
 
     def strong_ionic_strength_for(self, strong_eq_l):
         """Ionic strength of the strong ions for another balance [mol/L].
@@ -181,6 +190,20 @@ class Water:
     def carbonate_mol_l(self) -> float:
         """Total inorganic carbon [mol/L]."""
         return self.totals_mol_l.get("carbonate", 0.0)
+
+
+def aerate(vec: np.ndarray) -> np.ndarray:
+    """Totals (m,) or (n, m) with ferrous iron moved to ferric [mol/L].
+
+    Aeration, 4 Fe2+ + O2 + 10 H2O -> 4 Fe(OH)3 + 8 H+: the strong-ion
+    balance is unchanged, and the charge balance releases the acid as the
+    ferric iron hydrolyses and precipitates.
+    """
+    out = np.array(vec, dtype=float)
+    fe2, fe3 = system_index("iron_ii"), system_index("iron_iii")
+    out[..., fe3] += out[..., fe2]
+    out[..., fe2] = 0.0
+    return out
 
 
 def totals_vector(totals_mol_l: Mapping[str, float],
@@ -264,18 +287,34 @@ def _known_strong(ions_mg_l: Mapping[str, float], extra_i: float) -> tuple[float
     return eq, ionic + extra_i
 
 
+#: The two lab titrations: sign of the strong acid taken [-], allowed end
+#: points [pH], what the method is called, which way it titrates, and the
+#: other measurement to give instead.
+_LAB = {"alkalinity": (1, (3.5, 5.5), "total alkalinity", "down", "below", "an acidity"),
+        "acidity": (-1, (7.5, 9.0), "acidity", "up", "above", "an alkalinity")}
+
+
 @dataclass(frozen=True)
 class _Measured:
     """A lab alkalinity or acidity, as the engine uses it."""
 
-    field: str              #: scenario key it came from
-    eq_l: float             #: + alkalinity, - acidity [eq/L]
-    endpoint_ph: float      #: titration end point [pH]
+    kind: str               #: "alkalinity" or "acidity"
     mg_l: float             #: the value as reported [mg/L as CaCO3]
+    endpoint_ph: float      #: titration end point [pH]
 
     @property
-    def kind(self) -> str:
-        return "alkalinity" if self.eq_l >= 0 and self.field.startswith("alk") else "acidity"
+    def field(self) -> str:
+        """The scenario key it came from."""
+        return f"{self.kind}_mg_l_as_caco3"
+
+    @property
+    def eq_l(self) -> float:
+        """Strong acid taken to the end point: + alkalinity, - acidity [eq/L]."""
+        return _LAB[self.kind][0] * self.mg_l / CACO3_MG_PER_MEQ / 1000.0
+
+    def at_or_past_end(self, ph: float) -> bool:
+        """True where the water is already at or beyond the end point."""
+        return (ph - self.endpoint_ph) * _LAB[self.kind][0] <= 0
 
 
 def _measured(ph, alkalinity, acidity, alk_ep, acid_ep) -> _Measured | None:
@@ -283,25 +322,18 @@ def _measured(ph, alkalinity, acidity, alk_ep, acid_ep) -> _Measured | None:
     if alkalinity is not None and acidity is not None:
         raise InputError("acidity_mg_l_as_caco3", "give alkalinity or acidity, "
                          "not both: either one fixes the carbonate total")
-    if alkalinity is not None:
-        alk = _check_number("alkalinity_mg_l_as_caco3", alkalinity, 0.0, 1e5)
-        ep = _check_number("alkalinity_endpoint_ph", alk_ep, 3.5, 5.5)
-        if alk > 0 and ph <= ep:
-            raise InputError("alkalinity_mg_l_as_caco3", f"{alk:g} mg/L as CaCO3 "
-                             f"cannot be measured on a water at pH {ph:g}: total "
-                             f"alkalinity is titrated down to pH {ep:g}, so a water "
-                             f"at or below that pH has none. Give 0, or an acidity "
-                             "instead")
-        return _Measured("alkalinity_mg_l_as_caco3", alk / CACO3_MG_PER_MEQ / 1000.0, ep, alk)
-    if acidity is not None:
-        acid = _check_number("acidity_mg_l_as_caco3", acidity, 0.0, 1e5)
-        ep = _check_number("acidity_endpoint_ph", acid_ep, 7.5, 9.0)
-        if acid > 0 and ph >= ep:
-            raise InputError("acidity_mg_l_as_caco3", f"{acid:g} mg/L as CaCO3 "
-                             f"cannot be measured on a water at pH {ph:g}: acidity "
-                             f"is titrated up to pH {ep:g}, so a water at or above "
-                             "that pH has none. Give 0, or an alkalinity instead")
-        return _Measured("acidity_mg_l_as_caco3", -acid / CACO3_MG_PER_MEQ / 1000.0, ep, acid)
+    for kind, value, ep in (("alkalinity", alkalinity, alk_ep), ("acidity", acidity, acid_ep)):
+        if value is None:
+            continue
+        _, (lo, hi), method, way, side, other = _LAB[kind]
+        m = _Measured(kind, _check_number(f"{kind}_mg_l_as_caco3", value, 0.0, 1e5),
+                      _check_number(f"{kind}_endpoint_ph", ep, lo, hi))
+        if m.mg_l > 0 and m.at_or_past_end(ph):
+            raise InputError(m.field, f"{m.mg_l:g} mg/L as CaCO3 cannot be measured on "
+                             f"a water at pH {ph:g}: {method} is titrated {way} to pH "
+                             f"{m.endpoint_ph:g}, so a water at or {side} that pH has "
+                             f"none. Give 0, or {other} instead")
+        return m
     return None
 
 
@@ -321,14 +353,13 @@ class _Job:
 
 def _carbonate_from_lab(job: _Job, m: _Measured, notes: list[str]) -> float:
     """Carbonate total that explains a lab alkalinity or acidity [mol/L]."""
-    at_end = (m.eq_l >= 0 and job.ph <= m.endpoint_ph) or (m.eq_l < 0 and job.ph >= m.endpoint_ph)
-    if m.eq_l == 0.0 and at_end:
+    if m.eq_l == 0.0 and m.at_or_past_end(job.ph):
         return 0.0
-    metals = bool(np.any(job.vec[N_SYSTEMS - len(METAL_IDS):] > 0))
+    metals = bool(np.any(job.vec[METAL_COLUMNS] > 0))
     c, coef, _ = carbonate_for_alkalinity(
         job.vec, job.ph, job.temperature_c, m.eq_l, m.endpoint_ph, davies=job.davies,
         extra_ionic_strength=job.known_i, unknown_pka=job.unknown_pka,
-        ferrous_oxidised=m.eq_l < 0)
+        ferrous_oxidised=m.kind == "acidity")
     carb = float(c[0])
     if not np.isfinite(carb) or coef[0] == 0.0:
         raise InputError(m.field, f"carbonate cannot explain this value at pH {job.ph:g}")
@@ -345,16 +376,16 @@ def _carbonate_from_lab(job: _Job, m: _Measured, notes: list[str]) -> float:
         return 0.0
     if floor_mg - m.mg_l <= slack:
         notes.append(f"the {m.kind} of {m.mg_l:g} mg/L as CaCO3 is within the lab's "
-                     f"precision of the {fmt_mg(floor_mg)} mg/L that {others} alone "
+                     f"precision of the {_lab_fmt(floor_mg)} mg/L that {others} alone "
                      "imply; the water is taken to hold no inorganic carbon")
         return 0.0
     raise InputError(m.field, f"the {m.kind} of {m.mg_l:g} mg/L as CaCO3 is smaller "
-                     f"than the {fmt_mg(floor_mg)} mg/L that {others} alone account "
+                     f"than the {_lab_fmt(floor_mg)} mg/L that {others} alone account "
                      "for; no water can be both. Check the laboratory value, the pH, "
                      "the solute totals" + (" and the metals" if metals else ""))
 
 
-def fmt_mg(x: float) -> str:
+def _lab_fmt(x: float) -> str:
     """A lab figure to four significant digits."""
     return f"{x:.4g}"
 
@@ -397,8 +428,8 @@ def _supersaturation_note(job: _Job, s: float, strong_i: float) -> str | None:
     mix = Mixture.build(job.vec, s, strong_i, job.temperature_c, math.nan, job.davies,
                         job.unknown_pka)
     sp = speciate(mix, job.ph)
-    over = [METAL_IDS[j] for j, x in enumerate(sp.solids_mol_l[0, N_SYSTEMS - len(METAL_IDS):])
-            if x > 1e-3 * job.vec[N_SYSTEMS - len(METAL_IDS) + j]]
+    over = [mid for mid, col in zip(METAL_IDS, METAL_COLUMNS)
+            if sp.solids_mol_l[0, col] > 1e-3 * job.vec[col]]
     if not over:
         return None
     return (f"{', '.join(over)} above its hydroxide's solubility at the measured pH "
@@ -492,7 +523,7 @@ def infer_water(ph: float, temperature_c: float = 25.0, *,
     if note:
         notes.append(note)
     if oxidise_ferrous:
-        metals = _oxidised(metals, notes)
+        notes.append(_AERATION_NOTE.format(fe2=metals["iron_ii"] * 1000))
     start = Mixture.build(job.vec, s, strong_i, job.temperature_c, math.nan, job.davies,
                           job.unknown_pka)
     alk_model = _alkalinity_of(start, job.ph)
@@ -566,15 +597,9 @@ def _carbonate(job: _Job, measured: _Measured | None, given: bool, open_to_air: 
     return carb
 
 
-def _oxidised(metals: dict[str, float], notes: list[str]) -> dict[str, float]:
-    """Metals with ferrous iron moved to ferric (aeration before dosing)."""
-    out = dict(metals)
-    fe2 = out.pop("iron_ii")
-    out["iron_iii"] = out.get("iron_iii", 0.0) + fe2
-    notes.append(f"ferrous iron ({fe2 * 1000:.3g} mmol/L) planned as oxidised to ferric by "
-                 "aeration before dosing (4 Fe2+ + O2 + 10 H2O -> 4 Fe(OH)3 + 8 H+): "
-                 "aerate fully first, or the dose overshoots as the iron oxidises later")
-    return out
+_AERATION_NOTE = ("ferrous iron ({fe2:.3g} mmol/L) planned as oxidised to ferric by "
+                  "aeration before dosing (4 Fe2+ + O2 + 10 H2O -> 4 Fe(OH)3 + 8 H+): "
+                  "aerate fully first, or the dose overshoots as the iron oxidises later")
 
 
 def _alkalinity_of(mix: Mixture, ph: float) -> float:

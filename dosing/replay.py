@@ -25,7 +25,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from .effluent import ALKALINITY_ENDPOINT_PH, CACO3_MG_PER_MEQ, totals_vector
+from .effluent import ALKALINITY_ENDPOINT_PH, CACO3_MG_PER_MEQ, aerate, totals_vector
 from .equilibrium import (CARBONATE, N_SYSTEMS, Mixture, carbonate_for_alkalinity, co2_in_air_mol_l,
                           dose_to_ph, strong_balance_at_ph)
 from .errors import ScenarioError
@@ -194,9 +194,11 @@ def _dose_for(scenario: Scenario, ph, temp, alk, flag, ok) -> np.ndarray:
     """Dose to the aim [mol/L] for rows that passed the data checks."""
     w, reagent, target = scenario.water, scenario.reagent, scenario.target
     m = ph.size
-    base = np.broadcast_to(totals_vector(w.totals_mol_l), (m, N_SYSTEMS)).copy()
+    # Each row's water as sampled: the scenario's solutes and metals.
+    base = np.broadcast_to(totals_vector(w.totals_mol_l, w.metals_mol_l),
+                           (m, N_SYSTEMS)).copy()
     pka = w.unknown_pka
-    extra = max(w.strong_ionic_strength - 0.5 * abs(w.strong_eq_l), 0.0)
+    extra = w.known_ionic_strength
     positions = np.flatnonzero(ok)
     bad = np.zeros(m, dtype=bool)
     if alk is not None:
@@ -210,11 +212,12 @@ def _dose_for(scenario: Scenario, ph, temp, alk, flag, ok) -> np.ndarray:
         bad |= ~np.isfinite(carb) | (carb < 0)
         base[:, CARBONATE] = np.where(bad, 0.0, carb)
     s, _ = strong_balance_at_ph(base, ph, temp, davies=w.davies, extra_ionic_strength=extra,
-                                unknown_pka=pka)
+                                unknown_pka=pka, known_strong_eq_l=w.known_strong_eq_l)
     co2 = (co2_in_air_mol_l(temp, w.pco2_atm) if w.open_to_air else np.full(m, np.nan))
     unsettled = ~np.isfinite(s) & ~bad
     s = np.where(np.isfinite(s), s, 0.0)
-    mix = Mixture.build(base, s, extra + 0.5 * np.abs(s), temp, co2, w.davies, pka)
+    tank = aerate(base) if w.ferrous_oxidised else base
+    mix = Mixture.build(tank, s, w.strong_ionic_strength_for(s), temp, co2, w.davies, pka)
     dose, grip = dose_to_ph(mix, reagent.vector(), target.ph_aim)
     direction = 1.0 if reagent.raises_ph else -1.0
     inside = (ph >= target.ph_min) & (ph <= target.ph_max)
