@@ -113,7 +113,7 @@ class Constants:
     kw: np.ndarray          #: (n,) ion product of water [-]
     k: np.ndarray           #: (n, m, 4) Ka of each step, 0 where no step [-]
     a: np.ndarray           #: (n,) Debye-Hückel A [(kg/mol)^(1/2)]
-    ks0: np.ndarray         #: (n, m) *Ks0 of each column's hydroxide, NaN if none [-]
+    log_ks0: np.ndarray     #: (n, m) log *Ks0 of each column's hydroxide, NaN if none [-]
 
 
 def constants_at(temperature_c, cols=None) -> Constants:
@@ -131,7 +131,7 @@ def constants_at(temperature_c, cols=None) -> Constants:
         uniq, inv = np.unique(t, return_inverse=True)
         if uniq.size < t.size:
             c = _constants(uniq, cols)
-            return Constants(kw=c.kw[inv], k=c.k[inv], a=c.a[inv], ks0=c.ks0[inv])
+            return Constants(kw=c.kw[inv], k=c.k[inv], a=c.a[inv], log_ks0=c.log_ks0[inv])
     return _constants(t, cols)
 
 
@@ -145,12 +145,12 @@ def _constants(t: np.ndarray, cols: np.ndarray) -> Constants:
     k = np.zeros((t.size, N_SYSTEMS, _MAXSTEP))
     k[:, cols] = 10.0 ** -pk          # a missing step has pK = inf, so K = 0
     # log *Ks0 = -pK, and a pK moves by +dH/(R ln10) (1/T - 1/298.15).
-    ks0 = np.full((t.size, N_SYSTEMS), np.nan)
+    log_ks0 = np.full((t.size, N_SYSTEMS), np.nan)
     solid = cols[np.isfinite(_SOLID_LOGK[cols])]
     if solid.size:
-        ks0[:, solid] = 10.0 ** -vant_hoff_pk(-_SOLID_LOGK[None, solid],
-                                              _SOLID_DH[None, solid], t[:, None])
-    return Constants(kw=10.0 ** -pkw(t), k=k, a=debye_huckel_a(t), ks0=ks0)
+        log_ks0[:, solid] = -vant_hoff_pk(-_SOLID_LOGK[None, solid],
+                                          _SOLID_DH[None, solid], t[:, None])
+    return Constants(kw=10.0 ** -pkw(t), k=k, a=debye_huckel_a(t), log_ks0=log_ks0)
 
 
 @dataclass(frozen=True)
@@ -212,7 +212,7 @@ class Mixture:
             k = const.k.copy()
             k[:, UNKNOWN, 0] = np.where(np.isfinite(self.unknown_pka),
                                         10.0 ** -np.nan_to_num(self.unknown_pka), k[:, UNKNOWN, 0])
-            const = Constants(const.kw, k, const.a, const.ks0)
+            const = Constants(const.kw, k, const.a, const.log_ks0)
         return const
 
     @property
@@ -239,7 +239,7 @@ class Speciation:
     ionic_strength: np.ndarray      #: (n,) [mol/L]
     charge_residual_eq_l: np.ndarray  #: (n,) charge balance residual [eq/L]
     buffer_intensity_eq_l: np.ndarray  #: (n,) β = dC_base/dpH [eq/(L pH)]
-    solids_mol_l: np.ndarray | None = None  #: (n, m) hydroxide precipitated [mol/L]
+    solids_mol_l: np.ndarray        #: (n, m) hydroxide precipitated [mol/L]
 
     def concentration(self, system: int, form: int) -> np.ndarray:
         """(n,) concentration of one form of one system [mol/L]."""
@@ -278,7 +278,7 @@ def speciate(mix: Mixture, ph, *, max_iter: int = 60, solids: bool = True) -> Sp
     const = mix.constants(_used(mix))
     r = _Rows(mix.totals_mol_l, mix.strong_eq_l, mix.strong_ionic_strength,
               mix.co2_air_mol_l, const.kw, const.k, const.a, _Z, CARBONATE, mix.davies,
-              np.arange(N_SYSTEMS), const.ks0, _SOLID_Z, bool(solids))
+              np.arange(N_SYSTEMS), const.log_ks0, _SOLID_Z, bool(solids))
     ionic = mix.strong_ionic_strength.copy()
     for _ in range(max_iter):
         alpha, q, totals, h, oh, resid, beta, new_i = _state(r, ph, ionic)
@@ -290,8 +290,6 @@ def speciate(mix: Mixture, ph, *, max_iter: int = 60, solids: bool = True) -> Sp
     precipitated = np.zeros_like(totals)
     precipitated[:, METAL_COLUMNS] = np.maximum(
         mix.totals_mol_l[:, METAL_COLUMNS] - totals[:, METAL_COLUMNS], 0.0)
-    if mix.open_to_air.any():
-        precipitated[:, CARBONATE] = 0.0
     return Speciation(ph, h, oh, alpha, q, totals, ionic, resid, beta, precipitated)
 
 
@@ -315,7 +313,7 @@ class _Rows:
     carb: int               # column of carbonate in the view, or -1
     davies: bool
     cols: np.ndarray        # (mc,) catalogue columns the view keeps
-    ks0: np.ndarray         # (n, mc) *Ks0 of each column's hydroxide, NaN if none
+    log_ks0: np.ndarray     # (n, mc) log *Ks0 of each column's hydroxide, NaN if none
     zs: np.ndarray          # (mc,) charge of the free metal ion, 0 if no solid
     cap: bool               # cap metals at their hydroxide's solubility
 
@@ -326,7 +324,7 @@ class _Rows:
     def take(self, idx) -> "_Rows":
         return replace(self, totals=self.totals[idx], strong=self.strong[idx],
                        strong_i=self.strong_i[idx], co2=self.co2[idx], kw=self.kw[idx],
-                       k=self.k[idx], a=self.a[idx], ks0=self.ks0[idx])
+                       k=self.k[idx], a=self.a[idx], log_ks0=self.log_ks0[idx])
 
 
 def _used(mix: Mixture, extra_cols=()) -> np.ndarray:
@@ -341,13 +339,11 @@ def _used(mix: Mixture, extra_cols=()) -> np.ndarray:
 def _restrict(mix: Mixture, extra_cols=(), *, cap: bool = True) -> _Rows:
     """Keep only the systems with a non-zero total (plus ``extra_cols``)."""
     cols = _used(mix, extra_cols)
-    used = np.zeros(N_SYSTEMS, dtype=bool)
-    used[cols] = True
     const = mix.constants(cols)
-    carb = int(np.searchsorted(cols, CARBONATE)) if used[CARBONATE] else -1
+    carb = int(np.searchsorted(cols, CARBONATE)) if CARBONATE in cols else -1
     return _Rows(mix.totals_mol_l[:, cols], mix.strong_eq_l, mix.strong_ionic_strength,
                  mix.co2_air_mol_l, const.kw, const.k[:, cols], const.a, _Z[cols], carb,
-                 mix.davies, cols, const.ks0[:, cols], _SOLID_Z[cols], cap)
+                 mix.davies, cols, const.log_ks0[:, cols], _SOLID_Z[cols], cap)
 
 
 def _species(r: _Rows, ah, ionic):
@@ -374,7 +370,7 @@ def _species(r: _Rows, ah, ionic):
     m2 = np.einsum("nmk,mk->nm", alpha, r.z * r.z)
     sol = None
     if r.has_solids:
-        log_free = np.log10(r.ks0) + r.zs[None, :] * np.log10(ah)[:, None]
+        log_free = r.log_ks0 + r.zs[None, :] * np.log10(ah)[:, None]
         if lg is not None:
             log_free = log_free - lg[:, :, 0]
         with np.errstate(divide="ignore", over="ignore"):

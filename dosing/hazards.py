@@ -161,11 +161,10 @@ def assess(water: Water, reagent: Reagent, dose_mol_l: float, before: Speciation
     f = 1.0 / (1.0 + dose_mol_l * (reagent.litres_product_per_mol or 0.0))
     added = {ion: n * dose_mol_l * f * MOLAR_MASS[ion] * 1000.0
              for ion, n in reagent.compound.ions.items()}
-    after_mg = _after_mg_l(water, added, after, f)
     return (_heat_checks(water, reagent, dose_mol_l, before, after)
             + _gas_checks(water, after, batch_litres)
-            + _discharge_checks(reagent, dose_mol_l, f, added, after, after_mg, permit)
-            + _scale_checks(water, after, after_mg))
+            + _discharge_checks(water, reagent, dose_mol_l, f, added, after, permit)
+            + _scale_checks(water, after))
 
 
 def _heat_checks(water: Water, reagent: Reagent, d: float, before: Speciation,
@@ -260,8 +259,9 @@ def _toxic_gas_check(sid: str, after: Speciation, t: float) -> Check | None:
         {"fraction_as_gas_former": frac, "mg_per_l": mg, "headspace_ppm": ppm})
 
 
-def _discharge_checks(reagent: Reagent, d: float, f: float, added: Mapping[str, float],
-                      after: Speciation, after_mg, permit) -> tuple[Check, ...]:
+def _discharge_checks(water: Water, reagent: Reagent, d: float, f: float,
+                      added: Mapping[str, float], after: Speciation,
+                      permit) -> tuple[Check, ...]:
     """Ions and dissolved solids the dose adds, and the permit's ion caps."""
     names = _ION_NAMES
     tds = sum(added.values())
@@ -276,6 +276,7 @@ def _discharge_checks(reagent: Reagent, d: float, f: float, added: Mapping[str, 
     checks = [Check("discharge", "info",
                     "the dose adds " + (", ".join(parts) if parts else "no strong ions")
                     + f"; dissolved solids rise by about {fmt(tds)} mg/L", values)]
+    after_mg = _after_mg_l(water, added, after, f)
     for key, cap in (permit or {}).items():
         if key not in ION_PERMIT_KEYS:
             continue
@@ -296,7 +297,7 @@ def _discharge_checks(reagent: Reagent, d: float, f: float, added: Mapping[str, 
     return tuple(checks)
 
 
-def _scale_checks(water: Water, after: Speciation, after_mg) -> tuple[Check, ...]:
+def _scale_checks(water: Water, after: Speciation) -> tuple[Check, ...]:
     """Calcite and gypsum saturation of the dosed water."""
     checks = []
     t = water.temperature_c

@@ -63,7 +63,7 @@ from dataclasses import dataclass
 
 from .errors import InputError
 
-__all__ = ["Metal", "METALS", "METAL_IDS", "get_metal", "KCAL"]
+__all__ = ["Metal", "METALS", "METAL_IDS", "HARDNESS", "get_metal", "KCAL"]
 
 #: kJ per kcal (thermochemical calorie, exact).
 KCAL = 4.184
@@ -223,6 +223,9 @@ METALS: tuple[Metal, ...] = (
 
 #: Metal ids in catalogue order (the order of their engine columns).
 METAL_IDS: tuple[str, ...] = tuple(m.id for m in METALS)
+#: The hardness ions among them: never capped as metals, not listed as
+#: metals left (they are reported as ions).
+HARDNESS = ("calcium", "magnesium")
 _BY_ID = {m.id: m for m in METALS}
 
 

@@ -36,7 +36,7 @@ from .metals import METAL_IDS
 from .numbers import fmt
 from .reagents import GENERAL_CAUTION, Reagent
 from .solids import (METAL_PERMIT_KEYS, CapWindow, Solid, cap_window, metals_after_mg_l,
-                     solids_after)
+                     metals_present_mol_l, solids_after)
 from .water import henry_co2
 
 __all__ = ["Target", "Batch", "Flow", "Amounts", "TitrationCurve", "Plan",
@@ -275,12 +275,10 @@ def plan_dose(water: Water, reagent: Reagent, target: Target,
     end_state = speciate(dosed, ph_end)
     slope, ph_lo, ph_hi = _sensitivity(mix, reagent, target.ph_aim, dose, ph_end)
     solids = solids_after(end_state, water.temperature_c, water.davies)
-    present = dict(water.metals_mol_l) | {k: 0.0 for k in reagent.compound.adds
-                                          if k in METAL_IDS}
-    metals_after = metals_after_mg_l(end_state, present)
-    caps = _metal_caps(water, permit, metals_after)
+    metals_after = metals_after_mg_l(end_state)
+    caps = _metal_caps(permit, metals_after)
     window = (None if not caps else cap_window(
-        _diluted(water, dose, reagent), caps, water.temperature_c, water.davies,
+        metals_present_mol_l(end_state), caps, water.temperature_c, water.davies,
         float(end_state.ionic_strength[0]), (target.ph_min, target.ph_max), target.ph_aim))
     hi_curve = edges.far if edges.far is not None else dose
     top = max(hi_curve, dose, edges.near) * 1.5 or 1e-4
@@ -373,9 +371,9 @@ def plan_warnings(plan: Plan, notes: tuple[str, ...]) -> tuple[str, ...]:
         warnings.append(f"ionic strength after dosing {plan.ionic_strength_end:.2f} "
                         "mol/L is beyond the Davies equation's range: confirm with a "
                         "bench titration")
-    undissolved = [s for s in plan.solids if s.id in ("calcium_hydroxide",
-                                                      "magnesium_hydroxide")
-                   and s.id.split("_")[0] in plan.reagent.compound.adds]
+    # The reagent's own hydroxide left as solid (lime or magnesia past saturation).
+    undissolved = [s for s in plan.solids
+                   if s.id.removesuffix("_hydroxide") in plan.reagent.compound.adds]
     for s in undissolved:
         warnings.append(f"{fmt(s.mg_per_l)} mg/L of the {s.formula} dosed stays "
                         f"undissolved at pH {plan.ph_end:.2f}: the water is saturated "
@@ -425,17 +423,7 @@ def _ceiling(water: Water, reagent: Reagent) -> float | None:
 _OVERDOSE_MOL_L = 1.0
 
 
-def _diluted(water: Water, dose: float, reagent: Reagent) -> dict[str, float]:
-    """Metal totals of the dosed water [mol/L] (product volume included)."""
-    f = 1.0 / (1.0 + dose * (reagent.litres_product_per_mol or 0.0))
-    out = {k: v * f for k, v in water.metals_mol_l.items()}
-    for k, n in reagent.compound.adds.items():
-        if k in METAL_IDS:
-            out[k] = out.get(k, 0.0) + n * dose * f
-    return out
-
-
-def _metal_caps(water: Water, permit, metals_after) -> dict[str, float]:
+def _metal_caps(permit, metals_after) -> dict[str, float]:
     """The permit's caps on dissolved metals, by metal id [mg/L]."""
     caps = {}
     for key, cap in (permit or {}).items():
@@ -443,8 +431,8 @@ def _metal_caps(water: Water, permit, metals_after) -> dict[str, float]:
             metal = key.removesuffix("_mg_l")
             if metal not in metals_after:
                 raise InputError(f"permit.{key}", f"a cap on {metal} but the effluent "
-                                 f"gives no {metal}; add metals_mg_l.{metal} or remove "
-                                 "the cap")
+                                 f"gives no {metal}; add effluent.metals_mg_l.{metal} or "
+                                 "remove the cap")
             caps[metal] = float(cap)
     return caps
 

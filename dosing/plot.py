@@ -17,6 +17,7 @@ import numpy as np  # noqa: E402
 from .plan import Batch, Plan  # noqa: E402
 from .numbers import fmt  # noqa: E402
 from .sheet import UNIT_SYSTEMS  # noqa: E402
+from .metals import HARDNESS  # noqa: E402
 from .solids import dissolved_vs_ph  # noqa: E402
 
 __all__ = ["plan_figure_png", "replay_figure_png", "titration_figure_png"]
@@ -55,7 +56,11 @@ def plan_figure_png(plan: Plan, title: str = "", units: str = "metric") -> bytes
         xlabel = f"{plan.reagent.name}, {u.product_volume} {per}"
     c = plan.curve
     x = c.dose_mol_l * scale
-    fig, ax = plt.subplots(figsize=(8.0, 5.6), dpi=110)
+    metals = plan.water.tank_metals_mol_l
+    if metals:
+        fig, (ax, ax_metals) = plt.subplots(2, 1, figsize=(8.0, 10.0), dpi=110)
+    else:
+        fig, ax = plt.subplots(figsize=(8.0, 5.6), dpi=110)
     ax.axhspan(plan.target.ph_min, plan.target.ph_max, color="tab:green", alpha=0.13,
                label=f"permit window pH {plan.target.ph_min:g}–{plan.target.ph_max:g}")
     lo, hi = plan.band_mol_l
@@ -87,21 +92,15 @@ def plan_figure_png(plan: Plan, title: str = "", units: str = "metric") -> bytes
     ax.legend(h1 + h2, l1 + l2, loc="upper center", bbox_to_anchor=(0.5, -0.13),
               ncol=3, fontsize=8, frameon=False)
     ax.set_title(title or "Titration curve", fontsize=11)
-    if plan.water.metals_mol_l:
-        _metals_panel(fig, plan)
+    if metals:
+        _metals_panel(ax_metals, plan, {k: v for k, v in metals.items()
+                                        if k not in HARDNESS} or metals)
     return _png(fig)
 
 
-def _metals_panel(fig, plan: Plan) -> None:
+def _metals_panel(ax3, plan: Plan, metals) -> None:
     """Dissolved metal against pH (log scale), with caps, window and aim."""
-    fig.set_size_inches(8.0, 10.0)
-    ax, ax3 = fig.axes[0], fig.add_subplot(2, 1, 2)
-    ax.set_subplotspec(fig.add_gridspec(2, 1)[0])
-    for other in fig.axes[1:-1]:
-        other.set_subplotspec(ax.get_subplotspec())
     grid = np.linspace(4.0, 13.0, 451)
-    metals = {k: v for k, v in plan.water.metals_mol_l.items()
-              if k not in ("calcium", "magnesium")} or dict(plan.water.metals_mol_l)
     curves = dissolved_vs_ph(metals, plan.water.temperature_c, plan.water.davies,
                              plan.ionic_strength_end, grid)
     ax3.axvspan(plan.target.ph_min, plan.target.ph_max, color="tab:green", alpha=0.13,

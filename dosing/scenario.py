@@ -295,12 +295,6 @@ def build_scenario(data: Mapping[str, Any], path: str = "<scenario>") -> Scenari
             if not 0 < cap <= 1e6:
                 raise InputError(f"permit.{key}", f"{cap:g}; allowed: above 0 and up "
                                  "to 1,000,000 mg/L")
-            metal = key.removesuffix("_mg_l")
-            if key in METAL_PERMIT_KEYS and metal not in water.metals_mol_l and not (
-                    metal == "iron_iii" and water.ferrous_oxidised):
-                raise InputError(f"permit.{key}", f"a cap on {metal} but the effluent "
-                                 f"gives no {metal}; add effluent.metals_mg_l.{metal} "
-                                 "or remove the cap")
         sludge = _sludge(data.get("sludge", {}))
     except InputError as err:
         raise ScenarioError(path, _where(err.field), err.reason) from None

@@ -19,7 +19,8 @@ from . import __version__
 from .effluent import CACO3_MG_PER_MEQ
 from .numbers import fmt
 from .plan import Batch, Flow, Plan, plan_dose
-from .solids import sludge_of
+from .metals import HARDNESS
+from .solids import Sludge, sludge_of
 from .errors import InputError, ModelError, ScenarioError, UnreachableError
 from .scenario import Scenario, scenario_key
 
@@ -86,6 +87,17 @@ def make_plan(scenario: Scenario) -> Plan:
         raise ScenarioError(scenario.source, "[effluent]", str(err)) from None
 
 
+def _key_suffix(plan: Plan) -> str:
+    """Suffix of JSON amount keys: "_per_h" for a flow, "" for a batch."""
+    return "_per_h" if isinstance(plan.basis, Flow) else ""
+
+
+def _sludge(scenario: Scenario, plan: Plan) -> Sludge:
+    """The plan's sludge with the scenario's cake, per batch or per hour."""
+    return sludge_of(plan.solids, plan.basis.litres, solids_fraction=scenario.sludge[0],
+                     cake_density_kg_l=scenario.sludge[1])
+
+
 def _per(plan: Plan) -> str:
     return "per batch" if isinstance(plan.basis, Batch) else "per hour"
 
@@ -121,7 +133,7 @@ def sheet_dict(scenario: Scenario, plan: Plan) -> dict[str, Any]:
     a_lo = plan.amounts(lo)
     a_hi = plan.amounts(hi) if hi is not None else None
     flow = isinstance(plan.basis, Flow)
-    sfx = "_per_h" if flow else ""
+    sfx = _key_suffix(plan)
     dose = {
         "mmol_per_l": a.mmol_per_l,
         "mg_per_l_product": a.mg_per_l_product,
@@ -190,10 +202,9 @@ def sheet_dict(scenario: Scenario, plan: Plan) -> dict[str, Any]:
 
 def metals_dict(scenario: Scenario, plan: Plan) -> dict[str, Any]:
     """Solids, sludge, dissolved metals and metal caps as JSON-ready data."""
-    sfx = "_per_h" if isinstance(plan.basis, Flow) else ""
+    sfx = _key_suffix(plan)
     litres = plan.basis.litres
-    sludge = sludge_of(plan.solids, litres, solids_fraction=scenario.sludge[0],
-                       cake_density_kg_l=scenario.sludge[1])
+    sludge = _sludge(scenario, plan)
     cw = plan.cap_window
     return {
         "ph_ceiling": plan.ph_ceiling,
@@ -230,14 +241,12 @@ def metal_lines(scenario: Scenario, plan: Plan, units: str = "metric") -> list[t
         rows.append(("solid formed", f"{x.formula} {fmt(x.mg_per_l)} mg/L = "
                      f"{fmt(x.mg_per_l * litres / 1e6 * u.mass_per_kg)} {u.mass} {per}"))
     if plan.solids:
-        sl = sludge_of(plan.solids, litres, solids_fraction=scenario.sludge[0],
-                       cake_density_kg_l=scenario.sludge[1])
+        sl = _sludge(scenario, plan)
         rows.append(("sludge", f"{fmt(sl.dry_kg * u.mass_per_kg)} {u.mass} dry {per}; as "
                      f"wet cake at {sl.solids_fraction:.0%} solids about "
                      f"{fmt(sl.cake_kg * u.mass_per_kg)} {u.mass} = "
                      f"{fmt(sl.cake_m3 * u.water_volume_per_m3)} {u.water_volume}"))
-    metals = {k: v for k, v in plan.metals_after_mg_l.items()
-              if k in plan.water.metals_mol_l and k not in ("calcium", "magnesium")}
+    metals = {k: v for k, v in plan.metals_after_mg_l.items() if k not in HARDNESS}
     if metals:
         rows.append(("metals left", ", ".join(f"{k.replace('_', ' ')} {fmt(v)} mg/L"
                                              for k, v in metals.items())

@@ -28,13 +28,14 @@ from typing import Mapping
 
 import numpy as np
 
-from .equilibrium import METAL_COLUMNS, Mixture, N_ACIDS, Speciation, speciate, system_index
+from .equilibrium import METAL_COLUMNS, N_SYSTEMS, Mixture, Speciation, speciate, system_index
 from .hazards import gypsum_si
-from .metals import METALS, METAL_IDS
+from .metals import HARDNESS, METALS, METAL_IDS
 from .species import MOLAR_MASS
 
 __all__ = ["Solid", "Sludge", "CapWindow", "METAL_PERMIT_KEYS", "CAKE_SOLIDS_FRACTION",
-           "CAKE_DENSITY_KG_L", "solids_after", "metals_after_mg_l", "sludge_of",
+           "CAKE_DENSITY_KG_L", "solids_after", "metals_after_mg_l", "metals_present_mol_l",
+           "sludge_of",
            "dissolved_vs_ph", "cap_window"]
 
 #: Dry-solids fraction of a typical filter-press cake [-] (common practice).
@@ -42,7 +43,7 @@ CAKE_SOLIDS_FRACTION = 0.25
 #: Bulk density of that cake [kg/L] (common practice).
 CAKE_DENSITY_KG_L = 1.2
 #: Permit keys on dissolved metals [mg/L as the element].
-METAL_PERMIT_KEYS = tuple(f"{m}_mg_l" for m in METAL_IDS if m not in ("calcium", "magnesium"))
+METAL_PERMIT_KEYS = tuple(f"{m}_mg_l" for m in METAL_IDS if m not in HARDNESS)
 #: A solid below this is not reported [mol/L] (far below what a balance weighs).
 _SOLID_FLOOR_MOL_L = 1e-9
 
@@ -83,7 +84,7 @@ def solids_after(sp: Speciation, temperature_c: float, davies: bool) -> tuple[So
     """Solids in the first water of ``sp`` (the dosed water) [per L of water]."""
     out: list[Solid] = []
     for j, metal in zip(METAL_COLUMNS, METALS):
-        mol = float(sp.solids_mol_l[0, j]) if sp.solids_mol_l is not None else 0.0
+        mol = float(sp.solids_mol_l[0, j])
         if mol > _SOLID_FLOOR_MOL_L:
             name = (f"{metal.solid} (undissolved lime)" if metal.id == "calcium"
                     else f"{metal.name} hydroxide")
@@ -112,14 +113,17 @@ def _gypsum_mol_l(sp: Speciation, temperature_c: float, davies: bool) -> float:
     return 0.5 * ((ca + so4) - math.sqrt((ca - so4) ** 2 + 4.0 * k))
 
 
-def metals_after_mg_l(sp: Speciation, present: Mapping[str, float]) -> dict[str, float]:
-    """Dissolved total of each metal in ``present`` after the dose [mg/L]."""
-    out = {}
-    for metal in METALS:
-        if metal.id in present:
-            j = system_index(metal.id)
-            out[metal.id] = float(sp.totals_mol_l[0, j]) * metal.molar_mass_g_mol * 1000
-    return out
+def metals_present_mol_l(sp: Speciation) -> dict[str, float]:
+    """Total of each metal in the first water of ``sp``, dissolved or not [mol/L]."""
+    tot = sp.totals_mol_l[0, METAL_COLUMNS] + sp.solids_mol_l[0, METAL_COLUMNS]
+    return {mid: float(t) for mid, t in zip(METAL_IDS, tot) if t > 0}
+
+
+def metals_after_mg_l(sp: Speciation) -> dict[str, float]:
+    """Dissolved total of each metal present in the dosed water [mg/L]."""
+    present = metals_present_mol_l(sp)
+    return {metal.id: float(sp.totals_mol_l[0, col]) * metal.molar_mass_g_mol * 1000
+            for metal, col in zip(METALS, METAL_COLUMNS) if metal.id in present}
 
 
 def sludge_of(solids: tuple[Solid, ...], litres: float, *,
@@ -141,7 +145,7 @@ def dissolved_vs_ph(metals_mol_l: Mapping[str, float], temperature_c: float, dav
     ``ionic_strength`` [mol/L] (that of the dosed water).
     """
     ph = np.asarray(ph, dtype=float)
-    tot = np.zeros((ph.size, N_ACIDS + len(METALS)))
+    tot = np.zeros((ph.size, N_SYSTEMS))
     for mid, mol in metals_mol_l.items():
         tot[:, system_index(mid)] = mol
     mix = Mixture.build(tot, np.zeros(ph.size), ionic_strength, temperature_c, np.nan, davies)
@@ -162,13 +166,13 @@ def cap_window(metals_mol_l: Mapping[str, float], caps_mg_l: Mapping[str, float]
     Where several separate ranges qualify, the one holding the aim, else the
     one nearest the window, is given.
     """
-    curves = dissolved_vs_ph(metals_mol_l, temperature_c, davies, ionic_strength, _CAP_GRID)
-    ok = np.ones(_CAP_GRID.size, dtype=bool)
+    # The grid and the aim in one solve: the aim is the last point.
+    curves = dissolved_vs_ph(metals_mol_l, temperature_c, davies, ionic_strength,
+                             np.append(_CAP_GRID, aim))
+    meets = np.ones(_CAP_GRID.size + 1, dtype=bool)
     for mid, cap in caps_mg_l.items():
-        ok &= curves[mid] <= cap
-    at_aim = dissolved_vs_ph(metals_mol_l, temperature_c, davies, ionic_strength,
-                             np.array([aim]))
-    met = all(float(at_aim[m][0]) <= cap for m, cap in caps_mg_l.items())
+        meets &= curves[mid] <= cap
+    ok, met = meets[:-1], bool(meets[-1])
     runs = _runs(ok)
     if not runs:
         return CapWindow(dict(caps_mg_l), None, None, met)
