@@ -121,9 +121,9 @@ def constants_at(temperature_c, cols=None) -> Constants:
 
     Carbonate uses Plummer & Busenberg (1982); water uses IAPWS R11-07; the
     other systems use van 't Hoff from their 25 °C values. Long arrays are
-    computed once per distinct temperature. With ``cols`` only those
-    columns are filled (the others read as no step and no solid), which is
-    what a solver restricted to the systems present needs.
+    computed once per distinct temperature. With ``cols`` the constants
+    cover only those columns, in that order (the view of a solver
+    restricted to the systems present); by default every column.
     """
     t = np.atleast_1d(np.asarray(temperature_c, dtype=float))
     cols = np.arange(N_SYSTEMS) if cols is None else np.asarray(cols, dtype=int)
@@ -142,14 +142,13 @@ def _constants(t: np.ndarray, cols: np.ndarray) -> Constants:
         pk1, pk2 = carbonate_pk(t)
         pk[:, carb[0], 0] = pk1
         pk[:, carb[0], 1] = pk2
-    k = np.zeros((t.size, N_SYSTEMS, _MAXSTEP))
-    k[:, cols] = 10.0 ** -pk          # a missing step has pK = inf, so K = 0
+    k = 10.0 ** -pk          # a missing step has pK = inf, so K = 0
     # log *Ks0 = -pK, and a pK moves by +dH/(R ln10) (1/T - 1/298.15).
-    log_ks0 = np.full((t.size, N_SYSTEMS), np.nan)
-    solid = cols[np.isfinite(_SOLID_LOGK[cols])]
+    log_ks0 = np.full((t.size, cols.size), np.nan)
+    solid = np.flatnonzero(np.isfinite(_SOLID_LOGK[cols]))
     if solid.size:
-        log_ks0[:, solid] = -vant_hoff_pk(-_SOLID_LOGK[None, solid],
-                                          _SOLID_DH[None, solid], t[:, None])
+        log_ks0[:, solid] = -vant_hoff_pk(-_SOLID_LOGK[None, cols[solid]],
+                                          _SOLID_DH[None, cols[solid]], t[:, None])
     return Constants(kw=10.0 ** -pkw(t), k=k, a=debye_huckel_a(t), log_ks0=log_ks0)
 
 
@@ -205,15 +204,26 @@ class Mixture:
     def constants(self, cols=None) -> Constants:
         """Constants at this mixture's temperatures, fitted pKa applied.
 
-        ``cols``: fill only these columns (see :func:`constants_at`).
+        ``cols``: only these columns, in that order (see :func:`constants_at`).
         """
         const = constants_at(self.temperature_c, cols)
-        if self.unknown_pka is not None:
+        at = (np.array([UNKNOWN]) if cols is None
+              else np.flatnonzero(np.asarray(cols) == UNKNOWN))
+        if self.unknown_pka is not None and at.size:
             k = const.k.copy()
-            k[:, UNKNOWN, 0] = np.where(np.isfinite(self.unknown_pka),
-                                        10.0 ** -np.nan_to_num(self.unknown_pka), k[:, UNKNOWN, 0])
+            k[:, at[0], 0] = np.where(np.isfinite(self.unknown_pka),
+                                      10.0 ** -np.nan_to_num(self.unknown_pka), k[:, at[0], 0])
             const = Constants(const.kw, k, const.a, const.log_ks0)
         return const
+
+    def take(self, idx) -> "Mixture":
+        """The waters ``idx`` only."""
+        return replace(self, totals_mol_l=self.totals_mol_l[idx],
+                       strong_eq_l=self.strong_eq_l[idx],
+                       strong_ionic_strength=self.strong_ionic_strength[idx],
+                       temperature_c=self.temperature_c[idx],
+                       co2_air_mol_l=self.co2_air_mol_l[idx],
+                       unknown_pka=None if self.unknown_pka is None else self.unknown_pka[idx])
 
     @property
     def n(self) -> int:
@@ -275,7 +285,7 @@ def speciate(mix: Mixture, ph, *, max_iter: int = 60, solids: bool = True) -> Sp
     ``solids=False`` keeps every metal dissolved (the water as sampled).
     """
     ph = np.broadcast_to(np.asarray(ph, dtype=float), (mix.n,)).copy()
-    const = mix.constants(_used(mix))
+    const = mix.constants()
     r = _Rows(mix.totals_mol_l, mix.strong_eq_l, mix.strong_ionic_strength,
               mix.co2_air_mol_l, const.kw, const.k, const.a, _Z, CARBONATE, mix.davies,
               np.arange(N_SYSTEMS), const.log_ks0, _SOLID_Z, bool(solids))
@@ -342,8 +352,8 @@ def _restrict(mix: Mixture, extra_cols=(), *, cap: bool = True) -> _Rows:
     const = mix.constants(cols)
     carb = int(np.searchsorted(cols, CARBONATE)) if CARBONATE in cols else -1
     return _Rows(mix.totals_mol_l[:, cols], mix.strong_eq_l, mix.strong_ionic_strength,
-                 mix.co2_air_mol_l, const.kw, const.k[:, cols], const.a, _Z[cols], carb,
-                 mix.davies, cols, const.log_ks0[:, cols], _SOLID_Z[cols], cap)
+                 mix.co2_air_mol_l, const.kw, const.k, const.a, _Z[cols], carb,
+                 mix.davies, cols, const.log_ks0, _SOLID_Z[cols], cap)
 
 
 def _species(r: _Rows, ah, ionic):
@@ -714,15 +724,17 @@ def dose_to_ph(mix: Mixture, reagent: ReagentVector, target_ph,
     n_full = np.asarray(reagent.totals_mol, dtype=float)
     rows = _restrict(mix, extra_cols=np.flatnonzero(n_full))
     job = _DoseJob(mix, rows, n_full[rows.cols], reagent, 10.0 ** -tp)
-    capped = np.zeros(rows.totals.shape, dtype=bool)
-    for _ in range(_CAP_PASSES if rows.has_solids else 1):
-        dose, den, sol = job.solve(capped, max_iter)
+    dose, den, sol, capped = job.solve(None, max_iter)
+    for _ in range(_CAP_PASSES - 1):
         if sol is None:
             break
         now = job.capped_after(dose, sol)
-        if np.array_equal(now, capped):
+        redo = np.flatnonzero(np.any(now != capped, axis=1))
+        if redo.size == 0:
             break
-        capped = now
+        # Only the waters whose choice changed are solved again.
+        capped[redo] = now[redo]
+        dose[redo], den[redo], sol[redo], _ = job.take(redo).solve(capped[redo], max_iter)
     return dose, den
 
 
@@ -741,6 +753,11 @@ class _DoseJob:
     reagent: ReagentVector
     ah: np.ndarray           # (n,) target activity of H+
 
+    def take(self, idx) -> "_DoseJob":
+        """The same job for the waters ``idx`` only."""
+        return replace(self, mix=self.mix.take(idx), rows=self.rows.take(idx),
+                       ah=self.ah[idx])
+
     def given(self, dose):
         """Dose as given to the water: a negative or missing dose is none."""
         return np.where(np.isfinite(dose), np.maximum(dose, 0.0), 0.0)
@@ -753,9 +770,16 @@ class _DoseJob:
         return _capped(self.rows, sol, after) & (after > 0)
 
     def at(self, ionic, capped):
-        """Dose, slope, new ionic strength and solubilities at ``ionic``."""
+        """Dose, slope, new ionic strength, solubilities and the capped set.
+
+        ``capped`` None is the first guess: the metals already above their
+        solubility at the target before any dose (most waters keep it).
+        """
         rows, mix, v = self.rows, self.mix, self.reagent.volume_l
         alpha, q, m2, h, oh, sol = _species(rows, self.ah, ionic)
+        if capped is None:
+            capped = (np.zeros(rows.totals.shape, dtype=bool) if sol is None
+                      else self.capped_after(np.zeros(mix.n), sol))
         w = h - oh
         tot = rows.totals
         nr = np.broadcast_to(self.n_r, tot.shape)
@@ -777,25 +801,26 @@ class _DoseJob:
         with np.errstate(divide="ignore", invalid="ignore"):
             dose = -num / den
         if not mix.davies:
-            return dose, den, None, sol
+            return dose, den, None, sol, capped
         g = self.given(dose)
         f = 1.0 / (1.0 + g * v)
         tot_after = np.where(fixed, held, f[:, None] * (rows.totals + g[:, None] * self.n_r))
         strong_i = f * (mix.strong_ionic_strength + g * self.reagent.ionic_strength)
         new_i = 0.5 * (h + oh + (tot_after * m2).sum(-1)) + strong_i
-        return dose, den, new_i, sol
+        return dose, den, new_i, sol, capped
 
     def solve(self, capped, max_iter):
-        """(dose, slope, solubilities) with the capped metals given."""
+        """(dose, slope, solubilities, capped set) with the capped metals
+        given (None: the first guess of :meth:`at`, then held)."""
         ionic = self.mix.strong_ionic_strength.copy()
-        dose, den, new_i, sol = self.at(ionic, capped)
+        dose, den, new_i, sol, capped = self.at(ionic, capped)
         if not self.mix.davies:
-            return dose, den, sol
+            return dose, den, sol, capped
         ionic = _settle(lambda i: self.at(i, capped)[2], ionic, new_i, max_iter)
-        dose, den, _, sol = self.at(np.where(np.isfinite(ionic), ionic, 0.0), capped)
+        dose, den, _, sol, _ = self.at(np.where(np.isfinite(ionic), ionic, 0.0), capped)
         # Waters whose ionic strength does not settle (a dose without bound,
         # where the reagent has no grip) get no number.
-        return np.where(np.isfinite(ionic), dose, np.nan), den, sol
+        return np.where(np.isfinite(ionic), dose, np.nan), den, sol, capped
 
 
 #: Ionic strength above which a fixed point is abandoned [mol/L].
