@@ -283,12 +283,11 @@ def speciate(mix: Mixture, ph, *, max_iter: int = 60, solids: bool = True) -> Sp
     reported (ideal). With ``solids`` (the default) each metal is capped at
     its hydroxide's solubility and the rest is reported as precipitated;
     ``solids=False`` keeps every metal dissolved (the water as sampled).
+    Only the systems present are speciated: a column with no total in any
+    water reads as all in its top form, with no effect on anything.
     """
     ph = np.broadcast_to(np.asarray(ph, dtype=float), (mix.n,)).copy()
-    const = mix.constants()
-    r = _Rows(mix.totals_mol_l, mix.strong_eq_l, mix.strong_ionic_strength,
-              mix.co2_air_mol_l, const.kw, const.k, const.a, _Z, CARBONATE, mix.davies,
-              np.arange(N_SYSTEMS), const.log_ks0, _SOLID_Z, bool(solids))
+    r = _restrict(mix, cap=solids)
     ionic = mix.strong_ionic_strength.copy()
     for _ in range(max_iter):
         alpha, q, totals, h, oh, resid, beta, new_i = _state(r, ph, ionic)
@@ -297,10 +296,18 @@ def speciate(mix: Mixture, ph, *, max_iter: int = 60, solids: bool = True) -> Sp
         if done or not mix.davies:
             break
     alpha, q, totals, h, oh, resid, beta, _ = _state(r, ph, ionic)
-    precipitated = np.zeros_like(totals)
+    full_alpha = np.zeros((mix.n, N_SYSTEMS, _MAXSTEP + 1))
+    full_alpha[:, :, 0] = 1.0
+    full_alpha[:, r.cols] = alpha
+    full_q = np.repeat(_Z[None, :, 0], mix.n, axis=0)
+    full_q[:, r.cols] = q
+    full_totals = np.zeros((mix.n, N_SYSTEMS))
+    full_totals[:, r.cols] = totals
+    precipitated = np.zeros_like(full_totals)
     precipitated[:, METAL_COLUMNS] = np.maximum(
-        mix.totals_mol_l[:, METAL_COLUMNS] - totals[:, METAL_COLUMNS], 0.0)
-    return Speciation(ph, h, oh, alpha, q, totals, ionic, resid, beta, precipitated)
+        mix.totals_mol_l[:, METAL_COLUMNS] - full_totals[:, METAL_COLUMNS], 0.0)
+    return Speciation(ph, h, oh, full_alpha, full_q, full_totals, ionic, resid, beta,
+                      precipitated)
 
 
 def charge_residual(mix: Mixture, ph) -> np.ndarray:
