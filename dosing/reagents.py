@@ -247,6 +247,9 @@ CATALOGUE: dict[str, Reagent] = {r.id: r for r in (
     Reagent("lime", "hydrated lime, 93 % Ca(OH)2", COMPOUNDS["Ca(OH)2"], 0.93,
             None, "solid", "",
             _LIME),
+    # Slaking heat CaO + H2O -> Ca(OH)2: -65.2 kJ/mol from NBS formation
+    # enthalpies (Wagman et al. 1982: CaO -635.09, H2O -285.83, Ca(OH)2
+    # -986.09 kJ/mol; from memory).
     Reagent("quicklime", "quicklime, 90 % CaO", COMPOUNDS["CaO"], 0.90, None, "solid", "",
             ("Quicklime slakes with water violently and hot (about 65 kJ per mol): "
              "slake in the slaker, never in a closed container; keep it dry in store.",)
