@@ -262,7 +262,7 @@ def _cmd_log(args) -> int:
                 ph_after=args.ph_after, note=args.note, corrects=args.corrects)
             sys.stdout.write(logview.render_entry(log, log.get(entry_id)))
         return 0
-    with ShiftLog(args.db) as log:
+    with ShiftLog(args.db, writable=args.log_command == "follow-up") as log:
         if args.log_command == "follow-up":
             new = log.record_follow_up(args.id, ph_after=args.ph_after,
                                        operator=args.operator, note=args.note)
@@ -275,7 +275,8 @@ def _cmd_log(args) -> int:
         elif args.log_command == "export":
             frame = log.frame(since_utc=since, tank=args.tank)
             write_atomic(args.csv, frame.to_csv(index=False).encode("utf-8"))
-            sys.stdout.write(f"wrote {len(frame)} entries to {args.csv}\n")
+            sys.stdout.write(f"wrote {len(frame)} entries to {args.csv}\n"
+                             + logview.unreadable_line(log))
     return 0
 
 

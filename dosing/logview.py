@@ -6,7 +6,7 @@ from .numbers import fmt
 from .reagents import GENERAL_CAUTION
 from .shiftlog import Entry, ShiftLog
 
-__all__ = ["render_list", "render_entry"]
+__all__ = ["render_list", "render_entry", "unreadable_line"]
 
 
 def _n(x, digits=3) -> str:
@@ -29,9 +29,21 @@ def render_list(log: ShiftLog, *, since_utc: str | None = None, tank: str | None
             f"{_n(log.latest_ph(e)):>8}  {e.refers_to or ''}")
     if n == 0:
         lines.append("(no entries)")
+    if log.unreadable:
+        lines.append(unreadable_line(log).rstrip("\n"))
     lines.append("")
     lines.append(GENERAL_CAUTION)
     return "\n".join(lines) + "\n"
+
+
+def unreadable_line(log: ShiftLog) -> str:
+    """A line naming the entries a damaged log could not give back (or nothing)."""
+    if not log.unreadable:
+        return ""
+    ids = ", ".join(str(i) for i in log.unreadable[:12])
+    more = " ..." if len(log.unreadable) > 12 else ""
+    return (f"!! THE LOG IS DAMAGED: {len(log.unreadable)} entries could not be read "
+            f"(ids {ids}{more}); it takes no new entries until replaced\n")
 
 
 def render_entry(log: ShiftLog, e: Entry) -> str:

@@ -142,25 +142,51 @@ _COLUMNS = ("id", "kind", "utc", "operator", "site", "tank", "title", "reagent",
 
 
 class ShiftLog:
-    """An open shift log. Use as a context manager, or call :meth:`close`."""
+    """An open shift log. Use as a context manager, or call :meth:`close`.
 
-    def __init__(self, path: str | Path | None = None):
+    ``writable=False`` opens the file read-only (``list``, ``show`` and
+    ``export`` work on a log in a read-only folder and never change a byte).
+    A log opened for writing is first checked on a read-only connection: a
+    file of another program, or one that fails SQLite's ``quick_check``, is
+    refused before anything is written. ``lock_wait_s`` is how long a writer
+    waits for another program's write lock before giving up.
+    """
+
+    def __init__(self, path: str | Path | None = None, *, writable: bool = True,
+                 lock_wait_s: float = 30.0):
         self.path = Path(path) if path is not None else default_log_path()
+        self.writable = writable
+        self.lock_wait_s = lock_wait_s
+        #: Ids that could not be read from a damaged log by the last reading call.
+        self.unreadable: list[int] = []
         self._check_file()
+        if not writable:
+            self._db = self._open_read_only()
+            return
+        if self.path.exists() and self.path.stat().st_size > 0:
+            probe = self._open_read_only()
+            probe.close()
         self.path.parent.mkdir(parents=True, exist_ok=True)
         try:
-            self._db = sqlite3.connect(str(self.path), timeout=30.0, isolation_level=None)
-            self._db.execute("PRAGMA busy_timeout = 30000")
-            self._prepare_with_retry()
+            self._db = sqlite3.connect(str(self.path), timeout=lock_wait_s,
+                                       isolation_level=None)
+            self._db.execute(f"PRAGMA busy_timeout = {int(lock_wait_s * 1000)}")
+            self._prepare_with_retry(lock_wait_s)
         except sqlite3.DatabaseError as err:
-            raise ShiftLogError(f"{self.path}: cannot be used as a shift log ({err}); "
-                                "the file was not changed") from None
+            raise self._locked_error() if _is_lock(err) else ShiftLogError(
+                f"{self.path}: cannot be used as a shift log ({err}); "
+                "the file was not changed") from None
 
     # ------------------------------------------------------------ opening --
     def _check_file(self) -> None:
         p = self.path
         if p.is_dir():
             raise ShiftLogError(f"{p}: is a folder; give a file path for the log")
+        if not self.writable and not p.exists():
+            raise ShiftLogError(f"{p}: no shift log there yet (nothing has been recorded "
+                                "at this path); `dosing log add` starts one")
+        if p.exists() and not p.is_file():
+            raise ShiftLogError(f"{p}: is not a regular file; give a file path for the log")
         if p.exists() and p.stat().st_size > 0:
             with open(p, "rb") as fh:
                 head = fh.read(16)
@@ -168,6 +194,64 @@ class ShiftLog:
                 raise ShiftLogError(f"{p}: is not a shift log (not an SQLite database); "
                                     "it was not changed. Give another path with --db "
                                     f"or {ENV_VAR}")
+
+    def _open_read_only(self) -> sqlite3.Connection:
+        """A read-only connection, checked to be our log and (for a writer) undamaged.
+
+        In a read-only folder SQLite cannot make the WAL index beside the
+        file; the log is then read as immutable (nobody can write it there).
+        """
+        from urllib.parse import quote
+        uri = "file:" + quote(str(self.path.resolve()))
+        last: sqlite3.Error | None = None
+        for mode in ("?mode=ro", "?mode=ro&immutable=1"):
+            db = sqlite3.connect(uri + mode, uri=True, timeout=self.lock_wait_s,
+                                 isolation_level=None)
+            try:
+                self._identify(db)
+                if self.writable:
+                    self._refuse_damaged(db)
+                return db
+            except ShiftLogError:
+                db.close()
+                raise
+            except sqlite3.DatabaseError as err:
+                db.close()
+                last = err
+                if "unable to open" not in str(err) and "readonly" not in str(err):
+                    break
+        raise ShiftLogError(f"{self.path}: cannot be read as a shift log ({last}); the file "
+                            "was not changed. If it is a damaged log, try the sqlite3 tool's "
+                            ".recover command on a copy, or restore a backup")
+
+    def _identify(self, db: sqlite3.Connection) -> int:
+        """Refuse another program's file or a newer schema; return the schema version."""
+        app_id = db.execute("PRAGMA application_id").fetchone()[0]
+        version = db.execute("PRAGMA user_version").fetchone()[0]
+        tables = db.execute("SELECT count(*) FROM sqlite_master").fetchone()[0]
+        if app_id not in (0, APPLICATION_ID) or (app_id == 0 and (tables or version)):
+            raise ShiftLogError(f"{self.path}: is an SQLite database of another program, "
+                                "not a shift log; it was not changed")
+        if version > SCHEMA_VERSION:
+            raise ShiftLogError(f"{self.path}: was written by a newer version of the "
+                                f"planner (schema {version}, this one reads up to "
+                                f"{SCHEMA_VERSION}); upgrade before using it")
+        return version
+
+    def _refuse_damaged(self, db: sqlite3.Connection) -> None:
+        """Refuse to write into a log that fails SQLite's page-level check."""
+        rows = [r[0] for r in db.execute("PRAGMA quick_check(1)").fetchall()]
+        if rows != ["ok"]:
+            first = [ln for ln in "\n".join(rows).splitlines() if not ln.startswith("***")]
+            raise ShiftLogError(f"{self.path}: is damaged ({(first or rows)[0]}); nothing "
+                                f"was written and the file was not changed. {_RECOVER}")
+
+    def _locked_error(self) -> ShiftLogError:
+        who = _holders(self.path)
+        return ShiftLogError(
+            f"{self.path}: another program has held the log's write lock for over "
+            f"{self.lock_wait_s:g} s ({who}); nothing was written. Try again once it "
+            "has finished, or close it")
 
     def _prepare_with_retry(self, seconds: float = 30.0) -> None:
         """Prepare, waiting while another process holds the file.
@@ -184,23 +268,13 @@ class ShiftLog:
                 self._prepare()
                 return
             except sqlite3.OperationalError as err:
-                text = str(err).lower()
-                if ("locked" not in text and "busy" not in text) or time.monotonic() > deadline:
+                if not _is_lock(err) or time.monotonic() > deadline:
                     raise
                 time.sleep(0.02 + random.random() * 0.05)
 
     def _prepare(self) -> None:
         db = self._db
-        app_id = db.execute("PRAGMA application_id").fetchone()[0]
-        version = db.execute("PRAGMA user_version").fetchone()[0]
-        tables = db.execute("SELECT count(*) FROM sqlite_master").fetchone()[0]
-        if app_id != APPLICATION_ID and (tables or version):
-            raise ShiftLogError(f"{self.path}: is an SQLite database of another program, "
-                                "not a shift log; it was not changed")
-        if version > SCHEMA_VERSION:
-            raise ShiftLogError(f"{self.path}: was written by a newer version of the "
-                                f"planner (schema {version}, this one reads up to "
-                                f"{SCHEMA_VERSION}); upgrade before using it")
+        version = self._identify(db)
         db.execute("PRAGMA journal_mode = WAL")
         db.execute("PRAGMA synchronous = FULL")
         db.execute("PRAGMA foreign_keys = ON")
@@ -234,12 +308,19 @@ class ShiftLog:
     # ------------------------------------------------------------ writing --
     def _insert(self, row: dict[str, Any]) -> int:
         from . import __version__
+        if not self.writable:
+            raise ShiftLogError(f"{self.path}: was opened read-only; nothing was written")
         row = dict(row, utc=datetime.now(timezone.utc).isoformat(timespec="microseconds"),
                    engine_version=__version__)
         keys = ", ".join(row)
         marks = ", ".join("?" for _ in row)
         db = self._db
-        db.execute("BEGIN IMMEDIATE")
+        try:
+            db.execute("BEGIN IMMEDIATE")
+        except sqlite3.OperationalError as err:
+            if _is_lock(err):
+                raise self._locked_error() from None
+            raise
         try:
             if row.get("refers_to") is not None:
                 self._require(int(row["refers_to"]))
@@ -284,46 +365,100 @@ class ShiftLog:
                              "refers_to": entry_id})
 
     # ------------------------------------------------------------ reading --
+    def _rows(self, sql: str, args: tuple | list = ()) -> list[tuple]:
+        """Rows of a query; a damaged page becomes a one-line error, not a traceback."""
+        try:
+            return self._db.execute(sql, args).fetchall()
+        except sqlite3.OperationalError as err:
+            if "no such table" in str(err):
+                return []                       # a new, empty log opened read-only
+            raise self._damaged(err) from None
+        except sqlite3.DatabaseError as err:
+            raise self._damaged(err) from None
+
+    def _damaged(self, err: Exception) -> ShiftLogError:
+        return ShiftLogError(f"{self.path}: is damaged ({err}); the file was not changed. "
+                             f"{_RECOVER}")
+
     def _require(self, entry_id: int) -> None:
-        if self._db.execute("SELECT 1 FROM entries WHERE id = ?", (entry_id,)).fetchone() is None:
+        if not _valid_id(entry_id) or not self._rows("SELECT 1 FROM entries WHERE id = ?",
+                                                     (entry_id,)):
             raise ShiftLogError(f"no entry {entry_id} in {self.path}")
 
     def get(self, entry_id: int) -> Entry:
         """One entry by id."""
-        row = self._db.execute(f"SELECT {', '.join(_COLUMNS)} FROM entries WHERE id = ?",
-                               (entry_id,)).fetchone()
-        if row is None:
+        rows = (self._rows(f"SELECT {', '.join(_COLUMNS)} FROM entries WHERE id = ?",
+                           (entry_id,)) if _valid_id(entry_id) else [])
+        if not rows:
             raise ShiftLogError(f"no entry {entry_id} in {self.path}")
-        return Entry(*row)
+        return Entry(*rows[0])
 
     def related(self, entry_id: int) -> list[Entry]:
         """Entries that refer to ``entry_id`` (corrections, follow-ups), oldest first."""
-        rows = self._db.execute(f"SELECT {', '.join(_COLUMNS)} FROM entries "
-                                "WHERE refers_to = ? ORDER BY id", (entry_id,)).fetchall()
+        rows = self._rows(f"SELECT {', '.join(_COLUMNS)} FROM entries "
+                          "WHERE refers_to = ? ORDER BY id", (entry_id,))
         return [Entry(*r) for r in rows]
 
     def entries(self, *, since_utc: str | None = None, tank: str | None = None) -> Iterator[Entry]:
-        """All entries, oldest first, filtered by time and tank."""
-        sql = f"SELECT {', '.join(_COLUMNS)} FROM entries WHERE 1"
-        args: list[Any] = []
+        """All entries, oldest first, filtered by time and tank.
+
+        On a damaged log the entries that can still be read are returned one
+        by one and the ids that cannot are listed in :attr:`unreadable`.
+        """
+        select = f"SELECT {', '.join(_COLUMNS)} FROM entries"
+        where, args = " WHERE 1", []
         if since_utc:
-            sql += " AND utc >= ?"
+            where += " AND utc >= ?"
             args.append(since_utc)
         if tank:
-            sql += " AND tank = ?"
+            where += " AND tank = ?"
             args.append(tank)
-        for row in self._db.execute(sql + " ORDER BY id", args):
-            yield Entry(*row)
+        self.unreadable = []
+        try:
+            found = [Entry(*r) for r in self._rows(select + where + " ORDER BY id", args)]
+        except ShiftLogError:
+            found = [e for e in self._salvage(select + " WHERE id = ?")
+                     if (not since_utc or e.utc >= since_utc) and (not tank or e.tank == tank)]
+        return iter(found)
+
+    def _salvage(self, sql: str) -> list[Entry]:
+        """Read a damaged log id by id, listing in :attr:`unreadable` what cannot be read.
+
+        Ids run from 1 without gaps (entries are never deleted), so an id
+        that gives an error or no row is an entry lost to the damage.
+        """
+        top = 0
+        for probe in ("SELECT seq FROM sqlite_sequence WHERE name = 'entries'",
+                      "SELECT max(id) FROM entries"):
+            try:
+                top = max(top, int(self._db.execute(probe).fetchone()[0] or 0))
+            except (sqlite3.DatabaseError, TypeError):
+                continue
+        if top == 0:
+            raise self._damaged("no entry can be read")
+        found = []
+        for entry_id in range(1, top + 1):
+            try:
+                row = self._db.execute(sql, (entry_id,)).fetchone()
+                found.append(Entry(*row))
+            except (sqlite3.DatabaseError, TypeError):
+                self.unreadable.append(entry_id)
+        return found
 
     def count(self) -> int:
-        return self._db.execute("SELECT count(*) FROM entries").fetchone()[0]
+        rows = self._rows("SELECT count(*) FROM entries")
+        return rows[0][0] if rows else 0
 
     def latest_ph(self, entry: Entry) -> float | None:
         """The most recent pH after an entry: its own or its last follow-up's."""
-        row = self._db.execute("SELECT ph_after FROM entries WHERE refers_to = ? AND "
-                               "kind = 'follow_up' ORDER BY id DESC LIMIT 1",
-                               (entry.id,)).fetchone()
-        return row[0] if row else entry.ph_after
+        try:
+            rows = self._rows("SELECT ph_after FROM entries WHERE refers_to = ? AND "
+                              "kind = 'follow_up' ORDER BY id DESC LIMIT 1", (entry.id,))
+        except ShiftLogError:
+            if not self.unreadable:
+                raise
+            rows = []                           # damaged log: its own reading only
+        return rows[0][0] if rows else entry.ph_after
 
     def frame(self, *, since_utc: str | None = None, tank: str | None = None):
         """The log as a pandas DataFrame (one row per entry, plan JSON kept)."""
@@ -334,6 +469,40 @@ class ShiftLog:
                 for e in self.entries(since_utc=since_utc, tank=tank)]
         return pd.DataFrame(rows, columns=list(_COLUMNS) + ["local_time", "dosed_ratio",
                                                           "latest_ph_after"])
+
+
+_RECOVER = ("Copy what can still be read with `dosing log export --csv FILE` (or the "
+            "sqlite3 tool's .recover command), then move the damaged file aside and start "
+            "a new log (or restore a backup)")
+
+
+def _valid_id(entry_id: int) -> bool:
+    """An id SQLite can hold (a larger one cannot be in the log)."""
+    return 0 < entry_id < 2 ** 63
+
+
+def _is_lock(err: Exception) -> bool:
+    text = str(err).lower()
+    return "locked" in text or "busy" in text
+
+
+def _holders(path: Path) -> str:
+    """Which processes have the log open (Linux /proc; best effort)."""
+    target = {str(path.resolve()), str(path.resolve()) + "-wal", str(path.resolve()) + "-shm"}
+    found = []
+    proc = Path("/proc")
+    if not proc.is_dir():
+        return "the holder could not be found on this system"
+    for pid_dir in proc.iterdir():
+        if not pid_dir.name.isdigit() or int(pid_dir.name) == os.getpid():
+            continue
+        try:
+            if any(os.readlink(fd) in target for fd in (pid_dir / "fd").iterdir()):
+                name = (pid_dir / "comm").read_text().strip()
+                found.append(f"process {pid_dir.name} ({name})")
+        except OSError:
+            continue
+    return "held by " + ", ".join(found) if found else "the holder could not be found"
 
 
 def _statements(script: str) -> list[str]:
