@@ -2,10 +2,13 @@
 
 Subcommands
 -----------
-plan      read a scenario, print the dose sheet (or ``--json``), ``--plot``.
-reagents  list the reagent catalogue.
-solutes   list the weak-acid systems and their reporting basis.
-tui       open the terminal workbench.
+plan       read a scenario, print the dose sheet (or ``--json``), ``--plot``.
+reagents   list the reagent catalogue.
+solutes    list the weak-acid systems and their reporting basis.
+tui        open the terminal workbench.
+replay     plan every row of logged flow and pH data; totals, percentiles, plot.
+titration  scale a bench titration, and fit a water to it, for a full-scale dose.
+log        the shift log: add, follow-up, list, show, export.
 
 Every error of the planner's own family prints one line on stderr and exits
 with code 2; nothing is written when a run fails.
@@ -25,8 +28,16 @@ __all__ = ["main"]
 EXIT_BAD_INPUT = 2
 
 
+class _OneLineParser(argparse.ArgumentParser):
+    """argparse with every usage error on one line (exit code 2, as all input errors)."""
+
+    def error(self, message: str):
+        self.exit(EXIT_BAD_INPUT, f"{self.prog}: error: {' '.join(message.split())} "
+                                  f"(see {self.prog} -h)\n")
+
+
 def _parser() -> argparse.ArgumentParser:
-    ap = argparse.ArgumentParser(
+    ap = _OneLineParser(
         prog="dosing",
         description="Neutralisation dosing planner: measured pH and alkalinity in, "
                     "a dose of product out. Local codes, the discharge permit and a "
@@ -212,7 +223,7 @@ def _default_titration_scenario(titrant):
 
 
 def _cmd_titration(args) -> int:
-    from .errors import InputError
+    from .errors import InputError, UnreachableError
     from .scenario import load_scenario
     from .sheet import render_titration
     from .titration import check_curve, compare, parse_titrant
@@ -230,7 +241,15 @@ def _cmd_titration(args) -> int:
     curve = replace(curve, notes=tuple(notes) + curve.notes)
     scenario = (load_scenario(args.scenario) if args.scenario
                 else _default_titration_scenario(titrant))
-    report = compare(curve, scenario, unknown_acid=args.unknown_acid)
+    try:
+        report = compare(curve, scenario, unknown_acid=args.unknown_acid)
+    except (InputError, UnreachableError) as err:
+        key = getattr(err, "field", "")
+        if key.startswith("--"):
+            raise ScenarioError(key, "", err.reason) from None
+        why = getattr(err, "reason", str(err))
+        raise ScenarioError(args.data, "", why if key in ("", "titration")
+                            else f"{key}: {why}") from None
     if args.plot:
         from .plot import titration_figure_png
         write_atomic(args.plot, titration_figure_png(curve, report, scenario.title))

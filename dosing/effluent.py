@@ -287,6 +287,10 @@ def _known_strong(ions_mg_l: Mapping[str, float], extra_i: float) -> tuple[float
     return eq, ionic + extra_i
 
 
+#: The highest alkalinity or acidity taken [mg/L as CaCO3]: 2 eq/L, beyond
+#: any effluent a lab titrates as such (common practice).
+MEASURED_MAX_MG_L = 1e5
+
 #: The two lab titrations: sign of the strong acid taken [-], allowed end
 #: points [pH], what the method is called, which way it titrates, and the
 #: other measurement to give instead.
@@ -326,7 +330,8 @@ def _measured(ph, alkalinity, acidity, alk_ep, acid_ep) -> _Measured | None:
         if value is None:
             continue
         _, (lo, hi), method, way, side, other = _LAB[kind]
-        m = _Measured(kind, _check_number(f"{kind}_mg_l_as_caco3", value, 0.0, 1e5),
+        m = _Measured(kind, _check_number(f"{kind}_mg_l_as_caco3", value, 0.0,
+                                          MEASURED_MAX_MG_L),
                       _check_number(f"{kind}_endpoint_ph", ep, lo, hi))
         if m.mg_l > 0 and m.at_or_past_end(ph):
             raise InputError(m.field, f"{m.mg_l:g} mg/L as CaCO3 cannot be measured on "

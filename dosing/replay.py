@@ -25,7 +25,8 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from .effluent import ALKALINITY_ENDPOINT_PH, CACO3_MG_PER_MEQ, aerate, totals_vector
+from .effluent import (ALKALINITY_ENDPOINT_PH, CACO3_MG_PER_MEQ, MEASURED_MAX_MG_L, aerate,
+                       totals_vector)
 from .equilibrium import (CARBONATE, N_SYSTEMS, Mixture, carbonate_for_alkalinity, co2_in_air_mol_l,
                           dose_to_ph, strong_balance_at_ph)
 from .errors import ScenarioError
@@ -50,15 +51,20 @@ REQUIRED = ("timestamp", "flow_m3_h", "ph")
 FLATLINE_ROWS = 60
 #: A gap between rows longer than this is not bridged [s] (common practice).
 GAP_LIMIT_S = 900.0
+#: No single effluent stream carries more [m3/h]: the largest treatment works
+#: take a few 10^4 m3/h (common practice); above it a row is a logger fault.
+FLOW_MAX_M3_H = 1e5
 FLAGS = {
     "bad_timestamp": "timestamp missing or unreadable",
     "time_not_increasing": "timestamp not after the previous row",
     "flow_missing": "flow missing",
     "flow_negative": "flow negative",
+    "flow_implausible": "flow above 100,000 m3/h or not a finite number",
     "ph_missing": "pH missing",
     "ph_out_of_range": "pH outside 0-14",
     "temperature_out_of_range": "temperature outside 0-60 °C or missing",
-    "alkalinity_bad": "alkalinity missing, negative or inconsistent with the pH",
+    "alkalinity_bad": "alkalinity missing, negative, above 100,000 mg/L or inconsistent "
+                      "with the pH",
     "ph_flatline": f"pH unchanged for {FLATLINE_ROWS} rows or more (stuck sensor?)",
     "wrong_direction": "the reagent moves the pH away from the aim for this water",
     "cannot_reach": "the aim cannot be reached with this reagent",
@@ -144,6 +150,7 @@ def plan_rows(frame: pd.DataFrame, scenario: Scenario, state: ReplayState) -> pd
     ph = pd.to_numeric(frame["ph"], errors="coerce").to_numpy(dtype=float)
     mark(np.isnan(flow), "flow_missing")
     mark(flow < 0, "flow_negative")
+    mark(~(flow <= FLOW_MAX_M3_H), "flow_implausible")
     mark(np.isnan(ph), "ph_missing")
     mark((ph < 0) | (ph > 14), "ph_out_of_range")
     w = scenario.water
@@ -203,7 +210,7 @@ def _dose_for(scenario: Scenario, ph, temp, alk, flag, ok) -> np.ndarray:
     bad = np.zeros(m, dtype=bool)
     if alk is not None:
         a = pd.to_numeric(pd.Series(alk), errors="coerce").to_numpy(dtype=float)
-        bad |= ~np.isfinite(a) | (a < 0)
+        bad |= ~(a >= 0) | ~(a <= MEASURED_MAX_MG_L)
         a_eq = np.where(bad, 0.0, a) / CACO3_MG_PER_MEQ / 1000.0
         carb, coef, _ = carbonate_for_alkalinity(base, ph, temp, a_eq, ALKALINITY_ENDPOINT_PH,
                                                  davies=w.davies, extra_ionic_strength=extra,
@@ -286,8 +293,9 @@ class ReplayTotals:
         valid = ts.notna().to_numpy()
         if valid.any():
             tv = ts[valid]
-            self.first = tv.iloc[0] if self.first is None else min(self.first, tv.iloc[0])
-            self.last = tv.iloc[-1] if self.last is None else max(self.last, tv.iloc[-1])
+            # Earliest and latest, whatever the order of the rows.
+            self.first = tv.min() if self.first is None else min(self.first, tv.min())
+            self.last = tv.max() if self.last is None else max(self.last, tv.max())
         planned = rows[ok & valid]
         if len(planned):
             day = pd.to_datetime(planned["timestamp"]).dt.strftime("%Y-%m-%d")

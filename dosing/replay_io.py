@@ -23,7 +23,19 @@ CHUNK_ROWS = 100_000
 
 
 def _parse_times(col: pd.Series) -> pd.Series:
-    return pd.to_datetime(col, errors="coerce", utc=False, format="mixed")
+    """Timestamps as naive datetimes; unreadable ones become NaT.
+
+    The rule for zones: a timestamp with a UTC offset (``+01:00``, ``Z``) is
+    converted to UTC; one without is taken as written. So a file that mixes
+    offsets (a logger that changed zone, summer time) reads on one clock.
+    """
+    try:
+        out = pd.to_datetime(col, errors="coerce", utc=False, format="mixed")
+    except ValueError:                      # offsets differ between rows
+        out = pd.to_datetime(col, errors="coerce", utc=True, format="mixed")
+    if getattr(out.dt, "tz", None) is not None:
+        out = out.dt.tz_convert("UTC").dt.tz_localize(None)
+    return out
 
 
 def iter_chunks(path: str, chunk_rows: int = CHUNK_ROWS) -> Iterator[pd.DataFrame]:
@@ -55,7 +67,9 @@ def iter_chunks(path: str, chunk_rows: int = CHUNK_ROWS) -> Iterator[pd.DataFram
     except pd.errors.EmptyDataError:
         raise ScenarioError(path, "", "the file is empty") from None
     except (pd.errors.ParserError, UnicodeDecodeError) as err:
-        raise ScenarioError(path, "", f"not a readable CSV file ({str(err)[:120]})") from None
+        why = " ".join(str(err).split())[:160]
+        raise ScenarioError(path, "", f"not a readable CSV file ({why}); every line needs the "
+                            "header's fields, no more") from None
 
 
 def _parquet_chunks(path: str, chunk_rows: int) -> Iterator[pd.DataFrame]:
@@ -64,13 +78,18 @@ def _parquet_chunks(path: str, chunk_rows: int) -> Iterator[pd.DataFrame]:
     except ImportError:
         raise ScenarioError(path, "", "reading Parquet needs pyarrow (pip install "
                             "'neutral-dosing[parquet]'); or give a CSV") from None
-    f = pq.ParquetFile(path)
-    mapping = normalise_columns(f.schema.names, path)
-    for batch in f.iter_batches(batch_size=chunk_rows, columns=list(mapping.values())):
-        frame = batch.to_pandas()
-        frame = frame.rename(columns={v: k for k, v in mapping.items()})
-        frame["timestamp"] = _parse_times(frame["timestamp"])
-        yield frame
+    import pyarrow as pa
+    try:
+        f = pq.ParquetFile(path)
+        mapping = normalise_columns(f.schema.names, path)
+        for batch in f.iter_batches(batch_size=chunk_rows, columns=list(mapping.values())):
+            frame = batch.to_pandas()
+            frame = frame.rename(columns={v: k for k, v in mapping.items()})
+            frame["timestamp"] = _parse_times(frame["timestamp"])
+            yield frame
+    except (pa.ArrowException, OSError) as err:
+        why = " ".join(str(err).split())[:160]
+        raise ScenarioError(path, "", f"not a readable Parquet file ({why})") from None
 
 
 def run_replay(path: str, scenario: Scenario, *, chunk_rows: int = CHUNK_ROWS,

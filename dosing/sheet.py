@@ -452,9 +452,17 @@ def render_replay(report: dict[str, Any], units: str = "metric", width: int = 78
     return "\n".join(out) + "\n"
 
 
+def _plus_minus(value: float, err: float | None, unit: str) -> str:
+    """'1.20 ± 0.12 mmol/L', or a note in place of the error when the curve cannot tell it."""
+    if err is None:
+        return f"{fmt(value)}{unit} (not determined)"
+    return f"{fmt(value)} ± {fmt(err, 2)}{unit}"
+
+
 def render_titration(scenario: Scenario, report: dict[str, Any], units: str = "metric",
                      width: int = 78) -> str:
     """Both titration methods side by side, then the model plan's sheet."""
+    from .titration import FIT_LABELS
     d, m = report["direct"], report["model"]
     per = "per_h" if "kg_product_per_h" in d else "per_batch"
     kg, lit = d[f"kg_product_{per}"], d[f"litres_product_{per}"]
@@ -465,22 +473,20 @@ def render_titration(scenario: Scenario, report: dict[str, Any], units: str = "m
     def prod(k, l_):
         return product_text(k, l_, units)
 
+    scaled = (f"{fmt(d['dose_mmol_per_l'])} mmol/L, {prod(kg, lit)} {label}"
+              if d["dose_mmol_per_l"] is not None
+              else "no dose by equivalents for this reagent (see the warnings)")
     out = [f"BENCH TITRATION  {report['points']} points, {fmt(report['sample_ml'])} mL "
            f"sample, titrant {report['titrant']}", "=" * 40,
            f"direct scaling  {fmt(d['ml_titrant_at_aim'])} mL titrant to pH "
-           f"{plan.target.ph_aim:g} -> {fmt(d['dose_mmol_per_l'])} mmol/L, "
-           f"{prod(kg, lit)} {label}",
+           f"{plan.target.ph_aim:g} -> {scaled}",
            f"model fit       {fmt(a.mmol_per_l)} mmol/L, {prod(a.kg_product, a.litres_product)} "
            f"{label}"]
     gap = report["gap_model_vs_direct"]
     if gap is not None:
         out.append(f"                the model is {gap:+.1%} against the direct scaling")
-    names = {"carbonate_mmol_l": ("carbonate", " mmol/L"),
-             "strong_ion_balance_meq_l": ("strong-ion balance", " meq/L"),
-             "unknown_acid_mmol_l": ("unlisted acid", " mmol/L"),
-             "unknown_acid_pka": ("its pKa", "")}
     out.append("fitted water    " + ", ".join(
-        f"{names[k][0]} {fmt(v)} ± {fmt(m['stderr'][k], 2)}{names[k][1]}"
+        f"{FIT_LABELS[k][0]} {_plus_minus(v, m['stderr'][k], FIT_LABELS[k][1])}"
         for k, v in m["fitted"].items()) + f"; pH misfit {m['rms_ph']:.3f} RMS")
     if report["warnings"]:
         out += ["", "TITRATION WARNINGS"]

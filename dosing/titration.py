@@ -108,7 +108,11 @@ def parse_titrant(text: str) -> Titrant:
         raise InputError("--titrant", f"{text!r}: give a catalogue id or a strength "
                          "such as '0.1 M NaOH', '0.02 N H2SO4' or 'HCl:0.1'")
     comp = m.group("c1") or m.group("c2")
-    value = float(m.group("n1") or m.group("n2"))
+    try:
+        value = float(m.group("n1") or m.group("n2"))
+    except ValueError:
+        raise InputError("--titrant", f"{text!r}: the strength is not a number; write it "
+                         "as '0.1 M NaOH', '0.02 N H2SO4' or 'HCl:0.1'") from None
     unit = m.group("u1") or m.group("u2") or "M"
     if comp not in COMPOUNDS:
         raise InputError("--titrant", f"unknown compound {comp!r}; allowed: "
@@ -122,6 +126,22 @@ def parse_titrant(text: str) -> Titrant:
         raise InputError("--titrant", f"{value:g} {unit} is not a plausible titrant "
                          "strength; allowed: 0.0001 to 20 mol/L")
     return Titrant(c, molarity, f"{molarity:g} M {comp}")
+
+
+def _misread_suspects(q: np.ndarray, i: int) -> list[int]:
+    """Which of points ``i`` and ``i + 1`` breaks the trend of ``q`` (rising).
+
+    A spike up at ``i`` is the misread when leaving it out puts its
+    neighbours back in order; a dip at ``i + 1`` likewise. When both (or
+    neither) would, both are named.
+    """
+    fits_without_i = (i == 0 or q[i - 1] <= q[i + 1] + MISREAD_PH)
+    fits_without_next = (i + 2 >= q.size or q[i] <= q[i + 2] + MISREAD_PH)
+    if fits_without_i and not fits_without_next:
+        return [i]
+    if fits_without_next and not fits_without_i:
+        return [i + 1]
+    return [i, i + 1]
 
 
 @dataclass(frozen=True)
@@ -173,9 +193,11 @@ def check_curve(sample_ml: float, titrant: Titrant, added_ml, ph, rows=None,
     if np.any(dp < -MISREAD_PH):
         i = int(np.flatnonzero(dp < -MISREAD_PH)[0])
         verb = "falls" if direction > 0 else "rises"
-        raise InputError(source, f"pH {verb} from {p[i]:g} to {p[i + 1]:g} at row "
-                         f"{rows[i + 1]} while {titrant.label} is added: a misread? "
-                         "Fix the reading or drop that row (--drop ROW)")
+        suspect = " or ".join(str(rows[k]) for k in _misread_suspects(p * direction, i))
+        raise InputError(source, f"pH {verb} from {p[i]:g} (row {rows[i]}) to {p[i + 1]:g} "
+                         f"(row {rows[i + 1]}) while {titrant.label} is added: row "
+                         f"{suspect} looks misread. Fix the reading or drop that row "
+                         "(--drop ROW)")
     small = np.flatnonzero(dp < 0)
     if small.size:
         notes.append("pH readings against the trend by up to "
@@ -249,10 +271,17 @@ def direct_scaling(curve: BenchCurve, reagent: Reagent, target: Target) -> Direc
         notes.append(f"titrant {curve.titrant.compound.formula} and reagent "
                      f"{reagent.compound.formula} differ: direct scaling by equivalents "
                      "ignores the carbonate, sulfate or calcium the product brings")
-    band = sorted([to_mol(eq_per_l_at(e)) for e in edges if e is not None])
+    band = sorted(m for m in (to_mol(eq_per_l_at(e)) for e in edges) if m is not None)
     band_t = (band[0] if band else None, band[1] if len(band) > 1 else None)
     return DirectScaling(v_aim, edges, eq_per_l_at(v_aim), to_mol(eq_per_l_at(v_aim)),
                          band_t, f, tuple(notes))
+
+
+#: What each fitted value is called on the page, and its unit.
+FIT_LABELS = {"carbonate_mmol_l": ("carbonate", " mmol/L"),
+              "strong_ion_balance_meq_l": ("strong-ion balance", " meq/L"),
+              "unknown_acid_mmol_l": ("unlisted acid", " mmol/L"),
+              "unknown_acid_pka": ("its pKa", "")}
 
 
 @dataclass(frozen=True)
@@ -261,7 +290,7 @@ class WaterFit:
 
     water: Water
     params: dict[str, float]          #: fitted values, mmol/L, meq/L, pKa
-    stderr: dict[str, float]          #: one standard error of each
+    stderr: dict[str, float | None]   #: one standard error of each (None: not determined)
     residual_ml: np.ndarray           #: model minus measured volume [mL]
     residual_ph: np.ndarray           #: model minus measured pH at each volume
     rms_ph: float
@@ -339,24 +368,18 @@ def fit_water(curve: BenchCurve, base: Water, *, unknown_acid: str = "auto") -> 
     names = ["carbonate_mmol_l", "strong_ion_balance_meq_l"] + (
         ["unknown_acid_mmol_l", "unknown_acid_pka"] if with_u else [])
     warnings: list[str] = []
-    j = chosen.jac
-    dof = max(curve.ph.size - len(x), 1)
-    s2 = 2 * chosen.cost / dof
-    try:
-        jtj = j.T @ j
-        cond = np.linalg.cond(jtj)
-        cov = np.linalg.inv(jtj) * s2
-        std = np.sqrt(np.maximum(np.diag(cov), 0.0))
-    except np.linalg.LinAlgError:
-        cond, std = math.inf, np.full(len(x), math.inf)
+    std, cond = _standard_errors(chosen.jac, 2 * chosen.cost / max(curve.ph.size - len(x), 1))
     if not math.isfinite(cond) or cond > 1e12:
         warnings.append("the fitted values are not identifiable from this curve (the "
                         "parameters trade off against each other); titrate further "
                         "past the buffer regions")
     for name, value, err in zip(names, x, std):
-        if abs(value) > 1e-9 and err > 0.5 * abs(value) and "pka" not in name:
-            warnings.append(f"{name.replace('_', ' ')} is poorly determined "
-                            f"({value:.3g} ± {err:.2g})")
+        if err is None:
+            warnings.append(f"{FIT_LABELS[name][0]} is not determined by this curve "
+                            "(the pH does not respond to it over the titrated range)")
+        elif abs(value) > 1e-9 and err > 0.5 * abs(value) and "pka" not in name:
+            warnings.append(f"{FIT_LABELS[name][0]} is poorly determined "
+                            f"({value:.3g} ± {err:.2g}{FIT_LABELS[name][1]})")
     ml, mix = _model_ml(x, curve, base, with_u)
     r_ml = ml - curve.added_ml
     r_ph, rms = misfit
@@ -381,8 +404,30 @@ def fit_water(curve: BenchCurve, base: Water, *, unknown_acid: str = "auto") -> 
                     ionic_strength=float(sp.ionic_strength[0]), open_to_air=base.open_to_air,
                     unknown_pka=float(x[3]) if with_u else None,
                     notes=("water fitted to the bench titration",))
-    return WaterFit(water, dict(zip(names, map(float, x))), dict(zip(names, map(float, std))),
+    return WaterFit(water, dict(zip(names, map(float, x))), dict(zip(names, std)),
                     r_ml, r_ph, rms, with_u, tuple(warnings))
+
+
+def _standard_errors(jac: np.ndarray, s2: float) -> tuple[list[float | None], float]:
+    """One standard error per fitted value (None where the curve cannot tell it)
+    and the condition number of the normal matrix.
+
+    Linearised least-squares covariance, s2 (J'J)^-1 (e.g. Bard 1974,
+    *Nonlinear Parameter Estimation*, ch. 7, from memory). A parameter the
+    residuals do not respond to has a zero Jacobian column: its error is
+    not a number, so it is reported as not determined, never as infinity.
+    """
+    jtj = jac.T @ jac
+    cond = float(np.linalg.cond(jtj)) if np.all(np.isfinite(jtj)) else math.inf
+    norms = np.linalg.norm(jac, axis=0)
+    live = norms > 1e-12 * max(float(norms.max(initial=0.0)), 1e-300)
+    out: list[float | None] = [None] * jac.shape[1]
+    if live.any():
+        sub = jtj[np.ix_(live, live)]
+        var = np.diag(np.linalg.pinv(sub)) * s2
+        for k, v in zip(np.flatnonzero(live), var):
+            out[k] = float(math.sqrt(max(v, 0.0))) if math.isfinite(v) else None
+    return out, cond
 
 
 def _ph_resid(x, curve, base, with_u):
