@@ -376,3 +376,18 @@ def test_fuzz_titration_csv(tmp_path, rows, rising):
         assert code == 2, err
         _one_line(err)
         assert str(path) in err or "--" in err
+
+
+def test_output_into_a_read_only_folder_is_one_line(tmp_path, monkeypatch):
+    # Root ignores folder modes, so the refusal the OS would give is simulated.
+    import tempfile
+
+    def refuse(*a, **k):
+        raise PermissionError(13, "Permission denied")
+    monkeypatch.setattr(tempfile, "mkstemp", refuse)
+    data = _csv(tmp_path, "timestamp,flow,ph\n2026-01-01T00:00,5,4\n2026-01-01T00:01,5,4.1\n")
+    out = tmp_path / "rows.csv"
+    code, _, err = run("replay", data, "--scenario", FLOW, "--csv", str(out))
+    assert code == 2
+    _one_line(err, str(out), "Permission denied", "nothing was changed")
+    assert not out.exists()
