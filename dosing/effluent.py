@@ -52,7 +52,8 @@ from .water import check_temperature
 
 __all__ = ["CACO3_MG_PER_MEQ", "ALKALINITY_ENDPOINT_PH", "ACIDITY_ENDPOINT_PH",
            "DEFAULT_PCO2_UATM", "BACKGROUND_IONS", "STRONG_IONS", "Water", "infer_water",
-           "totals_vector", "aerate"]
+           "totals_vector", "aerate", "air_exchange_fraction", "FULL_EXCHANGE",
+           "STILL_WATER_KL_M_H", "DEFAULT_DEPTH_M"]
 
 #: Equivalent weight of CaCO3 [mg/meq]: M(CaCO3)/2 with IUPAC atomic weights.
 #: Standard Methods rounds it to 50.0 (its factor 50 000).
@@ -92,6 +93,31 @@ MAX_AIR_CARBONATE_MOL_L = 5e-3
 MAX_IONIC_STRENGTH = 5.0
 
 
+#: Gas-transfer velocity of CO2 across a still water surface [m/h]: k600 at
+#: zero wind, 2.07 cm/h (Cole & Caraco 1998, Limnol. Oceanogr. 43, 647,
+#: k600 = 2.07 + 0.215 U10^1.7 cm/h; from memory). Wind, aerators and mixing
+#: raise it several-fold, so the exchange time it gives is the slow end.
+STILL_WATER_KL_M_H = 0.0207
+#: Depth of an open tank or pond when none is given [m] (common practice).
+DEFAULT_DEPTH_M = 2.0
+#: Past this fraction of the way to CO2 equilibrium with air the dose is
+#: planned at equilibrium; below it, with the carbonate held as sampled.
+FULL_EXCHANGE = 0.95
+
+
+def air_exchange_fraction(hours: float, depth_m: float) -> float:
+    """How far dissolved CO2 gets toward air equilibrium in ``hours`` [-].
+
+    First-order exchange across the surface, 1 - exp(-kL t / depth), with
+    the still-water kL (:data:`STILL_WATER_KL_M_H`). At 2 m depth the time
+    constant is about 4 days.
+
+    >>> round(air_exchange_fraction(24.0, 2.0), 2), round(air_exchange_fraction(1e4, 2.0), 2)
+    (0.22, 1.0)
+    """
+    return 1.0 - math.exp(-hours * STILL_WATER_KL_M_H / depth_m)
+
+
 @dataclass(frozen=True)
 class Water:
     """An effluent as the engine sees it.
@@ -113,7 +139,9 @@ class Water:
     davies : bool
         Davies activity model (True) or ideal solution.
     open_to_air : bool
-        Dissolved CO2 held at equilibrium with air during dosing.
+        The tank is open to air: a sample without alkalinity is taken as in
+        CO2 equilibrium with it, and the dosed water exchanges CO2 with it
+        over ``hours_in_air``.
     pco2_atm : float
         CO2 partial pressure of that air [atm].
     alkalinity_eq_l : float
@@ -137,6 +165,12 @@ class Water:
     known_ionic_strength : float
         Ionic strength of the measured strong ions and any extra salt load
         [mol/L].
+    hours_in_air : float
+        How long the dosed water stands open to air before the pH that
+        counts (the reading, the discharge) [h]; 0 for a tank dosed and read
+        in minutes.
+    depth_m : float
+        Depth of the open water, which sets how fast CO2 exchanges [m].
     """
 
     ph: float
@@ -156,15 +190,32 @@ class Water:
     ferrous_oxidised: bool = False
     known_strong_eq_l: float = 0.0
     known_ionic_strength: float = 0.0
+    hours_in_air: float = 0.0
+    depth_m: float = DEFAULT_DEPTH_M
 
-    def mixture(self) -> Mixture:
+    @property
+    def air_fraction(self) -> float:
+        """How far the dosed water gets toward CO2 equilibrium with air [-]."""
+        if not self.open_to_air:
+            return 0.0
+        return air_exchange_fraction(self.hours_in_air, self.depth_m)
+
+    @property
+    def dosed_at_air_equilibrium(self) -> bool:
+        """Whether the dose is planned with dissolved CO2 held by the air."""
+        return self.air_fraction >= FULL_EXCHANGE
+
+    def mixture(self, *, air_equilibrium: bool | None = None) -> Mixture:
         """The water as a one-row :class:`Mixture` for dosing.
 
-        Where the tank is open to air, dissolved CO2 is fixed at its air
-        value for the dosed water.
+        With ``air_equilibrium`` (default: :attr:`dosed_at_air_equilibrium`)
+        dissolved CO2 is fixed at its air value for the dosed water: a pond
+        that stands for days. Otherwise the carbonate total is held as
+        sampled: a tank dosed and read before CO2 exchanges (hours to days).
         """
+        held = self.dosed_at_air_equilibrium if air_equilibrium is None else air_equilibrium
         co2 = (float(co2_in_air_mol_l(self.temperature_c, self.pco2_atm))
-               if self.open_to_air else math.nan)
+               if held else math.nan)
         vec = totals_vector(self.totals_mol_l, self.metals_mol_l)
         return Mixture.build(aerate(vec) if self.ferrous_oxidised else vec,
                              self.strong_eq_l, self.strong_ionic_strength,
@@ -456,7 +507,8 @@ def infer_water(ph: float, temperature_c: float = 25.0, *,
                 ions_mg_l: Mapping[str, float] | None = None,
                 unknown_pka: float | None = None,
                 metals_mg_l: Mapping[str, float] | None = None,
-                oxidise_ferrous: bool = False) -> Water:
+                oxidise_ferrous: bool = False, hours_in_air: float = 0.0,
+                depth_m: float = DEFAULT_DEPTH_M) -> Water:
     """Build the :class:`Water` that matches what was measured.
 
     Parameters
@@ -479,9 +531,14 @@ def infer_water(ph: float, temperature_c: float = 25.0, *,
     activity : {"davies", "ideal"}
         Activity model.
     open_to_air : bool
-        Dissolved CO2 held by the air while dosing.
+        The tank is open to air (see :class:`Water`).
     pco2_uatm : float
         CO2 partial pressure of that air [µatm].
+    hours_in_air, depth_m : float
+        With ``open_to_air``: how long the dosed water stands before the pH
+        that counts [h], and its depth [m]. The dose is planned at CO2
+        equilibrium with air only when that time is long enough to reach it
+        (:data:`FULL_EXCHANGE`); otherwise with the carbonate as sampled.
     extra_ionic_strength_mol_l : float
         Ionic strength of strong ions beyond those given (e.g. a known salt
         load) [mol/L].
@@ -517,6 +574,8 @@ def infer_water(ph: float, temperature_c: float = 25.0, *,
         solutes_mg_l, activity, pco2_uatm, alkalinity_endpoint_ph, acidity_endpoint_ph,
         extra_ionic_strength_mol_l, ions_mg_l, unknown_pka, metals_mg_l, oxidise_ferrous,
         open_to_air)
+    hours_in_air = _check_number("hours_in_air", hours_in_air, 0.0, 1e5)
+    depth_m = _check_number("depth_m", depth_m, 0.05, 100.0)
     notes: list[str] = []
     carb = _carbonate(job, measured, "carbonate" in totals, open_to_air, notes)
     if carb is not None:
@@ -542,7 +601,8 @@ def infer_water(ph: float, temperature_c: float = 25.0, *,
                  pco2_atm=job.pco2_uatm * 1e-6, alkalinity_eq_l=alk_model,
                  notes=tuple(notes), ions_mg_l=ions, unknown_pka=job.unknown_pka,
                  metals_mol_l=metals, ferrous_oxidised=bool(oxidise_ferrous),
-                 known_strong_eq_l=job.known_eq, known_ionic_strength=job.known_i)
+                 known_strong_eq_l=job.known_eq, known_ionic_strength=job.known_i,
+                 hours_in_air=hours_in_air, depth_m=depth_m)
 
 
 def _validate(ph, temperature_c, alkalinity, acidity, solutes_mmol_l, solutes_mg_l,

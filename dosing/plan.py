@@ -26,7 +26,7 @@ from typing import Mapping
 
 import numpy as np
 
-from .effluent import Water
+from .effluent import STILL_WATER_KL_M_H, Water
 from .activity import DAVIES_I_LIMIT
 from .equilibrium import (CARBONATE, Mixture, add_dose, dose_to_ph, solve_ph,
                           speciate)
@@ -39,7 +39,7 @@ from .solids import (METAL_PERMIT_KEYS, CapWindow, Solid, cap_window, metals_aft
                      metals_present_mol_l, solids_after)
 from .water import henry_co2
 
-__all__ = ["Target", "Batch", "Flow", "Amounts", "TitrationCurve", "Plan",
+__all__ = ["AirExchange", "Target", "Batch", "Flow", "Amounts", "TitrationCurve", "Plan",
            "plan_dose", "titration_curve", "METERING_ERROR"]
 
 #: Relative metering error used for the sensitivity check (common practice:
@@ -183,11 +183,44 @@ class Plan:
     metals_after_mg_l: Mapping[str, float] = field(default_factory=dict)
     cap_window: CapWindow | None = None   #: pH range meeting the metal caps
     ph_ceiling: float | None = None       #: highest pH an overdose reaches [-]
+    air: AirExchange | None = None        #: CO2 exchange with air, for an open tank
 
     def amounts(self, dose_mol_l: float | None = None) -> Amounts:
         """A dose (default: the planned one) in operator units."""
         return amounts_for(self.dose_mol_l if dose_mol_l is None else dose_mol_l,
                            self.reagent, self.basis)
+
+
+@dataclass(frozen=True)
+class AirExchange:
+    """How a plan for an open tank treats CO2 exchange, and the other case.
+
+    The dose is planned either with the carbonate as sampled (dosed and read
+    before CO2 exchanges) or at CO2 equilibrium with air (a pond standing
+    for days); the figures of the other case say how far apart they are.
+    """
+
+    hours: float                     #: time standing open before the pH that counts [h]
+    depth_m: float
+    fraction: float                  #: of the way to CO2 equilibrium in that time [-]
+    at_equilibrium: bool             #: planned at CO2 equilibrium with air
+    other_dose_mol_l: float | None   #: dose to the aim in the other case (None: unreachable)
+    ph_other: float                  #: pH the planned dose gives in the other case [-]
+
+
+def _air_exchange(water: Water, reagent: Reagent, aim: float, dose: float
+                  ) -> AirExchange | None:
+    """The other CO2 case for an open tank: its dose to the aim, and the pH the
+    planned dose gives there."""
+    if not water.open_to_air:
+        return None
+    at_eq = water.dosed_at_air_equilibrium
+    other = water.mixture(air_equilibrium=not at_eq)
+    d, grip = dose_to_ph(other, reagent.vector(), np.array([aim]))
+    ok = math.isfinite(d[0]) and grip[0] * _direction(reagent) > 1e-9 and d[0] >= 0
+    ph_other = float(solve_ph(add_dose(other, reagent.vector(), dose), ph_guess=aim)[0])
+    return AirExchange(water.hours_in_air, water.depth_m, water.air_fraction, at_eq,
+                       float(d[0]) if ok else None, ph_other)
 
 
 def _direction(reagent: Reagent) -> int:
@@ -294,7 +327,8 @@ def plan_dose(water: Water, reagent: Reagent, target: Target,
                 curve=titration_curve(water, reagent, top, points=curve_points),
                 dose_needed=edges.needed, cautions=tuple(reagent.cautions) + (GENERAL_CAUTION,),
                 checks=checks, solids=solids, metals_after_mg_l=metals_after,
-                cap_window=window, ph_ceiling=ceiling)
+                cap_window=window, ph_ceiling=ceiling,
+                air=_air_exchange(water, reagent, target.ph_aim, dose))
     return replace(plan, warnings=plan_warnings(plan, edges.notes))
 
 
@@ -381,7 +415,44 @@ def plan_warnings(plan: Plan, notes: tuple[str, ...]) -> tuple[str, ...]:
                         "before adding more")
     if plan.cap_window is not None:
         warnings.extend(_cap_words(plan.cap_window, target))
+    if plan.air is not None and plan.dose_needed:
+        warnings.append(_air_words(plan))
     return tuple(warnings)
+
+
+def _air_words(plan: Plan) -> str:
+    """What an open tank's plan assumed about CO2, and the other case's figures."""
+    a, t = plan.air, plan.target
+    assert a is not None
+    tau_days = a.depth_m / STILL_WATER_KL_M_H / 24.0
+    source = ("gas transfer 2.1 cm/h, Cole & Caraco 1998; wind and mixing make it "
+              "faster")
+    how = (f"in {a.hours:g} h a still tank {a.depth_m:g} m deep gets about "
+           f"{a.fraction:.0%} of the way to CO2 equilibrium with air ({source})"
+           if a.hours > 0 else
+           f"CO2 exchanges with air over days (a still tank {a.depth_m:g} m deep: "
+           f"time constant about {tau_days:.2g} days; {source}); set model.hours_in_air "
+           "for a water that stands")
+    when = f"within {a.hours:g} h of dosing" if a.hours > 0 else "soon after dosing"
+    outside = "" if t.contains(a.ph_other) else ", outside the window"
+    if a.at_equilibrium:
+        other = ("" if a.other_dose_mol_l is None else
+                 f"; dosed and read within hours this water needs "
+                 f"{fmt(a.other_dose_mol_l * 1000)} mmol/L instead")
+        return (f"open to air: the dose is planned for CO2 equilibrium with air: {how}. Right after dosing, before the CO2 exchanges, the pH goes to "
+                f"about {a.ph_other:.2f}{outside}{other}")
+    ratio = None if a.other_dose_mol_l is None else a.other_dose_mol_l / plan.dose_mol_l
+    if ratio is not None and 0.9 <= ratio <= 1.1 and not outside:
+        return (f"open to air: the dose is planned for the pH {when}, with the carbonate "
+                f"as sampled; standing for days changes little (the pH drifts to about "
+                f"{a.ph_other:.2f}, and holding the aim would take {ratio:.0%} of this dose)")
+    other = ("" if ratio is None else
+             f"; holding the aim then needs {fmt(a.other_dose_mol_l * 1000)} mmol/L, "
+             f"{ratio:.2g} times this dose")
+    return (f"open to air: the dose is planned for the pH {when}, with the carbonate as "
+            f"sampled: {how}. Standing for days the water "
+            f"exchanges CO2 and the pH drifts to about {a.ph_other:.2f}{outside}{other}: "
+            "re-measure after a day and trim; never dose the long-term figure at once")
 
 
 def _cap_words(cw: CapWindow, target: Target) -> list[str]:

@@ -220,7 +220,8 @@ def _dose_for(scenario: Scenario, ph, temp, alk, flag, ok) -> np.ndarray:
         base[:, CARBONATE] = np.where(bad, 0.0, carb)
     s, _ = strong_balance_at_ph(base, ph, temp, davies=w.davies, extra_ionic_strength=extra,
                                 unknown_pka=pka, known_strong_eq_l=w.known_strong_eq_l)
-    co2 = (co2_in_air_mol_l(temp, w.pco2_atm) if w.open_to_air else np.full(m, np.nan))
+    co2 = (co2_in_air_mol_l(temp, w.pco2_atm) if w.dosed_at_air_equilibrium
+           else np.full(m, np.nan))
     unsettled = ~np.isfinite(s) & ~bad
     s = np.where(np.isfinite(s), s, 0.0)
     tank = aerate(base) if w.ferrous_oxidised else base

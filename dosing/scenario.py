@@ -21,7 +21,8 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Mapping
 
-from .effluent import BACKGROUND_IONS, Water, infer_water
+from .effluent import (ACIDITY_ENDPOINT_PH, ALKALINITY_ENDPOINT_PH, BACKGROUND_IONS,
+                       DEFAULT_DEPTH_M, DEFAULT_PCO2_UATM, Water, infer_water)
 from .errors import InputError, ScenarioError
 from .plan import Batch, Flow, Target
 from .reagents import Reagent, custom_reagent, get_reagent, with_purity
@@ -73,7 +74,8 @@ _SCHEMA: dict[str, dict[str, tuple]] = {
         "storage_kg": ((int, float), False),
     },
     "model": {"activity": ((str,), False), "open_to_air": ((bool,), False),
-              "pco2_uatm": ((int, float), False)},
+              "pco2_uatm": ((int, float), False), "hours_in_air": ((int, float), False),
+              "depth_m": ((int, float), False)},
     "permit": {k: ((int, float), False) for k in PERMIT_KEYS},
     "sludge": {"cake_solids_fraction": ((int, float), False),
                "cake_density_kg_l": ((int, float), False)},
@@ -215,7 +217,7 @@ def _where(field_name: str) -> str:
     head = field_name.split(".")[0]
     if head in _SCHEMA:
         return field_name
-    if head in ("activity", "pco2_uatm", "open_to_air"):
+    if head in ("activity", "pco2_uatm", "open_to_air", "hours_in_air", "depth_m"):
         return f"model.{field_name}"
     return f"effluent.{field_name}"
 
@@ -263,9 +265,11 @@ def build_scenario(data: Mapping[str, Any], path: str = "<scenario>") -> Scenari
             solutes_mg_l=eff.get("solutes_mg_l"),
             activity=model.get("activity", "davies"),
             open_to_air=model.get("open_to_air", False),
-            pco2_uatm=model.get("pco2_uatm", 420.0),
-            alkalinity_endpoint_ph=eff.get("alkalinity_endpoint_ph", 4.5),
-            acidity_endpoint_ph=eff.get("acidity_endpoint_ph", 8.3),
+            pco2_uatm=model.get("pco2_uatm", DEFAULT_PCO2_UATM),
+            hours_in_air=model.get("hours_in_air", 0.0),
+            depth_m=model.get("depth_m", DEFAULT_DEPTH_M),
+            alkalinity_endpoint_ph=eff.get("alkalinity_endpoint_ph", ALKALINITY_ENDPOINT_PH),
+            acidity_endpoint_ph=eff.get("acidity_endpoint_ph", ACIDITY_ENDPOINT_PH),
             extra_ionic_strength_mol_l=eff.get("extra_ionic_strength_mol_l", 0.0),
             ions_mg_l=eff.get("ions_mg_l"), unknown_pka=eff.get("unknown_pka"),
             metals_mg_l=eff.get("metals_mg_l"),

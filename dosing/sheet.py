@@ -18,7 +18,7 @@ from typing import Any
 from . import __version__
 from .effluent import CACO3_MG_PER_MEQ
 from .numbers import fmt
-from .plan import Batch, Flow, Plan, plan_dose
+from .plan import METERING_ERROR, Batch, Flow, Plan, plan_dose
 from .metals import HARDNESS
 from .solids import Sludge, sludge_of
 from .errors import InputError, ModelError, ScenarioError, UnreachableError
@@ -175,7 +175,7 @@ def sheet_dict(scenario: Scenario, plan: Plan) -> dict[str, Any]:
         },
         "sensitivity": {
             "ph_per_mmol_l": plan.slope_ph_per_mmol_l,
-            "metering_error": 0.05,
+            "metering_error": METERING_ERROR,
             "ph_at_low_dose": plan.ph_low_dose,
             "ph_at_high_dose": plan.ph_high_dose,
         },
@@ -184,6 +184,13 @@ def sheet_dict(scenario: Scenario, plan: Plan) -> dict[str, Any]:
             "temperature_c": w.temperature_c,
             "activity_model": "davies" if w.davies else "ideal",
             "open_to_air": w.open_to_air,
+            "air_exchange": None if plan.air is None else {
+                "hours_in_air": plan.air.hours, "depth_m": plan.air.depth_m,
+                "fraction_to_equilibrium": plan.air.fraction,
+                "planned_at_air_equilibrium": plan.air.at_equilibrium,
+                "other_case_dose_mmol_per_l": (None if plan.air.other_dose_mol_l is None
+                                               else plan.air.other_dose_mol_l * 1000),
+                "other_case_ph": plan.air.ph_other},
             "totals_mmol_l": {k: v * 1000 for k, v in w.totals_mol_l.items()},
             "strong_ion_balance_meq_l": w.strong_eq_l * 1000,
             "ionic_strength_mol_l": w.ionic_strength,
@@ -309,7 +316,7 @@ def dose_lines(scenario: Scenario, plan: Plan, units: str = "metric") -> list[tu
                  f"(aim {plan.target.ph_aim:g})"))
     if plan.dose_needed:
         rows.append(("sensitivity", f"pH moves {fmt(abs(plan.slope_ph_per_mmol_l))} per "
-                     f"mmol/L of {plan.reagent.compound.formula} at the aim; a 5 % dosing "
+                     f"mmol/L of {plan.reagent.compound.formula} at the aim; a {METERING_ERROR:.0%} dosing "
                      f"error gives pH {min(plan.ph_low_dose, plan.ph_high_dose):.2f} to "
                      f"{max(plan.ph_low_dose, plan.ph_high_dose):.2f}"))
     if scenario.price_per_kg is not None and a.kg_product is not None:
@@ -380,7 +387,9 @@ def render_sheet(scenario: Scenario, plan: Plan, units: str = "metric",
         out.extend(_wrap(f"modelled totals, mmol/L: {solutes}", width, "         "))
     out.append(f"         strong-ion balance {fmt(w.strong_eq_l * 1000)} meq/L, ionic strength "
                f"{fmt(w.ionic_strength)} mol/L, {'Davies' if w.davies else 'ideal'} activity"
-               + (", open to air" if w.open_to_air else ""))
+               )
+    if plan.air is not None:
+        out.extend(_wrap(_air_line(plan.air), width, "         "))
     dens = (f", {plan.reagent.density_kg_l:.4g} kg/L at 20 °C" if plan.reagent.density_kg_l
             else "")
     out.append(f"reagent  {plan.reagent.name} [{plan.reagent.id}]{dens}")
@@ -450,6 +459,19 @@ def render_replay(report: dict[str, Any], units: str = "metric", width: int = 78
     for c in r["cautions"]:
         out.extend(_wrap(c, width, "  - "))
     return "\n".join(out) + "\n"
+
+
+def _air_line(a) -> str:
+    """The CO2 assumption of an open tank, in one line for the water block."""
+    if a.at_equilibrium:
+        return (f"open to air: dose planned at CO2 equilibrium with air ({a.hours:g} h "
+                f"standing, {a.depth_m:g} m deep: {a.fraction:.0%} of the way)")
+    if a.hours == 0:
+        return ("open to air: dose planned with the carbonate as sampled (read soon after "
+                "dosing, before CO2 exchanges)")
+    return (f"open to air: dose planned with the carbonate as sampled (read within "
+            f"{a.hours:g} h; {a.depth_m:g} m deep: {a.fraction:.0%} of the way to CO2 "
+            "equilibrium)")
 
 
 def _plus_minus(value: float, err: float | None, unit: str) -> str:

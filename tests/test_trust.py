@@ -3,6 +3,7 @@ the defect they guard."""
 
 from __future__ import annotations
 
+import math
 import os
 import pickle
 
@@ -114,3 +115,60 @@ def test_issue_11_calcium_counts_as_divalent():
     w = infer_water(7.0, 25.0, alkalinity_mg_l_as_caco3=0, activity="ideal",
                     ions_mg_l={"calcium": 400.78, "chloride": 709.0})
     assert w.ionic_strength == pytest.approx(0.030, rel=0.01)
+
+
+# Issue 11 item 2: an open tank dosed in minutes is not at CO2 equilibrium.
+# The reproducing case: pH 4, acidity 10 mg/L as CaCO3, caustic to pH 9.
+def _open_plan(hours: float, depth_m: float = 2.0):
+    from dosing import Batch, Target, get_reagent, infer_water, plan_dose
+    w = infer_water(4.0, 25.0, acidity_mg_l_as_caco3=10, activity="ideal", open_to_air=True,
+                    hours_in_air=hours, depth_m=depth_m)
+    return plan_dose(w, get_reagent("caustic-50"), Target(6.5, 9.5, 9.0), Batch(10.0))
+
+
+def _air_equilibrium_alkalinity_ph9() -> float:
+    """Carbonate alkalinity of water at pH 9 in equilibrium with 420 µatm CO2 [eq/L].
+
+    By hand from Stumm & Morgan 1996, Aquatic Chemistry, table 4.2 (25 °C:
+    log KH -1.47, pK1 6.35, pK2 10.33; from memory); ideal solution.
+    """
+    co2 = 10 ** -1.47 * 420e-6
+    hco3 = co2 * 10 ** (-6.35 + 9.0)
+    co3 = hco3 * 10 ** (-10.33 + 9.0)
+    return hco3 + 2 * co3 + 10 ** -5.0 - 10 ** -9.0
+
+
+def test_issue_11_open_to_air_dosing_is_planned_for_the_time_scale():
+    quick = _open_plan(0.0)
+    closed = plan_dose(replace_open(quick.water), quick.reagent, quick.target, quick.basis)
+    # Read soon after dosing: the dose is the closed-tank dose, not 36 times it.
+    assert quick.dose_mol_l == pytest.approx(closed.dose_mol_l, rel=1e-9)
+    assert quick.air is not None and not quick.air.at_equilibrium
+    # The long-term figure is reported, and agrees with a hand calculation:
+    # the alkalinity air holds at pH 9 plus the water's strong-acid deficit.
+    deficit = -quick.water.strong_eq_l
+    assert quick.air.other_dose_mol_l == pytest.approx(
+        _air_equilibrium_alkalinity_ph9() + deficit, rel=0.03)
+    assert quick.air.other_dose_mol_l > 20 * quick.dose_mol_l
+    assert any("never dose the long-term figure at once" in w for w in quick.warnings)
+
+
+def replace_open(w):
+    from dataclasses import replace
+    return replace(w, open_to_air=False)
+
+
+def test_issue_11_a_pond_that_stands_for_weeks_is_planned_at_air_equilibrium():
+    pond = _open_plan(24 * 21)                # three weeks, 2 m: 1 - exp(-5.2) = 99.4 %
+    assert pond.air.at_equilibrium and pond.air.fraction == pytest.approx(
+        1 - math.exp(-24 * 21 * 0.0207 / 2.0))
+    assert pond.dose_mol_l == pytest.approx(_air_equilibrium_alkalinity_ph9() - pond.water.strong_eq_l, rel=0.03)
+    # Right after dosing the full figure, before CO2 is taken up, the pH overshoots.
+    assert pond.air.ph_other > pond.target.ph_max
+    assert any("Right after dosing" in w for w in pond.warnings)
+
+
+def test_issue_11_hours_in_air_is_checked(tmp_path):
+    f = tmp_path / "open.toml"
+    f.write_text(GOOD + "[model]\nopen_to_air = true\nhours_in_air = -3\n")
+    _one_line_exit_2(run_cli("plan", str(f)), f, "model.hours_in_air")
