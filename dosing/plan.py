@@ -184,6 +184,7 @@ class Plan:
     cap_window: CapWindow | None = None   #: pH range meeting the metal caps
     ph_ceiling: float | None = None       #: highest pH an overdose reaches [-]
     air: AirExchange | None = None        #: CO2 exchange with air, for an open tank
+    precision: tuple = ()                 #: dose at the edges of each reading's precision
 
     def amounts(self, dose_mol_l: float | None = None) -> Amounts:
         """A dose (default: the planned one) in operator units."""

@@ -32,7 +32,7 @@ from .solids import CAKE_DENSITY_KG_L, CAKE_SOLIDS_FRACTION, METAL_PERMIT_KEYS
 from .species import SYSTEM_IDS
 
 __all__ = ["Scenario", "PERMIT_KEYS", "parse_scenario", "load_scenario",
-           "scenario_to_toml", "build_scenario", "scenario_key"]
+           "scenario_to_toml", "build_scenario", "scenario_key", "water_inputs"]
 
 #: Keys of the optional [permit] table: caps on the discharge [mg/L]
 #: (ions and dissolved solids, then dissolved metals as the element).
@@ -244,6 +244,27 @@ def _reagent(r: Mapping[str, Any]) -> Reagent:
                           form=r.get("form"), name=r.get("name"))
 
 
+def water_inputs(data: Mapping[str, Any]) -> dict[str, Any]:
+    """The measurements of a scenario as keyword arguments of :func:`infer_water`."""
+    eff, model = data["effluent"], data.get("model", {})
+    return dict(
+        ph=eff["ph"], temperature_c=eff.get("temperature_c", 25.0),
+        alkalinity_mg_l_as_caco3=eff.get("alkalinity_mg_l_as_caco3"),
+        acidity_mg_l_as_caco3=eff.get("acidity_mg_l_as_caco3"),
+        solutes_mmol_l=eff.get("solutes_mmol_l"), solutes_mg_l=eff.get("solutes_mg_l"),
+        activity=model.get("activity", "davies"),
+        open_to_air=model.get("open_to_air", False),
+        pco2_uatm=model.get("pco2_uatm", DEFAULT_PCO2_UATM),
+        hours_in_air=model.get("hours_in_air", 0.0),
+        depth_m=model.get("depth_m", DEFAULT_DEPTH_M),
+        alkalinity_endpoint_ph=eff.get("alkalinity_endpoint_ph", ALKALINITY_ENDPOINT_PH),
+        acidity_endpoint_ph=eff.get("acidity_endpoint_ph", ACIDITY_ENDPOINT_PH),
+        extra_ionic_strength_mol_l=eff.get("extra_ionic_strength_mol_l", 0.0),
+        ions_mg_l=eff.get("ions_mg_l"), unknown_pka=eff.get("unknown_pka"),
+        metals_mg_l=eff.get("metals_mg_l"),
+        oxidise_ferrous=eff.get("oxidise_ferrous", False))
+
+
 def build_scenario(data: Mapping[str, Any], path: str = "<scenario>") -> Scenario:
     """Validate plain scenario data (as parsed from TOML) into a Scenario.
 
@@ -253,27 +274,9 @@ def build_scenario(data: Mapping[str, Any], path: str = "<scenario>") -> Scenari
         Naming ``path``, the key and what is allowed.
     """
     _check_types(path, data)
-    eff = data["effluent"]
-    model = data.get("model", {})
     r = data["reagent"]
     try:
-        water = infer_water(
-            eff["ph"], eff.get("temperature_c", 25.0),
-            alkalinity_mg_l_as_caco3=eff.get("alkalinity_mg_l_as_caco3"),
-            acidity_mg_l_as_caco3=eff.get("acidity_mg_l_as_caco3"),
-            solutes_mmol_l=eff.get("solutes_mmol_l"),
-            solutes_mg_l=eff.get("solutes_mg_l"),
-            activity=model.get("activity", "davies"),
-            open_to_air=model.get("open_to_air", False),
-            pco2_uatm=model.get("pco2_uatm", DEFAULT_PCO2_UATM),
-            hours_in_air=model.get("hours_in_air", 0.0),
-            depth_m=model.get("depth_m", DEFAULT_DEPTH_M),
-            alkalinity_endpoint_ph=eff.get("alkalinity_endpoint_ph", ALKALINITY_ENDPOINT_PH),
-            acidity_endpoint_ph=eff.get("acidity_endpoint_ph", ACIDITY_ENDPOINT_PH),
-            extra_ionic_strength_mol_l=eff.get("extra_ionic_strength_mol_l", 0.0),
-            ions_mg_l=eff.get("ions_mg_l"), unknown_pka=eff.get("unknown_pka"),
-            metals_mg_l=eff.get("metals_mg_l"),
-            oxidise_ferrous=eff.get("oxidise_ferrous", False))
+        water = infer_water(**water_inputs(data))
         t = data["target"]
         target = Target(float(t["ph_min"]), float(t["ph_max"]),
                         None if "ph_aim" not in t else float(t["ph_aim"]))

@@ -12,7 +12,7 @@ functions, so a dose reads the same everywhere, with the same cautions.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Any
 
 from . import __version__
@@ -22,7 +22,8 @@ from .plan import METERING_ERROR, Batch, Flow, Plan, plan_dose
 from .metals import HARDNESS
 from .solids import Sludge, sludge_of
 from .errors import InputError, ModelError, ScenarioError, UnreachableError
-from .scenario import Scenario, scenario_key
+from .precision import lab_sensitivity, precision_warning
+from .scenario import Scenario, scenario_key, water_inputs
 
 __all__ = ["Units", "UNIT_SYSTEMS", "make_plan", "sheet_dict", "render_sheet",
            "metals_dict", "metal_lines",
@@ -77,7 +78,7 @@ def make_plan(scenario: Scenario) -> Plan:
         be reached, an input is refused, or the model cannot give a number.
     """
     try:
-        return plan_dose(scenario.water, scenario.reagent, scenario.target, scenario.basis,
+        plan = plan_dose(scenario.water, scenario.reagent, scenario.target, scenario.basis,
                          permit=scenario.permit)
     except UnreachableError as err:
         raise ScenarioError(scenario.source, "target.ph_aim", str(err)) from None
@@ -85,6 +86,13 @@ def make_plan(scenario: Scenario) -> Plan:
         raise ScenarioError(scenario.source, scenario_key(err.field), err.reason) from None
     except ModelError as err:
         raise ScenarioError(scenario.source, "[effluent]", str(err)) from None
+    if not plan.dose_needed or "effluent" not in scenario.data:
+        return plan
+    sens = lab_sensitivity(water_inputs(scenario.data), scenario.reagent,
+                           scenario.target.ph_aim)
+    words = precision_warning(sens, plan.dose_mol_l)
+    return replace(plan, precision=sens,
+                   warnings=plan.warnings + ((words,) if words else ()))
 
 
 def _key_suffix(plan: Plan) -> str:
@@ -179,6 +187,14 @@ def sheet_dict(scenario: Scenario, plan: Plan) -> dict[str, Any]:
             "ph_at_low_dose": plan.ph_low_dose,
             "ph_at_high_dose": plan.ph_high_dose,
         },
+        "lab_precision": [{
+            "measurement": p.field, "value": p.value, "plus_minus": p.plus_minus,
+            "unit": p.unit,
+            "dose_mmol_per_l_low_reading": (None if p.dose_low_reading_mol_l is None
+                                            else p.dose_low_reading_mol_l * 1000),
+            "dose_mmol_per_l_high_reading": (None if p.dose_high_reading_mol_l is None
+                                             else p.dose_high_reading_mol_l * 1000)}
+            for p in plan.precision],
         "cost" + sfx: cost,
         "water": {
             "temperature_c": w.temperature_c,
@@ -319,6 +335,8 @@ def dose_lines(scenario: Scenario, plan: Plan, units: str = "metric") -> list[tu
                      f"mmol/L of {plan.reagent.compound.formula} at the aim; a {METERING_ERROR:.0%} dosing "
                      f"error gives pH {min(plan.ph_low_dose, plan.ph_high_dose):.2f} to "
                      f"{max(plan.ph_low_dose, plan.ph_high_dose):.2f}"))
+        if plan.precision:
+            rows.append(("lab precision", _precision_text(plan)))
     if scenario.price_per_kg is not None and a.kg_product is not None:
         cost = a.kg_product * scenario.price_per_kg
         rows.append(("cost", f"{fmt(cost)} {per}"
@@ -459,6 +477,22 @@ def render_replay(report: dict[str, Any], units: str = "metric", width: int = 78
     for c in r["cautions"]:
         out.extend(_wrap(c, width, "  - "))
     return "\n".join(out) + "\n"
+
+
+def _precision_text(plan: Plan) -> str:
+    """How far the dose moves within each reading's precision, one phrase each."""
+    parts = []
+    for sens in plan.precision:
+        changes = [r for r in sens.relative(plan.dose_mol_l) if r is not None]
+        if not changes or max(abs(r) for r in changes) < 0.005:
+            continue
+        unit = f" {sens.unit.split()[0]}" if sens.unit else ""
+        lo, hi = (x if abs(x) >= 0.005 else 0.0 for x in (min(changes), max(changes)))
+        lo, hi = min(lo, 0.0), max(hi, 0.0)
+        parts.append(f"{sens.label} ±{sens.plus_minus:.2g}{unit} {lo:+.0%} to {hi:+.0%}")
+    if not parts:
+        return "the dose moves less than 1 % within the usual precision of the readings"
+    return "dose change within the readings' usual precision: " + ", ".join(parts)
 
 
 def _air_line(a) -> str:

@@ -172,3 +172,54 @@ def test_issue_11_hours_in_air_is_checked(tmp_path):
     f = tmp_path / "open.toml"
     f.write_text(GOOD + "[model]\nopen_to_air = true\nhours_in_air = -3\n")
     _one_line_exit_2(run_cli("plan", str(f)), f, "model.hours_in_air")
+
+
+# Issue 11 item 3: near an end point the inferred carbonate is ill-conditioned.
+def _ill_scenario(tmp_path, alk, ph=4.6, aim=7.0):
+    from dosing.scenario import load_scenario
+    f = tmp_path / f"ill-{alk}.toml"
+    f.write_text(f"[effluent]\nph = {ph}\nalkalinity_mg_l_as_caco3 = {alk}\n"
+                 f"[batch]\nvolume_m3 = 10\n[target]\nph_min = 6\nph_max = 9\n"
+                 f"ph_aim = {aim}\n[reagent]\nid = \"caustic-50\"\n")
+    return load_scenario(str(f))
+
+
+def test_issue_11_ill_conditioned_carbonate_is_said_with_its_figure(tmp_path):
+    from dosing.sheet import make_plan, sheet_dict
+    s = _ill_scenario(tmp_path, 2.5)
+    plan = make_plan(s)
+    # The issue's figure: 9.9 mmol/L of caustic to pH 7 at pH 4.6, 2.5 mg/L.
+    assert plan.dose_mol_l * 1000 == pytest.approx(9.9, abs=0.1)
+    warning = [w for w in plan.warnings if "rests on the alkalinity" in w]
+    assert warning and "bench titration" in warning[0]
+    alk = plan.precision[0]
+    assert alk.field == "alkalinity_mg_l_as_caco3" and alk.plus_minus == 2.0
+    assert alk.largest_change(plan.dose_mol_l) > 0.5
+    d = sheet_dict(s, plan)["lab_precision"][0]
+    assert d["dose_mmol_per_l_high_reading"] > 1.5 * plan.dose_mol_l * 1000
+
+
+def test_issue_11_well_conditioned_water_gets_no_precision_warning(tmp_path):
+    from dosing.sheet import make_plan
+    plan = make_plan(_ill_scenario(tmp_path, 150, ph=6.8, aim=8.5))
+    assert not [w for w in plan.warnings if "rests on" in w]
+    assert all(p.largest_change(plan.dose_mol_l) < 0.25 for p in plan.precision)
+
+
+def test_issue_11_precision_step_agrees_with_a_fine_finite_difference(tmp_path):
+    # The ±precision step is a secant; on a well-conditioned water it must
+    # match the derivative from a central difference 200 times finer, taken
+    # through the public plan_dose (a separate path through the engine).
+    from dosing import Batch, Target, get_reagent, infer_water, plan_dose
+    from dosing.sheet import make_plan
+    plan = make_plan(_ill_scenario(tmp_path, 150, ph=6.8, aim=8.5))
+    alk = plan.precision[0]
+    secant = ((alk.dose_high_reading_mol_l - alk.dose_low_reading_mol_l)
+              / (2 * alk.plus_minus))
+    h = alk.plus_minus / 200
+
+    def dose(a):
+        w = infer_water(6.8, 25.0, alkalinity_mg_l_as_caco3=a)
+        return plan_dose(w, get_reagent("caustic-50"), Target(6, 9, 8.5), Batch(10)).dose_mol_l
+    fine = (dose(150 + h) - dose(150 - h)) / (2 * h)
+    assert secant == pytest.approx(fine, rel=0.01)

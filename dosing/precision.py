@@ -1,0 +1,127 @@
+"""How far the dose moves within the precision of what was measured.
+
+The water behind a plan is inferred from a pH and a laboratory alkalinity
+or acidity. Near an end point that inference is ill-conditioned: a couple of
+mg/L in the lab value can move the dose several-fold. This module re-infers
+the water with each measurement at the edges of its usual precision and
+solves the dose again, so the plan can say how much the number rests on
+each reading, and recommend a bench titration when it rests too much.
+
+Pure: it takes the measurements as :func:`dosing.effluent.infer_water`
+keyword arguments and returns numbers.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Any, Mapping
+
+import numpy as np
+
+from .effluent import LAB_PRECISION, LOW_READING_MG_L, infer_water
+from .equilibrium import dose_to_ph
+from .errors import DosingError
+from .reagents import Reagent
+
+__all__ = ["PH_PRECISION", "SENSITIVE", "Sensitivity", "lab_sensitivity",
+           "precision_warning"]
+
+#: Precision of a pH reading with a meter calibrated that day [pH units]
+#: (common practice; Standard Methods 4500-H+ B speaks of about 0.1 for
+#: accuracy and better for repeat readings, from memory).
+PH_PRECISION = 0.05
+#: A dose that moves by more than this fraction within the precision of one
+#: reading rests on that reading: say so and recommend a bench titration
+#: (common practice).
+SENSITIVE = 0.25
+
+
+@dataclass(frozen=True)
+class Sensitivity:
+    """The dose with one reading at the low and high edge of its precision."""
+
+    field: str                         #: the measurement (scenario key under [effluent])
+    label: str                         #: its name on the page
+    value: float                       #: as measured
+    plus_minus: float                  #: the precision taken
+    unit: str
+    dose_low_reading_mol_l: float | None   #: None: that reading is not possible here
+    dose_high_reading_mol_l: float | None
+
+    def relative(self, dose_mol_l: float) -> tuple[float | None, float | None]:
+        """Each dose as a change from the plan's dose [-]."""
+        def rel(d):
+            return None if d is None or dose_mol_l <= 0 else d / dose_mol_l - 1.0
+        return rel(self.dose_low_reading_mol_l), rel(self.dose_high_reading_mol_l)
+
+    def largest_change(self, dose_mol_l: float) -> float:
+        """The larger of the two changes, as a fraction of the dose [-]."""
+        return max((abs(r) for r in self.relative(dose_mol_l) if r is not None), default=0.0)
+
+
+def _lab_field(inputs: Mapping[str, Any]) -> tuple[str, str] | None:
+    for field, label in (("alkalinity_mg_l_as_caco3", "alkalinity"),
+                         ("acidity_mg_l_as_caco3", "acidity")):
+        if inputs.get(field) is not None:
+            return field, label
+    return None
+
+
+def _dose(inputs: Mapping[str, Any], reagent: Reagent, aim: float) -> float | None:
+    """The dose to ``aim`` for a water inferred from ``inputs``; None if refused."""
+    try:
+        water = infer_water(**inputs)
+    except DosingError:
+        return None                    # that reading is impossible for this water
+    d, grip = dose_to_ph(water.mixture(), reagent.vector(), np.array([aim]))
+    direction = 1.0 if reagent.raises_ph else -1.0
+    if not math.isfinite(d[0]) or grip[0] * direction <= 1e-12:
+        return None
+    return max(float(d[0]), 0.0)
+
+
+def lab_sensitivity(inputs: Mapping[str, Any], reagent: Reagent, aim: float
+                    ) -> tuple[Sensitivity, ...]:
+    """The dose to ``aim`` with the lab value and the pH each at the edges of
+    their precision (one at a time, the other held).
+
+    The lab value's precision is :data:`LAB_PRECISION` of it, and at least
+    :data:`LOW_READING_MG_L`; the pH's is :data:`PH_PRECISION`.
+    """
+    out = []
+    lab = _lab_field(inputs)
+    if lab is not None:
+        field, label = lab
+        v = float(inputs[field])
+        pm = max(LAB_PRECISION * v, LOW_READING_MG_L)
+        lo = _dose({**inputs, field: max(v - pm, 0.0)}, reagent, aim)
+        hi = _dose({**inputs, field: v + pm}, reagent, aim)
+        out.append(Sensitivity(field, label, v, pm, "mg/L as CaCO3", lo, hi))
+    ph = float(inputs["ph"])
+    lo = _dose({**inputs, "ph": max(ph - PH_PRECISION, 0.0)}, reagent, aim)
+    hi = _dose({**inputs, "ph": min(ph + PH_PRECISION, 14.0)}, reagent, aim)
+    out.append(Sensitivity("ph", "pH", ph, PH_PRECISION, "", lo, hi))
+    return tuple(out)
+
+
+def precision_warning(sens: tuple[Sensitivity, ...], dose_mol_l: float) -> str | None:
+    """A warning naming each reading the dose rests on, or None."""
+    if dose_mol_l <= 0:
+        return None
+    heavy = [x for x in sens if x.largest_change(dose_mol_l) > SENSITIVE]
+    if not heavy:
+        return None
+    parts = []
+    for x in heavy:
+        doses = [d * 1000 for d in (x.dose_low_reading_mol_l, x.dose_high_reading_mol_l)
+                 if d is not None]
+        unit = f" {x.unit}" if x.unit else ""
+        span = (f"{min(doses):.3g} to {max(doses):.3g}" if len(doses) > 1
+                else f"{doses[0]:.3g}")
+        parts.append(f"{x.label} ±{x.plus_minus:.2g}{unit} gives {span} mmol/L")
+    names = " and ".join(x.label for x in heavy)
+    return (f"the dose rests on the {names} reading{'s' if len(heavy) > 1 else ''}: within "
+            f"the usual precision, {'; '.join(parts)}, against "
+            f"{dose_mol_l * 1000:.3g} mmol/L planned. A bench titration of this water "
+            "(dosing titration) gives the dose directly; dose in stages meanwhile")
