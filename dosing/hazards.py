@@ -178,8 +178,14 @@ def _heat_checks(water: Water, reagent: Reagent, d: float, before: Speciation,
     values = {"reaction_heat_kj_per_l": q_rx, "dilution_heat_kj_per_l": q_dil,
               "temperature_rise_k": rise, "temperature_after_c": t + rise,
               "water_formed_mmol_l": water_formed * 1000}
-    msg = (f"temperature rise of the water about {fmt(rise, 2)} K ({fmt(q_rx + q_dil)} kJ/L:"
-           f" {fmt(q_rx)} from neutralisation, {fmt(q_dil)} from diluting the product)")
+    # Resolution: 0.5 mK and 0.002 J/L (far below any thermometer); below it, 0.
+    def k(x):
+        return fmt(x, 2, zero_below=5e-4)
+
+    def kj(x):
+        return fmt(x, zero_below=2e-6)
+    msg = (f"temperature rise of the water about {k(rise)} K ({kj(q_rx + q_dil)} kJ/L:"
+           f" {kj(q_rx)} from neutralisation, {kj(q_dil)} from diluting the product)")
     if reagent.dilution_heat_kj_mol is None and reagent.form == "liquid":
         msg += "; the product's heat of dilution is not included (no value at hand)"
     level = "info"

@@ -96,6 +96,6 @@ def _solid_lines(plan: dict, per: str) -> list[str]:
         out.append(f"  sludge: {_n(sludge['dry_kg' + sfx])} kg dry{per}")
     left = plan.get("metals_after_mg_l") or {}
     if left:
-        out.append("  metals left: " + ", ".join(f"{k.replace('_', ' ')} {_n(v)} mg/L"
-                                                 for k, v in left.items()))
+        out.append("  metals left: " + ", ".join(
+            f"{k.replace('_', ' ')} {fmt(v, floor=1e-3)} mg/L" for k, v in left.items()))
     return out

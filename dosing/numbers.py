@@ -7,20 +7,29 @@ import math
 __all__ = ["fmt", "require_finite", "to_json"]
 
 
-def fmt(x: float | None, digits: int = 3) -> str:
+def fmt(x: float | None, digits: int = 3, *, floor: float | None = None,
+        zero_below: float | None = None) -> str:
     """A number to ``digits`` significant figures, with thousands separators.
+
+    A value below what the model resolves for its quantity is not printed
+    digit by digit: under ``floor`` (an amount that cannot be negative) it
+    reads "below FLOOR", under ``zero_below`` (a signed change) it reads 0.
 
     Examples
     --------
     >>> fmt(1601.4), fmt(0.012345), fmt(2.0), fmt(None)
     ('1,601', '0.0123', '2.00', 'n/a')
+    >>> fmt(7.1e-18, floor=1e-4), fmt(-6.5e-20, 2, zero_below=5e-4), fmt(0.0, floor=1e-4)
+    ('below 0.0001', '0', '0')
     """
     if x is None or (isinstance(x, float) and math.isnan(x)):
         return "n/a"
     if isinstance(x, float) and math.isinf(x):
         return "∞" if x > 0 else "-∞"
-    if x == 0:
+    if x == 0 or (zero_below is not None and abs(x) < zero_below):
         return "0"
+    if floor is not None and abs(x) < floor:
+        return f"below {floor:g}" if floor >= 1e-4 else f"below {floor:.0e}"
     mag = math.floor(math.log10(abs(x)))
     decimals = max(0, digits - 1 - mag)
     return f"{x:,.{decimals}f}"

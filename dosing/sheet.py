@@ -183,6 +183,7 @@ def sheet_dict(scenario: Scenario, plan: Plan) -> dict[str, Any]:
         },
         "sensitivity": {
             "ph_per_mmol_l": plan.slope_ph_per_mmol_l,
+            "ph_per_percent_of_dose": plan.slope_ph_per_mmol_l * plan.dose_mol_l * 10.0,
             "metering_error": METERING_ERROR,
             "ph_at_low_dose": plan.ph_low_dose,
             "ph_at_high_dose": plan.ph_high_dose,
@@ -271,8 +272,8 @@ def metal_lines(scenario: Scenario, plan: Plan, units: str = "metric") -> list[t
                      f"{fmt(sl.cake_m3 * u.water_volume_per_m3)} {u.water_volume}"))
     metals = {k: v for k, v in plan.metals_after_mg_l.items() if k not in HARDNESS}
     if metals:
-        rows.append(("metals left", ", ".join(f"{k.replace('_', ' ')} {fmt(v)} mg/L"
-                                             for k, v in metals.items())
+        rows.append(("metals left", ", ".join(
+            f"{k.replace('_', ' ')} {fmt(v, floor=1e-3)} mg/L" for k, v in metals.items())
                      + f" dissolved at pH {plan.ph_end:.2f} (estimate: a jar test is "
                      "the check)"))
     cw = plan.cap_window
@@ -331,9 +332,9 @@ def dose_lines(scenario: Scenario, plan: Plan, units: str = "metric") -> list[tu
     rows.append(("pH", f"{plan.ph_start:.2f} now, {plan.ph_end:.2f} after the dose "
                  f"(aim {plan.target.ph_aim:g})"))
     if plan.dose_needed:
-        rows.append(("sensitivity", f"pH moves {fmt(abs(plan.slope_ph_per_mmol_l))} per "
-                     f"mmol/L of {plan.reagent.compound.formula} at the aim; a {METERING_ERROR:.0%} dosing "
-                     f"error gives pH {min(plan.ph_low_dose, plan.ph_high_dose):.2f} to "
+        rows.append(("sensitivity", _slope_text(plan, u, flow)
+                     + f"; a {METERING_ERROR:.0%} dosing error gives pH "
+                     f"{min(plan.ph_low_dose, plan.ph_high_dose):.2f} to "
                      f"{max(plan.ph_low_dose, plan.ph_high_dose):.2f}"))
         if plan.precision:
             rows.append(("lab precision", _precision_text(plan)))
@@ -399,12 +400,12 @@ def render_sheet(scenario: Scenario, plan: Plan, units: str = "metric",
     if "acidity_mg_l_as_caco3" in eff:
         measured.append(f"acidity {eff['acidity_mg_l_as_caco3']:g} mg/L as CaCO3")
     out.append(f"water    {amount}; {', '.join(measured)}")
-    solutes = ", ".join(f"{k.replace('_', ' ')} {fmt(v * 1000)}"
+    solutes = ", ".join(f"{k.replace('_', ' ')} {fmt(v * 1000, floor=1e-4)}"
                         for k, v in (w.totals_mol_l | w.metals_mol_l).items())
     if solutes:
         out.extend(_wrap(f"modelled totals, mmol/L: {solutes}", width, "         "))
     out.append(f"         strong-ion balance {fmt(w.strong_eq_l * 1000)} meq/L, ionic strength "
-               f"{fmt(w.ionic_strength)} mol/L, {'Davies' if w.davies else 'ideal'} activity"
+               f"{fmt(w.ionic_strength, floor=1e-4)} mol/L, {'Davies' if w.davies else 'ideal'} activity"
                )
     if plan.air is not None:
         out.extend(_wrap(_air_line(plan.air), width, "         "))
@@ -479,6 +480,19 @@ def render_replay(report: dict[str, Any], units: str = "metric", width: int = 78
     return "\n".join(out) + "\n"
 
 
+def _slope_text(plan: Plan, u, flow: bool) -> str:
+    """How the pH answers the dose at the aim, in what the operator adjusts:
+    per 1 % of the dose, and per unit of product (per kg/h for a flow)."""
+    slope = abs(plan.slope_ph_per_mmol_l)
+    per_percent = slope * plan.dose_mol_l * 1000 * 0.01
+    text = f"pH moves {fmt(per_percent, 2)} per 1 % of the dose at the aim"
+    kg_per_mmol = plan.amounts(1e-3).kg_product
+    if kg_per_mmol:
+        per_mass = slope / (kg_per_mmol * u.mass_per_kg)
+        text += f" ({fmt(per_mass, 2)} per {u.mass}{'/h' if flow else ''} of product)"
+    return text
+
+
 def _precision_text(plan: Plan) -> str:
     """How far the dose moves within each reading's precision, one phrase each."""
     parts = []
@@ -510,9 +524,10 @@ def _air_line(a) -> str:
 
 def _plus_minus(value: float, err: float | None, unit: str) -> str:
     """'1.20 ± 0.12 mmol/L', or a note in place of the error when the curve cannot tell it."""
+    shown = fmt(value, zero_below=1e-4)         # below 0.1 µmol/L: nothing the curve resolves
     if err is None:
-        return f"{fmt(value)}{unit} (not determined)"
-    return f"{fmt(value)} ± {fmt(err, 2)}{unit}"
+        return f"{shown}{unit} (not determined)"
+    return f"{shown} ± {fmt(err, 2)}{unit}"
 
 
 def render_titration(scenario: Scenario, report: dict[str, Any], units: str = "metric",

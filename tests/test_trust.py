@@ -223,3 +223,41 @@ def test_issue_11_precision_step_agrees_with_a_fine_finite_difference(tmp_path):
         return plan_dose(w, get_reagent("caustic-50"), Target(6, 9, 8.5), Batch(10)).dose_mol_l
     fine = (dose(150 + h) - dose(150 - h)) / (2 * h)
     assert secant == pytest.approx(fine, rel=0.01)
+
+
+# Issue 11 item 7: number noise.
+_NOISE = "0.000000"          # six zeros after the point: below anything measured
+
+
+@pytest.mark.parametrize("name", sorted(p.name for p in (
+    __import__("pathlib").Path(__file__).resolve().parents[1] / "scenarios").glob("*.toml")))
+def test_issue_11_no_number_noise_on_any_demo_sheet(name):
+    r = run_cli("plan", f"scenarios/{name}")
+    assert r.returncode == 0, r.stderr
+    assert _NOISE not in r.stdout
+    assert "per 1 % of the dose" in r.stdout or "no dose" in r.stdout.lower()
+
+
+def test_issue_11_no_dose_needed_prints_no_temperature_noise(tmp_path):
+    f = tmp_path / "inside.toml"
+    f.write_text(GOOD.replace("ph = 3.0", "ph = 7.0"))
+    r = run_cli("plan", str(f))
+    assert r.returncode == 0, r.stderr
+    assert "temperature rise of the water about 0 K" in r.stdout
+    assert _NOISE not in r.stdout and "e-" not in r.stdout
+
+
+def test_issue_11_titration_fit_prints_no_noise(tmp_path):
+    import numpy as np
+    from dosing.titration import parse_titrant
+    from tests.helpers import totals
+    from tests.test_titration import synthetic
+    tit = parse_titrant("0.1 M NaOH")
+    v = np.linspace(0, 10, 30)
+    ph = synthetic(totals(), -0.001, tit, 50.0, v, t_c=25.0)
+    f = tmp_path / "jar.csv"
+    f.write_text("ml,pH\n" + "".join(f"{a:.3f},{b:.3f}\n" for a, b in zip(v, ph)))
+    r = run_cli("titration", str(f), "--sample-ml", "50", "--titrant", "0.1 M NaOH",
+                "--unknown-acid", "yes")
+    assert r.returncode == 0, r.stderr
+    assert _NOISE not in r.stdout and "∞" not in r.stdout
