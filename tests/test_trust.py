@@ -261,3 +261,57 @@ def test_issue_11_titration_fit_prints_no_noise(tmp_path):
                 "--unknown-acid", "yes")
     assert r.returncode == 0, r.stderr
     assert _NOISE not in r.stdout and "∞" not in r.stdout
+
+
+# Issue 11: no accepted scenario gives a physically impossible result.
+# Bounds (common practice unless said): a dose of at most 10 mol/L of active
+# compound (beyond a few mol/L the "effluent" is a chemical to be handled as
+# one); the water stays below boiling, 100 °C at 1 atm (IAPWS); no total
+# negative; carbonate at most 2 mol/L and ionic strength at most 5 mol/L
+# (the planner's own refusals, beyond any water a lab titrates); the final pH
+# within 0-14.
+from hypothesis import HealthCheck, event, given, settings, strategies as st  # noqa: E402
+
+_REAGENTS = ["caustic-50", "caustic-25", "lime", "soda-ash", "sulfuric-98",
+             "hydrochloric-32", "co2", "magnesia"]
+
+
+@settings(max_examples=int(os.environ.get("DOSING_FUZZ_EXAMPLES", "60")), deadline=None,
+          database=None,
+          suppress_health_check=[HealthCheck.too_slow])
+@given(ph=st.floats(1.0, 13.0), t=st.floats(2.0, 58.0),
+       lab=st.sampled_from(["alkalinity_mg_l_as_caco3", "acidity_mg_l_as_caco3", None]),
+       lab_value=st.floats(0.0, 5000.0),
+       solutes=st.dictionaries(st.sampled_from(["acetate", "phosphate", "ammonia", "borate",
+                                                "sulfate", "silicate"]),
+                               st.floats(0.0, 50.0), max_size=3),
+       metals=st.dictionaries(st.sampled_from(["iron_iii", "aluminium", "zinc", "copper"]),
+                              st.floats(0.0, 200.0), max_size=2),
+       reagent=st.sampled_from(_REAGENTS), aim=st.floats(5.5, 10.5),
+       activity=st.sampled_from(["davies", "ideal"]), open_air=st.booleans())
+def test_issue_11_accepted_scenarios_stay_within_physical_bounds(
+        ph, t, lab, lab_value, solutes, metals, reagent, aim, activity, open_air):
+    from dosing.errors import DosingError
+    from dosing.scenario import build_scenario
+    from dosing.sheet import make_plan
+    eff = {"ph": ph, "temperature_c": t, "solutes_mmol_l": solutes, "metals_mg_l": metals}
+    if lab:
+        eff[lab] = lab_value
+    data = {"effluent": eff, "batch": {"volume_m3": 10.0},
+            "target": {"ph_min": aim - 1.0, "ph_max": aim + 1.0, "ph_aim": aim},
+            "reagent": {"id": reagent}, "model": {"activity": activity,
+                                                  "open_to_air": open_air}}
+    try:
+        plan = make_plan(build_scenario(data, "prop.toml"))
+    except DosingError:
+        event("refused")
+        return                                   # refused: allowed
+    event("planned")
+    w = plan.water
+    assert all(v >= 0 for v in w.totals_mol_l.values())
+    assert all(v >= 0 for v in w.metals_mol_l.values())
+    assert w.carbonate_mol_l <= 2.0 and 0 <= w.ionic_strength <= 5.0
+    assert 0.0 <= plan.dose_mol_l <= 10.0
+    assert 0.0 <= plan.ph_end <= 14.0
+    heat = [c for c in plan.checks if "temperature_after_c" in c.values]
+    assert heat and heat[0].values["temperature_after_c"] < 100.0
