@@ -36,7 +36,7 @@ References
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Mapping
 
 import numpy as np
@@ -98,6 +98,8 @@ MAX_IONIC_STRENGTH = 5.0
 #: k600 = 2.07 + 0.215 U10^1.7 cm/h; from memory). Wind, aerators and mixing
 #: raise it several-fold, so the exchange time it gives is the slow end.
 STILL_WATER_KL_M_H = 0.0207
+#: What the dosed water may do with calcite (see :class:`Water`).
+CALCITE_MODES = ("auto", "precipitates", "dissolved")
 #: Depth of an open tank or pond when none is given [m] (common practice).
 DEFAULT_DEPTH_M = 2.0
 #: Past this fraction of the way to CO2 equilibrium with air the dose is
@@ -171,6 +173,10 @@ class Water:
         in minutes.
     depth_m : float
         Depth of the open water, which sets how fast CO2 exchanges [m].
+    calcite : {"auto", "precipitates", "dissolved"}
+        Whether the dosed water drops calcite: "auto" lets the plan decide
+        from how supersaturated the dose leaves it (see
+        :data:`dosing.plan.CALCITE_SI_FAST`).
     """
 
     ph: float
@@ -192,6 +198,7 @@ class Water:
     known_ionic_strength: float = 0.0
     hours_in_air: float = 0.0
     depth_m: float = DEFAULT_DEPTH_M
+    calcite: str = "auto"
 
     @property
     def air_fraction(self) -> float:
@@ -217,9 +224,10 @@ class Water:
         co2 = (float(co2_in_air_mol_l(self.temperature_c, self.pco2_atm))
                if held else math.nan)
         vec = totals_vector(self.totals_mol_l, self.metals_mol_l)
-        return Mixture.build(aerate(vec) if self.ferrous_oxidised else vec,
-                             self.strong_eq_l, self.strong_ionic_strength,
-                             self.temperature_c, co2, self.davies, self.unknown_pka)
+        mix = Mixture.build(aerate(vec) if self.ferrous_oxidised else vec,
+                            self.strong_eq_l, self.strong_ionic_strength,
+                            self.temperature_c, co2, self.davies, self.unknown_pka)
+        return replace(mix, calcite=self.calcite == "precipitates")
 
     @property
     def tank_metals_mol_l(self) -> dict[str, float]:
@@ -508,7 +516,7 @@ def infer_water(ph: float, temperature_c: float = 25.0, *,
                 unknown_pka: float | None = None,
                 metals_mg_l: Mapping[str, float] | None = None,
                 oxidise_ferrous: bool = False, hours_in_air: float = 0.0,
-                depth_m: float = DEFAULT_DEPTH_M) -> Water:
+                depth_m: float = DEFAULT_DEPTH_M, calcite: str = "auto") -> Water:
     """Build the :class:`Water` that matches what was measured.
 
     Parameters
@@ -539,6 +547,8 @@ def infer_water(ph: float, temperature_c: float = 25.0, *,
         that counts [h], and its depth [m]. The dose is planned at CO2
         equilibrium with air only when that time is long enough to reach it
         (:data:`FULL_EXCHANGE`); otherwise with the carbonate as sampled.
+    calcite : {"auto", "precipitates", "dissolved"}
+        Whether the dosed water drops calcite (see :class:`Water`).
     extra_ionic_strength_mol_l : float
         Ionic strength of strong ions beyond those given (e.g. a known salt
         load) [mol/L].
@@ -575,6 +585,8 @@ def infer_water(ph: float, temperature_c: float = 25.0, *,
         extra_ionic_strength_mol_l, ions_mg_l, unknown_pka, metals_mg_l, oxidise_ferrous,
         open_to_air)
     hours_in_air = _check_number("hours_in_air", hours_in_air, 0.0, 1e5)
+    if calcite not in CALCITE_MODES:
+        raise InputError("calcite", f"{calcite!r}; allowed: " + ", ".join(CALCITE_MODES))
     depth_m = _check_number("depth_m", depth_m, 0.05, 100.0)
     notes: list[str] = []
     carb = _carbonate(job, measured, "carbonate" in totals, open_to_air, notes)
@@ -602,7 +614,7 @@ def infer_water(ph: float, temperature_c: float = 25.0, *,
                  notes=tuple(notes), ions_mg_l=ions, unknown_pka=job.unknown_pka,
                  metals_mol_l=metals, ferrous_oxidised=bool(oxidise_ferrous),
                  known_strong_eq_l=job.known_eq, known_ionic_strength=job.known_i,
-                 hours_in_air=hours_in_air, depth_m=depth_m)
+                 hours_in_air=hours_in_air, depth_m=depth_m, calcite=calcite)
 
 
 def _validate(ph, temperature_c, alkalinity, acidity, solutes_mmol_l, solutes_mg_l,

@@ -53,7 +53,7 @@ from .activity import davies_log_gamma, debye_huckel_a
 from .errors import ModelError
 from .metals import METALS, METAL_IDS
 from .species import SYSTEMS, SYSTEM_IDS
-from .water import carbonate_pk, henry_co2, pkw, vant_hoff_pk
+from .water import calcite_pksp, carbonate_pk, henry_co2, pkw, vant_hoff_pk
 
 __all__ = [
     "N_SYSTEMS", "N_ACIDS", "COLUMN_IDS", "METAL_COLUMNS", "CARBONATE", "system_index", "Mixture", "Speciation",
@@ -70,6 +70,7 @@ N_SYSTEMS = len(COLUMN_IDS)
 METAL_COLUMNS = np.arange(N_ACIDS, N_SYSTEMS)
 _MAXSTEP = 4
 CARBONATE = SYSTEM_IDS.index("carbonate")
+CALCIUM = COLUMN_IDS.index("calcium")
 UNKNOWN = SYSTEM_IDS.index("unknown")
 _LN10 = np.log(10.0)
 
@@ -173,6 +174,10 @@ class Mixture:
         Davies activity correction (True) or ideal solution (False).
     unknown_pka : ndarray (n,) or None
         pKa of the fitted unidentified acid (column ``unknown``) [-].
+    calcite : bool
+        Calcite (CaCO3) precipitates where the water is supersaturated with
+        it (equilibrium); False (the default) keeps it dissolved, as a water
+        often stays for hours at low supersaturation.
     """
 
     totals_mol_l: np.ndarray
@@ -182,6 +187,7 @@ class Mixture:
     co2_air_mol_l: np.ndarray
     davies: bool = True
     unknown_pka: np.ndarray | None = None
+    calcite: bool = False
 
     @classmethod
     def build(cls, totals_mol_l, strong_eq_l, strong_ionic_strength,
@@ -250,6 +256,7 @@ class Speciation:
     charge_residual_eq_l: np.ndarray  #: (n,) charge balance residual [eq/L]
     buffer_intensity_eq_l: np.ndarray  #: (n,) β = dC_base/dpH [eq/(L pH)]
     solids_mol_l: np.ndarray        #: (n, m) hydroxide precipitated [mol/L]
+    calcite_mol_l: np.ndarray       #: (n,) calcite precipitated [mol/L]
 
     def concentration(self, system: int, form: int) -> np.ndarray:
         """(n,) concentration of one form of one system [mol/L]."""
@@ -271,9 +278,9 @@ def _alpha(ah, kc):
 
 def _state(r: "_Rows", ph, ionic_strength):
     """Species of all systems, residual, β and new ionic strength at ``ph``."""
-    alpha, q, m2, h, oh, sol = _species(r, 10.0 ** -ph, ionic_strength)
-    totals, resid, beta, ionic = _balance(r, alpha, q, m2, h, oh, sol)
-    return alpha, q, totals, h, oh, resid, beta, ionic
+    alpha, q, m2, h, oh, sol, kcal = _species(r, 10.0 ** -ph, ionic_strength)
+    totals, resid, beta, ionic, calcite = _balance(r, alpha, q, m2, h, oh, sol, kcal)
+    return alpha, q, totals, h, oh, resid, beta, ionic, calcite
 
 
 def speciate(mix: Mixture, ph, *, max_iter: int = 60, solids: bool = True) -> Speciation:
@@ -290,12 +297,12 @@ def speciate(mix: Mixture, ph, *, max_iter: int = 60, solids: bool = True) -> Sp
     r = _restrict(mix, cap=solids)
     ionic = mix.strong_ionic_strength.copy()
     for _ in range(max_iter):
-        alpha, q, totals, h, oh, resid, beta, new_i = _state(r, ph, ionic)
+        alpha, q, totals, h, oh, resid, beta, new_i, calcite = _state(r, ph, ionic)
         done = np.all(np.abs(new_i - ionic) <= 1e-13 + 1e-10 * new_i)
         ionic = new_i
         if done or not mix.davies:
             break
-    alpha, q, totals, h, oh, resid, beta, _ = _state(r, ph, ionic)
+    alpha, q, totals, h, oh, resid, beta, _, calcite = _state(r, ph, ionic)
     full_alpha = np.zeros((mix.n, N_SYSTEMS, _MAXSTEP + 1))
     full_alpha[:, :, 0] = 1.0
     full_alpha[:, r.cols] = alpha
@@ -306,8 +313,10 @@ def speciate(mix: Mixture, ph, *, max_iter: int = 60, solids: bool = True) -> Sp
     precipitated = np.zeros_like(full_totals)
     precipitated[:, METAL_COLUMNS] = np.maximum(
         mix.totals_mol_l[:, METAL_COLUMNS] - full_totals[:, METAL_COLUMNS], 0.0)
+    # Calcium in calcite is not lime left undissolved.
+    precipitated[:, CALCIUM] = np.maximum(precipitated[:, CALCIUM] - calcite, 0.0)
     return Speciation(ph, h, oh, full_alpha, full_q, full_totals, ionic, resid, beta,
-                      precipitated)
+                      precipitated, calcite)
 
 
 def charge_residual(mix: Mixture, ph) -> np.ndarray:
@@ -333,6 +342,8 @@ class _Rows:
     log_ks0: np.ndarray     # (n, mc) log *Ks0 of each column's hydroxide, NaN if none
     zs: np.ndarray          # (mc,) charge of the free metal ion, 0 if no solid
     cap: bool               # cap metals at their hydroxide's solubility
+    ca: int = -1            # column of calcium in the view when calcite can form, or -1
+    log_kc: np.ndarray | None = None   # (n,) log Ksp of calcite, with ``ca``
 
     @property
     def has_solids(self) -> bool:
@@ -341,7 +352,8 @@ class _Rows:
     def take(self, idx) -> "_Rows":
         return replace(self, totals=self.totals[idx], strong=self.strong[idx],
                        strong_i=self.strong_i[idx], co2=self.co2[idx], kw=self.kw[idx],
-                       k=self.k[idx], a=self.a[idx], log_ks0=self.log_ks0[idx])
+                       k=self.k[idx], a=self.a[idx], log_ks0=self.log_ks0[idx],
+                       log_kc=None if self.log_kc is None else self.log_kc[idx])
 
 
 def _used(mix: Mixture, extra_cols=()) -> np.ndarray:
@@ -358,20 +370,28 @@ def _restrict(mix: Mixture, extra_cols=(), *, cap: bool = True) -> _Rows:
     cols = _used(mix, extra_cols)
     const = mix.constants(cols)
     carb = int(np.searchsorted(cols, CARBONATE)) if CARBONATE in cols else -1
+    ca, log_kc = -1, None
+    if cap and mix.calcite and carb >= 0 and CALCIUM in cols:
+        ca = int(np.searchsorted(cols, CALCIUM))
+        log_kc = -calcite_pksp(mix.temperature_c)
     return _Rows(mix.totals_mol_l[:, cols], mix.strong_eq_l, mix.strong_ionic_strength,
                  mix.co2_air_mol_l, const.kw, const.k, const.a, _Z[cols], carb,
-                 mix.davies, cols, const.log_ks0, _SOLID_Z[cols], cap)
+                 mix.davies, cols, const.log_ks0, _SOLID_Z[cols], cap, ca, log_kc)
 
 
 def _species(r: _Rows, ah, ionic):
     """Fractions and charge moments of the view's systems, [H+] and [OH-].
 
     Returns (alpha (n, mc, 5), mean charge (n, mc), mean squared charge
-    (n, mc), [H+] (n,), [OH-] (n,), solubility (n, mc) or None) at activity
-    ``ah`` and ionic strength ``ionic`` (mixed constants from the Davies
-    equation, or ideal). The solubility is the dissolved total each
-    column's hydroxide allows, [Me z+]/alpha_0 with [Me z+] = *Ks0 {H+}^z /
-    gamma_z (NaN for columns without a solid); None when the view has none.
+    (n, mc), [H+] (n,), [OH-] (n,), solubility (n, mc) or None, calcite
+    product (n,) or None) at activity ``ah`` and ionic strength ``ionic``
+    (mixed constants from the Davies equation, or ideal). The solubility is
+    the dissolved total each column's hydroxide allows, [Me z+]/alpha_0
+    with [Me z+] = *Ks0 {H+}^z / gamma_z (NaN for columns without a solid);
+    None when the view has none. The calcite product is the largest
+    dissolved calcium total times dissolved carbonate total the water holds,
+    Ksp / (gamma_Ca gamma_CO3 alpha_Ca alpha_CO3); for a water open to air
+    (carbonate held) it enters calcium's solubility instead.
     """
     if r.davies:
         # Trial pH values far from the root can imply absurd ionic strengths;
@@ -392,7 +412,19 @@ def _species(r: _Rows, ah, ionic):
             log_free = log_free - lg[:, :, 0]
         with np.errstate(divide="ignore", over="ignore"):
             sol = 10.0 ** np.minimum(log_free, 300.0) / alpha[:, :, 0]
-    return alpha, q, m2, ah / g1, r.kw / (ah * g1), sol
+    kcal = None
+    if r.ca >= 0:
+        log_g = 0.0 if lg is None else lg[:, r.ca, 0] + lg[:, r.carb, 2]
+        with np.errstate(divide="ignore", over="ignore"):
+            kcal = 10.0 ** np.minimum(r.log_kc - log_g, 300.0) / (
+                alpha[:, r.ca, 0] * alpha[:, r.carb, 2])
+        opened = np.isfinite(r.co2)
+        if opened.any():
+            # Carbonate held by air: calcite caps calcium like a hydroxide.
+            held = r.co2[opened] / alpha[opened, r.carb, 0]
+            sol = sol.copy()
+            sol[opened, r.ca] = np.minimum(sol[opened, r.ca], kcal[opened] / held)
+    return alpha, q, m2, ah / g1, r.kw / (ah * g1), sol, kcal
 
 
 def _capped(r: _Rows, sol, totals) -> np.ndarray | None:
@@ -403,37 +435,77 @@ def _capped(r: _Rows, sol, totals) -> np.ndarray | None:
         return (r.zs[None, :] > 0) & (totals > sol)
 
 
-def _balance(r: _Rows, alpha, q, m2, h, oh, sol=None):
-    """Totals in effect, charge residual, β and ionic strength of a view.
+def _balance(r: _Rows, alpha, q, m2, h, oh, sol=None, kcal=None):
+    """Totals in effect, charge residual, β, ionic strength and calcite of a view.
 
     Two kinds of column hold a total fixed by a phase rather than by the
     water: carbonate open to air (CO2* fixed) and a metal whose hydroxide
     is present (free ion fixed by *Ks0). For both the total in effect is
     fixed / alpha_0 and d(T q)/dpH = -ln10 T m2 instead of -ln10 T var.
+    Calcite in a closed water removes calcium and carbonate together (see
+    :func:`_calcite`).
     """
     var = m2 - q * q
     totals = r.totals
     opened = np.isfinite(r.co2)
     capped = _capped(r, sol, totals)
-    if (r.carb >= 0 and opened.any()) or (capped is not None and capped.any()):
+    if (r.carb >= 0 and opened.any()) or (capped is not None and capped.any()) or \
+            kcal is not None:
         totals = totals.copy()
         var = var.copy()
+    calcite = np.zeros(totals.shape[0])
+    if kcal is not None and opened.any():
+        # Open to air: calcium above its cap (set in _species) is calcite
+        # where calcite, not portlandite, sets that cap.
+        held = r.co2[opened] / alpha[opened, r.carb, 0]
+        by_calcite = kcal[opened] / held <= sol[opened, r.ca] * (1.0 + 1e-12)
+        calcite[opened] = np.where(capped[opened, r.ca] & by_calcite,
+                                   totals[opened, r.ca] - sol[opened, r.ca], 0.0)
     if r.carb >= 0 and opened.any():
         totals[opened, r.carb] = r.co2[opened] / alpha[opened, r.carb, 0]
         var[opened, r.carb] = m2[opened, r.carb]
     if capped is not None and capped.any():
         totals[capped] = sol[capped]
         var[capped] = m2[capped]
+    extra_beta = 0.0
+    if kcal is not None and not opened.all():
+        extra_beta = _calcite(r, q, totals, kcal, ~opened, calcite)
     resid = r.strong + h - oh + (totals * q).sum(-1)
-    beta = _LN10 * (h + oh + (totals * var).sum(-1))
+    beta = _LN10 * (h + oh + (totals * var).sum(-1)) + extra_beta
     new_i = 0.5 * (h + oh + (totals * m2).sum(-1)) + r.strong_i
-    return totals, resid, beta, new_i
+    return totals, resid, beta, new_i, calcite
+
+
+def _calcite(r: _Rows, q, totals, kcal, rows, calcite):
+    """Precipitate calcite in the closed waters ``rows`` (in place); its β [eq/(L pH)].
+
+    With dissolved calcium A and carbonate B and the calcite product K' of
+    :func:`_species`, the amount X that leaves solution solves
+    (A - X)(B - X) = K', X = ((A + B) - sqrt((A - B)^2 + 4K')) / 2, taken
+    where A B > K'. As K' moves with pH as 10^(-pH (q_Ca + q_C)), the
+    precipitate buffers: dX/dpH = ln10 K' (q_Ca + q_C) / (A + B - 2X), and
+    the residual loses (q_Ca + q_C) X.
+    """
+    a, b, k = totals[:, r.ca], totals[:, r.carb], kcal
+    over = rows & (a * b > k) & np.isfinite(k)
+    if not over.any():
+        return 0.0
+    a, b, k = a[over], b[over], k[over]
+    x = 0.5 * ((a + b) - np.sqrt((a - b) ** 2 + 4.0 * k))
+    x = np.clip(x, 0.0, np.minimum(a, b))
+    totals[over, r.ca] = a - x
+    totals[over, r.carb] = b - x
+    calcite[over] = x
+    qs = q[over, r.ca] + q[over, r.carb]
+    extra = np.zeros(totals.shape[0])
+    extra[over] = qs * qs * _LN10 * k / np.maximum(a + b - 2.0 * x, 1e-300)
+    return extra
 
 
 def _rows_state(r: _Rows, ph, ionic):
     """Residual [eq/L], β [eq/(L pH)] and ionic strength [mol/L] at ``ph``."""
-    alpha, q, m2, h, oh, sol = _species(r, 10.0 ** -ph, ionic)
-    return _balance(r, alpha, q, m2, h, oh, sol)[1:]
+    alpha, q, m2, h, oh, sol, kcal = _species(r, 10.0 ** -ph, ionic)
+    return _balance(r, alpha, q, m2, h, oh, sol, kcal)[1:4]
 
 
 def solve_ph(mix: Mixture, *, ph_guess=None, tol_ph: float = 1e-12,
@@ -625,8 +697,8 @@ def carbonate_for_alkalinity(totals_mol_l, ph, temperature_c, alk_eq_l,
         return t_e
 
     def solve(ionic, ionic_e):
-        _, q, m2, h, oh, _ = _species(rows, 10.0 ** -ph, ionic)
-        _, qe, m2e, he, ohe, sol_e = _species(rows, 10.0 ** -ep, ionic_e)
+        _, q, m2, h, oh, _, _ = _species(rows, 10.0 ** -ph, ionic)
+        _, qe, m2e, he, ohe, sol_e, _ = _species(rows, 10.0 ** -ep, ionic_e)
         t_e = end_totals(sol_e)
         known = (t_e * qe - rows.totals * q).sum(-1) + (he - ohe) - (h - oh)
         coef = qe[:, car] - q[:, car]
@@ -783,7 +855,7 @@ class _DoseJob:
         solubility at the target before any dose (most waters keep it).
         """
         rows, mix, v = self.rows, self.mix, self.reagent.volume_l
-        alpha, q, m2, h, oh, sol = _species(rows, self.ah, ionic)
+        alpha, q, m2, h, oh, sol, kcal = _species(rows, self.ah, ionic)
         if capped is None:
             capped = (np.zeros(rows.totals.shape, dtype=bool) if sol is None
                       else self.capped_after(np.zeros(mix.n), sol))
@@ -807,14 +879,68 @@ class _DoseJob:
         den = self.reagent.strong_eq + (nr * q).sum(-1) + v * w
         with np.errstate(divide="ignore", invalid="ignore"):
             dose = -num / den
+        calcite = np.zeros(mix.n)
+        if kcal is not None:
+            dose, calcite = self._calcite(dose, num, den, q, kcal, fixed)
         if not mix.davies:
             return dose, den, None, sol, capped
         g = self.given(dose)
         f = 1.0 / (1.0 + g * v)
         tot_after = np.where(fixed, held, f[:, None] * (rows.totals + g[:, None] * self.n_r))
+        if kcal is not None:
+            tot_after[:, rows.ca] -= f * calcite
+            tot_after[:, rows.carb] -= f * calcite
         strong_i = f * (mix.strong_ionic_strength + g * self.reagent.ionic_strength)
         new_i = 0.5 * (h + oh + (tot_after * m2).sum(-1)) + strong_i
         return dose, den, new_i, sol, capped
+
+    def _calcite(self, dose, num, den, q, kcal, fixed):
+        """Dose with calcite precipitating in closed waters, and the calcite
+        [mol per L of water before dilution].
+
+        With X' calcite per litre before dilution, the charge balance (times
+        1 + d v) is num + d den - k X' = 0, k = q_Ca + q_C, so X' is linear
+        in d; calcite equilibrium, (Ca + d n_Ca - X')(C + d n_C - X') =
+        K' (1 + d v)^2, is then a quadratic in d. Its root with X' >= 0 and
+        both dissolved totals >= 0 is taken where the dose without calcite
+        leaves the water supersaturated.
+        """
+        rows, v = self.rows, self.reagent.volume_l
+        ca, cb = rows.ca, rows.carb
+        live = ~self.mix.open_to_air & ~fixed[:, ca] & ~fixed[:, cb] & np.isfinite(dose)
+        g = self.given(dose)
+        f = 1.0 / (1.0 + g * v)
+        a0, b0 = rows.totals[:, ca], rows.totals[:, cb]
+        a1, b1 = self.n_r[ca], self.n_r[cb]
+        over = live & (f * f * (a0 + g * a1) * (b0 + g * b1) > kcal)
+        calcite = np.zeros(dose.shape)
+        if not over.any():
+            return dose, calcite
+        k = (q[:, ca] + q[:, cb])[over]
+        nu, de, kc = num[over], den[over], kcal[over]
+        p0, p1 = a0[over] - nu / k, a1 - de / k
+        q0, q1 = b0[over] - nu / k, b1 - de / k
+        c2 = p1 * q1 - kc * v * v
+        c1 = p0 * q1 + p1 * q0 - 2.0 * kc * v
+        c0 = p0 * q0 - kc
+        with np.errstate(divide="ignore", invalid="ignore"):
+            disc = np.sqrt(np.maximum(c1 * c1 - 4.0 * c2 * c0, 0.0))
+            linear = np.abs(c2) < 1e-12 * (np.abs(c1) + 1e-300)
+            roots = np.stack([np.where(linear, -c0 / c1, (-c1 - disc) / (2.0 * c2)),
+                              np.where(linear, -c0 / c1, (-c1 + disc) / (2.0 * c2))])
+            x = (nu + roots * de) / k
+            ok = (np.isfinite(roots) & (x >= -1e-15) & (p0 + p1 * roots >= -1e-15)
+                  & (q0 + q1 * roots >= -1e-15))
+        # Where both roots qualify, the one precipitating less (the first
+        # reached along the dose path).
+        x_pick = np.where(ok, x, np.inf).min(axis=0)
+        pick = np.where(ok & (x == x_pick), roots, np.nan)
+        d = np.nanmin(np.where(np.isfinite(pick), pick, np.inf), axis=0)
+        d = np.where(np.isfinite(d), d, np.nan)
+        out = dose.copy()
+        out[over] = d
+        calcite[over] = np.where(np.isfinite(d), np.maximum((nu + d * de) / k, 0.0), 0.0)
+        return out, calcite
 
     def solve(self, capped, max_iter):
         """(dose, slope, solubilities, capped set) with the capped metals

@@ -49,7 +49,7 @@ from .reagents import Reagent
 from .species import MOLAR_MASS, SYSTEMS
 from .water import R_J_MOL_K, calcite_pksp, density
 
-__all__ = ["Check", "assess", "reaction_heat_kj_l", "DH_WATER_KJ_MOL", "gypsum_si",
+__all__ = ["Check", "assess", "reaction_heat_kj_l", "DH_WATER_KJ_MOL", "gypsum_si", "calcite_si",
            "ION_PERMIT_KEYS", "GYPSUM_LOG_KSP"]
 
 #: Enthalpy of water ionisation at 25 °C [kJ/mol] (Olofsson & Hepler 1975).
@@ -311,11 +311,14 @@ def _scale_checks(water: Water, after: Speciation) -> tuple[Check, ...]:
     ca_mg = ca_free * MOLAR_MASS["Ca"] * 1000.0
     if ca_free > 0 and float(after.totals_mol_l[0, CARBONATE]) > 0:
         si = _calcite_si(ca_free, after, t, water.davies)
+        formed = float(after.calcite_mol_l[0]) > 0
         level = "warning" if si > CALCITE_SI_WARN else "info"
         checks.append(Check(
             "calcite", level,
             f"calcite saturation index after dosing {si:+.2f}"
-            + (": the treated water will deposit CaCO3 scale in pipes, probes and "
+            + (": calcite precipitates to saturation (in the solids below); the water "
+               "leaves saturated and can still scale pipes and probes" if formed
+               else ": the treated water will deposit CaCO3 scale in pipes, probes and "
                "pumps; consider a lower aim or an acid rinse schedule" if level == "warning"
                else (": at or under saturation, no calcite scale expected" if si <= 0
                      else ": slightly over saturation")),
@@ -376,6 +379,23 @@ def _calcite_si(ca_mol_l: float, after: Speciation, t: float, davies: bool) -> f
     if co3 <= 0:
         return -math.inf
     return math.log10(ca_mol_l * co3) + 2 * _log_gamma2(after, t, davies) + float(calcite_pksp(t))
+
+
+def calcite_si(sp: Speciation, temperature_c, davies: bool) -> np.ndarray:
+    """Calcite saturation index of every water of ``sp`` [-] (-inf without Ca or CO3).
+
+    log10({Ca2+}{CO3 2-}) + pKsp, Ksp of Plummer & Busenberg (1982), Davies
+    activities unless ideal.
+    """
+    t = np.broadcast_to(np.asarray(temperature_c, dtype=float), sp.ph.shape)
+    j = system_index("calcium")
+    ca = sp.totals_mol_l[:, j] * sp.alpha[:, j, 0]
+    co3 = sp.concentration(CARBONATE, 2)
+    lg = (davies_log_gamma(2, sp.ionic_strength, debye_huckel_a(t)) if davies
+          else np.zeros(t.shape))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        out = np.log10(ca * co3) + 2 * lg + calcite_pksp(t)
+    return np.where((ca > 0) & (co3 > 0), out, -np.inf)
 
 
 def _log_gamma2(after: Speciation, t: float, davies: bool) -> float:

@@ -39,7 +39,7 @@ from .solids import (METAL_PERMIT_KEYS, CapWindow, Solid, cap_window, metals_aft
                      metals_present_mol_l, solids_after)
 from .water import henry_co2
 
-__all__ = ["AirExchange", "Target", "Batch", "Flow", "Amounts", "TitrationCurve", "Plan",
+__all__ = ["AirExchange", "CalciteCase", "CALCITE_SI_FAST", "Target", "Batch", "Flow", "Amounts", "TitrationCurve", "Plan",
            "plan_dose", "titration_curve", "METERING_ERROR"]
 
 #: Relative metering error used for the sensitivity check (common practice:
@@ -184,6 +184,7 @@ class Plan:
     cap_window: CapWindow | None = None   #: pH range meeting the metal caps
     ph_ceiling: float | None = None       #: highest pH an overdose reaches [-]
     air: AirExchange | None = None        #: CO2 exchange with air, for an open tank
+    calcite: CalciteCase | None = None    #: calcite planned to precipitate, and the other case
     precision: tuple = ()                 #: dose at the edges of each reading's precision
 
     def amounts(self, dose_mol_l: float | None = None) -> Amounts:
@@ -207,6 +208,34 @@ class AirExchange:
     at_equilibrium: bool             #: planned at CO2 equilibrium with air
     other_dose_mol_l: float | None   #: dose to the aim in the other case (None: unreachable)
     ph_other: float                  #: pH the planned dose gives in the other case [-]
+
+
+#: Calcite saturation index the dosed water may be left at before the plan
+#: has calcite precipitate ("auto"): well above saturation calcite comes out
+#: within a tank's residence time (lime softening runs at an index of 1 to 2);
+#: just above it a water stays supersaturated for hours and drops calcite
+#: slowly, as scale (common practice).
+CALCITE_SI_FAST = 1.0
+
+
+@dataclass(frozen=True)
+class CalciteCase:
+    """Calcite planned to precipitate, and what the dose does before it forms."""
+
+    mol_l: float                     #: calcite formed at the aim [mol/L]
+    si_without: float | None         #: saturation index had it stayed dissolved [-]
+    ph_if_dissolved: float           #: pH the planned dose gives while it stays dissolved
+
+
+def _calcite_case(water: Water, reagent: Reagent, dose: float, end_state,
+                  si_without: float | None) -> CalciteCase | None:
+    """The calcite a plan precipitates, with the pH before it forms."""
+    mol = float(end_state.calcite_mol_l[0])
+    if water.calcite != "precipitates" or mol <= 0:
+        return None
+    bare = replace(water.mixture(), calcite=False)
+    ph = float(solve_ph(add_dose(bare, reagent.vector(), dose))[0])
+    return CalciteCase(mol, si_without, ph)
 
 
 def _air_exchange(water: Water, reagent: Reagent, aim: float, dose: float
@@ -271,6 +300,11 @@ def plan_dose(water: Water, reagent: Reagent, target: Target,
               curve_points: int = 301) -> Plan:
     """Plan the dose of ``reagent`` that brings ``water`` into ``target``.
 
+    Calcite: with ``water.calcite`` "auto" the dose is first planned with
+    calcite kept dissolved; if that leaves the water more supersaturated
+    than :data:`CALCITE_SI_FAST`, it is planned again with calcite
+    precipitating (and the plan says what the dose does before it forms).
+
     Parameters
     ----------
     water : Water
@@ -297,6 +331,27 @@ def plan_dose(water: Water, reagent: Reagent, target: Target,
     ModelError
         The forward solve does not reproduce the aim (never expected).
     """
+    plan = _plan_once(water, reagent, target, basis, permit, curve_points)
+    si = _calcite_si(plan)
+    if water.calcite == "auto" and plan.dose_needed and si is not None \
+            and si > CALCITE_SI_FAST:
+        plan = _plan_once(replace(water, calcite="precipitates"), reagent, target, basis,
+                          permit, curve_points, si_without_calcite=si)
+    return plan
+
+
+def _calcite_si(plan: Plan) -> float | None:
+    """The calcite saturation index the plan's checks found after the dose."""
+    for c in plan.checks:
+        if c.id == "calcite":
+            return float(c.values["calcite_si"])
+    return None
+
+
+def _plan_once(water: Water, reagent: Reagent, target: Target, basis: Batch | Flow,
+               permit: Mapping[str, float] | None, curve_points: int,
+               si_without_calcite: float | None = None) -> Plan:
+    """One plan with the water's calcite setting as it is."""
     mix = water.mixture()
     ceiling = _ceiling(water, reagent)
     edges = _edge_doses(water, reagent, target, ceiling)
@@ -329,7 +384,8 @@ def plan_dose(water: Water, reagent: Reagent, target: Target,
                 dose_needed=edges.needed, cautions=tuple(reagent.cautions) + (GENERAL_CAUTION,),
                 checks=checks, solids=solids, metals_after_mg_l=metals_after,
                 cap_window=window, ph_ceiling=ceiling,
-                air=_air_exchange(water, reagent, target.ph_aim, dose))
+                air=_air_exchange(water, reagent, target.ph_aim, dose),
+                calcite=_calcite_case(water, reagent, dose, end_state, si_without_calcite))
     return replace(plan, warnings=plan_warnings(plan, edges.notes))
 
 
@@ -418,7 +474,24 @@ def plan_warnings(plan: Plan, notes: tuple[str, ...]) -> tuple[str, ...]:
         warnings.extend(_cap_words(plan.cap_window, target))
     if plan.air is not None and plan.dose_needed:
         warnings.append(_air_words(plan))
+    if plan.calcite is not None:
+        warnings.append(_calcite_words(plan))
     return tuple(warnings)
+
+
+def _calcite_words(plan: Plan) -> str:
+    """What a plan with calcite precipitating assumed, and the pH before it forms."""
+    c = plan.calcite
+    assert c is not None
+    why = ("" if c.si_without is None else
+           f" (kept dissolved it would leave the water at saturation index "
+           f"{c.si_without:+.1f}, where it comes out within the hour)")
+    outside = "" if plan.target.contains(c.ph_if_dissolved) else ", outside the window"
+    return (f"calcite precipitates: {fmt(c.mol_l * 1000)} mmol/L of CaCO3 goes to the "
+            f"sludge{why}, and the dose includes the acid it releases (Ca2+ + HCO3- -> "
+            f"CaCO3 + H+). Until it has formed (minutes to hours; faster on old sludge) "
+            f"this dose gives pH {c.ph_if_dissolved:.2f}{outside}: let it settle and "
+            "measure before adding more")
 
 
 def _air_words(plan: Plan) -> str:
@@ -561,8 +634,4 @@ def titration_curve(water: Water, reagent: Reagent, max_dose_mol_l: float,
 
 def _repeat(mix: Mixture, n: int) -> Mixture:
     """A one-row mixture repeated n times."""
-    return Mixture.build(np.repeat(mix.totals_mol_l, n, 0), np.repeat(mix.strong_eq_l, n),
-                         np.repeat(mix.strong_ionic_strength, n),
-                         np.repeat(mix.temperature_c, n), np.repeat(mix.co2_air_mol_l, n),
-                         mix.davies,
-                         None if mix.unknown_pka is None else np.repeat(mix.unknown_pka, n))
+    return mix.take(np.zeros(n, dtype=int))

@@ -19,7 +19,7 @@ from __future__ import annotations
 
 import math
 from collections import Counter
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Any
 
 import numpy as np
@@ -27,8 +27,11 @@ import pandas as pd
 
 from .effluent import (ALKALINITY_ENDPOINT_PH, CACO3_MG_PER_MEQ, MEASURED_MAX_MG_L, aerate,
                        totals_vector)
-from .equilibrium import (CARBONATE, N_SYSTEMS, Mixture, carbonate_for_alkalinity, co2_in_air_mol_l,
-                          dose_to_ph, strong_balance_at_ph)
+from .equilibrium import (CARBONATE, N_SYSTEMS, Mixture, add_dose, carbonate_for_alkalinity,
+                          co2_in_air_mol_l, dose_to_ph, speciate, strong_balance_at_ph,
+                          system_index)
+from .hazards import calcite_si
+from .plan import CALCITE_SI_FAST
 from .errors import ScenarioError
 from .scenario import Scenario
 from .water import T_MAX_C, T_MIN_C
@@ -225,8 +228,11 @@ def _dose_for(scenario: Scenario, ph, temp, alk, flag, ok) -> np.ndarray:
     unsettled = ~np.isfinite(s) & ~bad
     s = np.where(np.isfinite(s), s, 0.0)
     tank = aerate(base) if w.ferrous_oxidised else base
-    mix = Mixture.build(tank, s, w.strong_ionic_strength_for(s), temp, co2, w.davies, pka)
+    mix = replace(Mixture.build(tank, s, w.strong_ionic_strength_for(s), temp, co2, w.davies,
+                                pka), calcite=w.calcite == "precipitates")
     dose, grip = dose_to_ph(mix, reagent.vector(), target.ph_aim)
+    if w.calcite == "auto":
+        dose = _calcite_where_fast(mix, reagent, target.ph_aim, dose)
     direction = 1.0 if reagent.raises_ph else -1.0
     inside = (ph >= target.ph_min) & (ph <= target.ph_max)
     limit = reagent.practical_limit(target.ph_aim) is not None
@@ -239,6 +245,25 @@ def _dose_for(scenario: Scenario, ph, temp, alk, flag, ok) -> np.ndarray:
     flag[positions[~bad & no_grip]] = "cannot_reach"
     flag[positions[~bad & ~no_grip & wrong]] = "wrong_direction"
     return np.where(bad | no_grip | wrong, np.nan, dose)
+
+
+def _calcite_where_fast(mix: Mixture, reagent, aim: float, dose: np.ndarray) -> np.ndarray:
+    """The planner's calcite rule row by row: where the dose without calcite
+    leaves the water above :data:`~dosing.plan.CALCITE_SI_FAST`, the dose
+    with calcite precipitating."""
+    ca, c = system_index("calcium"), CARBONATE
+    idx = np.flatnonzero(np.isfinite(dose) & (dose > 0) & (mix.totals_mol_l[:, c] > 0)
+                         & ((mix.totals_mol_l[:, ca] > 0) | (reagent.vector().totals_mol[ca] > 0)))
+    if idx.size == 0:
+        return dose
+    sub = mix.take(idx)
+    sp = speciate(add_dose(sub, reagent.vector(), dose[idx]), aim)
+    fast = idx[calcite_si(sp, sub.temperature_c, mix.davies) > CALCITE_SI_FAST]
+    if fast.size:
+        dose = dose.copy()
+        dose[fast] = dose_to_ph(replace(mix.take(fast), calcite=True), reagent.vector(),
+                                aim)[0]
+    return dose
 
 
 # Histogram of dose rates for percentiles with constant memory: a zero bin

@@ -75,7 +75,7 @@ _SCHEMA: dict[str, dict[str, tuple]] = {
     },
     "model": {"activity": ((str,), False), "open_to_air": ((bool,), False),
               "pco2_uatm": ((int, float), False), "hours_in_air": ((int, float), False),
-              "depth_m": ((int, float), False)},
+              "depth_m": ((int, float), False), "calcite": ((str,), False)},
     "permit": {k: ((int, float), False) for k in PERMIT_KEYS},
     "sludge": {"cake_solids_fraction": ((int, float), False),
                "cake_density_kg_l": ((int, float), False)},
@@ -217,7 +217,7 @@ def _where(field_name: str) -> str:
     head = field_name.split(".")[0]
     if head in _SCHEMA:
         return field_name
-    if head in ("activity", "pco2_uatm", "open_to_air", "hours_in_air", "depth_m"):
+    if head in ("activity", "pco2_uatm", "open_to_air", "hours_in_air", "depth_m", "calcite"):
         return f"model.{field_name}"
     return f"effluent.{field_name}"
 
@@ -257,6 +257,7 @@ def water_inputs(data: Mapping[str, Any]) -> dict[str, Any]:
         pco2_uatm=model.get("pco2_uatm", DEFAULT_PCO2_UATM),
         hours_in_air=model.get("hours_in_air", 0.0),
         depth_m=model.get("depth_m", DEFAULT_DEPTH_M),
+        calcite=model.get("calcite", "auto"),
         alkalinity_endpoint_ph=eff.get("alkalinity_endpoint_ph", ALKALINITY_ENDPOINT_PH),
         acidity_endpoint_ph=eff.get("acidity_endpoint_ph", ACIDITY_ENDPOINT_PH),
         extra_ionic_strength_mol_l=eff.get("extra_ionic_strength_mol_l", 0.0),

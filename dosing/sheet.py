@@ -88,8 +88,9 @@ def make_plan(scenario: Scenario) -> Plan:
         raise ScenarioError(scenario.source, "[effluent]", str(err)) from None
     if not plan.dose_needed or "effluent" not in scenario.data:
         return plan
-    sens = lab_sensitivity(water_inputs(scenario.data), scenario.reagent,
-                           scenario.target.ph_aim)
+    # The same calcite case as the plan (its "auto" may have chosen precipitation).
+    inputs = dict(water_inputs(scenario.data), calcite=plan.water.calcite)
+    sens = lab_sensitivity(inputs, scenario.reagent, scenario.target.ph_aim)
     words = precision_warning(sens, plan.dose_mol_l)
     return replace(plan, precision=sens,
                    warnings=plan.warnings + ((words,) if words else ()))

@@ -15,9 +15,9 @@ reported as Me(OH)z, gypsum as CaSO4·2H2O, undissolved lime as Ca(OH)2.
 The wet cake of a filter press typically holds 20-35 % dry solids at a bulk
 density near 1.2 kg/L (common practice); 25 % and 1.2 kg/L are the defaults.
 
-Calcite is not precipitated by the model: at the saturation indices of
-treated water it forms slowly, as scale rather than sludge; the hazard
-checks give its saturation index.
+Calcite precipitates inside the charge balance (it releases acid) when
+the plan has it precipitate (see :func:`dosing.plan.plan_dose`); it is
+reported as CaCO3.
 """
 
 from __future__ import annotations
@@ -90,6 +90,10 @@ def solids_after(sp: Speciation, temperature_c: float, davies: bool) -> tuple[So
                     else f"{metal.name} hydroxide")
             out.append(Solid(f"{metal.id}_hydroxide", name, metal.solid, mol * 1000,
                              mol * metal.solid_molar_mass_g_mol * 1000))
+    calcite = float(sp.calcite_mol_l[0])
+    if calcite > _SOLID_FLOOR_MOL_L:
+        out.append(Solid("calcite", "calcite", "CaCO3", calcite * 1000,
+                         calcite * MOLAR_MASS["CaCO3"] * 1000))
     gyp = _gypsum_mol_l(sp, temperature_c, davies)
     if gyp > _SOLID_FLOOR_MOL_L:
         out.append(Solid("gypsum", "gypsum", "CaSO4·2H2O", gyp * 1000,
