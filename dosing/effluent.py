@@ -37,12 +37,12 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field, replace
-from typing import Mapping
+from typing import Any, Mapping
 
 import numpy as np
 
 from .activity import DAVIES_I_LIMIT
-from .equilibrium import (CARBONATE, METAL_COLUMNS, N_SYSTEMS, Mixture,
+from .equilibrium import (CARBONATE, METAL_COLUMNS, N_ACIDS, N_SYSTEMS, Mixture,
                           carbonate_for_alkalinity, co2_in_air_mol_l, speciate,
                           strong_balance_at_ph, system_index)
 from .errors import InputError, ModelError
@@ -615,6 +615,86 @@ def infer_water(ph: float, temperature_c: float = 25.0, *,
                  metals_mol_l=metals, ferrous_oxidised=bool(oxidise_ferrous),
                  known_strong_eq_l=job.known_eq, known_ionic_strength=job.known_i,
                  hours_in_air=hours_in_air, depth_m=depth_m, calcite=calcite)
+
+
+@dataclass(frozen=True)
+class Perturbation:
+    """Many variants of one set of measurements, for :func:`infer_many` (arrays (n,))."""
+
+    ph: np.ndarray
+    temperature_c: np.ndarray
+    lab_mg_l: np.ndarray         #: lab alkalinity or acidity [mg/L as CaCO3] (ignored if none)
+    solute_factor: np.ndarray    #: each listed solute over its value given [-]
+    metal_factor: np.ndarray     #: each metal over its value given [-]
+
+
+def infer_many(inputs: Mapping[str, Any], variants: Perturbation, *,
+               air_equilibrium: bool = False, calcite: bool = False
+               ) -> tuple[Mixture, np.ndarray]:
+    """The waters behind many variants of one set of measurements, at once.
+
+    ``inputs`` are :func:`infer_water` keyword arguments (validated once);
+    each variant moves the pH, temperature, lab value and totals. The same
+    steps as :func:`infer_water`, vectorised: carbonate from the lab value
+    (or from air, or as given), then the strong-ion balance from the pH.
+
+    Returns the mixtures (ready for dosing: aerated iron, CO2 held by air
+    with ``air_equilibrium``, calcite with ``calcite``) and a mask of the
+    variants that a real water can be (a lab value below what the rest
+    implies, beyond the lab's precision, or an unsettled ionic strength is
+    not).
+    """
+    a = dict(inputs)
+    job, totals, metals, ions, measured = _validate(
+        a["ph"], a.get("temperature_c", 25.0), a.get("alkalinity_mg_l_as_caco3"),
+        a.get("acidity_mg_l_as_caco3"), a.get("solutes_mmol_l"), a.get("solutes_mg_l"),
+        a.get("activity", "davies"), a.get("pco2_uatm", DEFAULT_PCO2_UATM),
+        a.get("alkalinity_endpoint_ph", ALKALINITY_ENDPOINT_PH),
+        a.get("acidity_endpoint_ph", ACIDITY_ENDPOINT_PH),
+        a.get("extra_ionic_strength_mol_l", 0.0), a.get("ions_mg_l"), a.get("unknown_pka"),
+        a.get("metals_mg_l"), a.get("oxidise_ferrous", False), a.get("open_to_air", False))
+    v = variants
+    n = v.ph.size
+    vec = np.repeat(job.vec[None, :], n, axis=0)
+    vec[:, :N_ACIDS] *= v.solute_factor[:, None]
+    vec[:, N_ACIDS:] *= v.metal_factor[:, None]
+    ok = np.ones(n, dtype=bool)
+    given_c = "carbonate" in totals
+    if measured is not None:
+        mg = np.maximum(v.lab_mg_l, 0.0)
+        eq = measured.eq_l / measured.mg_l * mg if measured.mg_l > 0 else (
+            _LAB[measured.kind][0] * mg / CACO3_MG_PER_MEQ / 1000.0)
+        past = (v.ph - measured.endpoint_ph) * _LAB[measured.kind][0] <= 0
+        c, coef, _ = carbonate_for_alkalinity(
+            vec, v.ph, v.temperature_c, eq, measured.endpoint_ph, davies=job.davies,
+            extra_ionic_strength=job.known_i, unknown_pka=job.unknown_pka,
+            ferrous_oxidised=measured.kind == "acidity")
+        floor_mg = np.abs(eq - c * coef) * CACO3_MG_PER_MEQ * 1000.0
+        slack = np.maximum(LOW_READING_MG_L, LAB_PRECISION * floor_mg)
+        zero = (c < 0) & ((mg <= LOW_READING_MG_L) | (floor_mg - mg <= slack))
+        # At or past the end point the lab finds nothing: 0 is right, more is not.
+        none_left = past & (mg == 0)
+        ok &= none_left | (~past & np.isfinite(c) & ((c >= 0) | zero)
+                           & (c <= MAX_CARBONATE_MOL_L))
+        vec[:, CARBONATE] = np.where(ok & ~none_left & (c > 0), c, 0.0)
+    elif not given_c and a.get("open_to_air", False):
+        co2 = co2_in_air_mol_l(v.temperature_c, job.pco2_uatm * 1e-6)
+        probe = speciate(Mixture.build(vec, 0.0, job.known_i, v.temperature_c, co2,
+                                       job.davies, job.unknown_pka), v.ph, solids=False)
+        vec[:, CARBONATE] = probe.totals_mol_l[:, CARBONATE]
+        ok &= vec[:, CARBONATE] <= MAX_AIR_CARBONATE_MOL_L
+    s, ionic = strong_balance_at_ph(vec, v.ph, v.temperature_c, davies=job.davies,
+                                    extra_ionic_strength=job.known_i,
+                                    unknown_pka=job.unknown_pka,
+                                    known_strong_eq_l=job.known_eq)
+    ok &= np.isfinite(s) & np.isfinite(ionic) & (ionic <= MAX_IONIC_STRENGTH)
+    s = np.where(ok, s, 0.0)
+    strong_i = job.known_i + 0.5 * np.abs(s - job.known_eq)
+    co2 = (co2_in_air_mol_l(v.temperature_c, job.pco2_uatm * 1e-6) if air_equilibrium
+           else np.full(n, math.nan))
+    tank = aerate(vec) if a.get("oxidise_ferrous", False) else vec
+    mix = Mixture.build(tank, s, strong_i, v.temperature_c, co2, job.davies, job.unknown_pka)
+    return replace(mix, calcite=calcite), ok
 
 
 def _validate(ph, temperature_c, alkalinity, acidity, solutes_mmol_l, solutes_mg_l,

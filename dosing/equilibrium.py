@@ -610,10 +610,14 @@ def _newton(rows: _Rows, ph, ionic, tol_ph, max_iter, update_ionic):
 def strong_balance_at_ph(totals_mol_l, ph, temperature_c, *, davies: bool,
                          extra_ionic_strength=0.0, co2_air_mol_l=np.nan,
                          max_iter: int = 60, unknown_pka=None,
-                         known_strong_eq_l=0.0):
+                         known_strong_eq_l=0.0, solids: bool = False,
+                         calcite: bool = False):
     """Strong-ion balance S [eq/L] that puts each water at ``ph`` (direct).
 
-    Every metal is taken as dissolved (the water as sampled). For the ionic
+    Every metal is taken as dissolved (the water as sampled), unless
+    ``solids``: then each metal is capped at its hydroxide's solubility (a
+    reading taken in a dosed tank, where the solids have formed; with
+    ``calcite`` too, calcite has formed). For the ionic
     strength, ``extra_ionic_strength`` [mol/L] counts the strong ions that
     are known (measured sodium, chloride ... with their charges, or a known
     salt load), ``known_strong_eq_l`` [eq/L] is their net charge, and the
@@ -629,8 +633,9 @@ def strong_balance_at_ph(totals_mol_l, ph, temperature_c, *, davies: bool,
                         temperature_c, co2_air_mol_l, davies, unknown_pka)
     extra = mix.strong_ionic_strength
     known = np.broadcast_to(np.asarray(known_strong_eq_l, dtype=float), ph.shape)
-    bare = replace(mix, strong_eq_l=np.zeros(mix.n), strong_ionic_strength=np.zeros(mix.n))
-    rows = _restrict(bare, cap=False)
+    bare = replace(mix, strong_eq_l=np.zeros(mix.n), strong_ionic_strength=np.zeros(mix.n),
+                   calcite=calcite)
+    rows = _restrict(bare, cap=solids)
 
     def at(ionic):
         resid, _, i_weak = _rows_state(rows, ph, ionic)

@@ -22,7 +22,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field, replace
-from typing import Mapping
+from typing import Any, Mapping
 
 import numpy as np
 
@@ -186,6 +186,8 @@ class Plan:
     air: AirExchange | None = None        #: CO2 exchange with air, for an open tank
     calcite: CalciteCase | None = None    #: calcite planned to precipitate, and the other case
     precision: tuple = ()                 #: dose at the edges of each reading's precision
+    uncertainty: Any = None               #: DoseUncertainty: the plausible waters' doses
+    staging: Any = None                   #: Staging: first dose and trim table (batch)
 
     def amounts(self, dose_mol_l: float | None = None) -> Amounts:
         """A dose (default: the planned one) in operator units."""

@@ -30,6 +30,7 @@ from .hazards import ION_PERMIT_KEYS
 from .metals import METAL_IDS
 from .solids import CAKE_DENSITY_KG_L, CAKE_SOLIDS_FRACTION, METAL_PERMIT_KEYS
 from .species import SYSTEM_IDS
+from .uncertainty import SPREAD_KEYS, Spread, spread_from
 
 __all__ = ["Scenario", "PERMIT_KEYS", "parse_scenario", "load_scenario",
            "scenario_to_toml", "build_scenario", "scenario_key", "water_inputs"]
@@ -79,6 +80,7 @@ _SCHEMA: dict[str, dict[str, tuple]] = {
     "permit": {k: ((int, float), False) for k in PERMIT_KEYS},
     "sludge": {"cake_solids_fraction": ((int, float), False),
                "cake_density_kg_l": ((int, float), False)},
+    "uncertainty": {k: ((int, float), False) for k in SPREAD_KEYS},
 }
 #: Plant figures with their largest believable value (common practice: far
 #: above any real plant, low enough that no total or cost overflows).
@@ -114,6 +116,8 @@ class Scenario:
         Caps from the [permit] table [mg/L].
     sludge : (float, float)
         Dry-solids fraction [-] and density [kg/L] of the wet sludge cake.
+    spread : Spread
+        Uncertainty of each input, from the [uncertainty] table.
     source : str
         The file it came from, for messages.
     data : Mapping
@@ -135,6 +139,7 @@ class Scenario:
     data: Mapping[str, Any] = field(default_factory=dict)
     sludge: tuple[float, float] = (CAKE_SOLIDS_FRACTION, CAKE_DENSITY_KG_L)
     source: str = "<scenario>"
+    spread: Spread = field(default_factory=Spread)
 
 
 def _is_number(v) -> bool:
@@ -304,6 +309,7 @@ def build_scenario(data: Mapping[str, Any], path: str = "<scenario>") -> Scenari
                 raise InputError(f"permit.{key}", f"{cap:g}; allowed: above 0 and up "
                                  "to 1,000,000 mg/L")
         sludge = _sludge(data.get("sludge", {}))
+        spread = spread_from(data.get("uncertainty"))
     except InputError as err:
         raise ScenarioError(path, _where(err.field), err.reason) from None
     return Scenario(title=data.get("title", Path(path).stem),
@@ -311,7 +317,7 @@ def build_scenario(data: Mapping[str, Any], path: str = "<scenario>") -> Scenari
                     water=water, basis=basis, target=target, reagent=reagent,
                     price_per_kg=r.get("price_per_kg"), storage_m3=r.get("storage_m3"),
                     storage_kg=r.get("storage_kg"), hours_per_day=float(hours),
-                    permit=permit, data=data, sludge=sludge, source=path)
+                    permit=permit, data=data, sludge=sludge, source=path, spread=spread)
 
 
 def _sludge(table: Mapping[str, Any]) -> tuple[float, float]:

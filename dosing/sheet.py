@@ -23,6 +23,7 @@ from .metals import HARDNESS
 from .solids import Sludge, sludge_of
 from .errors import InputError, ModelError, ScenarioError, UnreachableError
 from .precision import lab_sensitivity, precision_warning
+from .uncertainty import MATERIAL_RISK, dose_uncertainty, staged_dose
 from .scenario import Scenario, scenario_key, water_inputs
 
 __all__ = ["Units", "UNIT_SYSTEMS", "make_plan", "sheet_dict", "render_sheet",
@@ -92,8 +93,20 @@ def make_plan(scenario: Scenario) -> Plan:
     inputs = dict(water_inputs(scenario.data), calcite=plan.water.calcite)
     sens = lab_sensitivity(inputs, scenario.reagent, scenario.target.ph_aim)
     words = precision_warning(sens, plan.dose_mol_l)
-    return replace(plan, precision=sens,
+    plan = replace(plan, precision=sens,
                    warnings=plan.warnings + ((words,) if words else ()))
+    return _with_uncertainty(plan, inputs, scenario.spread)
+
+
+def _with_uncertainty(plan: Plan, inputs, spread) -> Plan:
+    """The plan with its sampled uncertainty and, for a batch at risk, a staged dose."""
+    unc = dose_uncertainty(inputs, plan, spread)
+    if unc is None:
+        return plan
+    staging = None
+    if isinstance(plan.basis, Batch) and unc.p_outside > MATERIAL_RISK:
+        staging = staged_dose(plan, unc, spread)
+    return replace(plan, uncertainty=unc, staging=staging)
 
 
 def _key_suffix(plan: Plan) -> str:
@@ -197,6 +210,8 @@ def sheet_dict(scenario: Scenario, plan: Plan) -> dict[str, Any]:
             "dose_mmol_per_l_high_reading": (None if p.dose_high_reading_mol_l is None
                                              else p.dose_high_reading_mol_l * 1000)}
             for p in plan.precision],
+        "uncertainty": _uncertainty_dict(plan),
+        "staging": _staging_dict(plan),
         "cost" + sfx: cost,
         "water": {
             "temperature_c": w.temperature_c,
@@ -339,6 +354,7 @@ def dose_lines(scenario: Scenario, plan: Plan, units: str = "metric") -> list[tu
                      f"{max(plan.ph_low_dose, plan.ph_high_dose):.2f}"))
         if plan.precision:
             rows.append(("lab precision", _precision_text(plan)))
+        rows.extend(uncertainty_lines(plan, units))
     if scenario.price_per_kg is not None and a.kg_product is not None:
         cost = a.kg_product * scenario.price_per_kg
         rows.append(("cost", f"{fmt(cost)} {per}"
@@ -421,6 +437,12 @@ def render_sheet(scenario: Scenario, plan: Plan, units: str = "metric",
     else:
         out.append("DOSE  none needed")
     _table(out, dose_lines(scenario, plan, units), width)
+    stage_rows = staging_lines(plan, units)
+    if stage_rows:
+        out.append("")
+        out.append("STAGED DOSE")
+        for line in stage_rows:
+            out.extend(_wrap(line, width, "  ") if not line.startswith("   ") else [line])
     metal_rows = metal_lines(scenario, plan, units)
     if metal_rows:
         out.append("")
@@ -479,6 +501,99 @@ def render_replay(report: dict[str, Any], units: str = "metric", width: int = 78
     for c in r["cautions"]:
         out.extend(_wrap(c, width, "  - "))
     return "\n".join(out) + "\n"
+
+
+def _amount_dict(plan: Plan, mol_l: float, prefix: str = "") -> dict[str, Any]:
+    """A dose in the plan's units: mmol/L and product kg and litres (per hour for a flow)."""
+    a, sfx = plan.amounts(mol_l), _key_suffix(plan)
+    return {f"{prefix}mmol_per_l": mol_l * 1000, f"{prefix}kg_product{sfx}": a.kg_product,
+            f"{prefix}litres_product{sfx}": a.litres_product}
+
+
+def _uncertainty_dict(plan: Plan) -> dict[str, Any] | None:
+    unc = plan.uncertainty
+    if unc is None:
+        return None
+    sfx = _key_suffix(plan)
+    out: dict[str, Any] = {"samples": unc.samples, "plausible_waters": unc.valid}
+    for name, mol in (("dose_p05", unc.p05_mol_l), ("dose_p50", unc.p50_mol_l),
+                      ("dose_p95", unc.p95_mol_l)):
+        a = plan.amounts(mol)
+        out[name] = {"mmol_per_l": mol * 1000, "kg_product" + sfx: a.kg_product,
+                     "litres_product" + sfx: a.litres_product}
+    out.update(p_outside_window=unc.p_outside, p_below_window=unc.p_below,
+               p_above_window=unc.p_above,
+               spread_shares=[{"input": k, "share": v} for k, v in unc.shares],
+               spread_words=unc.words())
+    return out
+
+
+def _staging_dict(plan: Plan) -> dict[str, Any] | None:
+    st = plan.staging
+    if st is None:
+        return None
+    return {"confidence": st.confidence, "p_inside_window_after_trim": st.p_inside,
+            "first": _amount_dict(plan, st.first_mol_l),
+            "ph_after_first_p05_p95": list(st.ph_first_range),
+            "trim": [{"ph_read": r.ph_read, "at_or_past_aim": r.extra_mol_l is None,
+                      **({} if r.extra_mol_l is None
+                         else _amount_dict(plan, r.extra_mol_l, "extra_"))}
+                     for r in st.trim]}
+
+
+def uncertainty_lines(plan: Plan, units: str = "metric") -> list[tuple[str, str]]:
+    """How sure the dose is, as (label, value) rows for the sheet and the view."""
+    unc = plan.uncertainty
+    if unc is None:
+        return []
+    per = _per(plan)
+
+    def prod(mol):
+        a = plan.amounts(mol)
+        return product_text(a.kg_product, a.litres_product, units)
+    risk = (f"the planned dose lands outside the window in {unc.p_outside:.0%} of them"
+            + (f" (below {unc.p_below:.0%}, above {unc.p_above:.0%})" if unc.p_outside else ""))
+    return [("how sure", f"over {unc.valid:,} plausible waters (the measurements within "
+             f"their uncertainty) the dose needed {per} runs {prod(unc.p05_mol_l)} to "
+             f"{prod(unc.p95_mol_l)} (5th to 95th percentile), median "
+             f"{prod(unc.p50_mol_l)}; {risk}"),
+            ("spread", unc.words())]
+
+
+def staging_lines(plan: Plan, units: str = "metric") -> list[str]:
+    """The staged dose and its trim table, as lines an operator follows with a pen."""
+    st = plan.staging
+    if st is None:
+        return []
+
+    def prod(mol):
+        a = plan.amounts(mol)
+        return product_text(a.kg_product, a.litres_product, units)
+    out = [f"The planned dose leaves the window in {plan.uncertainty.p_outside:.0%} of the "
+           "plausible waters: dose in two steps.",
+           f"1. First dose {prod(st.first_mol_l)}: it stays short of the aim in "
+           f"{st.confidence:.0%} of them. Mix well, then read the pH (expected "
+           f"{st.ph_first_range[0]:.1f} to {st.ph_first_range[1]:.1f}).",
+           "2. Add what the table gives for the pH read (between two rows, in "
+           f"proportion), mix, read again. Followed, it lands in the window in "
+           f"{st.p_inside:.0%} of the plausible waters:",
+           f"   {'pH read':<11} add"]
+    up = plan.reagent.raises_ph
+    edge = (f"above {plan.target.ph_max:g}" if up else f"below {plan.target.ph_min:g}")
+    for row in st.trim:
+        if row.extra_mol_l is None:
+            out.append(f"   {row.ph_read:>5.1f} {'up' if up else 'down':<4}  nothing more "
+                       f"({edge}: stop and call the engineer)")
+            break
+        out.append(f"   {row.ph_read:>5.1f}       {prod(row.extra_mol_l)}")
+    out.append("The table is for the first reading only: if the pH is still short of the "
+               "window after the trim, add small amounts and read after each.")
+    if st.p_inside < st.confidence:
+        out.append(f"!! Even staged, this lands in the window in only {st.p_inside:.0%} of "
+                   "the plausible waters: the window is narrower than this product can be "
+                   "metered to. Finish with a dilute reagent in small steps, or widen the "
+                   "aim with the engineer.")
+    return out
 
 
 def _slope_text(plan: Plan, u, flow: bool) -> str:

@@ -9,7 +9,7 @@ from textual.widgets import Static
 
 from dosing.plan import Plan
 from dosing.scenario import Scenario
-from dosing.sheet import caution_lines, check_lines, dose_lines, metal_lines
+from dosing.sheet import caution_lines, check_lines, dose_lines, metal_lines, staging_lines
 
 __all__ = ["DosePanel"]
 
@@ -31,13 +31,19 @@ class DosePanel(Static):
             head.append("Last valid plan shown: fix the field marked in red.\n",
                         style="bold reverse yellow")
         head.append(f"{plan.reagent.name} for {scenario.title}\n", style="bold")
+        staged = Text()
+        stage_rows = staging_lines(plan, units)
+        if stage_rows:
+            staged.append("STAGED DOSE\n", style="bold")
+            for line in stage_rows:
+                staged.append(line + "\n")
         notes = Text()
         for line in caution_lines(plan):
             notes.append(line + "\n", style=_STYLE.get(line[:2], ""))
         for mark, message in check_lines(plan):
             if mark == "  ":
                 notes.append(f"· {message}\n", style="dim")
-        group = Group(head, table, Text(""), notes)
+        group = Group(head, table, Text(""), staged, notes)
         self.update(group)
         console = Console(width=200, record=True, file=_Null())
         console.print(group)
