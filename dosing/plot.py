@@ -54,13 +54,16 @@ def plan_figure_png(plan: Plan, title: str = "", units: str = "metric") -> bytes
         scale = plan.basis.litres * plan.reagent.litres_product_per_mol * u.product_volume_per_l
         unit = u.product_volume
         xlabel = f"{plan.reagent.name}, {u.product_volume} {per}"
+    if not isinstance(plan.basis, Batch):
+        unit += "/h"                 # every amount of a flow carries its time base
     c = plan.curve
     x = c.dose_mol_l * scale
     metals = plan.water.tank_metals_mol_l
-    if metals:
-        fig, (ax, ax_metals) = plt.subplots(2, 1, figsize=(8.0, 10.0), dpi=110)
-    else:
-        fig, ax = plt.subplots(figsize=(8.0, 5.6), dpi=110)
+    panels = 1 + bool(metals) + (plan.uncertainty is not None)
+    fig, axes = plt.subplots(panels, 1, figsize=(8.0, 5.6 + 4.4 * (panels - 1)), dpi=110,
+                             squeeze=False)
+    ax = axes[0, 0]
+    extra = list(axes[1:, 0])
     ax.axhspan(plan.target.ph_min, plan.target.ph_max, color="tab:green", alpha=0.13,
                label=f"permit window pH {plan.target.ph_min:g}–{plan.target.ph_max:g}")
     lo, hi = plan.band_mol_l
@@ -93,9 +96,39 @@ def plan_figure_png(plan: Plan, title: str = "", units: str = "metric") -> bytes
               ncol=3, fontsize=8, frameon=False)
     ax.set_title(title or "Titration curve", fontsize=11)
     if metals:
-        _metals_panel(ax_metals, plan, {k: v for k, v in metals.items()
-                                        if k not in HARDNESS} or metals)
+        _metals_panel(extra.pop(0), plan, {k: v for k, v in metals.items()
+                                           if k not in HARDNESS} or metals)
+    if plan.uncertainty is not None:
+        _uncertainty_panel(extra.pop(0), plan, scale, unit, per)
     return _png(fig)
+
+
+def _uncertainty_panel(ax, plan: Plan, scale: float, unit: str, per: str) -> None:
+    """The dose each plausible water needs, with the plan, its 5-95 % range
+    and (for a staged batch) the first dose."""
+    unc = plan.uncertainty
+    need = unc.needed_mol_l * scale
+    ax.hist(need, bins=40, color="tab:blue", alpha=0.55,
+            label=f"dose needed, {unc.valid:,} plausible waters")
+    for q, mol in (("5th", unc.p05_mol_l), ("95th", unc.p95_mol_l)):
+        ax.axvline(mol * scale, color="0.3", ls="--", lw=1.0,
+                   label=f"{q} percentile {fmt(mol * scale)} {unit}")
+    d = plan.dose_mol_l * scale
+    ax.axvline(d, color="tab:red", lw=1.6,
+               label=f"planned dose {fmt(d)} {unit}: outside the window in "
+                     f"{unc.p_outside:.0%}")
+    if plan.staging is not None:
+        f = plan.staging.first_mol_l * scale
+        ax.axvline(f, color="tab:orange", lw=1.6,
+                   label=f"staged first dose {fmt(f)} {unit} "
+                         f"({plan.staging.confidence:.0%} short of the aim)")
+    ax.set_xlabel(f"{plan.reagent.name}, {unit.removesuffix('/h')} {per}")
+    ax.set_ylabel("plausible waters")
+    ax.grid(True, alpha=0.3)
+    ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.13), ncol=2, fontsize=8,
+              frameon=False)
+    import textwrap
+    ax.set_title("\n".join(textwrap.wrap("How sure: " + unc.words(), 100)), fontsize=9)
 
 
 def _metals_panel(ax3, plan: Plan, metals) -> None:

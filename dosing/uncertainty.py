@@ -148,6 +148,8 @@ def _sample(inputs: Mapping[str, Any], spread: Spread, water) -> _Sample:
     keys = ["ph", "temperature", "amount", "strength"]
     lab_key = next((k for k in ("alkalinity_mg_l_as_caco3", "acidity_mg_l_as_caco3")
                     if inputs.get(k) is not None), None)
+    if lab_key and _nothing_to_titrate(inputs, lab_key):
+        lab_key = None          # a 0 the method must give is exact, not a reading
     if lab_key:
         keys.append("lab")
     if inputs.get("solutes_mmol_l") or inputs.get("solutes_mg_l"):
@@ -196,6 +198,17 @@ def _normal_scores(u: np.ndarray) -> np.ndarray:
     inv = NormalDist().inv_cdf
     flat = np.clip(u.ravel(), 1e-12, 1.0 - 1e-12)
     return np.fromiter((inv(x) for x in flat), float, flat.size).reshape(u.shape)
+
+
+def _nothing_to_titrate(inputs: Mapping[str, Any], lab_key: str) -> bool:
+    """A lab value of 0 on a water at or past its titration end point."""
+    from .effluent import ACIDITY_ENDPOINT_PH, ALKALINITY_ENDPOINT_PH
+    if float(inputs[lab_key]) != 0.0:
+        return False
+    ph = float(inputs["ph"])
+    if lab_key.startswith("alkalinity"):
+        return ph <= float(inputs.get("alkalinity_endpoint_ph") or ALKALINITY_ENDPOINT_PH)
+    return ph >= float(inputs.get("acidity_endpoint_ph") or ACIDITY_ENDPOINT_PH)
 
 
 def dose_uncertainty(inputs: Mapping[str, Any], plan, spread: Spread = Spread()
