@@ -26,7 +26,7 @@ from .precision import lab_sensitivity, precision_warning
 from .uncertainty import MATERIAL_RISK, dose_uncertainty, staged_dose
 from .scenario import Scenario, scenario_key, water_inputs
 
-__all__ = ["Units", "UNIT_SYSTEMS", "make_plan", "sheet_dict", "render_sheet",
+__all__ = ["Units", "UNIT_SYSTEMS", "make_plan", "with_uncertainty", "sheet_dict", "render_sheet",
            "metals_dict", "metal_lines",
            "fmt", "product_text", "dose_lines", "check_lines", "caution_lines",
            "render_replay", "render_titration"]
@@ -69,8 +69,12 @@ def product_text(kg: float | None, litres: float | None, units: str = "metric",
     return " = ".join(parts) if parts else "n/a"
 
 
-def make_plan(scenario: Scenario) -> Plan:
+def make_plan(scenario: Scenario, *, sampled: bool = True) -> Plan:
     """Plan the dose a scenario asks for (with its permit caps).
+
+    With ``sampled`` (the default) the plan carries its sampled uncertainty
+    and, for a batch at risk, a staged dose (:func:`with_uncertainty`); the
+    interactive view plans without and adds them in the background.
 
     Raises
     ------
@@ -95,11 +99,15 @@ def make_plan(scenario: Scenario) -> Plan:
     words = precision_warning(sens, plan.dose_mol_l)
     plan = replace(plan, precision=sens,
                    warnings=plan.warnings + ((words,) if words else ()))
-    return _with_uncertainty(plan, inputs, scenario.spread)
+    return with_uncertainty(scenario, plan) if sampled else plan
 
 
-def _with_uncertainty(plan: Plan, inputs, spread) -> Plan:
+def with_uncertainty(scenario: Scenario, plan: Plan) -> Plan:
     """The plan with its sampled uncertainty and, for a batch at risk, a staged dose."""
+    if not plan.dose_needed or "effluent" not in scenario.data:
+        return plan
+    spread = scenario.spread
+    inputs = dict(water_inputs(scenario.data), calcite=plan.water.calcite)
     unc = dose_uncertainty(inputs, plan, spread)
     if unc is None:
         return plan

@@ -173,3 +173,29 @@ def test_loads_a_bench_titration(tmp_path):
         await pilot.pause()
         assert "no such file" in app.status
     drive(check)
+
+
+def test_uncertainty_is_sampled_off_the_event_loop_and_shown():
+    # The dose shows at once; how sure it is follows from a worker thread,
+    # and equals what the command line computes for the same scenario.
+    async def check(app, pilot):
+        await app.workers.wait_for_complete()
+        await pilot.pause()
+        expected = make_plan(load_scenario(CIP))
+        assert app.plan.uncertainty is not None
+        assert app.plan.uncertainty.p50_mol_l == pytest.approx(
+            expected.uncertainty.p50_mol_l, rel=1e-9)
+        text = app.query_one("#dose-panel").plain_text
+        assert "how sure" in text and "plausible waters" in text
+        assert not app.sampling
+    drive(check)
+
+
+def test_a_sample_for_an_old_form_is_dropped():
+    async def check(app, pilot):
+        old = app.plan
+        await set_field(app, pilot, "effluent.ph", "11.2")
+        newer = app.plan
+        app._sampled(old, make_plan(load_scenario(CIP)))     # a late result
+        assert app.plan is newer
+    drive(check)

@@ -26,7 +26,8 @@ from dosing.files import write_atomic
 from dosing.plan import Plan
 from dosing.reagents import CATALOGUE, GENERAL_CAUTION
 from dosing.scenario import Scenario, build_scenario, load_scenario, scenario_to_toml
-from dosing.sheet import make_plan, render_sheet, render_titration, sheet_dict
+from dosing.sheet import (make_plan, render_sheet, render_titration, sheet_dict,
+                          with_uncertainty)
 from dosing.titration import check_curve, compare, parse_titrant
 from dosing.titration_io import read_titration_csv
 from dosing.shiftlog import ShiftLog
@@ -93,6 +94,8 @@ class Workbench(App):
     """Unit system of the views: "metric" or "us"."""
     status: reactive[str] = reactive("")
     """One line for the status bar."""
+    sampling: reactive[bool] = reactive(False, init=False)
+    """True while the plan's uncertainty is being sampled in the background."""
 
     def __init__(self, path: str | None = None, data: dict[str, Any] | None = None,
                  db: str | None = None):
@@ -162,7 +165,7 @@ class Workbench(App):
         if not errors:
             try:
                 scenario = build_scenario(data, self.path or "form")
-                plan = make_plan(scenario)
+                plan = make_plan(scenario, sampled=False)
             except ScenarioError as err:
                 key = _form_key(err.key)
                 if key:
@@ -182,6 +185,35 @@ class Workbench(App):
         self.scenario, self.plan = scenario, plan     # the watcher renders the views
         self.last_recompute_ms = (time.perf_counter() - t0) * 1000
         self.status = f"planned and shown in {self.last_recompute_ms:.0f} ms"
+        if plan.dose_needed:
+            self.sampling = True
+            self.status += "; sampling how sure the dose is..."
+            self.run_worker(lambda: self._sample_in_background(scenario, plan), thread=True,
+                            exclusive=True, group="sampling")
+
+    def _full_plan(self) -> Plan:
+        """The plan with its uncertainty (sampled now if the background has not finished)."""
+        if self.plan.dose_needed and self.plan.uncertainty is None:
+            return with_uncertainty(self.scenario, self.plan)
+        return self.plan
+
+    def _sample_in_background(self, scenario, plan) -> None:
+        """How sure the dose is, computed off the event loop (a worker thread)."""
+        try:
+            full = with_uncertainty(scenario, plan)
+        except DosingError:
+            full = plan
+        self.call_from_thread(self._sampled, plan, full)
+
+    def _sampled(self, base, full) -> None:
+        """Show the sampled plan, unless the form has moved on since."""
+        if self.plan is base:
+            self.plan = full
+            # Only replace the status this run set (a later message stays).
+            if full.uncertainty is not None and self.status.endswith("dose is..."):
+                self.status = (f"planned in {self.last_recompute_ms:.0f} ms; "
+                               f"{full.uncertainty.valid:,} plausible waters sampled")
+        self.sampling = False
 
     def watch_plan(self) -> None:
         self._render_views()
@@ -291,7 +323,8 @@ class Workbench(App):
             with ShiftLog(self.db) as log:
                 entry = log.record_decision(
                     operator=operator, scenario_toml=scenario_to_toml(data),
-                    plan=sheet_dict(self.scenario, self.plan), dosed_kg=dosed, note=note)
+                    plan=sheet_dict(self.scenario, self._full_plan()), dosed_kg=dosed,
+                    note=note)
                 where = log.path
         except DosingError as err:
             self.status = f"not recorded: {err}"
