@@ -188,6 +188,7 @@ class Plan:
     precision: tuple = ()                 #: dose at the edges of each reading's precision
     uncertainty: Any = None               #: DoseUncertainty: the plausible waters' doses
     staging: Any = None                   #: Staging: first dose and trim table (batch)
+    control: Any = None                   #: ControlDesign: gain, pump range, stages (flow)
 
     def amounts(self, dose_mol_l: float | None = None) -> Amounts:
         """A dose (default: the planned one) in operator units."""

@@ -58,7 +58,8 @@ _SCHEMA: dict[str, dict[str, tuple]] = {
     },
     "batch": {"volume_m3": ((int, float), True)},
     "flow": {"m3_per_h": ((int, float), True),
-             "hours_per_day": ((int, float), False)},
+             "hours_per_day": ((int, float), False),
+             "m3_per_h_min": ((int, float), False), "m3_per_h_max": ((int, float), False)},
     "target": {"ph_min": ((int, float), True), "ph_max": ((int, float), True),
                "ph_aim": ((int, float), False)},
     "reagent": {
@@ -118,6 +119,8 @@ class Scenario:
         Dry-solids fraction [-] and density [kg/L] of the wet sludge cake.
     spread : Spread
         Uncertainty of each input, from the [uncertainty] table.
+    flow_range_m3_h : (float, float) or None
+        Lowest and highest flow of a stream, for the control design.
     source : str
         The file it came from, for messages.
     data : Mapping
@@ -140,6 +143,7 @@ class Scenario:
     sludge: tuple[float, float] = (CAKE_SOLIDS_FRACTION, CAKE_DENSITY_KG_L)
     source: str = "<scenario>"
     spread: Spread = field(default_factory=Spread)
+    flow_range_m3_h: tuple[float, float] | None = None
 
 
 def _is_number(v) -> bool:
@@ -310,6 +314,7 @@ def build_scenario(data: Mapping[str, Any], path: str = "<scenario>") -> Scenari
                                  "to 1,000,000 mg/L")
         sludge = _sludge(data.get("sludge", {}))
         spread = spread_from(data.get("uncertainty"))
+        flow_range = _flow_range(data.get("flow"))
     except InputError as err:
         raise ScenarioError(path, _where(err.field), err.reason) from None
     return Scenario(title=data.get("title", Path(path).stem),
@@ -317,7 +322,24 @@ def build_scenario(data: Mapping[str, Any], path: str = "<scenario>") -> Scenari
                     water=water, basis=basis, target=target, reagent=reagent,
                     price_per_kg=r.get("price_per_kg"), storage_m3=r.get("storage_m3"),
                     storage_kg=r.get("storage_kg"), hours_per_day=float(hours),
-                    permit=permit, data=data, sludge=sludge, source=path, spread=spread)
+                    permit=permit, data=data, sludge=sludge, source=path, spread=spread,
+                    flow_range_m3_h=flow_range)
+
+
+def _flow_range(flow: Mapping[str, Any] | None) -> tuple[float, float] | None:
+    """The lowest and highest flow of a stream, when given (both, around the flow)."""
+    if not flow or ("m3_per_h_min" not in flow and "m3_per_h_max" not in flow):
+        return None
+    q = float(flow["m3_per_h"])
+    lo = float(flow.get("m3_per_h_min", q))
+    hi = float(flow.get("m3_per_h_max", q))
+    if not 0 < lo <= q:
+        raise InputError("flow.m3_per_h_min", f"{lo:g}; allowed: above 0 and up to "
+                         f"the flow, {q:g} m3/h")
+    if not q <= hi <= 1e5:
+        raise InputError("flow.m3_per_h_max", f"{hi:g}; allowed: from the flow, {q:g} "
+                         "m3/h, up to 100,000 m3/h")
+    return lo, hi
 
 
 def _sludge(table: Mapping[str, Any]) -> tuple[float, float]:

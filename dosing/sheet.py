@@ -23,6 +23,7 @@ from .metals import HARDNESS
 from .solids import Sludge, sludge_of
 from .errors import InputError, ModelError, ScenarioError, UnreachableError
 from .precision import lab_sensitivity, precision_warning
+from .control import control_design
 from .uncertainty import MATERIAL_RISK, dose_uncertainty, staged_dose
 from .scenario import Scenario, scenario_key, water_inputs
 
@@ -99,13 +100,20 @@ def make_plan(scenario: Scenario, *, sampled: bool = True) -> Plan:
     words = precision_warning(sens, plan.dose_mol_l)
     plan = replace(plan, precision=sens,
                    warnings=plan.warnings + ((words,) if words else ()))
-    return with_uncertainty(scenario, plan) if sampled else plan
+    if sampled:
+        return with_uncertainty(scenario, plan)
+    return replace(plan, control=control_design(plan, scenario.flow_range_m3_h))
 
 
 def with_uncertainty(scenario: Scenario, plan: Plan) -> Plan:
     """The plan with its sampled uncertainty and, for a batch at risk, a staged dose."""
     if not plan.dose_needed or "effluent" not in scenario.data:
         return plan
+    plan = _sampled(scenario, plan)
+    return replace(plan, control=control_design(plan, scenario.flow_range_m3_h))
+
+
+def _sampled(scenario: Scenario, plan: Plan) -> Plan:
     spread = scenario.spread
     inputs = dict(water_inputs(scenario.data), calcite=plan.water.calcite)
     unc = dose_uncertainty(inputs, plan, spread)
@@ -220,6 +228,7 @@ def sheet_dict(scenario: Scenario, plan: Plan) -> dict[str, Any]:
             for p in plan.precision],
         "uncertainty": _uncertainty_dict(plan),
         "staging": _staging_dict(plan),
+        "control": _control_dict(plan),
         "cost" + sfx: cost,
         "water": {
             "temperature_c": w.temperature_c,
@@ -445,6 +454,11 @@ def render_sheet(scenario: Scenario, plan: Plan, units: str = "metric",
     else:
         out.append("DOSE  none needed")
     _table(out, dose_lines(scenario, plan, units), width)
+    control_rows = control_lines(plan, units)
+    if control_rows:
+        out.append("")
+        out.append("CONTROL (continuous stream)")
+        _table(out, control_rows, width)
     stage_rows = staging_lines(plan, units)
     if stage_rows:
         out.append("")
@@ -536,6 +550,27 @@ def _uncertainty_dict(plan: Plan) -> dict[str, Any] | None:
     return out
 
 
+def _control_dict(plan: Plan) -> dict[str, Any] | None:
+    c = plan.control
+    if c is None:
+        return None
+    kg = plan.reagent.kg_product_per_mol
+    litres = plan.reagent.litres_product_per_mol
+    return {"gain_ph_per_percent": c.gain_ph_per_percent,
+            "accuracy_needed": c.accuracy_needed,
+            "rate_mol_per_h": [c.rate_low_mol_h, c.rate_high_mol_h],
+            "rate_kg_product_per_h": (None if kg is None else
+                                      [c.rate_low_mol_h * kg, c.rate_high_mol_h * kg]),
+            "rate_litres_product_per_h": (None if litres is None else
+                                          [c.rate_low_mol_h * litres,
+                                           c.rate_high_mol_h * litres]),
+            "turndown": c.turndown, "flow_range_m3_per_h": list(c.flow_range_m3_h),
+            "flow_range_given": c.flow_range_given, "note": c.note,
+            "stages": [{"share": st.share, "residence_min": st.residence_min,
+                        "volume_m3": st.volume_m3, "turnover_min": st.turnover_min}
+                       for st in c.stages]}
+
+
 def _staging_dict(plan: Plan) -> dict[str, Any] | None:
     st = plan.staging
     if st is None:
@@ -566,6 +601,36 @@ def uncertainty_lines(plan: Plan, units: str = "metric") -> list[tuple[str, str]
              f"{prod(unc.p95_mol_l)} (5th to 95th percentile), median "
              f"{prod(unc.p50_mol_l)}; {risk}"),
             ("spread", unc.words())]
+
+
+def control_lines(plan: Plan, units: str = "metric") -> list[tuple[str, str]]:
+    """The control design of a flow plan as (label, value) rows."""
+    c = plan.control
+    if c is None:
+        return []
+    u = UNIT_SYSTEMS[units]
+
+    def rate(mol_h):
+        a = plan.amounts(mol_h / plan.basis.litres)
+        return product_text(a.kg_product, a.litres_product, units).replace(" kg", " kg/h") \
+            .replace(" L", " L/h").replace(" lb", " lb/h").replace(" gal", " gal/h")
+    flows = (f"flow {fmt(c.flow_range_m3_h[0] * u.flow_per_m3_h)} to "
+             f"{fmt(c.flow_range_m3_h[1] * u.flow_per_m3_h)} {u.flow}" if c.flow_range_given
+             else "the stated flow only (give flow.m3_per_h_min and _max for its range)")
+    rows = [("process gain", f"pH moves {fmt(c.gain_ph_per_percent, 2)} per 1 % change of "
+             "reagent rate at the aim"),
+            ("accuracy", f"the window allows a {c.accuracy_needed:.2%} error in the reagent "
+             "rate"),
+            ("pump range", f"{rate(c.rate_low_mol_h)} to {rate(c.rate_high_mol_h)} "
+             f"(turndown {fmt(c.turndown, 2)}:1) over {flows} and the 5th-95th percentile "
+             "dose; replay of logged data gives the measured range"),
+            ("stages", c.note)]
+    for i, st in enumerate(c.stages, start=1):
+        rows.append((f"stage {i}", f"{st.share:.0%} of the reagent; tank about "
+                     f"{fmt(st.volume_m3 * u.water_volume_per_m3)} {u.water_volume} "
+                     f"({st.residence_min:g} min at the flow), agitator turnover under "
+                     f"{st.turnover_min:g} min"))
+    return rows
 
 
 def staging_lines(plan: Plan, units: str = "metric") -> list[str]:
