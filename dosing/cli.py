@@ -47,6 +47,8 @@ def _parser() -> argparse.ArgumentParser:
     p.add_argument("scenario", help="scenario file (TOML)")
     p.add_argument("--json", action="store_true", help="print the plan as JSON")
     p.add_argument("--plot", metavar="FILE.png", help="write the titration curve as PNG")
+    p.add_argument("--db", metavar="PATH", help="compare with the shift log's record of "
+                   "this tank (how far its doses ran from plan); read only")
     p.add_argument("--units", choices=("metric", "us"), default="metric",
                    help="units of the dose sheet (default metric)")
     sub.add_parser("reagents", help="list the reagent catalogue")
@@ -121,6 +123,8 @@ def _cmd_plan(args) -> int:
                             "file name ending in .png")
     scenario = load_scenario(args.scenario)
     plan = make_plan(scenario)
+    if args.db:
+        plan = _with_log_bias(args.db, scenario, plan)
     png = None
     if args.plot:
         from .plot import plan_figure_png
@@ -131,6 +135,23 @@ def _cmd_plan(args) -> int:
         write_atomic(args.plot, png)
     sys.stdout.write(text)
     return 0
+
+
+def _with_log_bias(db: str, scenario, plan):
+    """The plan with what the shift log says about the scenario's tank."""
+    from dataclasses import replace
+    from .shiftlog import BIAS_MIN_ENTRIES, ShiftLog
+    tank = scenario.tank
+    with ShiftLog(db, writable=False) as log:
+        tanks = log.tanks()
+        if not tank or tank not in tanks:
+            raise ScenarioError(db, "", f"no entries for tank {tank!r} (the scenario's "
+                                "tank); tanks in this log: " + (", ".join(tanks) or "none"))
+        bias = log.bias(tank)
+    note = "" if bias else (f"fewer than {BIAS_MIN_ENTRIES} decisions on {tank} with the "
+                            "product given and a pH after inside the window: no estimate "
+                            "of the model's bias yet")
+    return replace(plan, log_bias=bias, log_note=note)
 
 
 def _cmd_reagents(_args) -> int:

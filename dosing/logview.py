@@ -31,6 +31,10 @@ def render_list(log: ShiftLog, *, since_utc: str | None = None, tank: str | None
         lines.append("(no entries)")
     if log.unreadable:
         lines.append(unreadable_line(log).rstrip("\n"))
+    for name in ([tank] if tank else log.tanks()):
+        b = log.bias(name)
+        if b is not None:
+            lines.append(("!! " if b.due else "") + b.words())
     lines.append("")
     lines.append(GENERAL_CAUTION)
     return "\n".join(lines) + "\n"

@@ -189,6 +189,8 @@ class Plan:
     uncertainty: Any = None               #: DoseUncertainty: the plausible waters' doses
     staging: Any = None                   #: Staging: first dose and trim table (batch)
     control: Any = None                   #: ControlDesign: gain, pump range, stages (flow)
+    log_bias: Any = None                  #: shiftlog.Bias of this tank, when a log was given
+    log_note: str = ""                    #: what the shift log said about this tank
 
     def amounts(self, dose_mol_l: float | None = None) -> Amounts:
         """A dose (default: the planned one) in operator units."""

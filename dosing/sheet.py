@@ -229,6 +229,12 @@ def sheet_dict(scenario: Scenario, plan: Plan) -> dict[str, Any]:
         "uncertainty": _uncertainty_dict(plan),
         "staging": _staging_dict(plan),
         "control": _control_dict(plan),
+        "log_bias": (None if plan.log_bias is None else {
+            "tank": plan.log_bias.tank, "entries": plan.log_bias.entries,
+            "mean_ratio": plan.log_bias.mean_ratio, "sd_ratio": plan.log_bias.sd_ratio,
+            "bench_titration_due": plan.log_bias.due,
+            "offered_dose": _amount_dict(plan, plan.dose_mol_l * plan.log_bias.mean_ratio),
+            "applied": False}),
         "cost" + sfx: cost,
         "water": {
             "temperature_c": w.temperature_c,
@@ -454,6 +460,12 @@ def render_sheet(scenario: Scenario, plan: Plan, units: str = "metric",
     else:
         out.append("DOSE  none needed")
     _table(out, dose_lines(scenario, plan, units), width)
+    log_rows = log_lines(plan, units)
+    if log_rows:
+        out.append("")
+        out.append("SHIFT LOG")
+        for line in log_rows:
+            out.extend(_wrap(line, width, "  "))
     control_rows = control_lines(plan, units)
     if control_rows:
         out.append("")
@@ -601,6 +613,18 @@ def uncertainty_lines(plan: Plan, units: str = "metric") -> list[tuple[str, str]
              f"{prod(unc.p95_mol_l)} (5th to 95th percentile), median "
              f"{prod(unc.p50_mol_l)}; {risk}"),
             ("spread", unc.words())]
+
+
+def log_lines(plan: Plan, units: str = "metric") -> list[str]:
+    """What the shift log says about this tank, with the correction offered (never applied)."""
+    if plan.log_bias is None:
+        return [plan.log_note] if plan.log_note else []
+    b = plan.log_bias
+    a = plan.amounts(plan.dose_mol_l * b.mean_ratio)
+    return [b.words() + ".",
+            f"Offered, not applied: with that bias the dose would be "
+            f"{product_text(a.kg_product, a.litres_product, units)} {_per(plan)}. The plan "
+            "above is the model's; decide with the engineer which to dose."]
 
 
 def control_lines(plan: Plan, units: str = "metric") -> list[tuple[str, str]]:

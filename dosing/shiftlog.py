@@ -32,7 +32,13 @@ from typing import Any, Iterator
 from .errors import InputError, ShiftLogError
 
 __all__ = ["ShiftLogError", "Entry", "ShiftLog", "default_log_path", "SCHEMA_VERSION",
-           "MIGRATIONS", "ENV_VAR", "parse_since"]
+           "MIGRATIONS", "ENV_VAR", "parse_since", "Bias", "BIAS_MIN_ENTRIES"]
+
+#: Fewest usable decisions on a tank before its bias is estimated (common practice:
+#: fewer say more about chance than about the model).
+BIAS_MIN_ENTRIES = 5
+#: A bias this large (either way) makes a bench titration due (common practice).
+BIAS_DUE = 0.10
 
 #: Environment variable that overrides the default log location.
 ENV_VAR = "DOSING_LOG_DB"
@@ -134,6 +140,29 @@ class Entry:
     def plan(self) -> dict[str, Any] | None:
         """The stored plan JSON as data."""
         return None if self.plan_json is None else json.loads(self.plan_json)
+
+
+@dataclass(frozen=True)
+class Bias:
+    """How far the dose actually needed on a tank runs from the dose planned."""
+
+    tank: str
+    entries: int                 #: decisions used
+    mean_ratio: float            #: dose given over dose planned, mean [-]
+    sd_ratio: float              #: its standard deviation [-]
+
+    @property
+    def due(self) -> bool:
+        """Whether a bench titration is due (the model misses by 10 % or more)."""
+        return abs(self.mean_ratio - 1.0) >= BIAS_DUE
+
+    def words(self) -> str:
+        """The bias in one sentence an operator reads."""
+        more = self.mean_ratio - 1.0
+        way = "more" if more >= 0 else "less"
+        return (f"on {self.tank} the last {self.entries} decisions that landed in the window "
+                f"needed {abs(more):.0%} ± {self.sd_ratio:.0%} {way} product than planned"
+                + ("; a bench titration is due" if self.due else ""))
 
 
 _COLUMNS = ("id", "kind", "utc", "operator", "site", "tank", "title", "reagent",
@@ -459,6 +488,38 @@ class ShiftLog:
                 raise
             rows = []                           # damaged log: its own reading only
         return rows[0][0] if rows else entry.ph_after
+
+    def bias(self, tank: str, last: int = 24) -> Bias | None:
+        """The model's bias on ``tank`` from its last ``last`` usable decisions.
+
+        Usable: a decision or correction that nothing later corrects, with
+        the product actually given and a pH after (its own or a follow-up)
+        inside the plan's window, so what was given is what the tank needed.
+        None with fewer than :data:`BIAS_MIN_ENTRIES`.
+        """
+        everything = list(self.entries(tank=tank))
+        corrected = {e.refers_to for e in everything if e.kind == "correction"}
+        ratios = []
+        for e in reversed(everything):
+            if e.kind == "follow_up" or e.id in corrected or not e.planned_kg \
+                    or e.dosed_kg is None:
+                continue
+            ph = self.latest_ph(e)
+            window = (e.plan or {}).get("target") or {}
+            if ph is None or not window.get("ph_min", -1) <= ph <= window.get("ph_max", 15):
+                continue
+            ratios.append(e.dosed_kg / e.planned_kg)
+            if len(ratios) == last:
+                break
+        if len(ratios) < BIAS_MIN_ENTRIES:
+            return None
+        import statistics
+        return Bias(tank, len(ratios), statistics.fmean(ratios), statistics.stdev(ratios))
+
+    def tanks(self) -> list[str]:
+        """The tanks named in the log."""
+        return [r[0] for r in self._rows("SELECT DISTINCT tank FROM entries WHERE tank != '' "
+                                         "ORDER BY tank")]
 
     def frame(self, *, since_utc: str | None = None, tank: str | None = None):
         """The log as a pandas DataFrame (one row per entry, plan JSON kept)."""
