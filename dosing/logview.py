@@ -68,6 +68,7 @@ def render_entry(log: ShiftLog, e: Entry) -> str:
                    f" ({_n(dose.get('mmol_per_l'))} mmol/L), pH {_n(e.ph_start)} to "
                    f"{_n(e.ph_planned)}")
         out.extend(_solid_lines(plan, per))
+        out.extend(_staging_lines(plan))
     if e.dosed_kg is not None:
         out.append(f"  actually dosed: {_n(e.dosed_kg)} kg"
                    + (f" ({fmt(e.dosed_ratio)} of plan)" if e.dosed_ratio else ""))
@@ -88,6 +89,22 @@ def render_entry(log: ShiftLog, e: Entry) -> str:
         for c in plan.get("cautions", []):
             out.append(f"  - {c}")
     return "\n".join(out) + "\n"
+
+
+def _staging_lines(plan: dict) -> list[str]:
+    """The staged dose and trim table recorded with the plan (the pH readings
+    actually taken follow as follow-ups)."""
+    st = plan.get("staging")
+    if not st:
+        return []
+    first = st["first"]
+    out = [f"  staged: first dose {_n(first.get('kg_product'))} kg, then by the pH read "
+           f"(lands in the window in {st['p_inside_window_after_trim']:.0%} of plausible "
+           "waters):"]
+    rows = [f"pH {r['ph_read']:.1f} +{_n(r.get('extra_kg_product'))} kg"
+            for r in st["trim"] if not r["at_or_past_aim"]]
+    out.append("    " + "; ".join(rows))
+    return out
 
 
 def _solid_lines(plan: dict, per: str) -> list[str]:
