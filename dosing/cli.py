@@ -75,6 +75,10 @@ def _parser() -> argparse.ArgumentParser:
                    "(default: window 6-9, per m3, the titrant's catalogue product)")
     t.add_argument("--unknown-acid", choices=("auto", "yes", "no"), default="auto",
                    help="fit an unidentified weak acid too (default: when it helps)")
+    t.add_argument("--fit", choices=("auto", "simple", "spectrum"), default="auto",
+                   help="model of the sample: carbonate and at most one unlisted acid "
+                        "(simple), a buffer spectrum of many sites (spectrum), or the "
+                        "simple one while it explains the curve (default)")
     t.add_argument("--drop", type=int, action="append", default=[], metavar="ROW",
                    help="leave out this file row (a known misread); repeatable")
     t.add_argument("--json", action="store_true")
@@ -168,8 +172,8 @@ def _cmd_reagents(_args) -> int:
 
 
 def _cmd_solutes(_args) -> int:
-    from .species import SYSTEMS
-    for s in SYSTEMS:
+    from .species import SITE_IDS, SYSTEMS
+    for s in (x for x in SYSTEMS if x.id not in SITE_IDS):
         pks = ", ".join(f"{p:g}" for p in s.pka25)
         sys.stdout.write(f"{s.id:<10} {s.name:<32} pKa {pks:<20} mg/L as {s.basis}\n")
     return 0
@@ -263,7 +267,7 @@ def _cmd_titration(args) -> int:
     scenario = (load_scenario(args.scenario) if args.scenario
                 else _default_titration_scenario(titrant))
     try:
-        report = compare(curve, scenario, unknown_acid=args.unknown_acid)
+        report = compare(curve, scenario, unknown_acid=args.unknown_acid, fit_mode=args.fit)
     except (InputError, UnreachableError) as err:
         key = getattr(err, "field", "")
         if key.startswith("--"):

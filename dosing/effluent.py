@@ -47,7 +47,7 @@ from .equilibrium import (CARBONATE, METAL_COLUMNS, N_ACIDS, N_SYSTEMS, Mixture,
                           strong_balance_at_ph, system_index)
 from .errors import InputError, ModelError
 from .metals import METAL_IDS, get_metal
-from .species import MOLAR_MASS, SYSTEM_IDS, get_system
+from .species import MOLAR_MASS, SOLUTE_IDS, SYSTEM_IDS, get_system
 from .water import check_temperature
 
 __all__ = ["CACO3_MG_PER_MEQ", "ALKALINITY_ENDPOINT_PH", "ACIDITY_ENDPOINT_PH",
@@ -173,6 +173,9 @@ class Water:
         in minutes.
     depth_m : float
         Depth of the open water, which sets how fast CO2 exchanges [m].
+    site_pka : tuple of float
+        pKa of each fitted buffer site (totals ``site_1`` ... in
+        ``totals_mol_l``), from a many-buffer titration fit [-].
     calcite : {"auto", "precipitates", "dissolved"}
         Whether the dosed water drops calcite: "auto" lets the plan decide
         from how supersaturated the dose leaves it (see
@@ -199,6 +202,7 @@ class Water:
     hours_in_air: float = 0.0
     depth_m: float = DEFAULT_DEPTH_M
     calcite: str = "auto"
+    site_pka: tuple[float, ...] = ()
 
     @property
     def air_fraction(self) -> float:
@@ -227,7 +231,11 @@ class Water:
         mix = Mixture.build(aerate(vec) if self.ferrous_oxidised else vec,
                             self.strong_eq_l, self.strong_ionic_strength,
                             self.temperature_c, co2, self.davies, self.unknown_pka)
-        return replace(mix, calcite=self.calcite == "precipitates")
+        sites = None
+        if self.site_pka:
+            sites = np.full((1, 8), np.nan)
+            sites[0, :len(self.site_pka)] = self.site_pka
+        return replace(mix, calcite=self.calcite == "precipitates", site_pka=sites)
 
     @property
     def tank_metals_mol_l(self) -> dict[str, float]:
@@ -298,9 +306,9 @@ def _collect_totals(solutes_mmol_l, solutes_mg_l):
                                  (solutes_mg_l, "solutes_mg_l", "mg")):
         for key, value in (table or {}).items():
             where = f"{name}.{key}"
-            if key not in SYSTEM_IDS:
+            if key not in SOLUTE_IDS:
                 raise InputError(where, "unknown solute; known solutes are "
-                                 + ", ".join(SYSTEM_IDS))
+                                 + ", ".join(SOLUTE_IDS))
             x = _check_number(where, value, 0.0)
             if key in totals:
                 raise InputError(where, "given both in mmol/L and in mg/L; "

@@ -52,11 +52,12 @@ import numpy as np
 from .activity import davies_log_gamma, debye_huckel_a
 from .errors import ModelError
 from .metals import METALS, METAL_IDS
-from .species import SYSTEMS, SYSTEM_IDS
+from .species import SITE_IDS, SYSTEMS, SYSTEM_IDS
 from .water import calcite_pksp, carbonate_pk, henry_co2, pkw, vant_hoff_pk
 
 __all__ = [
-    "N_SYSTEMS", "N_ACIDS", "COLUMN_IDS", "METAL_COLUMNS", "CARBONATE", "system_index", "Mixture", "Speciation",
+    "N_SYSTEMS", "N_ACIDS", "COLUMN_IDS", "METAL_COLUMNS", "CARBONATE", "SITE_COLUMNS",
+    "system_index", "Mixture", "Speciation",
     "constants_at", "speciate", "charge_residual", "solve_ph",
     "strong_balance_at_ph", "carbonate_for_alkalinity", "dose_to_ph",
     "ReagentVector", "add_dose", "co2_in_air_mol_l",
@@ -72,6 +73,8 @@ _MAXSTEP = 4
 CARBONATE = SYSTEM_IDS.index("carbonate")
 CALCIUM = COLUMN_IDS.index("calcium")
 UNKNOWN = SYSTEM_IDS.index("unknown")
+#: Columns of the fitted buffer sites (pKa set per mixture, see Mixture.site_pka).
+SITE_COLUMNS = np.array([SYSTEM_IDS.index(i) for i in SITE_IDS])
 _LN10 = np.log(10.0)
 
 # Charge of each form (most protonated first), shape (m, 5). A metal's
@@ -174,6 +177,9 @@ class Mixture:
         Davies activity correction (True) or ideal solution (False).
     unknown_pka : ndarray (n,) or None
         pKa of the fitted unidentified acid (column ``unknown``) [-].
+    site_pka : ndarray (n, 8) or None
+        pKa of each fitted buffer site (columns :data:`SITE_COLUMNS`), NaN
+        for a site not used [-].
     calcite : bool
         Calcite (CaCO3) precipitates where the water is supersaturated with
         it (equilibrium); False (the default) keeps it dissolved, as a water
@@ -188,6 +194,7 @@ class Mixture:
     davies: bool = True
     unknown_pka: np.ndarray | None = None
     calcite: bool = False
+    site_pka: np.ndarray | None = None
 
     @classmethod
     def build(cls, totals_mol_l, strong_eq_l, strong_ionic_strength,
@@ -220,6 +227,16 @@ class Mixture:
             k[:, at[0], 0] = np.where(np.isfinite(self.unknown_pka),
                                       10.0 ** -np.nan_to_num(self.unknown_pka), k[:, at[0], 0])
             const = Constants(const.kw, k, const.a, const.log_ks0)
+        if self.site_pka is not None:
+            cols_all = np.arange(N_SYSTEMS) if cols is None else np.asarray(cols)
+            k = const.k.copy()
+            for j, col in enumerate(SITE_COLUMNS):
+                at = np.flatnonzero(cols_all == col)
+                if at.size:
+                    pk = self.site_pka[:, j]
+                    k[:, at[0], 0] = np.where(np.isfinite(pk), 10.0 ** -np.nan_to_num(pk),
+                                              k[:, at[0], 0])
+            const = Constants(const.kw, k, const.a, const.log_ks0)
         return const
 
     def take(self, idx) -> "Mixture":
@@ -229,7 +246,8 @@ class Mixture:
                        strong_ionic_strength=self.strong_ionic_strength[idx],
                        temperature_c=self.temperature_c[idx],
                        co2_air_mol_l=self.co2_air_mol_l[idx],
-                       unknown_pka=None if self.unknown_pka is None else self.unknown_pka[idx])
+                       unknown_pka=None if self.unknown_pka is None else self.unknown_pka[idx],
+                       site_pka=None if self.site_pka is None else self.site_pka[idx])
 
     @property
     def n(self) -> int:

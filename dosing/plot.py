@@ -210,10 +210,17 @@ def replay_figure_png(totals, report: dict, units: str = "metric") -> bytes:
 
 
 def titration_figure_png(curve, report: dict, title: str = "") -> bytes:
-    """PNG bytes: measured points, PCHIP interpolation, model curve, window, dose."""
-    direct, fit = report["_direct"], report["_fit"]
+    """PNG bytes: measured points, PCHIP interpolation, model curve, window, dose;
+    with a buffer spectrum fitted, its sites as bars over pKa below."""
+    direct = report["_direct"]
     plan = report["_plan"]
-    fig, ax = plt.subplots(figsize=(8.0, 5.4), dpi=110)
+    spec = report.get("_spectrum")
+    water = plan.water
+    if spec is not None:
+        fig, (ax, ax_s) = plt.subplots(2, 1, figsize=(8.0, 9.0), dpi=110,
+                                       gridspec_kw={"height_ratios": [3, 2]})
+    else:
+        fig, ax = plt.subplots(figsize=(8.0, 5.4), dpi=110)
     t = plan.target
     ax.axhspan(t.ph_min, t.ph_max, color="tab:green", alpha=0.13,
                label=f"window pH {t.ph_min:g}-{t.ph_max:g}")
@@ -223,11 +230,13 @@ def titration_figure_png(curve, report: dict, title: str = "") -> bytes:
     ax.plot(ml, ph_grid, color="0.4", lw=1.2, label="interpolation (PCHIP)")
     v = np.linspace(0, curve.added_ml[-1], 300)
     from .equilibrium import add_dose, solve_ph
-    from .plan import _repeat
-    mix = _repeat(fit.water.mixture(), v.size)
+    mix = water.mixture().take(np.zeros(v.size, dtype=int))
     ph_model = solve_ph(add_dose(mix, curve.titrant.vector(),
                                  v * curve.titrant.molarity_mol_l / curve.sample_ml))
-    ax.plot(v, ph_model, color="tab:blue", lw=1.8, label="fitted water (model)")
+    used = report["model"].get("used", "simple")
+    ax.plot(v, ph_model, color="tab:blue", lw=1.8,
+            label="fitted water (" + ("buffer spectrum" if used == "spectrum" else "model")
+            + ")")
     ax.plot(curve.added_ml, curve.ph, "o", color="k", ms=4, label="measured")
     ax.axvline(direct.ml_at_aim, color="tab:red", ls=":", lw=1.0,
                label=f"{direct.ml_at_aim:.2f} mL to the aim")
@@ -236,4 +245,36 @@ def titration_figure_png(curve, report: dict, title: str = "") -> bytes:
     ax.grid(True, alpha=0.3)
     ax.legend(fontsize=8, loc="best")
     ax.set_title(title or "Bench titration", fontsize=11)
+    if spec is not None:
+        _spectrum_panel(ax_s, spec)
     return _png(fig)
+
+
+def _spectrum_panel(ax, spec) -> None:
+    """The fitted buffer sites as bars over pKa, regions named, titrated range shaded."""
+    lo, hi = spec.ph_range
+    ax.axvspan(lo, hi, color="0.85", alpha=0.5, label="titrated pH range")
+    ax.bar(spec.site_pka, spec.site_mol_l * 1000, width=0.16, color="tab:purple",
+           label="fitted site")
+    if spec.carbonate_mol_l > 0:
+        from .water import carbonate_pk
+        pk1, pk2 = (float(x) for x in carbonate_pk(spec.water.temperature_c))
+        ax.bar([pk1], [spec.carbonate_mol_l * 1000], width=0.16, color="tab:orange",
+               label=f"carbonate (pK {pk1:.2f}, {pk2:.2f})")
+    bars = spec.site_mol_l * 1000
+    ymax = float(bars.max(initial=0.0)) or 1.0
+    for r in spec.regions:
+        if r.edge:
+            continue
+        near = bars[np.abs(spec.site_pka - r.pka) <= 0.5]
+        y = float(near.max(initial=0.0)) + 0.04 * ymax
+        ax.annotate(f"{r.mmol_l:.2g} mmol/L" + (f"\n{r.guess}?" if r.guess else ""),
+                    (r.pka, y), ha="center", va="bottom", fontsize=7)
+    ax.set_ylim(0, ymax * 1.35)
+    ax.set_xlim(2.0, 12.2)
+    ax.set_xlabel("pKa")
+    ax.set_ylabel("site total, mmol/L")
+    ax.grid(True, alpha=0.3)
+    ax.legend(fontsize=8, loc="upper right")
+    ax.set_title(f"Buffer spectrum fitted to the curve (pH misfit {spec.rms_ph:.3f} RMS; "
+                 "names are guesses from the pKa alone)", fontsize=9)

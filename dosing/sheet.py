@@ -440,7 +440,7 @@ def render_sheet(scenario: Scenario, plan: Plan, units: str = "metric",
     if "acidity_mg_l_as_caco3" in eff:
         measured.append(f"acidity {eff['acidity_mg_l_as_caco3']:g} mg/L as CaCO3")
     out.append(f"water    {amount}; {', '.join(measured)}")
-    solutes = ", ".join(f"{k.replace('_', ' ')} {fmt(v * 1000, floor=1e-4)}"
+    solutes = ", ".join(f"{_total_name(w, k)} {fmt(v * 1000, floor=1e-4)}"
                         for k, v in (w.totals_mol_l | w.metals_mol_l).items())
     if solutes:
         out.extend(_wrap(f"modelled totals, mmol/L: {solutes}", width, "         "))
@@ -722,6 +722,15 @@ def _precision_text(plan: Plan) -> str:
     return "dose change within the readings' usual precision: " + ", ".join(parts)
 
 
+def _total_name(w, key: str) -> str:
+    """A total's name on the sheet; a fitted site by its pKa."""
+    if key.startswith("site_") and w.site_pka:
+        i = int(key.split("_")[1]) - 1
+        if i < len(w.site_pka):
+            return f"site pKa {w.site_pka[i]:.1f}"
+    return key.replace("_", " ")
+
+
 def _air_line(a) -> str:
     """The CO2 assumption of an open tank, in one line for the water block."""
     if a.at_equilibrium:
@@ -769,13 +778,43 @@ def render_titration(scenario: Scenario, report: dict[str, Any], units: str = "m
     gap = report["gap_model_vs_direct"]
     if gap is not None:
         out.append(f"                the model is {gap:+.1%} against the direct scaling")
+    spec = report.get("spectrum")
+    if m.get("used") == "spectrum" and spec:
+        out.extend(_wrap(f"buffer spectrum strong-ion balance {fmt(spec['strong_ion_balance_meq_l'])} "
+                         f"meq/L, carbonate {fmt(spec['carbonate_mmol_l'], floor=1e-4)} mmol/L; "
+                         f"pH misfit {spec['rms_ph']:.3f} RMS (the simple fit misses by "
+                         f"{m['rms_ph']:.3f})", width, "                "))
+        for r in spec["regions"]:
+            out.extend(_wrap(r["words"], width, "                  - "))
+        out.extend(_spectrum_bars(spec["sites"]))
+        out = _titration_warnings(out, report, width)
+        out += ["", "PLAN WITH THE FITTED WATER", ""]
+        out.append(render_sheet(report["_scenario"], plan, units, width))
+        return "\n".join(out)
     out.append("fitted water    " + ", ".join(
         f"{FIT_LABELS[k][0]} {_plus_minus(v, m['stderr'][k], FIT_LABELS[k][1])}"
         for k, v in m["fitted"].items()) + f"; pH misfit {m['rms_ph']:.3f} RMS")
+    out = _titration_warnings(out, report, width)
+    out += ["", "PLAN WITH THE FITTED WATER", ""]
+    out.append(render_sheet(report["_scenario"], plan, units, width))
+    return "\n".join(out)
+
+
+def _spectrum_bars(sites: list[dict[str, float]], bar: int = 30) -> list[str]:
+    """The fitted sites as a text bar chart over pKa (for the sheet and the view)."""
+    if not sites:
+        return []
+    top = max(x["mmol_per_l"] for x in sites) or 1.0
+    out = ["", "buffer spectrum (fitted sites, mmol/L)"]
+    for x in sites:
+        n = max(1, round(bar * x["mmol_per_l"] / top))
+        out.append(f"  pKa {x['pka']:>4.1f}  {'█' * n:<{bar}}  {fmt(x['mmol_per_l'])}")
+    return out
+
+
+def _titration_warnings(out: list[str], report: dict[str, Any], width: int) -> list[str]:
     if report["warnings"]:
         out += ["", "TITRATION WARNINGS"]
         for w in report["warnings"]:
             out.extend(_wrap(w, width, "  ! "))
-    out += ["", "PLAN WITH THE FITTED WATER", ""]
-    out.append(render_sheet(report["_scenario"], plan, units, width))
-    return "\n".join(out)
+    return out

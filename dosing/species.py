@@ -181,10 +181,21 @@ SYSTEMS: tuple[AcidSystem, ...] = (
                "are fitted to a bench titration; the pKa of each water is set on "
                "its Mixture (7.0 is only a placeholder) and not moved with "
                "temperature."),
-)
+) + tuple(
+    AcidSystem(f"site_{k}", f"fitted buffer site {k}", "HX",
+               (7.0,), (0.0,), 0, "mmol", 1000.0,
+               "Not a published constant: one monoprotic site of a buffer spectrum "
+               "fitted to a bench titration; its pKa is set on each Mixture and not "
+               "moved with temperature. Internal: not accepted in a scenario.")
+    for k in range(1, 9))
+
+#: Ids of the fitted buffer sites (internal columns, never named in a scenario).
+SITE_IDS: tuple[str, ...] = tuple(f"site_{k}" for k in range(1, 9))
 
 #: Catalogue ids in the fixed order used by the vectorised engine.
 SYSTEM_IDS: tuple[str, ...] = tuple(s.id for s in SYSTEMS)
+#: The solutes a scenario may name (the fitted sites are internal).
+SOLUTE_IDS: tuple[str, ...] = tuple(i for i in SYSTEM_IDS if i not in SITE_IDS)
 _BY_ID = {s.id: s for s in SYSTEMS}
 
 

@@ -128,6 +128,22 @@ def parse_titrant(text: str) -> Titrant:
     return Titrant(c, molarity, f"{molarity:g} M {comp}")
 
 
+def _refuse_back_titration(q: np.ndarray, rows, titrant: Titrant, source: str) -> None:
+    """Refuse a curve whose pH turns and runs back for good: a second titrant.
+
+    ``q`` is the pH signed so that the titrant raises it. Three or more
+    readings in a row going back, by more than 0.5 pH in all, is not meter
+    noise or one misread.
+    """
+    top = int(np.argmax(q))
+    tail = q[top:]
+    if tail.size >= 4 and np.all(np.diff(tail) < 0) and q[top] - tail[-1] > 0.5:
+        raise InputError(source, f"the pH turns at row {rows[top]} and runs back "
+                         f"{q[top] - tail[-1]:.1f} pH over the last {tail.size - 1} readings "
+                         f"while {titrant.label} is added: a back titration with a second "
+                         "titrant is not taken. Give each titrant's curve in its own file")
+
+
 def _misread_suspects(q: np.ndarray, i: int) -> list[int]:
     """Which of points ``i`` and ``i + 1`` breaks the trend of ``q`` (rising).
 
@@ -188,6 +204,7 @@ def check_curve(sample_ml: float, titrant: Titrant, added_ml, ph, rows=None,
         raise InputError(source, f"{v[-1]:g} mL of titrant for a {sample_ml:g} mL "
                          "sample: the volumes look like the wrong unit; give mL")
     direction = 1.0 if titrant.compound.raises_ph else -1.0
+    _refuse_back_titration(p * direction, rows, titrant, source)
     dp = np.diff(p) * direction
     notes: list[str] = []
     if np.any(dp < -MISREAD_PH):
@@ -430,6 +447,19 @@ def _standard_errors(jac: np.ndarray, s2: float) -> tuple[list[float | None], fl
     return out, cond
 
 
+def _extrapolation_words(curve: BenchCurve, target: Target, spec) -> list[str]:
+    """A warning when the aim lies outside the titrated pH range."""
+    lo, hi = float(np.min(curve.ph)), float(np.max(curve.ph))
+    aim = target.ph_aim
+    if lo <= aim <= hi:
+        return []
+    away = lo - aim if aim < lo else aim - hi
+    what = ("the plan extrapolates the fitted buffer sites" if spec is not None
+            else "the plan extrapolates the fitted water")
+    return [f"the aim pH {aim:g} lies {away:.1f} pH outside the titrated range ({lo:.1f} "
+            f"to {hi:.1f}): {what}; titrate past the aim to check it"]
+
+
 def _ph_resid(x, curve, base, with_u):
     """Model pH at each measured volume (forward solves) minus measured."""
     _, mix = _model_ml(x, curve, base, with_u)
@@ -439,17 +469,46 @@ def _ph_resid(x, curve, base, with_u):
     return r, float(np.sqrt(np.mean(r * r)))
 
 
-def compare(curve: BenchCurve, scenario: Scenario, *, unknown_acid: str = "auto"
-            ) -> dict[str, Any]:
-    """Both methods for a scenario's reagent, window and tank, as plain data."""
+#: The simple fit is kept while it explains the curve this well [pH RMS]
+#: (three times a good bench meter's noise, 0.01, common practice).
+SIMPLE_FIT_ENOUGH = 0.03
+FIT_MODES = ("auto", "simple", "spectrum")
+
+
+def _choose_fit(curve: BenchCurve, base: Water, unknown_acid: str, mode: str):
+    """The simple fit, the buffer spectrum, and which one the plan uses."""
+    from .buffer_fit import fit_spectrum
+    if mode not in FIT_MODES:
+        raise InputError("--fit", f"{mode!r}; allowed: " + ", ".join(FIT_MODES))
+    simple = fit_water(curve, base, unknown_acid=unknown_acid)
+    if mode == "simple":
+        return simple, None, "simple"
+    spec = fit_spectrum(curve, base)
+    use = "spectrum" if mode == "spectrum" or (
+        simple.rms_ph > SIMPLE_FIT_ENOUGH and spec.rms_ph < 0.5 * simple.rms_ph) else "simple"
+    return simple, spec, use
+
+
+def compare(curve: BenchCurve, scenario: Scenario, *, unknown_acid: str = "auto",
+            fit_mode: str = "auto") -> dict[str, Any]:
+    """Both methods for a scenario's reagent, window and tank, as plain data.
+
+    The model water is the simple fit (carbonate, strong-ion balance, at most
+    one unlisted acid) while it explains the curve to about three times a
+    meter's noise; otherwise the buffer spectrum (:mod:`dosing.buffer_fit`).
+    ``fit_mode`` forces either.
+    """
     from .sheet import sheet_dict
     target, reagent, basis = scenario.target, scenario.reagent, scenario.basis
     direct = direct_scaling(curve, reagent, target)
-    fit = fit_water(curve, scenario.water, unknown_acid=unknown_acid)
-    plan = plan_dose(fit.water, reagent, target, basis, permit=scenario.permit)
-    eff = {"ph": round(fit.water.ph, 3), "temperature_c": fit.water.temperature_c}
-    fitted = replace(scenario, water=fit.water, data=dict(scenario.data, effluent=eff))
-    warnings = list(curve.notes) + list(direct.notes) + list(fit.warnings)
+    fit, spec, used = _choose_fit(curve, scenario.water, unknown_acid, fit_mode)
+    water = spec.water if used == "spectrum" else fit.water
+    plan = plan_dose(water, reagent, target, basis, permit=scenario.permit)
+    eff = {"ph": round(water.ph, 3), "temperature_c": water.temperature_c}
+    fitted = replace(scenario, water=water, data=dict(scenario.data, effluent=eff))
+    warnings = list(curve.notes) + list(direct.notes) + (
+        list(fit.warnings) if used == "simple" else [])
+    warnings += _extrapolation_words(curve, target, spec if used == "spectrum" else None)
     gap = None
     if direct.dose_mol_l and plan.dose_mol_l:
         gap = (plan.dose_mol_l - direct.dose_mol_l) / direct.dose_mol_l
@@ -475,9 +534,18 @@ def compare(curve: BenchCurve, scenario: Scenario, *, unknown_acid: str = "auto"
         "model": {"fitted": fit.params, "stderr": fit.stderr, "rms_ph": fit.rms_ph,
                   "unknown_acid": fit.unknown_acid,
                   "residual_ml": [float(r) for r in fit.residual_ml],
-                  "plan": sheet_dict(fitted, plan)},
+                  "used": used, "plan": sheet_dict(fitted, plan)},
+        "spectrum": None if spec is None else {
+            "rms_ph": spec.rms_ph, "strong_ion_balance_meq_l": spec.strong_eq_l * 1000,
+            "carbonate_mmol_l": spec.carbonate_mol_l * 1000,
+            "titrated_ph_range": list(spec.ph_range),
+            "sites": [{"pka": float(p), "mmol_per_l": float(c) * 1000}
+                      for p, c in zip(spec.site_pka, spec.site_mol_l)],
+            "regions": [{"pka": r.pka, "mmol_per_l": r.mmol_l, "sd_mmol_per_l": r.sd_mmol_l,
+                         "guess": r.guess, "at_edge": r.edge, "words": r.words()}
+                        for r in spec.regions]},
         "gap_model_vs_direct": gap,
         "warnings": warnings,
         "cautions": list(plan.cautions),
-        "_plan": plan, "_direct": direct, "_fit": fit, "_scenario": fitted,
+        "_plan": plan, "_direct": direct, "_fit": fit, "_scenario": fitted, "_spectrum": spec,
     }
