@@ -39,7 +39,7 @@ from .solids import (METAL_PERMIT_KEYS, CapWindow, Solid, cap_window, metals_aft
                      metals_present_mol_l, solids_after)
 from .water import henry_co2
 
-__all__ = ["AirExchange", "CalciteCase", "CALCITE_SI_FAST", "Target", "Batch", "Flow", "Amounts", "TitrationCurve", "Plan",
+__all__ = ["permit_breaches", "AirExchange", "CalciteCase", "CALCITE_SI_FAST", "Target", "Batch", "Flow", "Amounts", "TitrationCurve", "Plan",
            "plan_dose", "titration_curve", "METERING_ERROR"]
 
 #: Relative metering error used for the sensitivity check (common practice:
@@ -445,10 +445,18 @@ def _sensitivity(mix: Mixture, reagent: Reagent, aim: float, dose: float,
     return slope, ph_lo, ph_hi
 
 
+def permit_breaches(plan: Plan) -> tuple[str, ...]:
+    """The permit checks the plan fails (ions and metals), as their messages."""
+    return tuple(c.message for c in plan.checks
+                 if c.id.startswith("permit-") and c.level == "danger")
+
+
 def plan_warnings(plan: Plan, notes: tuple[str, ...]) -> tuple[str, ...]:
     """The words that go with the numbers of a plan (one place for the prose)."""
     target, water, dose = plan.target, plan.water, plan.dose_mol_l
-    warnings: list[str] = list(water.notes) + list(notes)
+    # A plan that breaks the permit says so first, in every record of it.
+    warnings: list[str] = [f"PERMIT BREACH: {m}" for m in permit_breaches(plan)]
+    warnings += list(water.notes) + list(notes)
     near, far = plan.band_mol_l
     if plan.dose_needed:
         ph_lo, ph_hi = plan.ph_low_dose, plan.ph_high_dose

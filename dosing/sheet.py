@@ -18,7 +18,7 @@ from typing import Any
 from . import __version__
 from .effluent import CACO3_MG_PER_MEQ
 from .numbers import fmt
-from .plan import METERING_ERROR, Batch, Flow, Plan, plan_dose
+from .plan import METERING_ERROR, Batch, Flow, Plan, permit_breaches, plan_dose
 from .metals import HARDNESS
 from .solids import Sludge, sludge_of
 from .errors import InputError, ModelError, ScenarioError, UnreachableError
@@ -59,15 +59,25 @@ UNIT_SYSTEMS = {
 
 
 def product_text(kg: float | None, litres: float | None, units: str = "metric",
-                 digits: int = 3) -> str:
-    """An amount of product as "16.8 kg = 11.0 L" in the unit system."""
+                 digits: int = 3, *, per_hour: bool = False) -> str:
+    """An amount of product as "16.8 kg = 11.0 L" in the unit system
+    ("16.8 kg/h = 11.0 L/h" with ``per_hour``: a flow's amounts carry their
+    time base everywhere)."""
     u = UNIT_SYSTEMS[units]
+    h = "/h" if per_hour else ""
     parts = []
     if kg is not None:
-        parts.append(f"{fmt(kg * u.mass_per_kg, digits)} {u.mass}")
+        parts.append(f"{fmt(kg * u.mass_per_kg, digits)} {u.mass}{h}")
     if litres is not None:
-        parts.append(f"{fmt(litres * u.product_volume_per_l, digits)} {u.product_volume}")
+        parts.append(f"{fmt(litres * u.product_volume_per_l, digits)} {u.product_volume}{h}")
     return " = ".join(parts) if parts else "n/a"
+
+
+def plan_amount(plan: Plan, mol_l: float, units: str = "metric", digits: int = 3) -> str:
+    """A dose of this plan in product units, per hour for a flow."""
+    a = plan.amounts(mol_l)
+    return product_text(a.kg_product, a.litres_product, units, digits,
+                        per_hour=isinstance(plan.basis, Flow))
 
 
 def make_plan(scenario: Scenario, *, sampled: bool = True) -> Plan:
@@ -340,11 +350,12 @@ def dose_lines(scenario: Scenario, plan: Plan, units: str = "metric") -> list[tu
     rows: list[tuple[str, str]] = []
 
     def product(am, digits: int = 3) -> str:
-        return product_text(am.kg_product, am.litres_product, units, digits)
+        return product_text(am.kg_product, am.litres_product, units, digits, per_hour=flow)
 
     rows.append((f"product {per}", product(a)))
     rows.append(("active compound",
-                 f"{fmt(a.kg_active * u.mass_per_kg)} {u.mass} {plan.reagent.compound.formula}"
+                 f"{fmt(a.kg_active * u.mass_per_kg)} {u.mass}{'/h' if flow else ''} "
+                 f"{plan.reagent.compound.formula}"
                  f" ({fmt(a.mmol_per_l)} mmol/L"
                  + (f", {fmt(a.mg_per_l_product)} mg/L of product)" if a.mg_per_l_product
                     is not None else ")")))
@@ -358,7 +369,10 @@ def dose_lines(scenario: Scenario, plan: Plan, units: str = "metric") -> list[tu
     if supply["days_of_supply"] is not None:
         rows.append(("storage lasts", f"{fmt(supply['days_of_supply'])} days"))
     if supply["batches_of_supply"] is not None:
-        rows.append(("storage lasts", f"{fmt(supply['batches_of_supply'])} batches"))
+        n = supply["batches_of_supply"]
+        rows.append(("storage lasts", f"{fmt(n)} batches" + (
+            " - !! LESS THAN ONE BATCH: the store cannot hold this dose; order more "
+            "before starting" if n < 1 else "")))
     lo, hi = plan.band_mol_l
     # A narrow band gets the digits it needs for its two ends to differ.
     digits = 3
@@ -418,17 +432,12 @@ def _table(out: list[str], rows: list[tuple[str, str]], width: int) -> None:
         out.extend(" " * (label_w + 4) + r.strip() for r in rest)
 
 
-def render_sheet(scenario: Scenario, plan: Plan, units: str = "metric",
-                 width: int = 78) -> str:
-    """The operator's dose sheet as plain text."""
+def water_lines(scenario: Scenario, plan: Plan, units: str = "metric",
+                width: int = 78) -> list[str]:
+    """The water as measured and modelled, the reagent and the target (for the engineer)."""
+    out: list[str] = []
     u = UNIT_SYSTEMS[units]
     w = plan.water
-    out: list[str] = []
-    head = f"DOSE SHEET  {scenario.title}"
-    out.append(head)
-    if scenario.site or scenario.tank:
-        out.append("  " + " / ".join(x for x in (scenario.site, scenario.tank) if x))
-    out.append("=" * min(width, max(len(head), 40)))
     if isinstance(plan.basis, Batch):
         amount = f"batch of {fmt(plan.basis.volume_m3 * u.water_volume_per_m3)} {u.water_volume}"
     else:
@@ -444,9 +453,9 @@ def render_sheet(scenario: Scenario, plan: Plan, units: str = "metric",
                         for k, v in (w.totals_mol_l | w.metals_mol_l).items())
     if solutes:
         out.extend(_wrap(f"modelled totals, mmol/L: {solutes}", width, "         "))
-    out.append(f"         strong-ion balance {fmt(w.strong_eq_l * 1000)} meq/L, ionic strength "
-               f"{fmt(w.ionic_strength, floor=1e-4)} mol/L, {'Davies' if w.davies else 'ideal'} activity"
-               )
+    out.extend(_wrap(f"strong-ion balance {fmt(w.strong_eq_l * 1000)} meq/L, ionic strength "
+                     f"{fmt(w.ionic_strength, floor=1e-4)} mol/L, "
+                     f"{'Davies' if w.davies else 'ideal'} activity", width, "         "))
     if plan.air is not None:
         out.extend(_wrap(_air_line(plan.air), width, "         "))
     dens = (f", {plan.reagent.density_kg_l:.4g} kg/L at 20 °C" if plan.reagent.density_kg_l
@@ -454,6 +463,34 @@ def render_sheet(scenario: Scenario, plan: Plan, units: str = "metric",
     out.append(f"reagent  {plan.reagent.name} [{plan.reagent.id}]{dens}")
     out.append(f"target   pH {plan.target.ph_min:g} to {plan.target.ph_max:g}, "
                f"aim {plan.target.ph_aim:g}")
+    return out
+
+
+def headline(scenario: Scenario, plan: Plan, units: str = "metric") -> str:
+    """The one line an operator reads first: how much of what, where, to what pH."""
+    where = f" into {scenario.tank}" if scenario.tank else ""
+    if not plan.dose_needed:
+        return (f"NO DOSE NEEDED{where}: pH {plan.ph_start:.2f} is inside the window "
+                f"{plan.target.ph_min:g} to {plan.target.ph_max:g}")
+    per = "" if isinstance(plan.basis, Flow) else f" {_per(plan)}"
+    return (f"DOSE {plan_amount(plan, plan.dose_mol_l, units)} of {plan.reagent.name}"
+            f"{per}{where}: pH {plan.ph_start:.2f} to {plan.ph_end:.2f} "
+            f"(window {plan.target.ph_min:g} to {plan.target.ph_max:g})")
+
+
+def render_sheet(scenario: Scenario, plan: Plan, units: str = "metric",
+                 width: int = 78) -> str:
+    """The operator's dose sheet as plain text: the dose first, then how to
+    dose it, then the chemistry for the engineer, then the cautions."""
+    out: list[str] = []
+    head = f"DOSE SHEET  {scenario.title}"
+    out.append(head)
+    if scenario.site or scenario.tank:
+        out.append("  " + " / ".join(x for x in (scenario.site, scenario.tank) if x))
+    out.append("=" * min(width, max(len(head), 40)))
+    out.extend(_wrap(headline(scenario, plan, units), width, ""))
+    for breach in permit_breaches(plan):
+        out.extend(_wrap(f"!! PERMIT BREACH: {breach}", width, ""))
     out.append("")
     if plan.dose_needed:
         out.append("DOSE")
@@ -477,6 +514,9 @@ def render_sheet(scenario: Scenario, plan: Plan, units: str = "metric",
         out.append("STAGED DOSE")
         for line in stage_rows:
             out.extend(_wrap(line, width, "  ") if not line.startswith("   ") else [line])
+    out.append("")
+    out.append("WATER AND MODEL")
+    out.extend(water_lines(scenario, plan, units, width))
     metal_rows = metal_lines(scenario, plan, units)
     if metal_rows:
         out.append("")
@@ -604,8 +644,7 @@ def uncertainty_lines(plan: Plan, units: str = "metric") -> list[tuple[str, str]
     per = _per(plan)
 
     def prod(mol):
-        a = plan.amounts(mol)
-        return product_text(a.kg_product, a.litres_product, units)
+        return plan_amount(plan, mol, units)
     risk = (f"the planned dose lands outside the window in {unc.p_outside:.0%} of them"
             + (f" (below {unc.p_below:.0%}, above {unc.p_above:.0%})" if unc.p_outside else ""))
     return [("how sure", f"over {unc.valid:,} plausible waters (the measurements within "
@@ -620,10 +659,9 @@ def log_lines(plan: Plan, units: str = "metric") -> list[str]:
     if plan.log_bias is None:
         return [plan.log_note] if plan.log_note else []
     b = plan.log_bias
-    a = plan.amounts(plan.dose_mol_l * b.mean_ratio)
     return [b.words() + ".",
             f"Offered, not applied: with that bias the dose would be "
-            f"{product_text(a.kg_product, a.litres_product, units)} {_per(plan)}. The plan "
+            f"{plan_amount(plan, plan.dose_mol_l * b.mean_ratio, units)} {_per(plan)}. The plan "
             "above is the model's; decide with the engineer which to dose."]
 
 
@@ -635,9 +673,7 @@ def control_lines(plan: Plan, units: str = "metric") -> list[tuple[str, str]]:
     u = UNIT_SYSTEMS[units]
 
     def rate(mol_h):
-        a = plan.amounts(mol_h / plan.basis.litres)
-        return product_text(a.kg_product, a.litres_product, units).replace(" kg", " kg/h") \
-            .replace(" L", " L/h").replace(" lb", " lb/h").replace(" gal", " gal/h")
+        return plan_amount(plan, mol_h / plan.basis.litres, units)
     flows = (f"flow {fmt(c.flow_range_m3_h[0] * u.flow_per_m3_h)} to "
              f"{fmt(c.flow_range_m3_h[1] * u.flow_per_m3_h)} {u.flow}" if c.flow_range_given
              else "the stated flow only (give flow.m3_per_h_min and _max for its range)")
