@@ -5,7 +5,7 @@ Subcommands
 plan       read a scenario, print the dose sheet (or ``--json``), ``--plot``.
 reagents   list the reagent catalogue.
 solutes    list the weak-acid systems and their reporting basis.
-tui        open the terminal workbench.
+tui        open Tankside, the terminal view.
 replay     plan every row of logged flow and pH data; totals, percentiles, plot.
 titration  scale a bench titration, and fit a water to it, for a full-scale dose.
 log        the shift log: add, follow-up, list, show, export.
@@ -53,7 +53,7 @@ def _parser() -> argparse.ArgumentParser:
                    help="units of the dose sheet (default metric)")
     sub.add_parser("reagents", help="list the reagent catalogue")
     sub.add_parser("solutes", help="list the solutes a scenario may name")
-    t = sub.add_parser("tui", help="open the terminal workbench")
+    t = sub.add_parser("tui", help="open Tankside, the terminal view")
     t.add_argument("scenario", nargs="?", help="scenario file to open")
     t.add_argument("--db", metavar="PATH", help="shift log for recording decisions")
     _log_parser(sub)

@@ -1,7 +1,7 @@
 """Writing files safely: the one place the front ends write results.
 
-The engine itself never touches files; the command line and the terminal
-workbench call :func:`write_atomic` or :class:`atomic_text_writer`, which
+The engine itself never touches files; the command line and
+Tankside (the terminal view) call :func:`write_atomic` or :class:`atomic_text_writer`, which
 write through a temporary file and a rename, so a failed run never leaves
 half a file behind. Three promises:
 

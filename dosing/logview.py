@@ -1,4 +1,4 @@
-"""Shift-log entries as text, shared by the command line and the workbench."""
+"""Shift-log entries as text, shared by the command line and Tankside."""
 
 from __future__ import annotations
 

@@ -1,6 +1,6 @@
 """The one place that turns a plan into what people read: text and JSON.
 
-The command line, the terminal workbench and the shift log all call these
+The command line, Tankside, the terminal view and the shift log all call these
 functions, so a dose reads the same everywhere, with the same cautions.
 
 * :func:`make_plan` - plan a :class:`~dosing.scenario.Scenario`.
@@ -341,7 +341,7 @@ def metal_lines(scenario: Scenario, plan: Plan, units: str = "metric") -> list[t
 def dose_lines(scenario: Scenario, plan: Plan, units: str = "metric") -> list[tuple[str, str]]:
     """The dose as (label, value) rows in the chosen units.
 
-    Shared by the text sheet and the terminal workbench.
+    Shared by the text sheet and Tankside, the terminal view.
     """
     u = UNIT_SYSTEMS[units]
     a = plan.amounts()

@@ -203,7 +203,7 @@ def test_parse_since():
         parse_since("soon")
 
 
-def test_workbench_records_through_the_same_code(tmp_path):
+def test_tankside_records_through_the_same_code(tmp_path):
     from tui.app import make_app
     db = str(tmp_path / "log.sqlite")
 

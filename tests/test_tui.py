@@ -1,4 +1,4 @@
-"""The terminal workbench driven by Textual's pilot."""
+"""The terminal view (Tankside) driven by Textual's pilot."""
 
 import asyncio
 from pathlib import Path

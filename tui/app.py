@@ -1,4 +1,4 @@
-"""The neutralisation workbench: edit a scenario, see the dose at once.
+"""Tankside, the terminal view: edit a scenario, see the dose at once.
 
 Only the engine, the scenario loader and the shared presentation in
 ``dosing.sheet`` are used here; there is no chemistry in the UI. One
@@ -40,7 +40,7 @@ from .widgets.curve import CurvePlot
 from .widgets.dose import DosePanel
 from .widgets.sweep import SweepTable
 
-__all__ = ["Workbench", "make_app", "run", "DEFAULT_DATA"]
+__all__ = ["Tankside", "make_app", "run", "DEFAULT_DATA"]
 
 #: A new, empty job (an invented tank), for when no file is given.
 DEFAULT_DATA: dict[str, Any] = {
@@ -65,11 +65,11 @@ def _form_key(key: str) -> str | None:
     return None
 
 
-class Workbench(App):
+class Tankside(App):
     """Edit a dosing scenario and watch the plan follow."""
 
-    CSS_PATH = "workbench.tcss"
-    TITLE = "Neutralisation workbench"
+    CSS_PATH = "tankside.tcss"
+    TITLE = "Tankside, neutralisation dosing"
     BINDINGS = [
         ("f1", "help", "help"),
         ("f2", "view('dose')", "dose"),
@@ -372,13 +372,13 @@ class Workbench(App):
 
 
 def make_app(path: str | None = None, data: dict[str, Any] | None = None,
-             db: str | None = None) -> Workbench:
+             db: str | None = None) -> Tankside:
     """The one factory for the command line and the tests."""
-    return Workbench(path=path, data=data, db=db)
+    return Tankside(path=path, data=data, db=db)
 
 
 def run(path: str | None = None, db: str | None = None) -> int:
-    """Run the workbench in the terminal; returns an exit code."""
+    """Run Tankside in the terminal; returns an exit code."""
     if path is not None and not Path(path).exists():
         raise ScenarioError(path, "", "no such file")
     make_app(path, db=db).run()

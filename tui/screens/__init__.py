@@ -1,1 +1,1 @@
-"""Modal screens of the workbench."""
+"""Modal screens of Tankside."""

@@ -10,7 +10,7 @@ from textual.widgets import Markdown
 from dosing.reagents import GENERAL_CAUTION
 
 HELP = f"""\
-# Neutralisation workbench
+# Tankside, neutralisation dosing
 
 Change any value on the left: the dose is planned again at once.
 
@@ -44,7 +44,7 @@ Press Escape to close.
 
 
 class HelpScreen(ModalScreen[None]):
-    """Key hints and how the workbench reads its fields."""
+    """Key hints and how Tankside reads its fields."""
 
     BINDINGS = [("escape", "dismiss", "close"), ("f1", "dismiss", "close")]
 

@@ -1,1 +1,1 @@
-"""Widgets of the workbench, one job each."""
+"""Widgets of Tankside, one job each."""

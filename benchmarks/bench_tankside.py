@@ -1,11 +1,11 @@
-"""Milliseconds per recompute in the terminal workbench.
+"""Milliseconds per recompute in Tankside, the terminal view.
 
-Opens each demo scenario in the workbench (headless, Textual's test
+Opens each demo scenario in Tankside (headless, Textual's test
 driver), changes the pH a number of times and prints how long each
 recompute (read form, validate, plan, render every view) took. Prints
 figures; asserts nothing.
 
-    python benchmarks/bench_workbench.py
+    python benchmarks/bench_tankside.py
 """
 
 from __future__ import annotations
