@@ -94,7 +94,8 @@ def _log_parser(sub) -> None:
     a = lsub.add_parser("add", help="record a decision for a scenario")
     a.add_argument("scenario")
     a.add_argument("--operator", required=True)
-    a.add_argument("--dosed", type=float, metavar="KG", help="product actually dosed, kg")
+    a.add_argument("--dosed", type=float, metavar="KG", help="product actually dosed, kg "
+                   "(for a flow, the rate it ran at, kg/h)")
     a.add_argument("--ph-after", type=float, metavar="PH", help="pH measured after dosing")
     a.add_argument("--note", default="")
     a.add_argument("--corrects", type=int, metavar="ID", help="this entry corrects entry ID")
@@ -194,6 +195,33 @@ def _count_lines(path: str) -> int | None:
         return None
 
 
+class _progress:
+    """A progress bar on stderr while a replay runs (rich: width, rate and time
+    left handled there); nothing when stderr is not a terminal."""
+
+    def __init__(self, path: str):
+        self.path = path
+        self._bar = None
+
+    def __enter__(self):
+        if not sys.stderr.isatty():
+            return lambda n: None
+        from rich.console import Console
+        from rich.progress import (BarColumn, MofNCompleteColumn, Progress, TextColumn,
+                                   TimeRemainingColumn)
+        self._bar = Progress(TextColumn("replay"), BarColumn(), MofNCompleteColumn(),
+                             TextColumn("rows"), TimeRemainingColumn(),
+                             console=Console(stderr=True), transient=True)
+        self._bar.start()
+        task = self._bar.add_task("replay", total=_count_lines(self.path))
+        return lambda n: self._bar.update(task, completed=n)
+
+    def __exit__(self, *exc):
+        if self._bar is not None:
+            self._bar.stop()
+        return False
+
+
 def _cmd_replay(args) -> int:
     from .files import atomic_text_writer
     from .replay_io import run_replay
@@ -205,30 +233,20 @@ def _cmd_replay(args) -> int:
     if args.chunk_rows < 1000:
         raise UsageError("--chunk-rows", "allowed: 1000 or more")
     scenario = load_scenario(args.scenario)
-    show = sys.stderr.isatty()
-    expected = _count_lines(args.data) if show else None
-
-    def progress(n):
-        if not show:
-            return
-        if expected:
-            frac = min(n / expected, 1.0)
-            bar = "#" * int(30 * frac) + "-" * (30 - int(30 * frac))
-            sys.stderr.write(f"\rreplay [{bar}] {frac:4.0%}  {n:,} of ~{expected:,} rows")
+    from .plan import Flow
+    if not isinstance(scenario.basis, Flow):
+        raise ScenarioError(args.scenario, "[flow]", "replay needs a flow scenario: logged "
+                            "data are flows and rates, and this scenario plans a batch; "
+                            "give [flow] m3_per_h instead of [batch]")
+    with _progress(args.data) as progress:
+        if args.csv:
+            with atomic_text_writer(args.csv) as fh:
+                report, totals = run_replay(args.data, scenario, chunk_rows=args.chunk_rows,
+                                            rows_out=fh, progress=progress,
+                                            keep_hourly=bool(args.plot))
         else:
-            sys.stderr.write(f"\rreplay: {n:,} rows")
-        sys.stderr.flush()
-
-    if args.csv:
-        with atomic_text_writer(args.csv) as fh:
             report, totals = run_replay(args.data, scenario, chunk_rows=args.chunk_rows,
-                                        rows_out=fh, progress=progress,
-                                        keep_hourly=bool(args.plot))
-    else:
-        report, totals = run_replay(args.data, scenario, chunk_rows=args.chunk_rows,
-                                    progress=progress, keep_hourly=bool(args.plot))
-    if show:
-        sys.stderr.write("\n")
+                                        progress=progress, keep_hourly=bool(args.plot))
     if args.plot:
         from .plot import replay_figure_png
         write_atomic(args.plot, replay_figure_png(totals, report, args.units))

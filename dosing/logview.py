@@ -13,10 +13,22 @@ def _n(x, digits=3) -> str:
     return "-" if x is None else fmt(x, digits)
 
 
+def _kg(e: Entry, kg) -> str:
+    """An amount of an entry with its unit: kg for a batch, kg/h for a flow."""
+    if kg is None:
+        return "-"
+    per = "/h" if "kg_product_per_h" in ((e.plan or {}).get("dose") or {}) else ""
+    return f"{fmt(kg)} kg{per}"
+
+
+def _pct(ratio) -> str:
+    return "-" if ratio is None else f"{ratio:.0%}"
+
+
 def render_list(log: ShiftLog, *, since_utc: str | None = None, tank: str | None = None) -> str:
     """One line per entry, with planned vs dosed and the latest pH after."""
     head = (f"{'id':>5}  {'local time':<19}  {'kind':<10}  {'tank':<14}  {'reagent':<16}  "
-            f"{'operator':<10}  {'planned kg':>10}  {'dosed kg':>9}  {'ratio':>5}  "
+            f"{'operator':<10}  {'planned':>12}  {'dosed':>12}  {'ratio':>5}  "
             f"{'pH aim':>6}  {'pH after':>8}  refers")
     lines = [head, "-" * len(head)]
     n = 0
@@ -24,8 +36,8 @@ def render_list(log: ShiftLog, *, since_utc: str | None = None, tank: str | None
         n += 1
         lines.append(
             f"{e.id:>5}  {e.local_time[:19]:<19}  {e.kind:<10}  {e.tank[:14]:<14}  "
-            f"{e.reagent[:16]:<16}  {e.operator[:10]:<10}  {_n(e.planned_kg):>10}  "
-            f"{_n(e.dosed_kg):>9}  {_n(e.dosed_ratio):>5}  {_n(e.ph_planned):>6}  "
+            f"{e.reagent[:16]:<16}  {e.operator[:10]:<10}  {_kg(e, e.planned_kg):>12}  "
+            f"{_kg(e, e.dosed_kg):>12}  {_pct(e.dosed_ratio):>5}  {_n(e.ph_planned):>6}  "
             f"{_n(log.latest_ph(e)):>8}  {e.refers_to or ''}")
     if n == 0:
         lines.append("(no entries)")
@@ -70,8 +82,8 @@ def render_entry(log: ShiftLog, e: Entry) -> str:
         out.extend(_solid_lines(plan, per))
         out.extend(_staging_lines(plan))
     if e.dosed_kg is not None:
-        out.append(f"  actually dosed: {_n(e.dosed_kg)} kg"
-                   + (f" ({fmt(e.dosed_ratio)} of plan)" if e.dosed_ratio else ""))
+        out.append(f"  actually dosed: {_kg(e, e.dosed_kg)}"
+                   + (f" ({_pct(e.dosed_ratio)} of plan)" if e.dosed_ratio else ""))
     if e.ph_after is not None:
         out.append(f"  pH after: {_n(e.ph_after)}")
     if e.note:

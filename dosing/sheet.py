@@ -550,7 +550,7 @@ def render_replay(report: dict[str, Any], units: str = "metric", width: int = 78
            f"({fmt(r['hours_covered'] / 24)} days)",
            f"planned  {r['rows_planned']:,} rows; not planned {r['rows_not_planned']:,}"]
     for key, v in r["not_planned"].items():
-        out.append(f"           {v['rows']:>9,}  {key}: {v['why']}")
+        out.append(f"           {v['rows']:>9,}  {v['why']}")
     t = r["total"]
     out += ["", "REAGENT",
             f"  total          {fmt(t['kg_product'] * u.mass_per_kg)} {u.mass}"

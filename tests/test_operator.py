@@ -58,3 +58,26 @@ def test_storage_for_less_than_one_batch_is_flagged(tmp_path):
     scen = _variant(tmp_path, CIP, "storage_m3 = 0.5", "storage_m3 = 0.005")
     text = run_cli("plan", scen).stdout
     assert "LESS THAN ONE BATCH" in text
+
+
+def test_replay_of_a_batch_scenario_says_it_needs_a_flow(tmp_path):
+    data = tmp_path / "log.csv"
+    data.write_text("timestamp,flow,ph\n2026-01-01T00:00,5,4\n2026-01-01T00:01,5,4.1\n")
+    r = run_cli("replay", str(data), "--scenario", str(CIP))
+    assert r.returncode == 2 and "replay needs a flow scenario" in r.stderr
+
+
+def test_replay_sheet_names_flags_in_plain_words(tmp_path):
+    data = tmp_path / "log.csv"
+    data.write_text("timestamp,flow,ph\n2026-01-01T00:00,5,4\n2026-01-01T00:01,,4.1\n"
+                    "2026-01-01T00:02,5,4.2\n")
+    text = run_cli("replay", str(data), "--scenario", str(FLOW)).stdout
+    assert "flow missing" in text and "flow_missing" not in text
+
+
+def test_log_shows_flow_amounts_as_rates_and_ratios_as_percent(tmp_path):
+    db = str(tmp_path / "log.sqlite")
+    r = run_cli("log", "add", str(FLOW), "--operator", "A", "--dosed", "30", "--db", db)
+    assert "actually dosed: 30.0 kg/h" in r.stdout and "% of plan" in r.stdout
+    listing = run_cli("log", "list", "--db", db).stdout
+    assert "kg/h" in listing and re.search(r"\d+%", listing)
