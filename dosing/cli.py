@@ -138,6 +138,7 @@ def _cmd_plan(args) -> int:
     text = to_json(data) if args.json else render_sheet(scenario, plan, args.units)
     if png is not None:
         write_atomic(args.plot, png)
+        sys.stderr.write(f"dosing: wrote the plot to {args.plot}\n")
     sys.stdout.write(text)
     return 0
 

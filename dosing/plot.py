@@ -26,10 +26,14 @@ FOOTER = ("Model estimate. Local codes, the discharge permit and a licensed engi
           "have the final word.")
 
 
-def _png(fig) -> bytes:
-    """Add the final-word footer, lay out, render to PNG bytes and close."""
-    fig.text(0.01, 0.01, FOOTER, fontsize=7, color="0.35")
-    fig.tight_layout(rect=(0, 0.03, 1, 1))
+def _png(fig, cautions: tuple[str, ...] | list[str] = ()) -> bytes:
+    """Add the reagent's cautions and the final-word footer, lay out, render to
+    PNG bytes and close. Every figure that shows a dose carries them."""
+    import textwrap
+    lines = [ln for c in cautions if c != FOOTER and "final word" not in c
+             for ln in textwrap.wrap("Caution: " + c, 150)] + [FOOTER]
+    fig.text(0.01, 0.005, "\n".join(lines), fontsize=6.5, color="0.3", va="bottom")
+    fig.tight_layout(rect=(0, 0.012 * len(lines) + 0.01, 1, 1))
     buf = io.BytesIO()
     fig.savefig(buf, format="png")
     plt.close(fig)
@@ -100,7 +104,7 @@ def plan_figure_png(plan: Plan, title: str = "", units: str = "metric") -> bytes
                                            if k not in HARDNESS} or metals)
     if plan.uncertainty is not None:
         _uncertainty_panel(extra.pop(0), plan, scale, unit, per)
-    return _png(fig)
+    return _png(fig, plan.cautions)
 
 
 def _uncertainty_panel(ax, plan: Plan, scale: float, unit: str, per: str) -> None:
@@ -206,7 +210,7 @@ def replay_figure_png(totals, report: dict, units: str = "metric") -> bytes:
     a3.set_ylabel(f"{u.mass} product per day")
     a3.grid(True, axis="y", alpha=0.3)
     fig.autofmt_xdate()
-    return _png(fig)
+    return _png(fig, report.get("cautions", ()))
 
 
 def titration_figure_png(curve, report: dict, title: str = "") -> bytes:
@@ -247,7 +251,7 @@ def titration_figure_png(curve, report: dict, title: str = "") -> bytes:
     ax.set_title(title or "Bench titration", fontsize=11)
     if spec is not None:
         _spectrum_panel(ax_s, spec)
-    return _png(fig)
+    return _png(fig, plan.cautions)
 
 
 def _spectrum_panel(ax, spec) -> None:

@@ -105,6 +105,12 @@ def run_replay(path: str, scenario: Scenario, *, chunk_rows: int = CHUNK_ROWS,
     unit = "kg/h" if scenario.reagent.kg_product_per_mol is not None else "L/h"
     totals = ReplayTotals(rate_unit=unit, keep_hourly=keep_hourly)
     header = True
+    if rows_out is not None:
+        # The cautions travel with every file that carries doses (read the rows
+        # with a comment character, e.g. pandas.read_csv(..., comment="#")).
+        from .reagents import GENERAL_CAUTION
+        for line in tuple(scenario.reagent.cautions) + (GENERAL_CAUTION,):
+            rows_out.write(f"# {line}\n")
     for chunk in iter_chunks(path, chunk_rows):
         rows = plan_rows(chunk.reset_index(drop=True), scenario, state)
         totals.add(rows)

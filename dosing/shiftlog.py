@@ -526,10 +526,11 @@ class ShiftLog:
         import pandas as pd
         rows = [dict(zip(_COLUMNS, (getattr(e, c) for c in _COLUMNS)),
                      local_time=e.local_time, dosed_ratio=e.dosed_ratio,
-                     latest_ph_after=self.latest_ph(e))
+                     latest_ph_after=self.latest_ph(e),
+                     cautions=" | ".join((e.plan or {}).get("cautions", [])))
                 for e in self.entries(since_utc=since_utc, tank=tank)]
         return pd.DataFrame(rows, columns=list(_COLUMNS) + ["local_time", "dosed_ratio",
-                                                          "latest_ph_after"])
+                                                          "latest_ph_after", "cautions"])
 
 
 _RECOVER = ("Copy what can still be read with `dosing log export --csv FILE` (or the "

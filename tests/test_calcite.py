@@ -134,7 +134,7 @@ def test_replay_follows_the_planner_calcite_rule(tmp_path):
     # Replay holds the scenario's carbonate and re-finds the strong-ion
     # balance from each row's pH (README); the planner is given the same.
     carbonate = _hard().carbonate_mol_l * 1000
-    for _, row in pd.read_csv(out).iterrows():
+    for _, row in pd.read_csv(out, comment="#").iterrows():
         w = infer_water(row.ph, 20.0, solutes_mmol_l={"carbonate": carbonate},
                         ions_mg_l={"calcium": 80.16})
         plan = plan_dose(w, get_reagent("lime"), Target(9.8, 10.8, 10.3), Batch(1))

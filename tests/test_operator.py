@@ -81,3 +81,19 @@ def test_log_shows_flow_amounts_as_rates_and_ratios_as_percent(tmp_path):
     assert "actually dosed: 30.0 kg/h" in r.stdout and "% of plan" in r.stdout
     listing = run_cli("log", "list", "--db", db).stdout
     assert "kg/h" in listing and re.search(r"\d+%", listing)
+
+
+def test_files_that_carry_doses_carry_the_cautions(tmp_path):
+    data = tmp_path / "log.csv"
+    data.write_text("timestamp,flow,ph\n2026-01-01T00:00,5,4\n2026-01-01T00:01,5,4.1\n")
+    out = tmp_path / "rows.csv"
+    assert run_cli("replay", str(data), "--scenario", str(FLOW), "--csv", str(out)).returncode == 0
+    head = out.read_text().splitlines()
+    assert head[0].startswith("# ") and any("final word" in ln for ln in head[:6])
+    db = str(tmp_path / "log.sqlite")
+    run_cli("log", "add", str(FLOW), "--operator", "A", "--db", db)
+    exp = tmp_path / "log-export.csv"
+    assert run_cli("log", "export", "--csv", str(exp), "--db", db).returncode == 0
+    import pandas as pd
+    frame = pd.read_csv(exp)
+    assert "final word" in frame["cautions"][0]

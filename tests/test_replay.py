@@ -38,7 +38,7 @@ def test_each_row_matches_the_single_water_planner(tmp_path):
     out = tmp_path / "rows.csv"
     r = cli("replay", str(f), "--scenario", str(SCEN), "--csv", str(out), "--json")
     assert r.returncode == 0, r.stderr
-    rows = pd.read_csv(out)
+    rows = pd.read_csv(out, comment="#")
     assert len(rows) == 5                       # the units row was skipped
     mmol = {k: v * 1000 for k, v in s.water.totals_mol_l.items()}
     for _, row in rows.iterrows():
@@ -199,7 +199,7 @@ def test_replay_of_a_metal_water_matches_the_single_water_planner(tmp_path):
     assert r.returncode == 0, r.stderr
     s = load_scenario(scen)
     w0 = s.water
-    for _, row in pd.read_csv(out).iterrows():
+    for _, row in pd.read_csv(out, comment="#").iterrows():
         w = infer_water(row.ph, 20.0, solutes_mmol_l={k: v * 1000 for k, v in
                                                        w0.totals_mol_l.items()},
                         ions_mg_l={"sodium": 300, "chloride": 200},
