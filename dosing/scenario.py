@@ -386,28 +386,50 @@ def load_scenario(path: str | Path) -> Scenario:
     return parse_scenario(text, str(path))
 
 
-def _toml_value(v) -> str:
-    if isinstance(v, bool):
-        return "true" if v else "false"
-    if isinstance(v, (int, float)):
-        return repr(v)
-    if isinstance(v, str):
-        return '"' + v.replace("\\", "\\\\").replace('"', '\\"') + '"'
-    if isinstance(v, dict):
-        return "{ " + ", ".join(f"{k} = {_toml_value(x)}" for k, x in v.items()) + " }"
-    raise TypeError(f"cannot write {type(v).__name__} to a scenario")
+def scenario_to_toml(data: Mapping[str, Any], original: str | None = None) -> str:
+    """Write plain scenario data as TOML that :func:`parse_scenario` reads.
 
-
-def scenario_to_toml(data: Mapping[str, Any]) -> str:
-    """Write plain scenario data back as TOML that :func:`parse_scenario` reads."""
-    lines = []
+    With ``original`` (the text of the file the data came from) its comments,
+    order and layout are kept and only the values that changed are written
+    (tomlkit); keys no longer in ``data`` are removed, new ones added.
+    """
+    import tomlkit
+    doc = tomlkit.parse(original.lstrip("\ufeff")) if original else tomlkit.document()
     for key in _TOP:
-        if key in data:
-            lines.append(f"{key} = {_toml_value(data[key])}")
+        _set(doc, key, data.get(key))
     for section in _SCHEMA:
-        if section in data:
-            lines.append("")
-            lines.append(f"[{section}]")
-            for key, value in data[section].items():
-                lines.append(f"{key} = {_toml_value(value)}")
-    return "\n".join(lines) + "\n"
+        values = data.get(section)
+        if values is None:
+            if section in doc:
+                del doc[section]
+            continue
+        if section not in doc or not isinstance(doc[section], dict):
+            doc[section] = tomlkit.table()
+        table = doc[section]
+        for key in [k for k in table if k not in values]:
+            del table[key]
+        for key, value in values.items():
+            _set(table, key, value)
+    return tomlkit.dumps(doc)
+
+
+def _set(container, key: str, value) -> None:
+    """Set ``key`` unless it already holds that value (so its comment stays)."""
+    import tomlkit
+    if value is None:
+        if key in container:
+            del container[key]
+        return
+    if key in container and _plain(container[key]) == value:
+        return
+    if isinstance(value, dict):
+        item = tomlkit.inline_table()
+        item.update(value)
+        container[key] = item
+    else:
+        container[key] = value
+
+
+def _plain(item):
+    """A tomlkit item as plain Python data."""
+    return item.unwrap() if hasattr(item, "unwrap") else item

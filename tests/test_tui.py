@@ -199,3 +199,34 @@ def test_a_sample_for_an_old_form_is_dropped():
         app._sampled(old, make_plan(load_scenario(CIP)))     # a late result
         assert app.plan is newer
     drive(check)
+
+
+def test_saving_keeps_comments_and_asks_before_overwriting(tmp_path):
+    # A copy of the demo, comments and all, opened, edited and saved back.
+    src = tmp_path / "cip.toml"
+    src.write_text(Path(CIP).read_text())
+    before = src.read_text()
+
+    async def check(app, pilot):
+        await set_field(app, pilot, "target.ph_aim", "7.2")
+        app.save_path(str(src))
+        await pilot.pause()
+        assert src.read_text() == before and "exists" in app.status   # asked first
+        app.save_path(str(src))
+        await pilot.pause()
+        assert "saved" in app.status
+    asyncio.run(_drive_at(check, str(src)))
+    after = src.read_text()
+    comments = [ln for ln in before.splitlines() if ln.lstrip().startswith("#")]
+    assert comments and all(c in after for c in comments)
+    assert load_scenario(src).target.ph_aim == 7.2
+    # Only the value that changed differs.
+    changed = [(a, b) for a, b in zip(before.splitlines(), after.splitlines()) if a != b]
+    assert len(changed) == 1 and "ph_aim" in changed[0][1]
+
+
+async def _drive_at(coro_fn, path):
+    app = make_app(path)
+    async with app.run_test(size=(150, 45)) as pilot:
+        await pilot.pause()
+        await coro_fn(app, pilot)

@@ -101,6 +101,8 @@ class Tankside(App):
                  db: str | None = None):
         super().__init__()
         self.path = path
+        self._source: str | None = None      # text of the file opened (kept on save)
+        self._overwrite_ok: str | None = None  # a path the user agreed to overwrite
         self.db = db
         self._initial = data
         self.last_recompute_ms = 0.0
@@ -139,6 +141,7 @@ class Tankside(App):
         if data is None and self.path:
             try:
                 data = dict(load_scenario(self.path).data)
+                self._source = _read_text(self.path)
             except ScenarioError as err:
                 self.status = f"could not open: {err}"
                 data = None
@@ -272,6 +275,7 @@ class Tankside(App):
             self.status = f"not opened: {err}"
             return
         self.path = path
+        self._source = _read_text(path)
         self._load(data)
 
     def action_save(self) -> None:
@@ -285,13 +289,22 @@ class Tankside(App):
         if errors or self.stale:
             self.status = "not saved: fix the field marked in red first"
             return
+        if Path(path).exists() and self._overwrite_ok != path:
+            # Never overwrite without asking: the same save again confirms.
+            self._overwrite_ok = path
+            self.status = (f"{path} exists: press Ctrl+S and Enter again to overwrite it "
+                           "(its comments and layout are kept)")
+            return
+        keep = self._source if path == self.path else None
         try:
             build_scenario(data, path)
-            write_atomic(path, scenario_to_toml(data).encode("utf-8"))
+            write_atomic(path, scenario_to_toml(data, keep).encode("utf-8"))
         except DosingError as err:
             self.status = f"not saved: {err}"
             return
+        self._overwrite_ok = None
         self.path = path
+        self._source = _read_text(path)
         self.sub_title = path
         self.status = f"saved {path}"
 
@@ -369,6 +382,14 @@ class Tankside(App):
         gap = report["gap_model_vs_direct"]
         self.status = (f"titration {path}: model {gap:+.0%} against direct scaling"
                        if gap is not None else f"titration {path} loaded")
+
+
+def _read_text(path: str) -> str | None:
+    """A scenario file's text, to keep its comments when saving; None if unreadable."""
+    try:
+        return Path(path).read_text(encoding="utf-8-sig")
+    except (OSError, UnicodeDecodeError):
+        return None
 
 
 def make_app(path: str | None = None, data: dict[str, Any] | None = None,

@@ -227,8 +227,17 @@ class ScenarioForm(VerticalScroll):
             else:
                 r.pop("storage_m3", None)
         m = data["model"]
-        m["activity"] = self.query_one("#f-model--activity", Select).value
-        m["open_to_air"] = self.query_one("#f-model--open-to-air", Switch).value
+        base_model = self._base.get("model", {})
+        # A default the file did not write is not added (saving keeps the file as it was).
+        for key, value, default in (
+                ("activity", self.query_one("#f-model--activity", Select).value, "davies"),
+                ("open_to_air", self.query_one("#f-model--open-to-air", Switch).value, False)):
+            if value == default and key not in base_model:
+                m.pop(key, None)
+            else:
+                m[key] = value
+        if not m and "model" not in self._base:
+            data.pop("model")
         return data, errors
 
     def show_errors(self, errors: dict[str, str]) -> None:
