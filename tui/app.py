@@ -233,9 +233,19 @@ class Tankside(App):
         s, p, u = self.scenario, self.plan, self.units
         self.query_one(DosePanel).show(s, p, u, self.stale)
         self.query_one(CurvePlot).show(p, u)
-        # Plain text: the sheet's [reagent-id] must not be read as markup.
-        self.query_one("#sheet-text", Static).update(Text(render_sheet(s, p, u)))
+        # Plain text: the sheet's [reagent-id] must not be read as markup. It is
+        # laid out for the pane's width, so no line wraps back to column 0.
+        self.query_one("#sheet-text", Static).update(
+            Text(render_sheet(s, p, u, width=self._sheet_width())))
         self._render_sweep()
+
+    def _sheet_width(self) -> int:
+        """Columns the sheet may use in its pane (78 until the pane is laid out)."""
+        width = self.query_one("#views").size.width
+        return max(40, min(100, width - 6)) if width else 78
+
+    def on_resize(self) -> None:
+        self._render_views()
 
     def _render_sweep(self) -> None:
         s = self.scenario
