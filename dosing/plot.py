@@ -197,16 +197,25 @@ def replay_figure_png(totals, report: dict, units: str = "metric") -> bytes:
         unit = f"{u.mass}/h" if totals.rate_unit == "kg/h" else f"{u.product_volume}/h"
         a2.set_ylabel(f"dose rate, {unit}", color="tab:red")
         a2.tick_params(axis="y", colors="tab:red")
-        a2.set_ylim(bottom=0)
+        top = float(np.nanmax(frame["rate"])) if np.isfinite(frame["rate"]).any() else 1.0
+        a2.set_ylim(0, top * 1.35 or 1.0)          # room above the lines for the legend
         l1, n1 = a1.get_legend_handles_labels()
         l2, n2 = a2.get_legend_handles_labels()
-        a1.legend(l1 + l2, n1 + n2, loc="upper left", fontsize=8)
-    a1.set_title(f"{report['scenario']}: {report['reagent']}", fontsize=11)
+        # Below the axes, where it covers no line.
+        a1.legend(l1 + l2, n1 + n2, loc="upper center", bbox_to_anchor=(0.5, 1.0),
+                  ncol=2, fontsize=8, frameon=False)
+        lo_ph, hi_ph = np.nanmin(ph), np.nanmax(ph)
+        a1.set_ylim(lo_ph - 0.5, hi_ph + 0.25 * (hi_ph - lo_ph) + 0.8)
+    name = report.get("reagent_name", report["reagent"])
+    a1.set_title(f"{report['scenario']}: {name}, {report['first'][:10]} to "
+                 f"{report['last'][:10]}", fontsize=11)
     a1.grid(True, alpha=0.3)
     days = sorted(totals.daily_kg)
     if days:
-        a3.bar(pd.to_datetime(days), [totals.daily_kg[d] * u.mass_per_kg for d in days],
-               width=0.9, color="tab:orange")
+        # Each bar spans its own day (matplotlib centres bars on the date).
+        a3.bar(pd.to_datetime(days) + pd.Timedelta(hours=12),
+               [totals.daily_kg[d] * u.mass_per_kg for d in days], width=0.9,
+               color="tab:orange")
     a3.set_ylabel(f"{u.mass} product per day")
     a3.grid(True, axis="y", alpha=0.3)
     fig.autofmt_xdate()

@@ -402,5 +402,6 @@ def replay_report(totals: ReplayTotals, scenario: Scenario, source: str) -> dict
         "fraction_outside_window": (totals.seconds_outside / totals.seconds
                                     if totals.seconds else None),
         "daily_kg_product": dict(zip(days, daily_kg)),
+        "reagent_name": scenario.reagent.name,
         "cautions": list(scenario.reagent.cautions) + [GENERAL_CAUTION],
     }

@@ -230,3 +230,18 @@ async def _drive_at(coro_fn, path):
     async with app.run_test(size=(150, 45)) as pilot:
         await pilot.pause()
         await coro_fn(app, pilot)
+
+
+def test_switching_product_drops_the_old_price_and_lists_names():
+    async def check(app, pilot):
+        from textual.widgets import Select
+        box = app.query_one("#" + field_id("reagent.price_per_kg"))
+        assert box.value != ""
+        select = app.query_one("#f-reagent--id", Select)
+        labels = [str(p[0]) for p in select._options]
+        assert any("hydrochloric" in x.lower() for x in labels)     # names, not ids
+        select.value = "hydrochloric-32"
+        await pilot.pause()
+        assert box.value == "" and app.plan.reagent.id == "hydrochloric-32"
+        assert "cost" not in app.query_one("#dose-panel").plain_text
+    drive(check)

@@ -105,7 +105,8 @@ class ScenarioForm(VerticalScroll):
         yield Static("Reagent", classes="section")
         with Horizontal(classes="row"):
             yield Label("product", classes="label")
-            options = [(r.id, r.id) for r in CATALOGUE.values()]
+            # The product's name, as on the drum; its id is what a file stores.
+            options = [(r.name, r.id) for r in CATALOGUE.values()]
             options.append(("custom product ...", "custom"))
             yield Select(options, value="caustic-50", allow_blank=False, compact=True,
                          id="f-reagent--id", classes="value")
@@ -273,7 +274,19 @@ class ScenarioForm(VerticalScroll):
             self._label_amount(event.value == "flow")
         if event.select.id == "f-reagent--id":
             self._show_custom(event.value == "custom")
+            if not self._loading:
+                self._forget_product_terms(event.value)
         self._edited()
+
+    def _forget_product_terms(self, rid: str) -> None:
+        """A new product does not inherit the old one's price or storage."""
+        r = self._base.get("reagent", {})
+        if r.get("id") == rid:
+            return
+        for key in ("price_per_kg", "storage_m3", "storage_kg"):
+            r.pop(key, None)
+        box = self.query_one("#" + field_id("reagent.price_per_kg"), Input)
+        box.value = ""
 
     def on_switch_changed(self, event: Switch.Changed) -> None:
         event.stop()
