@@ -12,11 +12,11 @@ the curve needs it, in the same run.
 from __future__ import annotations
 
 import math
-import time
 
 import numpy as np
 
 from dosing import infer_water
+from _timing import best_of
 from dosing.buffer_fit import fit_spectrum
 from dosing.equilibrium import N_SYSTEMS, Mixture, add_dose, solve_ph, system_index
 from dosing.titration import check_curve, fit_water, parse_titrant
@@ -36,19 +36,10 @@ def curve_of(n: int = 40, t_c: float = 15.0):
                                                       solutes_mmol_l={"carbonate": 0})
 
 
-def best(fn, repeat=5):
-    out, times = None, []
-    for _ in range(repeat):
-        t = time.perf_counter()
-        out = fn()
-        times.append(time.perf_counter() - t)
-    return min(times), out
-
-
 def main() -> None:
     curve, base = curve_of()
-    t_spec, spec = best(lambda: fit_spectrum(curve, base))
-    t_simple, simple = best(lambda: fit_water(curve, base))
+    t_spec, spec = best_of(lambda: fit_spectrum(curve, base))
+    t_simple, simple = best_of(lambda: fit_water(curve, base))
     print(f"40-point curve, 4 buffers: spectrum fit {t_spec * 1000:.0f} ms "
           f"(misfit {spec.rms_ph:.4f} pH RMS), simple fit {t_simple * 1000:.0f} ms "
           f"(misfit {simple.rms_ph:.3f}); ratio {t_spec / t_simple:.2f}")

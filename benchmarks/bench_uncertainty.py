@@ -11,11 +11,11 @@ a loop; timed on 40 and scaled).
 
 from __future__ import annotations
 
-import time
 from pathlib import Path
 
 import numpy as np
 
+from _timing import best_of
 from dosing.effluent import infer_water
 from dosing.equilibrium import dose_to_ph
 from dosing.scenario import load_scenario, water_inputs
@@ -24,15 +24,6 @@ from dosing.uncertainty import Spread, dose_uncertainty, staged_dose, trim_doses
 
 ROOT = Path(__file__).resolve().parents[1]
 DEMOS = ("plating-rinse-metals", "food-acetate-stream", "hard-wash-lime", "lime-acid-batch")
-
-
-def best_of(fn, repeat=3):
-    times = []
-    for _ in range(repeat):
-        t = time.perf_counter()
-        out = fn()
-        times.append(time.perf_counter() - t)
-    return min(times), out
 
 
 def main() -> None:

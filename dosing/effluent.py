@@ -666,8 +666,27 @@ def infer_many(inputs: Mapping[str, Any], variants: Perturbation, *,
     vec = np.repeat(job.vec[None, :], n, axis=0)
     vec[:, :N_ACIDS] *= v.solute_factor[:, None]
     vec[:, N_ACIDS:] *= v.metal_factor[:, None]
+    ok = _many_carbonate(job, measured, "carbonate" in totals,
+                         bool(a.get("open_to_air", False)), v, vec)
+    s, ionic = strong_balance_at_ph(vec, v.ph, v.temperature_c, davies=job.davies,
+                                    extra_ionic_strength=job.known_i,
+                                    unknown_pka=job.unknown_pka,
+                                    known_strong_eq_l=job.known_eq)
+    ok &= np.isfinite(s) & np.isfinite(ionic) & (ionic <= MAX_IONIC_STRENGTH)
+    s = np.where(ok, s, 0.0)
+    strong_i = job.known_i + 0.5 * np.abs(s - job.known_eq)
+    co2 = (co2_in_air_mol_l(v.temperature_c, job.pco2_uatm * 1e-6) if air_equilibrium
+           else np.full(n, math.nan))
+    tank = aerate(vec) if a.get("oxidise_ferrous", False) else vec
+    mix = Mixture.build(tank, s, strong_i, v.temperature_c, co2, job.davies, job.unknown_pka)
+    return replace(mix, calcite=calcite), ok
+
+
+def _many_carbonate(job: _Job, measured: _Measured | None, given_c: bool, open_to_air: bool,
+                    v: Perturbation, vec: np.ndarray) -> np.ndarray:
+    """Carbonate of each variant, written into ``vec``; the mask of possible ones."""
+    n = v.ph.size
     ok = np.ones(n, dtype=bool)
-    given_c = "carbonate" in totals
     if measured is not None:
         mg = np.maximum(v.lab_mg_l, 0.0)
         eq = measured.eq_l / measured.mg_l * mg if measured.mg_l > 0 else (
@@ -685,24 +704,13 @@ def infer_many(inputs: Mapping[str, Any], variants: Perturbation, *,
         ok &= none_left | (~past & np.isfinite(c) & ((c >= 0) | zero)
                            & (c <= MAX_CARBONATE_MOL_L))
         vec[:, CARBONATE] = np.where(ok & ~none_left & (c > 0), c, 0.0)
-    elif not given_c and a.get("open_to_air", False):
+    elif not given_c and open_to_air:
         co2 = co2_in_air_mol_l(v.temperature_c, job.pco2_uatm * 1e-6)
         probe = speciate(Mixture.build(vec, 0.0, job.known_i, v.temperature_c, co2,
                                        job.davies, job.unknown_pka), v.ph, solids=False)
         vec[:, CARBONATE] = probe.totals_mol_l[:, CARBONATE]
         ok &= vec[:, CARBONATE] <= MAX_AIR_CARBONATE_MOL_L
-    s, ionic = strong_balance_at_ph(vec, v.ph, v.temperature_c, davies=job.davies,
-                                    extra_ionic_strength=job.known_i,
-                                    unknown_pka=job.unknown_pka,
-                                    known_strong_eq_l=job.known_eq)
-    ok &= np.isfinite(s) & np.isfinite(ionic) & (ionic <= MAX_IONIC_STRENGTH)
-    s = np.where(ok, s, 0.0)
-    strong_i = job.known_i + 0.5 * np.abs(s - job.known_eq)
-    co2 = (co2_in_air_mol_l(v.temperature_c, job.pco2_uatm * 1e-6) if air_equilibrium
-           else np.full(n, math.nan))
-    tank = aerate(vec) if a.get("oxidise_ferrous", False) else vec
-    mix = Mixture.build(tank, s, strong_i, v.temperature_c, co2, job.davies, job.unknown_pka)
-    return replace(mix, calcite=calcite), ok
+    return ok
 
 
 def _validate(ph, temperature_c, alkalinity, acidity, solutes_mmol_l, solutes_mg_l,

@@ -176,28 +176,11 @@ def _daily(scenario: Scenario, plan: Plan) -> dict[str, float | None]:
 
 def sheet_dict(scenario: Scenario, plan: Plan) -> dict[str, Any]:
     """The plan as plain data with stable keys (SI units, JSON-ready)."""
-    a = plan.amounts()
-    lo, hi = plan.band_mol_l
-    a_lo = plan.amounts(lo)
-    a_hi = plan.amounts(hi) if hi is not None else None
     flow = isinstance(plan.basis, Flow)
-    sfx = _key_suffix(plan)
-    dose = {
-        "mmol_per_l": a.mmol_per_l,
-        "mg_per_l_product": a.mg_per_l_product,
-        "kg_active" + sfx: a.kg_active,
-        "kg_product" + sfx: a.kg_product,
-        "litres_product" + sfx: a.litres_product,
-    }
-    if flow:
-        dose["ml_product_per_min"] = (None if a.litres_product is None
-                                      else a.litres_product * 1000 / 60)
-    supply = _daily(scenario, plan)
-    dose.update({k: v for k, v in supply.items() if v is not None})
+    a = plan.amounts()
     cost = None
     if scenario.price_per_kg is not None and a.kg_product is not None:
         cost = a.kg_product * scenario.price_per_kg
-    w = plan.water
     return {
         "title": scenario.title,
         "site": scenario.site,
@@ -213,14 +196,8 @@ def sheet_dict(scenario: Scenario, plan: Plan) -> dict[str, Any]:
         "dose_needed": plan.dose_needed,
         "target": {"ph_min": plan.target.ph_min, "ph_max": plan.target.ph_max,
                    "ph_aim": plan.target.ph_aim},
-        "dose": dose,
-        "window": {
-            "dose_mmol_per_l": [a_lo.mmol_per_l, None if a_hi is None else a_hi.mmol_per_l],
-            "dose_kg_product": [a_lo.kg_product, None if a_hi is None else a_hi.kg_product],
-            "dose_litres_product": [a_lo.litres_product,
-                                    None if a_hi is None else a_hi.litres_product],
-            "per": "hour" if flow else "batch",
-        },
+        "dose": _dose_dict(scenario, plan),
+        "window": _window_dict(plan),
         "sensitivity": {
             "ph_per_mmol_l": plan.slope_ph_per_mmol_l,
             "ph_per_percent_of_dose": plan.slope_ph_per_mmol_l * plan.dose_mol_l * 10.0,
@@ -228,48 +205,89 @@ def sheet_dict(scenario: Scenario, plan: Plan) -> dict[str, Any]:
             "ph_at_low_dose": plan.ph_low_dose,
             "ph_at_high_dose": plan.ph_high_dose,
         },
-        "lab_precision": [{
-            "measurement": p.field, "value": p.value, "plus_minus": p.plus_minus,
-            "unit": p.unit,
-            "dose_mmol_per_l_low_reading": (None if p.dose_low_reading_mol_l is None
-                                            else p.dose_low_reading_mol_l * 1000),
-            "dose_mmol_per_l_high_reading": (None if p.dose_high_reading_mol_l is None
-                                             else p.dose_high_reading_mol_l * 1000)}
-            for p in plan.precision],
+        "lab_precision": _precision_list(plan),
         "uncertainty": _uncertainty_dict(plan),
         "staging": _staging_dict(plan),
         "control": _control_dict(plan),
-        "log_bias": (None if plan.log_bias is None else {
-            "tank": plan.log_bias.tank, "entries": plan.log_bias.entries,
-            "mean_ratio": plan.log_bias.mean_ratio, "sd_ratio": plan.log_bias.sd_ratio,
-            "bench_titration_due": plan.log_bias.due,
-            "offered_dose": _amount_dict(plan, plan.dose_mol_l * plan.log_bias.mean_ratio),
-            "applied": False}),
-        "cost" + sfx: cost,
-        "water": {
-            "temperature_c": w.temperature_c,
-            "activity_model": "davies" if w.davies else "ideal",
-            "open_to_air": w.open_to_air,
-            "air_exchange": None if plan.air is None else {
-                "hours_in_air": plan.air.hours, "depth_m": plan.air.depth_m,
-                "fraction_to_equilibrium": plan.air.fraction,
-                "planned_at_air_equilibrium": plan.air.at_equilibrium,
-                "other_case_dose_mmol_per_l": (None if plan.air.other_dose_mol_l is None
-                                               else plan.air.other_dose_mol_l * 1000),
-                "other_case_ph": plan.air.ph_other},
-            "totals_mmol_l": {k: v * 1000 for k, v in w.totals_mol_l.items()},
-            "strong_ion_balance_meq_l": w.strong_eq_l * 1000,
-            "ionic_strength_mol_l": w.ionic_strength,
-            "alkalinity_mg_l_as_caco3": w.alkalinity_eq_l * CACO3_MG_PER_MEQ * 1000.0,
-            "ionic_strength_after_mol_l": plan.ionic_strength_end,
-            "metals_mmol_l": {k: v * 1000 for k, v in w.metals_mol_l.items()},
-            "ferrous_oxidised": w.ferrous_oxidised,
-        },
+        "log_bias": _log_bias_dict(plan),
+        "cost" + _key_suffix(plan): cost,
+        "water": _water_dict(plan),
         **metals_dict(scenario, plan),
         "checks": [{"id": c.id, "level": c.level, "message": c.message,
                     "values": dict(c.values)} for c in plan.checks],
         "warnings": list(plan.warnings),
         "cautions": list(plan.cautions),
+    }
+
+
+def _dose_dict(scenario: Scenario, plan: Plan) -> dict[str, Any]:
+    a, sfx = plan.amounts(), _key_suffix(plan)
+    dose = {
+        "mmol_per_l": a.mmol_per_l,
+        "mg_per_l_product": a.mg_per_l_product,
+        "kg_active" + sfx: a.kg_active,
+        "kg_product" + sfx: a.kg_product,
+        "litres_product" + sfx: a.litres_product,
+    }
+    if isinstance(plan.basis, Flow):
+        dose["ml_product_per_min"] = (None if a.litres_product is None
+                                      else a.litres_product * 1000 / 60)
+    dose.update({k: v for k, v in _daily(scenario, plan).items() if v is not None})
+    return dose
+
+
+def _window_dict(plan: Plan) -> dict[str, Any]:
+    lo, hi = plan.band_mol_l
+    a_lo = plan.amounts(lo)
+    a_hi = plan.amounts(hi) if hi is not None else None
+    return {
+        "dose_mmol_per_l": [a_lo.mmol_per_l, None if a_hi is None else a_hi.mmol_per_l],
+        "dose_kg_product": [a_lo.kg_product, None if a_hi is None else a_hi.kg_product],
+        "dose_litres_product": [a_lo.litres_product,
+                                None if a_hi is None else a_hi.litres_product],
+        "per": "hour" if isinstance(plan.basis, Flow) else "batch",
+    }
+
+
+def _precision_list(plan: Plan) -> list[dict[str, Any]]:
+    def mmol(x):
+        return None if x is None else x * 1000
+    return [{"measurement": p.field, "value": p.value, "plus_minus": p.plus_minus,
+             "unit": p.unit, "dose_mmol_per_l_low_reading": mmol(p.dose_low_reading_mol_l),
+             "dose_mmol_per_l_high_reading": mmol(p.dose_high_reading_mol_l)}
+            for p in plan.precision]
+
+
+def _log_bias_dict(plan: Plan) -> dict[str, Any] | None:
+    b = plan.log_bias
+    if b is None:
+        return None
+    return {"tank": b.tank, "entries": b.entries, "mean_ratio": b.mean_ratio,
+            "sd_ratio": b.sd_ratio, "bench_titration_due": b.due,
+            "offered_dose": _amount_dict(plan, plan.dose_mol_l * b.mean_ratio),
+            "applied": False}
+
+
+def _water_dict(plan: Plan) -> dict[str, Any]:
+    w, air = plan.water, plan.air
+    return {
+        "temperature_c": w.temperature_c,
+        "activity_model": "davies" if w.davies else "ideal",
+        "open_to_air": w.open_to_air,
+        "air_exchange": None if air is None else {
+            "hours_in_air": air.hours, "depth_m": air.depth_m,
+            "fraction_to_equilibrium": air.fraction,
+            "planned_at_air_equilibrium": air.at_equilibrium,
+            "other_case_dose_mmol_per_l": (None if air.other_dose_mol_l is None
+                                           else air.other_dose_mol_l * 1000),
+            "other_case_ph": air.ph_other},
+        "totals_mmol_l": {k: v * 1000 for k, v in w.totals_mol_l.items()},
+        "strong_ion_balance_meq_l": w.strong_eq_l * 1000,
+        "ionic_strength_mol_l": w.ionic_strength,
+        "alkalinity_mg_l_as_caco3": w.alkalinity_eq_l * CACO3_MG_PER_MEQ * 1000.0,
+        "ionic_strength_after_mol_l": plan.ionic_strength_end,
+        "metals_mmol_l": {k: v * 1000 for k, v in w.metals_mol_l.items()},
+        "ferrous_oxidised": w.ferrous_oxidised,
     }
 
 
