@@ -241,11 +241,8 @@ def titration_figure_png(curve, report: dict, title: str = "") -> bytes:
     ph_grid = np.linspace(min(curve.ph), max(curve.ph), 400)
     ml = direct.interpolant(ph_grid)
     ax.plot(ml, ph_grid, color="0.4", lw=1.2, label="interpolation (PCHIP)")
-    v = np.linspace(0, curve.added_ml[-1], 300)
-    from .equilibrium import add_dose, solve_ph
-    mix = water.mixture().take(np.zeros(v.size, dtype=int))
-    ph_model = solve_ph(add_dose(mix, curve.titrant.vector(),
-                                 v * curve.titrant.molarity_mol_l / curve.sample_ml))
+    from .titration import model_curve
+    v, ph_model = model_curve(curve, water)
     used = report["model"].get("used", "simple")
     ax.plot(v, ph_model, color="tab:blue", lw=1.8,
             label="fitted water (" + ("buffer spectrum" if used == "spectrum" else "model")

@@ -43,7 +43,7 @@ from .reagents import COMPOUNDS, Compound, Reagent, get_reagent
 from .scenario import Scenario
 
 __all__ = ["Titrant", "parse_titrant", "BenchCurve", "check_curve", "DirectScaling",
-           "direct_scaling", "WaterFit", "fit_water", "compare", "MISREAD_PH",
+           "direct_scaling", "WaterFit", "fit_water", "compare", "MISREAD_PH", "model_curve",
            "GAP_WARN", "equivalents_per_mol"]
 
 #: A pH step against the titrant's direction larger than this is a misread
@@ -445,6 +445,17 @@ def _standard_errors(jac: np.ndarray, s2: float) -> tuple[list[float | None], fl
         for k, v in zip(np.flatnonzero(live), var):
             out[k] = float(math.sqrt(max(v, 0.0))) if math.isfinite(v) else None
     return out, cond
+
+
+def model_curve(curve: BenchCurve, water: Water, points: int = 300
+                ) -> tuple[np.ndarray, np.ndarray]:
+    """Titrant volume [mL] and the fitted water's pH along it (forward solves),
+    from none to the last volume titrated."""
+    v = np.linspace(0.0, float(curve.added_ml[-1]), points)
+    mix = water.mixture().take(np.zeros(points, dtype=int))
+    ph = solve_ph(add_dose(mix, curve.titrant.vector(),
+                           v * curve.titrant.molarity_mol_l / curve.sample_ml))
+    return v, ph
 
 
 def _extrapolation_words(curve: BenchCurve, target: Target, spec) -> list[str]:

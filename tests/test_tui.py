@@ -169,6 +169,11 @@ def test_loads_a_bench_titration(tmp_path):
         assert "direct scaling" in text and "model fit" in text
         assert "[sulfuric-98]" in text         # shown as text, not eaten as markup
         assert "against direct scaling" in app.status
+        # The curve is drawn too: the readings and the fitted water through them.
+        plot = app.query_one("#titration-plot")
+        assert plot.display
+        drawn = plot.plt.build()
+        assert "measured" in drawn and "fitted water" in drawn
         app.load_titration(f"{tmp_path / 'none.csv'}; 50; 0.1 N H2SO4")
         await pilot.pause()
         assert "no such file" in app.status

@@ -36,7 +36,7 @@ from dosing.sweep import default_alternative, default_sizes, sweep
 from .form import FIELDS, ScenarioForm, field_id
 from .screens.help import HelpScreen
 from .screens.path import PathScreen
-from .widgets.curve import CurvePlot
+from .widgets.curve import CurvePlot, TitrationPlot
 from .widgets.dose import DosePanel
 from .widgets.sweep import SweepTable
 
@@ -130,6 +130,9 @@ class Tankside(App):
                         yield Static(id="sheet-text")
                 with TabPane("Titration", id="titration"):
                     with VerticalScroll():
+                        plot = TitrationPlot(id="titration-plot")
+                        plot.display = False
+                        yield plot
                         yield Static("Press F8 to load a bench titration (CSV of titrant "
                                      "mL and pH).", id="titration-text")
         yield Static("", id="status")
@@ -387,7 +390,11 @@ class Tankside(App):
             self.status = f"titration not loaded: {err}"
             return
         self.query_one("#titration-text", Static).update(
-            Text(render_titration(self.scenario, report, self.units)))
+            Text(render_titration(self.scenario, report, self.units,
+                                  width=self._sheet_width())))
+        plot = self.query_one("#titration-plot", TitrationPlot)
+        plot.display = True
+        plot.show(curve, report["_plan"].water, report["_plan"].target)
         self.query_one(TabbedContent).active = "titration"
         gap = report["gap_model_vs_direct"]
         self.status = (f"titration {path}: model {gap:+.0%} against direct scaling"

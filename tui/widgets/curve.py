@@ -7,7 +7,7 @@ from textual_plotext import PlotextPlot
 from dosing.plan import Batch, Plan
 from dosing.sheet import UNIT_SYSTEMS
 
-__all__ = ["CurvePlot", "curve_axes"]
+__all__ = ["CurvePlot", "TitrationPlot", "curve_axes"]
 
 
 def curve_axes(plan: Plan, units: str) -> tuple[list[float], list[float], str, float]:
@@ -44,4 +44,26 @@ class CurvePlot(PlotextPlot):
         p.xlabel(label)
         p.ylabel("pH")
         p.ylim(max(0.0, min(min(ph), t.ph_min) - 0.5), min(14.0, max(max(ph), t.ph_max) + 0.5))
+        self.refresh()
+
+
+class TitrationPlot(PlotextPlot):
+    """A bench titration: the readings, and the fitted water's curve through them."""
+
+    def show(self, curve, water, target) -> None:
+        from dosing.titration import model_curve
+        v, ph = model_curve(curve, water, points=120)
+        p = self.plt
+        p.clear_data()
+        p.clear_figure()
+        p.plot([float(x) for x in v], [float(y) for y in ph], label="fitted water",
+               color="cyan")
+        p.scatter([float(x) for x in curve.added_ml], [float(y) for y in curve.ph],
+                  marker="●", color="white", label="measured")
+        p.hline(target.ph_min, "green")
+        p.hline(target.ph_max, "green")
+        p.hline(target.ph_aim, "green+")
+        p.title("bench titration: measured (dots), fitted water (line), window (green)")
+        p.xlabel(f"titrant {curve.titrant.label}, mL into {curve.sample_ml:g} mL")
+        p.ylabel("pH")
         self.refresh()
