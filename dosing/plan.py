@@ -39,8 +39,9 @@ from .solids import (METAL_PERMIT_KEYS, CapWindow, Solid, cap_window, metals_aft
                      metals_present_mol_l, solids_after)
 from .water import henry_co2
 
-__all__ = ["permit_breaches", "AirExchange", "CalciteCase", "CALCITE_SI_FAST", "Target", "Batch", "Flow", "Amounts", "TitrationCurve", "Plan",
-           "plan_dose", "titration_curve", "METERING_ERROR"]
+__all__ = ["has_grip", "GRIP_MIN", "permit_breaches", "AirExchange", "CalciteCase",
+           "CALCITE_SI_FAST", "Target", "Batch", "Flow", "Amounts", "TitrationCurve",
+           "Plan", "plan_dose", "titration_curve", "METERING_ERROR"]
 
 #: Relative metering error used for the sensitivity check (common practice:
 #: a well-kept metering pump holds its rate within a few per cent).
@@ -252,7 +253,7 @@ def _air_exchange(water: Water, reagent: Reagent, aim: float, dose: float
     at_eq = water.dosed_at_air_equilibrium
     other = water.mixture(air_equilibrium=not at_eq)
     d, grip = dose_to_ph(other, reagent.vector(), np.array([aim]))
-    ok = math.isfinite(d[0]) and grip[0] * _direction(reagent) > 1e-9 and d[0] >= 0
+    ok = bool(has_grip(reagent, d, grip)[0]) and d[0] >= 0
     ph_other = float(solve_ph(add_dose(other, reagent.vector(), dose), ph_guess=aim)[0])
     return AirExchange(water.hours_in_air, water.depth_m, water.air_fraction, at_eq,
                        float(d[0]) if ok else None, ph_other)
@@ -260,6 +261,18 @@ def _air_exchange(water: Water, reagent: Reagent, aim: float, dose: float
 
 def _direction(reagent: Reagent) -> int:
     return 1 if reagent.raises_ph else -1
+
+
+#: Charge a mole of reagent brings at the target below which it has no grip
+#: on the pH there [eq/mol] (CO2 at low pH, lime past portlandite saturation).
+GRIP_MIN = 1e-9
+
+
+def has_grip(reagent: Reagent, dose, grip) -> np.ndarray:
+    """Where the direct dose solve gave a dose the reagent can deliver: finite,
+    and the reagent moves the pH its own way at the target."""
+    dose, grip = np.asarray(dose, dtype=float), np.asarray(grip, dtype=float)
+    return np.isfinite(dose) & (grip * _direction(reagent) > GRIP_MIN)
 
 
 def _doses_at(mix: Mixture, reagent: Reagent, ph) -> tuple[np.ndarray, np.ndarray]:
@@ -279,7 +292,7 @@ def _reach_problem(water: Water, reagent: Reagent, ph: float, dose: float,
         return (f"{reagent.name} takes this water no higher than about pH "
                 f"{ceiling:.2f} at {water.temperature_c:g} °C, where the water is "
                 "saturated with it (more only stays undissolved)")
-    if not math.isfinite(dose) or grip * d <= 1e-9:
+    if not has_grip(reagent, dose, grip):
         return f"{reagent.name} has no grip on the pH near {ph:g}"
     if dose < -1e-12:
         return (f"{reagent.name} {verb} pH, and this water at pH {water.ph:g} is "

@@ -31,7 +31,7 @@ from .equilibrium import (CARBONATE, N_SYSTEMS, Mixture, add_dose, carbonate_for
                           co2_in_air_mol_l, dose_to_ph, speciate, strong_balance_at_ph,
                           system_index)
 from .hazards import calcite_si
-from .plan import CALCITE_SI_FAST
+from .plan import CALCITE_SI_FAST, has_grip
 from .errors import ScenarioError
 from .scenario import Scenario
 from .water import T_MAX_C, T_MIN_C
@@ -233,10 +233,9 @@ def _dose_for(scenario: Scenario, ph, temp, alk, flag, ok) -> np.ndarray:
     dose, grip = dose_to_ph(mix, reagent.vector(), target.ph_aim)
     if w.calcite == "auto":
         dose = _calcite_where_fast(mix, reagent, target.ph_aim, dose)
-    direction = 1.0 if reagent.raises_ph else -1.0
     inside = (ph >= target.ph_min) & (ph <= target.ph_max)
     limit = reagent.practical_limit(target.ph_aim) is not None
-    no_grip = ~np.isfinite(dose) | (grip * direction <= 1e-9) | limit
+    no_grip = ~has_grip(reagent, dose, grip) | limit
     wrong = ~no_grip & (dose < 0) & ~inside
     dose = np.where(~no_grip & (dose < 0) & inside, 0.0, dose)
     flag[positions[bad]] = "alkalinity_bad"
