@@ -35,6 +35,7 @@ References
 
 from __future__ import annotations
 
+import inspect
 import math
 from dataclasses import dataclass, field, replace
 from typing import Any, Mapping
@@ -636,8 +637,7 @@ class Perturbation:
     metal_factor: np.ndarray     #: each metal over its value given [-]
 
 
-def infer_many(inputs: Mapping[str, Any], variants: Perturbation, *,
-               air_equilibrium: bool = False, calcite: bool = False
+def infer_many(inputs: Mapping[str, Any], variants: Perturbation
                ) -> tuple[Mixture, np.ndarray]:
     """The waters behind many variants of one set of measurements, at once.
 
@@ -646,28 +646,30 @@ def infer_many(inputs: Mapping[str, Any], variants: Perturbation, *,
     steps as :func:`infer_water`, vectorised: carbonate from the lab value
     (or from air, or as given), then the strong-ion balance from the pH.
 
-    Returns the mixtures (ready for dosing: aerated iron, CO2 held by air
-    with ``air_equilibrium``, calcite with ``calcite``) and a mask of the
-    variants that a real water can be (a lab value below what the rest
-    implies, beyond the lab's precision, or an unsettled ionic strength is
-    not).
+    Returns the mixtures, ready for dosing as :meth:`Water.mixture` makes
+    them (aerated iron, CO2 held by air when the water stands long enough,
+    calcite as the inputs say), and a mask of the variants that a real water
+    can be (a lab value below what the rest implies, beyond the lab's
+    precision, or an unsettled ionic strength is not).
     """
-    a = dict(inputs)
+    # infer_water's own defaults fill what the inputs leave out.
+    bound = inspect.signature(infer_water).bind(**inputs)
+    bound.apply_defaults()
+    a = bound.arguments
     job, totals, metals, ions, measured = _validate(
-        a["ph"], a.get("temperature_c", 25.0), a.get("alkalinity_mg_l_as_caco3"),
-        a.get("acidity_mg_l_as_caco3"), a.get("solutes_mmol_l"), a.get("solutes_mg_l"),
-        a.get("activity", "davies"), a.get("pco2_uatm", DEFAULT_PCO2_UATM),
-        a.get("alkalinity_endpoint_ph", ALKALINITY_ENDPOINT_PH),
-        a.get("acidity_endpoint_ph", ACIDITY_ENDPOINT_PH),
-        a.get("extra_ionic_strength_mol_l", 0.0), a.get("ions_mg_l"), a.get("unknown_pka"),
-        a.get("metals_mg_l"), a.get("oxidise_ferrous", False), a.get("open_to_air", False))
+        a["ph"], a["temperature_c"], a["alkalinity_mg_l_as_caco3"],
+        a["acidity_mg_l_as_caco3"], a["solutes_mmol_l"], a["solutes_mg_l"], a["activity"],
+        a["pco2_uatm"], a["alkalinity_endpoint_ph"], a["acidity_endpoint_ph"],
+        a["extra_ionic_strength_mol_l"], a["ions_mg_l"], a["unknown_pka"], a["metals_mg_l"],
+        a["oxidise_ferrous"], a["open_to_air"])
+    air_equilibrium = bool(a["open_to_air"]) and air_exchange_fraction(
+        a["hours_in_air"], a["depth_m"]) >= FULL_EXCHANGE
     v = variants
     n = v.ph.size
     vec = np.repeat(job.vec[None, :], n, axis=0)
     vec[:, :N_ACIDS] *= v.solute_factor[:, None]
     vec[:, N_ACIDS:] *= v.metal_factor[:, None]
-    ok = _many_carbonate(job, measured, "carbonate" in totals,
-                         bool(a.get("open_to_air", False)), v, vec)
+    ok = _many_carbonate(job, measured, "carbonate" in totals, bool(a["open_to_air"]), v, vec)
     s, ionic = strong_balance_at_ph(vec, v.ph, v.temperature_c, davies=job.davies,
                                     extra_ionic_strength=job.known_i,
                                     unknown_pka=job.unknown_pka,
@@ -677,9 +679,9 @@ def infer_many(inputs: Mapping[str, Any], variants: Perturbation, *,
     strong_i = job.known_i + 0.5 * np.abs(s - job.known_eq)
     co2 = (co2_in_air_mol_l(v.temperature_c, job.pco2_uatm * 1e-6) if air_equilibrium
            else np.full(n, math.nan))
-    tank = aerate(vec) if a.get("oxidise_ferrous", False) else vec
+    tank = aerate(vec) if a["oxidise_ferrous"] else vec
     mix = Mixture.build(tank, s, strong_i, v.temperature_c, co2, job.davies, job.unknown_pka)
-    return replace(mix, calcite=calcite), ok
+    return replace(mix, calcite=a["calcite"] == "precipitates"), ok
 
 
 def _many_carbonate(job: _Job, measured: _Measured | None, given_c: bool, open_to_air: bool,

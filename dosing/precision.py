@@ -13,18 +13,17 @@ keyword arguments and returns numbers.
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
 from typing import Any, Mapping
 
 import numpy as np
 
-from .effluent import LAB_PRECISION, LOW_READING_MG_L, infer_water
+from .effluent import LAB_PRECISION, LOW_READING_MG_L, Perturbation, infer_many
 from .equilibrium import dose_to_ph
-from .errors import DosingError
+from .plan import has_grip
 from .reagents import Reagent
 
-__all__ = ["PH_PRECISION", "SENSITIVE", "Sensitivity", "lab_sensitivity",
+__all__ = ["PH_PRECISION", "SENSITIVE", "Sensitivity", "lab_field", "lab_sensitivity",
            "precision_warning"]
 
 #: Precision of a pH reading with a meter calibrated that day [pH units]
@@ -60,25 +59,13 @@ class Sensitivity:
         return max((abs(r) for r in self.relative(dose_mol_l) if r is not None), default=0.0)
 
 
-def _lab_field(inputs: Mapping[str, Any]) -> tuple[str, str] | None:
+def lab_field(inputs: Mapping[str, Any]) -> tuple[str, str] | None:
+    """The lab measurement the inputs give (scenario key, plain name), if any."""
     for field, label in (("alkalinity_mg_l_as_caco3", "alkalinity"),
                          ("acidity_mg_l_as_caco3", "acidity")):
         if inputs.get(field) is not None:
             return field, label
     return None
-
-
-def _dose(inputs: Mapping[str, Any], reagent: Reagent, aim: float) -> float | None:
-    """The dose to ``aim`` for a water inferred from ``inputs``; None if refused."""
-    try:
-        water = infer_water(**inputs)
-    except DosingError:
-        return None                    # that reading is impossible for this water
-    d, grip = dose_to_ph(water.mixture(), reagent.vector(), np.array([aim]))
-    direction = 1.0 if reagent.raises_ph else -1.0
-    if not math.isfinite(d[0]) or grip[0] * direction <= 1e-12:
-        return None
-    return max(float(d[0]), 0.0)
 
 
 def lab_sensitivity(inputs: Mapping[str, Any], reagent: Reagent, aim: float
@@ -87,21 +74,28 @@ def lab_sensitivity(inputs: Mapping[str, Any], reagent: Reagent, aim: float
     their precision (one at a time, the other held).
 
     The lab value's precision is :data:`LAB_PRECISION` of it, and at least
-    :data:`LOW_READING_MG_L`; the pH's is :data:`PH_PRECISION`.
+    :data:`LOW_READING_MG_L`; the pH's is :data:`PH_PRECISION`. All the
+    variants are inferred and solved at once (:func:`infer_many`); a
+    reading no real water can give has no dose (None).
     """
-    out = []
-    lab = _lab_field(inputs)
-    if lab is not None:
-        field, label = lab
-        v = float(inputs[field])
-        pm = max(LAB_PRECISION * v, LOW_READING_MG_L)
-        lo = _dose({**inputs, field: max(v - pm, 0.0)}, reagent, aim)
-        hi = _dose({**inputs, field: v + pm}, reagent, aim)
-        out.append(Sensitivity(field, label, v, pm, "mg/L as CaCO3", lo, hi))
     ph = float(inputs["ph"])
-    lo = _dose({**inputs, "ph": max(ph - PH_PRECISION, 0.0)}, reagent, aim)
-    hi = _dose({**inputs, "ph": min(ph + PH_PRECISION, 14.0)}, reagent, aim)
-    out.append(Sensitivity("ph", "pH", ph, PH_PRECISION, "", lo, hi))
+    lab = lab_field(inputs)
+    v = float(inputs[lab[0]]) if lab else 0.0
+    pm = max(LAB_PRECISION * v, LOW_READING_MG_L)
+    phs = [ph, ph, max(ph - PH_PRECISION, 0.0), min(ph + PH_PRECISION, 14.0)]
+    labs = [max(v - pm, 0.0), v + pm, v, v]
+    n = len(phs)
+    ones = np.ones(n)
+    mix, ok = infer_many(inputs, Perturbation(
+        np.array(phs), np.full(n, float(inputs.get("temperature_c", 25.0))),
+        np.array(labs), ones, ones))
+    d, grip = dose_to_ph(mix, reagent.vector(), np.full(n, aim))
+    good = ok & has_grip(reagent, d, grip)
+    dose = [max(float(x), 0.0) if g else None for x, g in zip(d, good)]
+    out = []
+    if lab is not None:
+        out.append(Sensitivity(lab[0], lab[1], v, pm, "mg/L as CaCO3", dose[0], dose[1]))
+    out.append(Sensitivity("ph", "pH", ph, PH_PRECISION, "", dose[2], dose[3]))
     return tuple(out)
 
 

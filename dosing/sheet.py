@@ -104,9 +104,7 @@ def make_plan(scenario: Scenario, *, sampled: bool = True) -> Plan:
         raise ScenarioError(scenario.source, "[effluent]", str(err)) from None
     if not plan.dose_needed or "effluent" not in scenario.data:
         return plan
-    # The same calcite case as the plan (its "auto" may have chosen precipitation).
-    inputs = dict(water_inputs(scenario.data), calcite=plan.water.calcite)
-    sens = lab_sensitivity(inputs, scenario.reagent, scenario.target.ph_aim)
+    sens = lab_sensitivity(_inputs(scenario, plan), scenario.reagent, scenario.target.ph_aim)
     words = precision_warning(sens, plan.dose_mol_l)
     plan = replace(plan, precision=sens,
                    warnings=plan.warnings + ((words,) if words else ()))
@@ -123,10 +121,15 @@ def with_uncertainty(scenario: Scenario, plan: Plan) -> Plan:
     return replace(plan, control=control_design(plan, scenario.flow_range_m3_h))
 
 
+def _inputs(scenario: Scenario, plan: Plan) -> dict[str, Any]:
+    """The scenario's measurements, with the plan's calcite case (its "auto" may
+    have chosen precipitation), for re-inferring its water."""
+    return dict(water_inputs(scenario.data), calcite=plan.water.calcite)
+
+
 def _sampled(scenario: Scenario, plan: Plan) -> Plan:
     spread = scenario.spread
-    inputs = dict(water_inputs(scenario.data), calcite=plan.water.calcite)
-    unc = dose_uncertainty(inputs, plan, spread)
+    unc = dose_uncertainty(_inputs(scenario, plan), plan, spread)
     if unc is None:
         return plan
     staging = None

@@ -35,6 +35,8 @@ import numpy as np
 from .effluent import Perturbation, infer_many
 from .equilibrium import Mixture, add_dose, dose_to_ph, solve_ph, strong_balance_at_ph
 from .errors import InputError
+from .plan import has_grip
+from .precision import lab_field
 
 __all__ = ["Spread", "SPREAD_KEYS", "DoseUncertainty", "Staging", "TrimRow",
            "dose_uncertainty", "staged_dose", "follow_table", "spread_from", "MATERIAL_RISK",
@@ -143,11 +145,11 @@ class _Sample:
     strength: np.ndarray      # true product strength over the nominal [-]
 
 
-def _sample(inputs: Mapping[str, Any], spread: Spread, water) -> _Sample:
+def _sample(inputs: Mapping[str, Any], spread: Spread) -> _Sample:
     """Latin-hypercube sample of the inputs, and the waters they imply."""
     keys = ["ph", "temperature", "amount", "strength"]
-    lab_key = next((k for k in ("alkalinity_mg_l_as_caco3", "acidity_mg_l_as_caco3")
-                    if inputs.get(k) is not None), None)
+    lab = lab_field(inputs)
+    lab_key = lab[0] if lab else None
     if lab_key and _nothing_to_titrate(inputs, lab_key):
         lab_key = None          # a 0 the method must give is exact, not a reading
     if lab_key:
@@ -173,8 +175,7 @@ def _sample(inputs: Mapping[str, Any], spread: Spread, water) -> _Sample:
         lab_mg_l=np.maximum(lab0 + lab_sd * col.get("lab", zero), 0.0),
         solute_factor=rel("solutes", spread.solutes_percent),
         metal_factor=rel("metals", spread.metals_percent))
-    mix, ok = infer_many(inputs, variants, air_equilibrium=water.dosed_at_air_equilibrium,
-                         calcite=water.calcite == "precipitates")
+    mix, ok = infer_many(inputs, variants)
     return _Sample(mix, ok, z, tuple(keys),
                    np.maximum(rel("amount", spread.amount_percent), 0.05),
                    np.maximum(rel("strength", spread.strength_percent), 0.05))
@@ -221,12 +222,11 @@ def dose_uncertainty(inputs: Mapping[str, Any], plan, spread: Spread = Spread()
     meter): the true need times the true volume over the stated, over the
     true strength. None when no sampled water is a real one.
     """
-    s = _sample(inputs, spread, plan.water)
+    s = _sample(inputs, spread)
     r = plan.reagent.vector()
     aim, target = plan.target.ph_aim, plan.target
     need, grip = dose_to_ph(s.mix, r, aim)
-    direction = 1.0 if plan.reagent.raises_ph else -1.0
-    valid = s.ok & np.isfinite(need) & (grip * direction > 1e-12)
+    valid = s.ok & has_grip(plan.reagent, need, grip)
     if not valid.any():
         return None
     idx = np.flatnonzero(valid)

@@ -75,7 +75,7 @@ def test_trim_table_lands_in_the_window_as_often_as_stated(name):
     st = plan.staging
     assert st is not None and st.trim
     # True waters drawn independently of the ones the plan was made from.
-    other = _sample(inputs, replace(s.spread, seed=7, samples=800), plan.water)
+    other = _sample(inputs, replace(s.spread, seed=7, samples=800))
     idx = np.flatnonzero(other.ok)
     delivered = other.strength[idx] / other.amount[idx]
     final = follow_table(plan, st, other.mix.take(idx), delivered)
