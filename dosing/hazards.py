@@ -310,7 +310,7 @@ def _scale_checks(water: Water, after: Speciation) -> tuple[Check, ...]:
     ca_free = _free_calcium_mol_l(after)
     ca_mg = ca_free * MOLAR_MASS["Ca"] * 1000.0
     if ca_free > 0 and float(after.totals_mol_l[0, CARBONATE]) > 0:
-        si = _calcite_si(ca_free, after, t, water.davies)
+        si = float(calcite_si(after, t, water.davies)[0])
         formed = float(after.calcite_mol_l[0]) > 0
         level = "warning" if si > CALCITE_SI_WARN else "info"
         checks.append(Check(
@@ -371,14 +371,6 @@ def _after_mg_l(water: Water, added: Mapping[str, float], after: Speciation,
     if s > 0 or "SO4" in added:
         out["sulfate"] = (s, "water plus dose")
     return out
-
-
-def _calcite_si(ca_mol_l: float, after: Speciation, t: float, davies: bool) -> float:
-    """log10(IAP/Ksp) for calcite, Davies activities unless ideal [-]."""
-    co3 = float(after.concentration(CARBONATE, 2)[0])
-    if co3 <= 0:
-        return -math.inf
-    return math.log10(ca_mol_l * co3) + 2 * _log_gamma2(after, t, davies) + float(calcite_pksp(t))
 
 
 def calcite_si(sp: Speciation, temperature_c, davies: bool) -> np.ndarray:

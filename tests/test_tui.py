@@ -220,7 +220,7 @@ def test_saving_keeps_comments_and_asks_before_overwriting(tmp_path):
         app.save_path(str(src))
         await pilot.pause()
         assert "saved" in app.status
-    asyncio.run(_drive_at(check, str(src)))
+    drive(check, str(src))
     after = src.read_text()
     comments = [ln for ln in before.splitlines() if ln.lstrip().startswith("#")]
     assert comments and all(c in after for c in comments)
@@ -229,12 +229,6 @@ def test_saving_keeps_comments_and_asks_before_overwriting(tmp_path):
     changed = [(a, b) for a, b in zip(before.splitlines(), after.splitlines()) if a != b]
     assert len(changed) == 1 and "ph_aim" in changed[0][1]
 
-
-async def _drive_at(coro_fn, path):
-    app = make_app(path)
-    async with app.run_test(size=(150, 45)) as pilot:
-        await pilot.pause()
-        await coro_fn(app, pilot)
 
 
 def test_switching_product_drops_the_old_price_and_lists_names():
