@@ -33,7 +33,9 @@ def _png(fig, cautions: tuple[str, ...] | list[str] = ()) -> bytes:
     lines = [ln for c in cautions if c != FOOTER and "final word" not in c
              for ln in textwrap.wrap("Caution: " + c, 150)] + [FOOTER]
     fig.text(0.01, 0.005, "\n".join(lines), fontsize=6.5, color="0.3", va="bottom")
-    fig.tight_layout(rect=(0, 0.012 * len(lines) + 0.01, 1, 1))
+    # Room for the footer whatever the figure's height: about 9 pt a line.
+    footer = (len(lines) * 9.0 / 72.0 + 0.08) / fig.get_figheight()
+    fig.tight_layout(rect=(0, footer, 1, 1))
     buf = io.BytesIO()
     fig.savefig(buf, format="png")
     plt.close(fig)
@@ -227,7 +229,9 @@ def titration_figure_png(curve, report: dict, title: str = "") -> bytes:
     with a buffer spectrum fitted, its sites as bars over pKa below."""
     direct = report["_direct"]
     plan = report["_plan"]
-    spec = report.get("_spectrum")
+    # The spectrum is drawn when the plan rests on it (not when the simple fit sufficed).
+    used = report["model"].get("used", "simple")
+    spec = report.get("_spectrum") if used == "spectrum" else None
     water = plan.water
     if spec is not None:
         fig, (ax, ax_s) = plt.subplots(2, 1, figsize=(8.0, 9.0), dpi=110,
@@ -243,7 +247,6 @@ def titration_figure_png(curve, report: dict, title: str = "") -> bytes:
     ax.plot(ml, ph_grid, color="0.4", lw=1.2, label="interpolation (PCHIP)")
     from .titration import model_curve
     v, ph_model = model_curve(curve, water)
-    used = report["model"].get("used", "simple")
     ax.plot(v, ph_model, color="tab:blue", lw=1.8,
             label="fitted water (" + ("buffer spectrum" if used == "spectrum" else "model")
             + ")")
@@ -272,10 +275,10 @@ def _spectrum_panel(ax, spec) -> None:
         ax.bar([pk1], [spec.carbonate_mol_l * 1000], width=0.16, color="tab:orange",
                label=f"carbonate (pK {pk1:.2f}, {pk2:.2f})")
     bars = spec.site_mol_l * 1000
-    ymax = float(bars.max(initial=0.0)) or 1.0
+    ymax = max(float(bars.max(initial=0.0)), spec.carbonate_mol_l * 1000) or 1.0
     for r in spec.regions:
-        if r.edge:
-            continue
+        if r.edge or r.mmol_l < 0.05 * ymax:
+            continue                      # small regions unlabelled: labels would collide
         near = bars[np.abs(spec.site_pka - r.pka) <= 0.5]
         y = float(near.max(initial=0.0)) + 0.04 * ymax
         ax.annotate(f"{r.mmol_l:.2g} mmol/L" + (f"\n{r.guess}?" if r.guess else ""),
