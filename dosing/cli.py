@@ -17,6 +17,7 @@ with code 2; nothing is written when a run fails.
 from __future__ import annotations
 
 import argparse
+import contextlib
 import sys
 
 from .errors import DosingError, ScenarioError, UsageError
@@ -239,19 +240,17 @@ def _cmd_replay(args) -> int:
         raise ScenarioError(args.scenario, "[flow]", "replay needs a flow scenario: logged "
                             "data are flows and rates, and this scenario plans a batch; "
                             "give [flow] m3_per_h instead of [batch]")
-    with _progress(args.data) as progress:
-        if args.csv:
-            with atomic_text_writer(args.csv) as fh:
-                report, totals = run_replay(args.data, scenario, chunk_rows=args.chunk_rows,
-                                            rows_out=fh, progress=progress,
-                                            keep_hourly=bool(args.plot))
-        else:
-            report, totals = run_replay(args.data, scenario, chunk_rows=args.chunk_rows,
-                                        progress=progress, keep_hourly=bool(args.plot))
+    # The finite check runs inside the CSV writer, so a report that cannot be
+    # printed leaves no per-row file behind either.
+    with _progress(args.data) as progress, \
+            (atomic_text_writer(args.csv) if args.csv else contextlib.nullcontext()) as fh:
+        report, totals = run_replay(args.data, scenario, chunk_rows=args.chunk_rows,
+                                    rows_out=fh, progress=progress,
+                                    keep_hourly=bool(args.plot))
+        require_finite(report, f"{args.data}: replay")
     if args.plot:
         from .plot import replay_figure_png
         write_atomic(args.plot, replay_figure_png(totals, report, args.units))
-    require_finite(report, "replay")
     sys.stdout.write(to_json(report) if args.json else render_replay(report, args.units))
     return 0
 

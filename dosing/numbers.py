@@ -6,6 +6,8 @@ import math
 
 __all__ = ["fmt", "require_finite", "to_json"]
 
+TINY_EXPONENT = -6
+
 
 def fmt(x: float | None, digits: int = 3, *, floor: float | None = None,
         zero_below: float | None = None) -> str:
@@ -14,6 +16,7 @@ def fmt(x: float | None, digits: int = 3, *, floor: float | None = None,
     A value below what the model resolves for its quantity is not printed
     digit by digit: under ``floor`` (an amount that cannot be negative) it
     reads "below FLOOR", under ``zero_below`` (a signed change) it reads 0.
+    Otherwise a number under 1e-6 is written with an exponent.
 
     Examples
     --------
@@ -21,6 +24,8 @@ def fmt(x: float | None, digits: int = 3, *, floor: float | None = None,
     ('1,601', '0.0123', '2.00', 'n/a')
     >>> fmt(7.1e-18, floor=1e-4), fmt(-6.5e-20, 2, zero_below=5e-4), fmt(0.0, floor=1e-4)
     ('below 0.0001', '0', '0')
+    >>> fmt(7.3488e-311), fmt(2.5e-7, 2)
+    ('7.35e-311', '2.5e-07')
     """
     if x is None or (isinstance(x, float) and math.isnan(x)):
         return "n/a"
@@ -31,6 +36,8 @@ def fmt(x: float | None, digits: int = 3, *, floor: float | None = None,
     if floor is not None and abs(x) < floor:
         return f"below {floor:g}" if floor >= 1e-4 else f"below {floor:.0e}"
     mag = math.floor(math.log10(abs(x)))
+    if mag < TINY_EXPONENT:     # 300 zeros help no one: 7.35e-311
+        return f"{x:.{digits - 1}e}"
     decimals = max(0, digits - 1 - mag)
     return f"{x:,.{decimals}f}"
 

@@ -368,11 +368,7 @@ def replay_report(totals: ReplayTotals, scenario: Scenario, source: str) -> dict
         cum = np.cumsum(totals.hist[1:])
         k = int(np.searchsorted(cum, math.ceil(0.05 * cum[-1])))
         low = float(_EDGES[k + 1])
-    supply = None
-    if scenario.storage_m3 and mean_daily_l:
-        supply = scenario.storage_m3 * 1000.0 / mean_daily_l
-    elif scenario.storage_kg and mean_daily_kg:
-        supply = scenario.storage_kg / mean_daily_kg
+    supply = scenario.storage_lasts(mean_daily_l, mean_daily_kg)
     cost = totals.kg * scenario.price_per_kg if scenario.price_per_kg else None
     reasons = {k: {"rows": v, "why": FLAGS[k]} for k, v in sorted(totals.flags.items())}
     return {

@@ -145,6 +145,22 @@ class Scenario:
     spread: Spread = field(default_factory=Spread)
     flow_range_m3_h: tuple[float, float] | None = None
 
+    def storage_lasts(self, litres_used: float | None, kg_used: float | None) -> float | None:
+        """How many periods the storage lasts at the given use per period.
+
+        Storage by volume is divided by the litres used, storage by mass by
+        the kilograms. None when no storage is given, nothing is used, or the
+        use is so small that the ratio is no finite number (a flow of 1e-311
+        m3/h would otherwise last "infinity" periods).
+        """
+        if self.storage_m3 and litres_used:
+            periods = self.storage_m3 * 1000.0 / litres_used
+        elif self.storage_kg and kg_used:
+            periods = self.storage_kg / kg_used
+        else:
+            return None
+        return periods if math.isfinite(periods) else None
+
 
 def _is_number(v) -> bool:
     return isinstance(v, (int, float)) and not isinstance(v, bool)

@@ -161,14 +161,7 @@ def _daily(scenario: Scenario, plan: Plan) -> dict[str, float | None]:
     if isinstance(plan.basis, Flow):
         if a.kg_product is not None:
             out["kg_product_per_day"] = a.kg_product * scenario.hours_per_day
-    store_l = scenario.storage_m3 * 1000 if scenario.storage_m3 else None
-    store_kg = scenario.storage_kg
-    use_l, use_kg = a.litres_product, a.kg_product
-    supply = None
-    if store_l is not None and use_l:
-        supply = store_l / use_l
-    elif store_kg is not None and use_kg:
-        supply = store_kg / use_kg
+    supply = scenario.storage_lasts(a.litres_product, a.kg_product)
     if supply is not None:
         if isinstance(plan.basis, Flow):
             out["days_of_supply"] = supply / scenario.hours_per_day
