@@ -120,17 +120,40 @@ def plan_rows(frame: pd.DataFrame, scenario: Scenario, state: ReplayState) -> pd
     Returns a frame with, per row: ``dt_s`` (time the row stands for),
     ``dose_mmol_l``, ``dose_kg_h`` and ``dose_l_h`` of product, ``kg`` and
     ``litres`` of product for the row, ``outside`` (raw pH outside the
-    window) and ``flag`` ("" when planned).
+    window) and ``flag`` ("" when planned). ``state`` carries the time step
+    and the pH run from the rows before and is updated for the rows after.
     """
-    n = len(frame)
-    flag = np.full(n, "", dtype=object)
+    flag = np.full(len(frame), "", dtype=object)
+    t, dt = _time_steps(frame, state, flag)
+    flow, ph, temp = _readings(frame, scenario, flag)
+    _flatline(ph, state, flag)
+    good_t = ~np.isnan(t)
+    if good_t.any():
+        state.last_ts = t[good_t][-1]
+    ok = flag == ""
+    dose = np.full(len(frame), np.nan)
+    if ok.any():
+        dose[ok] = _dose_for(scenario, ph[ok], temp[ok],
+                             frame["alkalinity_mg_l_as_caco3"].to_numpy()[ok]
+                             if "alkalinity_mg_l_as_caco3" in frame else None, flag, ok)
+    return _row_results(frame, scenario, flag, flow, ph, temp, dt, dose)
 
-    def mark(mask, name):
-        sel = mask & (flag == "")
-        flag[sel] = name
 
+def _mark(flag: np.ndarray, mask: np.ndarray, name: str) -> None:
+    """Flag the rows in ``mask`` not flagged already (the first reason wins)."""
+    flag[mask & (flag == "")] = name
+
+
+def _time_steps(frame: pd.DataFrame, state: ReplayState, flag: np.ndarray):
+    """Seconds of each row and the time it stands for [s].
+
+    A row stands for the time since the last valid timestamp before it; the
+    first row of a record, and a step over a gap longer than
+    :data:`GAP_LIMIT_S`, stand for the record's usual step (the median of
+    the first chunk, kept in ``state``). Rows with no valid time stand for 0.
+    """
     t = _seconds(frame["timestamp"])
-    mark(np.isnan(t), "bad_timestamp")
+    _mark(flag, np.isnan(t), "bad_timestamp")
     prev = np.concatenate([[state.last_ts if state.last_ts is not None else np.nan], t[:-1]])
     # carry the last valid time forward over bad rows
     prev = pd.Series(prev).ffill().to_numpy(copy=True)
@@ -140,7 +163,7 @@ def plan_rows(frame: pd.DataFrame, scenario: Scenario, state: ReplayState) -> pd
         first = int(np.flatnonzero(good_t)[0])
         prev[: first + 1] = np.nan
     dt = t - prev
-    mark(good_t & ~np.isnan(dt) & (dt <= 0), "time_not_increasing")
+    _mark(flag, good_t & ~np.isnan(dt) & (dt <= 0), "time_not_increasing")
     if state.nominal_s is None:
         steps = dt[np.isfinite(dt) & (dt > 0)]
         state.nominal_s = float(np.median(steps)) if steps.size else 60.0
@@ -148,38 +171,41 @@ def plan_rows(frame: pd.DataFrame, scenario: Scenario, state: ReplayState) -> pd
     dt = np.where(np.isnan(dt), nominal, dt)
     dt = np.where(dt > GAP_LIMIT_S, nominal, np.maximum(dt, 0.0))
     dt[~good_t] = 0.0
+    return t, dt
 
+
+def _readings(frame: pd.DataFrame, scenario: Scenario, flag: np.ndarray):
+    """Flow [m3/h], pH and temperature [°C] as numbers, implausible ones flagged."""
     flow = pd.to_numeric(frame["flow_m3_h"], errors="coerce").to_numpy(dtype=float)
     ph = pd.to_numeric(frame["ph"], errors="coerce").to_numpy(dtype=float)
-    mark(np.isnan(flow), "flow_missing")
-    mark(flow < 0, "flow_negative")
-    mark(~(flow <= FLOW_MAX_M3_H), "flow_implausible")
-    mark(np.isnan(ph), "ph_missing")
-    mark((ph < 0) | (ph > 14), "ph_out_of_range")
-    w = scenario.water
+    _mark(flag, np.isnan(flow), "flow_missing")
+    _mark(flag, flow < 0, "flow_negative")
+    _mark(flag, ~(flow <= FLOW_MAX_M3_H), "flow_implausible")
+    _mark(flag, np.isnan(ph), "ph_missing")
+    _mark(flag, (ph < 0) | (ph > 14), "ph_out_of_range")
     if "temperature_c" in frame:
         temp = pd.to_numeric(frame["temperature_c"], errors="coerce").to_numpy(dtype=float)
     else:
-        temp = np.full(n, w.temperature_c)
-    mark(~((temp >= T_MIN_C) & (temp <= T_MAX_C)), "temperature_out_of_range")
-    # Stuck sensor: runs of the same pH, carried across chunks.
+        temp = np.full(len(frame), scenario.water.temperature_c)
+    _mark(flag, ~((temp >= T_MIN_C) & (temp <= T_MAX_C)), "temperature_out_of_range")
+    return flow, ph, temp
+
+
+def _flatline(ph: np.ndarray, state: ReplayState, flag: np.ndarray) -> None:
+    """Flag a stuck sensor: runs of the same pH, carried across chunks."""
+    n = ph.size
     same = np.concatenate([[ph[0] == state.last_ph] if n else [], ph[1:] == ph[:-1]])
     idx = np.arange(n)
     last_reset = np.maximum.accumulate(np.where(~same, idx, -1)) if n else idx
     run = np.where(last_reset < 0, state.run + idx + 1, idx - last_reset + 1)
-    mark(run >= FLATLINE_ROWS, "ph_flatline")
+    _mark(flag, run >= FLATLINE_ROWS, "ph_flatline")
     if n:
         state.last_ph = ph[-1]
         state.run = int(run[-1])
-    if good_t.any():
-        state.last_ts = t[good_t][-1]
 
-    ok = flag == ""
-    dose = np.full(n, np.nan)
-    if ok.any():
-        dose[ok] = _dose_for(scenario, ph[ok], temp[ok],
-                             frame["alkalinity_mg_l_as_caco3"].to_numpy()[ok]
-                             if "alkalinity_mg_l_as_caco3" in frame else None, flag, ok)
+
+def _row_results(frame, scenario: Scenario, flag, flow, ph, temp, dt, dose) -> pd.DataFrame:
+    """The per-row output frame: dose, product per hour and per row, window."""
     planned = flag == ""
     r_ = scenario.reagent
     kg_mol = r_.kg_product_per_mol
