@@ -59,8 +59,17 @@ def _parser() -> argparse.ArgumentParser:
     t.add_argument("--db", metavar="PATH", help="shift log for recording decisions")
     _log_parser(sub)
     r = sub.add_parser("replay", help="replay logged flow and pH data through the planner")
-    r.add_argument("data", help="CSV (or Parquet) with timestamp, flow (m3/h) and pH columns")
-    r.add_argument("--scenario", required=True, help="scenario: water model, reagent, window")
+    r.add_argument("data", nargs="*", help="CSV (or Parquet) files or globs with timestamp, "
+                   "flow (m3/h) and pH columns; several are read as one record, in order")
+    r.add_argument("--scenario", help="scenario: water model, reagent, window")
+    r.add_argument("--fleet", metavar="FLEET.toml",
+                   help="replay every site of a fleet file ([sites.NAME] scenario, data) on Dask")
+    r.add_argument("--scheduler", metavar="ADDRESS",
+                   help="run on this Dask cluster (default: a local one, one worker per core)")
+    r.add_argument("--workers", type=int, metavar="N",
+                   help="local Dask workers (also runs a single site in parallel)")
+    r.add_argument("--part-mb", type=float, default=16.0, metavar="MB",
+                   help="size of the file parts each Dask task reads (default 16)")
     r.add_argument("--json", action="store_true", help="print the summary as JSON")
     r.add_argument("--csv", metavar="OUT.csv", help="write per-row results")
     r.add_argument("--plot", metavar="FILE.png", help="write time series and daily use")
@@ -199,24 +208,26 @@ def _count_lines(path: str) -> int | None:
 
 class _progress:
     """A progress bar on stderr while a replay runs (rich: width, rate and time
-    left handled there); nothing when stderr is not a terminal."""
+    left handled there); nothing when stderr is not a terminal. The callable
+    it gives takes the count done (and, optionally, the total)."""
 
-    def __init__(self, path: str):
-        self.path = path
+    def __init__(self, total: int | None, unit: str):
+        self.total, self.unit = total, unit
         self._bar = None
 
     def __enter__(self):
         if not sys.stderr.isatty():
-            return lambda n: None
+            return lambda n, total=None: None
         from rich.console import Console
         from rich.progress import (BarColumn, MofNCompleteColumn, Progress, TextColumn,
                                    TimeRemainingColumn)
         self._bar = Progress(TextColumn("replay"), BarColumn(), MofNCompleteColumn(),
-                             TextColumn("rows"), TimeRemainingColumn(),
+                             TextColumn(self.unit), TimeRemainingColumn(),
                              console=Console(stderr=True), transient=True)
         self._bar.start()
-        task = self._bar.add_task("replay", total=_count_lines(self.path))
-        return lambda n: self._bar.update(task, completed=n)
+        task = self._bar.add_task("replay", total=self.total)
+        return lambda n, total=None: self._bar.update(task, completed=n,
+                                                      total=total or self.total)
 
     def __exit__(self, *exc):
         if self._bar is not None:
@@ -225,33 +236,94 @@ class _progress:
 
 
 def _cmd_replay(args) -> int:
-    from .files import atomic_text_writer
-    from .replay_io import run_replay
-    from .scenario import load_scenario
     from .sheet import render_replay
     for opt, ext in ((args.csv, ".csv"), (args.plot, ".png")):
         if opt and not opt.lower().endswith(ext):
             raise ScenarioError(opt, "", f"give a file name ending in {ext}")
     if args.chunk_rows < 1000:
         raise UsageError("--chunk-rows", "allowed: 1000 or more")
-    scenario = load_scenario(args.scenario)
-    from .plan import Flow
-    if not isinstance(scenario.basis, Flow):
-        raise ScenarioError(args.scenario, "[flow]", "replay needs a flow scenario: logged "
-                            "data are flows and rates, and this scenario plans a batch; "
-                            "give [flow] m3_per_h instead of [batch]")
-    # The finite check runs inside the CSV writer, so a report that cannot be
-    # printed leaves no per-row file behind either.
-    with _progress(args.data) as progress, \
-            (atomic_text_writer(args.csv) if args.csv else contextlib.nullcontext()) as fh:
-        report, totals = run_replay(args.data, scenario, chunk_rows=args.chunk_rows,
-                                    rows_out=fh, progress=progress,
-                                    keep_hourly=bool(args.plot))
-        require_finite(report, f"{args.data}: replay")
+    if args.workers is not None and not 1 <= args.workers <= 256:
+        raise UsageError("--workers", "allowed: 1 to 256")
+    if not 0.01 <= args.part_mb <= 4096:
+        raise UsageError("--part-mb", "allowed: 0.01 to 4096 MB")
+    if args.fleet:
+        return _replay_fleet(args)
+    if not args.data:
+        raise UsageError("replay", "give the data file(s) and --scenario, or --fleet FLEET.toml")
+    if not args.scenario:
+        raise UsageError("--scenario", "missing; give the flow scenario the data belong to")
+    scenario = _flow_scenario(args.scenario)
+    from .replay_io import site_files
+    files = site_files(args.data, where="data")
+    if args.scheduler or args.workers:
+        if args.csv:
+            raise UsageError("--csv", "per-row results are written by a one-process replay; "
+                             "leave out --workers and --scheduler")
+        from .fleet import Site
+        report, totals = _run_on_dask(args, [Site("data", scenario, tuple(files))])[0]["data"]
+    else:
+        report, totals = _replay_in_process(args, scenario, files)
     if args.plot:
         from .plot import replay_figure_png
         write_atomic(args.plot, replay_figure_png(totals, report, args.units))
     sys.stdout.write(to_json(report) if args.json else render_replay(report, args.units))
+    return 0
+
+
+def _flow_scenario(path: str):
+    from .plan import Flow
+    from .scenario import load_scenario
+    scenario = load_scenario(path)
+    if not isinstance(scenario.basis, Flow):
+        raise ScenarioError(path, "[flow]", "replay needs a flow scenario: logged "
+                            "data are flows and rates, and this scenario plans a batch; "
+                            "give [flow] m3_per_h instead of [batch]")
+    return scenario
+
+
+def _replay_in_process(args, scenario, files: list[str]):
+    """One site, one pass, in this process (the per-row CSV is written here)."""
+    from .files import atomic_text_writer
+    from .replay_io import run_replay
+    counts = [_count_lines(f) for f in files]
+    total = None if None in counts else sum(counts)
+    # The finite check runs inside the CSV writer, so a report that cannot be
+    # printed leaves no per-row file behind either.
+    with _progress(total, "rows") as progress, \
+            (atomic_text_writer(args.csv) if args.csv else contextlib.nullcontext()) as fh:
+        report, totals = run_replay(files, scenario, chunk_rows=args.chunk_rows,
+                                    rows_out=fh, progress=progress,
+                                    keep_hourly=bool(args.plot))
+        require_finite(report, f"{report['source']}: replay")
+    return report, totals
+
+
+def _run_on_dask(args, sites):
+    """Replay sites on Dask (a local cluster or ``--scheduler``):
+    ({name: (report, totals)}, the number of workers)."""
+    from .fleet import dask_client, replay_sites
+    with _progress(None, "parts") as progress, \
+            dask_client(args.scheduler, args.workers) as client:
+        workers = len(client.scheduler_info().get("workers", {}))
+        results = replay_sites(sites, client, part_bytes=int(args.part_mb * 2**20),
+                               chunk_rows=args.chunk_rows, keep_hourly=bool(args.plot),
+                               progress=progress)
+    for name, (report, _) in results.items():
+        require_finite(report, f"{report['source']}: replay")
+    return results, workers
+
+
+def _replay_fleet(args) -> int:
+    from .fleet import fleet_report, load_fleet
+    from .sheet import render_fleet
+    for given, option in ((args.data, "data files"), (args.scenario, "--scenario"),
+                          (args.csv, "--csv"), (args.plot, "--plot")):
+        if given:
+            raise UsageError("--fleet", f"{option} cannot go with a fleet file; each site's "
+                             "scenario and data are in the fleet file")
+    sites = load_fleet(args.fleet)
+    report = fleet_report(args.fleet, *_run_on_dask(args, sites))
+    sys.stdout.write(to_json(report) if args.json else render_fleet(report, args.units))
     return 0
 
 

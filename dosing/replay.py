@@ -37,7 +37,8 @@ from .scenario import Scenario
 from .water import T_MAX_C, T_MIN_C
 
 __all__ = ["COLUMN_NAMES", "normalise_columns", "ReplayState", "plan_rows",
-           "ReplayTotals", "replay_report", "FLAGS", "FLATLINE_ROWS", "GAP_LIMIT_S"]
+           "ReplayTotals", "replay_report", "FLAGS", "FLATLINE_ROWS", "GAP_LIMIT_S",
+           "PartResult", "plan_part", "stitch", "head_length", "nominal_step"]
 
 #: Accepted spellings of each column (lower case, units in brackets ignored).
 COLUMN_NAMES = {
@@ -366,6 +367,24 @@ class ReplayTotals:
                 self.hourly[h] = [a[0] + row.ph_sum, a[1] + int(row.ph_n),
                                   a[2] + row.rate_sum, a[3] + int(row.rate_n)]
 
+    def merge(self, other: "ReplayTotals") -> None:
+        """Add another part's totals (parts of one site, in any order)."""
+        for name in ("rows", "planned", "kg", "litres", "seconds", "seconds_outside",
+                     "seconds_planned", "rate_sum"):
+            setattr(self, name, getattr(self, name) + getattr(other, name))
+        self.flags.update(other.flags)
+        self.rate_max = max(self.rate_max, other.rate_max)
+        self.hist += other.hist
+        for mine, theirs in ((self.daily_kg, other.daily_kg), (self.daily_l, other.daily_l)):
+            for d, v in theirs.items():
+                mine[d] = mine.get(d, 0.0) + v
+        for h, b in other.hourly.items():
+            a = self.hourly.get(h, [0.0, 0, 0.0, 0])
+            self.hourly[h] = [x + y for x, y in zip(a, b)]
+        if other.first is not None:
+            self.first = other.first if self.first is None else min(self.first, other.first)
+            self.last = other.last if self.last is None else max(self.last, other.last)
+
     def percentile(self, q: float) -> float:
         """Dose-rate percentile from the histogram (upper bin edge) [rate unit]."""
         total = int(self.hist.sum())
@@ -375,6 +394,93 @@ class ReplayTotals:
         if k == 0:
             return 0.0
         return float(_EDGES[min(k + 1, _EDGES.size - 1)])
+
+
+# ------------------------------------------------------------ parts --
+# A long record cut into parts (blocks of a file, files of a site) is planned
+# part by part in any order, on any worker, and gives the same totals as one
+# pass: only a part's first rows depend on the rows before it (the pH run of
+# the stuck-sensor check, the step from the last valid time), so each part
+# plans its body alone and hands back its head, which :func:`stitch` plans in
+# order once the state before it is known.
+
+def nominal_step(frame: pd.DataFrame) -> float:
+    """A record's usual time step [s]: the median step of its first chunk
+    (60 s when that chunk has no step), as :func:`plan_rows` finds it."""
+    state = ReplayState()
+    frame = frame.reset_index(drop=True)
+    _time_steps(frame, state, np.full(len(frame), "", dtype=object))
+    return state.nominal_s
+
+
+def head_length(frame: pd.DataFrame) -> int:
+    """Leading rows of a part whose results depend on the rows before it.
+
+    A pH run reaches :data:`FLATLINE_ROWS` within the part from row
+    ``FLATLINE_ROWS - 1`` on, whatever came before; a row's time step needs
+    the last valid time before it, which lies inside the part after its
+    first valid timestamp.
+    """
+    t = _seconds(frame["timestamp"])
+    valid = np.flatnonzero(~np.isnan(t))
+    first_valid = int(valid[0]) + 1 if valid.size else len(frame)
+    return min(len(frame), max(FLATLINE_ROWS - 1, first_valid))
+
+
+@dataclass
+class PartResult:
+    """One part planned without knowing what came before it.
+
+    ``totals`` holds the rows after the head; ``head`` is the raw leading
+    rows; ``last_ph``, ``tail_run`` (rows at the end with that pH) and
+    ``last_ts`` (last valid time, or None) are what the part hands on.
+    """
+
+    totals: ReplayTotals
+    head: pd.DataFrame
+    rows: int
+    last_ph: float
+    tail_run: int
+    last_ts: float | None
+
+
+def plan_part(frame: pd.DataFrame, scenario: Scenario, nominal_s: float,
+              rate_unit: str, keep_hourly: bool = True) -> PartResult:
+    """Plan one part of a record; see :func:`stitch` for putting parts together."""
+    frame = frame.reset_index(drop=True)
+    n, h = len(frame), head_length(frame)
+    totals = ReplayTotals(rate_unit=rate_unit, keep_hourly=keep_hourly)
+    state = ReplayState(nominal_s=nominal_s)
+    if h < n:
+        totals.add(plan_rows(frame, scenario, state).iloc[h:])
+    ph = pd.to_numeric(frame["ph"], errors="coerce").to_numpy(dtype=float)
+    changes = np.flatnonzero(ph[1:] != ph[:-1])      # NaN differs from everything
+    tail_run = n - 1 - int(changes[-1]) if changes.size else n
+    t = _seconds(frame["timestamp"])
+    valid = t[~np.isnan(t)]
+    return PartResult(totals=totals, head=frame.iloc[:h], rows=n,
+                      last_ph=float(ph[-1]) if n else math.nan, tail_run=max(tail_run, 1),
+                      last_ts=float(valid[-1]) if valid.size else None)
+
+
+def stitch(parts, scenario: Scenario, nominal_s: float, totals: ReplayTotals) -> None:
+    """Add the parts of one record, in record order, into ``totals``.
+
+    Each part's head is planned with the state the parts before it leave, so
+    the sum equals one pass over the whole record (to rounding of the sums).
+    """
+    state = ReplayState(nominal_s=nominal_s)
+    for part in parts:
+        if len(part.head):
+            totals.add(plan_rows(part.head, scenario, state))
+        totals.merge(part.totals)
+        body = part.rows - len(part.head)
+        if body:
+            # A run that reaches back into the head continues the head's run.
+            state.run = part.tail_run if part.tail_run <= body else state.run + body
+            state.last_ph = part.last_ph
+        if part.last_ts is not None:
+            state.last_ts = part.last_ts
 
 
 def replay_report(totals: ReplayTotals, scenario: Scenario, source: str) -> dict[str, Any]:

@@ -7,9 +7,12 @@ into the totals, optionally written out, and dropped.
 
 from __future__ import annotations
 
+import contextlib
+import glob
 import io
+from dataclasses import dataclass
 from pathlib import Path
-from typing import Callable, Iterator
+from typing import Callable, Iterator, Sequence
 
 import pandas as pd
 
@@ -17,7 +20,8 @@ from .errors import ScenarioError
 from .replay import ReplayState, ReplayTotals, normalise_columns, plan_rows, replay_report
 from .scenario import Scenario
 
-__all__ = ["iter_chunks", "run_replay", "CHUNK_ROWS"]
+__all__ = ["iter_chunks", "iter_site_chunks", "run_replay", "site_files", "Part",
+           "file_parts", "read_part", "CHUNK_ROWS", "PART_BYTES"]
 
 CHUNK_ROWS = 100_000
 
@@ -43,27 +47,30 @@ def iter_chunks(path: str, chunk_rows: int = CHUNK_ROWS) -> Iterator[pd.DataFram
     p = Path(path)
     if not p.is_file():
         raise ScenarioError(path, "", "no such file")
-    if p.suffix.lower() in (".parquet", ".pq"):
+    if p.suffix.lower() in PARQUET_SUFFIXES:
         yield from _parquet_chunks(path, chunk_rows)
         return
+    with _csv_errors(path):
+        # The reader is closed even when the caller stops early.
+        with pd.read_csv(path, chunksize=chunk_rows, dtype=str,
+                         skipinitialspace=True) as reader:
+            first = True
+            mapping = None
+            for raw in reader:
+                if mapping is None:
+                    mapping = normalise_columns(list(raw.columns), path)
+                yield _our_frame(raw, mapping, first)
+                first = False
+
+
+PARQUET_SUFFIXES = (".parquet", ".pq")
+
+
+@contextlib.contextmanager
+def _csv_errors(path: str):
+    """pandas' reading errors as one line naming the file."""
     try:
-        reader = pd.read_csv(path, chunksize=chunk_rows, dtype=str, skipinitialspace=True)
-        first = True
-        mapping = None
-        for raw in reader:
-            if mapping is None:
-                mapping = normalise_columns(list(raw.columns), path)
-            frame = raw[[mapping[k] for k in mapping]].copy()
-            frame.columns = list(mapping)
-            if first and len(frame):
-                # A units row (m3/h, -, ...) right under the header.
-                row = frame.iloc[0]
-                if (pd.isna(_parse_times(pd.Series([row["timestamp"]])).iloc[0])
-                        and pd.isna(pd.to_numeric(pd.Series([row["ph"]]), errors="coerce").iloc[0])):
-                    frame = frame.iloc[1:]
-            first = False
-            frame["timestamp"] = _parse_times(frame["timestamp"])
-            yield frame
+        yield
     except pd.errors.EmptyDataError:
         raise ScenarioError(path, "", "the file is empty") from None
     except (pd.errors.ParserError, UnicodeDecodeError) as err:
@@ -72,30 +79,167 @@ def iter_chunks(path: str, chunk_rows: int = CHUNK_ROWS) -> Iterator[pd.DataFram
                             "header's fields, no more") from None
 
 
-def _parquet_chunks(path: str, chunk_rows: int) -> Iterator[pd.DataFrame]:
-    try:
-        import pyarrow.parquet as pq
-    except ImportError:
-        raise ScenarioError(path, "", "reading Parquet needs pyarrow (pip install "
-                            "'neutral-dosing[parquet]'); or give a CSV") from None
-    import pyarrow as pa
-    try:
+def _our_frame(raw: pd.DataFrame, mapping: dict[str, str], first: bool) -> pd.DataFrame:
+    """Our columns from a raw CSV chunk; a units row right under the header
+    (m3/h, -, ...) is dropped from the file's first chunk."""
+    frame = raw[[mapping[k] for k in mapping]].copy()
+    frame.columns = list(mapping)
+    if first and len(frame):
+        row = frame.iloc[0]
+        if (pd.isna(_parse_times(pd.Series([row["timestamp"]])).iloc[0])
+                and pd.isna(pd.to_numeric(pd.Series([row["ph"]]), errors="coerce").iloc[0])):
+            frame = frame.iloc[1:]
+    frame["timestamp"] = _parse_times(frame["timestamp"])
+    return frame
+
+
+def site_files(patterns: Sequence[str], base: Path | None = None,
+               where: str = "") -> list[str]:
+    """The data files of one site, in the order given; a glob (``*``, ``?``,
+    ``[...]``) expands to its matches in name order.
+
+    Paths are taken relative to ``base`` when given (a fleet file's folder).
+    ``where`` names the option or key for an error.
+    """
+    out: list[str] = []
+    for pat in patterns:
+        full = str(base / pat) if base is not None and not Path(pat).is_absolute() else pat
+        if glob.has_magic(full):
+            hits = sorted(glob.glob(full))
+            if not hits:
+                raise ScenarioError(full, where, "no file matches this pattern")
+            out.extend(hits)
+        else:
+            out.append(full)
+    seen = set()
+    for f in out:
+        if f in seen:
+            raise ScenarioError(f, where, "named twice for one site; a row would count twice")
+        seen.add(f)
+    return out
+
+
+def iter_site_chunks(paths: Sequence[str], chunk_rows: int = CHUNK_ROWS):
+    """Chunks of several files read as one record, in the order given."""
+    for path in paths:
+        yield from iter_chunks(path, chunk_rows)
+
+
+# ------------------------------------------------------------ parts --
+#: Default size of one part of a CSV file for a parallel replay [bytes].
+PART_BYTES = 16 * 2**20
+
+
+@dataclass(frozen=True)
+class Part:
+    """A byte range of a CSV file (or a row group of a Parquet file): every
+    line that starts in ``[start, end)`` belongs to it."""
+
+    path: str
+    start: int
+    end: int
+    header: bytes = b""
+    row_group: int = -1
+
+
+def file_parts(path: str, part_bytes: int = PART_BYTES) -> list[Part]:
+    """Cut one file into parts for a parallel replay."""
+    p = Path(path)
+    if not p.is_file():
+        raise ScenarioError(path, "", "no such file")
+    if p.suffix.lower() in PARQUET_SUFFIXES:
+        return _parquet_parts(path)
+    with open(path, "rb") as fh:
+        header = fh.readline()
+        size = p.stat().st_size
+    if not header.strip():
+        raise ScenarioError(path, "", "the file is empty")
+    with _csv_errors(path):
+        normalise_columns(list(pd.read_csv(io.BytesIO(header), dtype=str,
+                                           skipinitialspace=True).columns), path)
+    starts = range(len(header), max(size, len(header) + 1), part_bytes)
+    return [Part(path, a, min(a + part_bytes, size), header) for a in starts]
+
+
+def _parquet_parts(path: str) -> list[Part]:
+    pq, pa = _pyarrow(path)
+    with _parquet_errors(path, pa):
         f = pq.ParquetFile(path)
-        mapping = normalise_columns(f.schema.names, path)
-        for batch in f.iter_batches(batch_size=chunk_rows, columns=list(mapping.values())):
-            frame = batch.to_pandas()
-            frame = frame.rename(columns={v: k for k, v in mapping.items()})
-            frame["timestamp"] = _parse_times(frame["timestamp"])
-            yield frame
+        normalise_columns(f.schema.names, path)
+        return [Part(path, 0, 0, row_group=i) for i in range(f.num_row_groups)]
+
+
+def read_part(part: Part) -> pd.DataFrame:
+    """The rows of one part with our column names (the units row, if any,
+    only ever in the first part of a file)."""
+    if part.row_group >= 0:
+        return _read_row_group(part)
+    with open(part.path, "rb") as fh:
+        fh.seek(part.start - 1)
+        if fh.read(1) != b"\n":
+            fh.readline()                       # the line belongs to the part before
+        pos = fh.tell()
+        data = b""
+        if pos < part.end:
+            data = fh.read(part.end - pos)
+            if data and not data.endswith(b"\n"):
+                data += fh.readline()           # finish the last line begun here
+    with _csv_errors(part.path):
+        raw = pd.read_csv(io.BytesIO(part.header + data), dtype=str, skipinitialspace=True)
+        mapping = normalise_columns(list(raw.columns), part.path)
+        return _our_frame(raw, mapping, part.start == len(part.header))
+
+
+def _read_row_group(part: Part) -> pd.DataFrame:
+    pq, pa = _pyarrow(part.path)
+    with _parquet_errors(part.path, pa):
+        f = pq.ParquetFile(part.path)
+        mapping = normalise_columns(f.schema.names, part.path)
+        table = f.read_row_group(part.row_group, columns=list(mapping.values()))
+        return _our_parquet_frame(table, mapping)
+
+
+def _our_parquet_frame(table, mapping: dict[str, str]) -> pd.DataFrame:
+    frame = table.to_pandas().rename(columns={v: k for k, v in mapping.items()})
+    frame["timestamp"] = _parse_times(frame["timestamp"])
+    return frame
+
+
+@contextlib.contextmanager
+def _parquet_errors(path: str, pa):
+    """pyarrow's reading errors as one line naming the file."""
+    try:
+        yield
     except (pa.ArrowException, OSError) as err:
         why = " ".join(str(err).split())[:160]
         raise ScenarioError(path, "", f"not a readable Parquet file ({why})") from None
 
 
-def run_replay(path: str, scenario: Scenario, *, chunk_rows: int = CHUNK_ROWS,
+def _pyarrow(path: str):
+    try:
+        import pyarrow as pa
+        import pyarrow.parquet as pq
+    except ImportError:
+        raise ScenarioError(path, "", "reading Parquet needs pyarrow (pip install "
+                            "'neutral-dosing[parquet]'); or give a CSV") from None
+    return pq, pa
+
+
+def _parquet_chunks(path: str, chunk_rows: int) -> Iterator[pd.DataFrame]:
+    pq, pa = _pyarrow(path)
+    with _parquet_errors(path, pa):
+        f = pq.ParquetFile(path)
+        mapping = normalise_columns(f.schema.names, path)
+        for batch in f.iter_batches(batch_size=chunk_rows, columns=list(mapping.values())):
+            yield _our_parquet_frame(batch, mapping)
+
+
+def run_replay(paths: str | Sequence[str], scenario: Scenario, *,
+               chunk_rows: int = CHUNK_ROWS,
                rows_out: io.TextIOBase | None = None,
                progress: Callable[[int], None] | None = None, keep_hourly: bool = True):
-    """Replay the whole file; returns (report dict, totals).
+    """Replay the whole record (one file, or several read as one in the
+    order given); returns (report dict, totals).
 
     ``rows_out``, if given, receives the per-row results as CSV. Hourly
     means (for the plot) are the only state that grows with the length of
@@ -111,7 +255,8 @@ def run_replay(path: str, scenario: Scenario, *, chunk_rows: int = CHUNK_ROWS,
         from .reagents import GENERAL_CAUTION
         for line in tuple(scenario.reagent.cautions) + (GENERAL_CAUTION,):
             rows_out.write(f"# {line}\n")
-    for chunk in iter_chunks(path, chunk_rows):
+    paths = [paths] if isinstance(paths, str) else list(paths)
+    for chunk in iter_site_chunks(paths, chunk_rows):
         rows = plan_rows(chunk.reset_index(drop=True), scenario, state)
         totals.add(rows)
         if rows_out is not None:
@@ -119,7 +264,15 @@ def run_replay(path: str, scenario: Scenario, *, chunk_rows: int = CHUNK_ROWS,
             header = False
         if progress:
             progress(totals.rows)
+    return finish_replay(totals, scenario, paths), totals
+
+
+def finish_replay(totals: ReplayTotals, scenario: Scenario, paths: Sequence[str]) -> dict:
+    """The report of a whole record; a record with no usable row is refused."""
+    source = ", ".join(paths)
     if totals.planned == 0:
         why = ", ".join(f"{k} ({v})" for k, v in totals.flags.most_common(3)) or "no rows"
-        raise ScenarioError(path, "", f"no usable rows: {why}")
-    return replay_report(totals, scenario, path), totals
+        raise ScenarioError(source, "", f"no usable rows: {why}")
+    report = replay_report(totals, scenario, source)
+    report["files"] = list(paths)
+    return report

@@ -369,37 +369,45 @@ def _sludge(table: Mapping[str, Any]) -> tuple[float, float]:
     return float(frac), float(dens)
 
 
-def parse_scenario(text: str, path: str = "<scenario>") -> Scenario:
-    """Parse TOML text into a :class:`Scenario`."""
+def parse_toml(text: str, path: str, what: str = "a scenario") -> dict[str, Any]:
+    """TOML text as plain data; one clear error for what is not TOML."""
     # A byte-order mark from a Windows editor is not part of the TOML.
     text = text.removeprefix("\ufeff")
     try:
-        data = tomllib.loads(text)
+        return tomllib.loads(text)
     except tomllib.TOMLDecodeError as err:
         raise ScenarioError(path, "", f"not valid TOML ({err})") from None
     except RecursionError:
-        raise ScenarioError(path, "", "nested too deeply to be a scenario (tables "
+        raise ScenarioError(path, "", f"nested too deeply to be {what} (tables "
                             "inside tables, hundreds of levels)") from None
-    return build_scenario(data, path)
 
 
-def load_scenario(path: str | Path) -> Scenario:
-    """Read and validate a scenario file."""
+def read_text_file(path: str | Path, what: str = "scenario file") -> str:
+    """The UTF-8 text of a file the user named; one clear error otherwise."""
     p = Path(path)
     try:
         if p.exists() and not p.is_dir() and not p.is_file():
-            raise ScenarioError(str(path), "", "is not a regular file (a pipe or a "
-                                "device); give a scenario file")
-        text = p.read_text(encoding="utf-8")
+            raise ScenarioError(str(path), "", f"is not a regular file (a pipe or a "
+                                f"device); give a {what}")
+        return p.read_text(encoding="utf-8")
     except FileNotFoundError:
         raise ScenarioError(str(path), "", "no such file") from None
     except IsADirectoryError:
-        raise ScenarioError(str(path), "", "is a folder, not a scenario file") from None
+        raise ScenarioError(str(path), "", f"is a folder, not a {what}") from None
     except UnicodeDecodeError:
         raise ScenarioError(str(path), "", "not a UTF-8 text file") from None
     except OSError as err:
         raise ScenarioError(str(path), "", f"cannot be read ({err.strerror})") from None
-    return parse_scenario(text, str(path))
+
+
+def parse_scenario(text: str, path: str = "<scenario>") -> Scenario:
+    """Parse TOML text into a :class:`Scenario`."""
+    return build_scenario(parse_toml(text, path), path)
+
+
+def load_scenario(path: str | Path) -> Scenario:
+    """Read and validate a scenario file."""
+    return parse_scenario(read_text_file(path), str(path))
 
 
 def scenario_to_toml(data: Mapping[str, Any], original: str | None = None) -> str:

@@ -28,6 +28,7 @@ from .uncertainty import MATERIAL_RISK, dose_uncertainty, staged_dose
 from .scenario import Scenario, scenario_key, water_inputs
 
 __all__ = ["Units", "UNIT_SYSTEMS", "make_plan", "with_uncertainty", "sheet_dict", "render_sheet",
+           "render_fleet",
            "metals_dict", "metal_lines",
            "fmt", "product_text", "dose_lines", "check_lines", "caution_lines",
            "render_replay", "render_titration"]
@@ -559,10 +560,12 @@ def render_replay(report: dict[str, Any], units: str = "metric", width: int = 78
     rate = r["dose_rate"]
     conv = u.mass_per_kg if rate["unit"] == "kg/h" else u.product_volume_per_l
     rate_unit = (f"{u.mass}/h" if rate["unit"] == "kg/h" else f"{u.product_volume}/h")
-    out = [f"REPLAY  {r['scenario']}  [{r['reagent']}]", "=" * 40,
-           f"data     {r['source']}: {r['rows']:,} rows, {r['first']} to {r['last']} "
-           f"({fmt(r['hours_covered'] / 24)} days)",
-           f"planned  {r['rows_planned']:,} rows; not planned {r['rows_not_planned']:,}"]
+    import textwrap
+    out = [f"REPLAY  {r['scenario']}  [{r['reagent']}]", "=" * 40]
+    out += textwrap.wrap(f"data     {r['source']}: {r['rows']:,} rows, {r['first']} to "
+                         f"{r['last']} ({fmt(r['hours_covered'] / 24)} days)", width,
+                         subsequent_indent=" " * 9, break_on_hyphens=False)
+    out += [f"planned  {r['rows_planned']:,} rows; not planned {r['rows_not_planned']:,}"]
     for key, v in r["not_planned"].items():
         out.append(f"           {v['rows']:>9,}  {v['why']}")
     t = r["total"]
@@ -589,6 +592,59 @@ def render_replay(report: dict[str, Any], units: str = "metric", width: int = 78
     for c in r["cautions"]:
         out.extend(_wrap(c, width, "  - "))
     return "\n".join(out) + "\n"
+
+
+def render_fleet(report: dict[str, Any], units: str = "metric", width: int = 78) -> str:
+    """The fleet replay as text: one line per site, then totals per product."""
+    r = report
+    out = [f"FLEET REPLAY  {r['fleet']}  {len(r['sites'])} sites, {r['rows']:,} rows "
+           f"({r['rows_planned']:,} planned), {r['workers']} Dask workers", "=" * 40,
+           "", f"{'site':<18} {'product':>18} {'per day':>12} {'95th pct rate':>14} "
+           f"{'raw outside':>11}", f"{'':<18} {'over the record':>18} {'mean':>12} "
+           f"{'(pump sizing)':>14} {'window':>11}"]
+    for name, site in r["sites"].items():
+        out.append(_fleet_site_line(name, site, units))
+        if site["rows_not_planned"]:
+            top = max(site["not_planned"].items(), key=lambda kv: kv[1]["rows"])
+            out.extend(_wrap(f"{site['rows_not_planned']:,} of {site['rows']:,} rows not "
+                             f"planned (most: {top[1]['why']})", width, " " * 19))
+    out += ["", "BY PRODUCT (amounts of different products are never added)"]
+    for pid, p in r["products"].items():
+        unpriced = p["sites_without_price"]
+        if not unpriced:
+            cost = f", cost {fmt(p['cost'])}"
+        elif len(unpriced) < len(p["sites"]):
+            cost = f", cost {fmt(p['cost'])} not counting {', '.join(unpriced)} (no price)"
+        else:
+            cost = ""
+        n = len(p["sites"])
+        line = (f"{p['reagent_name']} [{pid}], {n} site{'s' if n != 1 else ''}: "
+                f"{product_text(p['kg_product'], p['litres_product'] or None, units)}{cost}")
+        out.extend(_wrap(line, width, "  "))
+    out += ["", "CAUTIONS"]
+    for c in r["cautions"]:
+        out.extend(_wrap(c, width, "  - "))
+    return "\n".join(out) + "\n"
+
+
+def _fleet_site_line(name: str, site: dict[str, Any], units: str) -> str:
+    """One site of the fleet table: total product, mean per day, 95th
+    percentile rate and hours the raw effluent was outside the window."""
+    u = UNIT_SYSTEMS[units]
+    rate = site["dose_rate"]
+    if rate["unit"] == "kg/h":
+        total = f"{fmt(site['total']['kg_product'] * u.mass_per_kg)} {u.mass}"
+        day = f"{fmt(site['daily']['mean_kg_product'] * u.mass_per_kg)} {u.mass}"
+        p95 = f"{fmt(rate['p95'] * u.mass_per_kg)} {u.mass}/h"
+    else:
+        total = f"{fmt(site['total']['litres_product'] * u.product_volume_per_l)} " \
+                f"{u.product_volume}"
+        day = f"{fmt(site['daily']['mean_litres_product'] * u.product_volume_per_l)} " \
+              f"{u.product_volume}"
+        p95 = f"{fmt(rate['p95'] * u.product_volume_per_l)} {u.product_volume}/h"
+    label = name if len(name) <= 18 else name[:17] + "…"
+    return (f"{label:<18} {total:>18} {day:>12} {p95:>14} "
+            f"{fmt(site['hours_outside_window']) + ' h':>11}")
 
 
 def _amount_dict(plan: Plan, mol_l: float, prefix: str = "") -> dict[str, Any]:

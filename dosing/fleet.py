@@ -1,0 +1,228 @@
+"""Replay many sites (or one long record) in parallel on Dask.
+
+A fleet file names each site with its scenario and its data files::
+
+    [sites.north-quay]
+    scenario = "north-quay.toml"          # a flow scenario
+    data = ["logs/north/*.csv"]           # files or globs, read in this order
+
+Paths are relative to the fleet file. Every file is cut into parts (byte
+ranges of a CSV, row groups of a Parquet file); a ``dask.dataframe`` built
+with ``from_map`` reads one part per partition and ``map_partitions`` runs
+the replay kernel on it (:func:`dosing.replay.plan_part`). The parts come
+back to this process in record order and are put together by
+:func:`dosing.replay.stitch`, which plans each part's first rows with the
+state the parts before it leave: the stuck-sensor run and the time step
+carry across parts and files exactly as in one pass, so a site's figures
+equal a single-site replay of the same files (to rounding of the sums).
+
+Dask is an optional dependency (``pip install 'neutral-dosing[fleet]'``):
+nothing here imports it until a replay runs. Workers must see the data
+files at the same paths as this process (a shared disk for a remote
+cluster).
+"""
+
+from __future__ import annotations
+
+import contextlib
+import logging
+import os
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any, Callable, Iterator, Mapping, Sequence
+
+import pandas as pd
+
+from .errors import ScenarioError, UsageError
+from .plan import Flow
+from .reagents import GENERAL_CAUTION
+from .replay import ReplayTotals, nominal_step, plan_part, stitch
+from .replay_io import (CHUNK_ROWS, PART_BYTES, Part, file_parts, finish_replay,
+                        iter_site_chunks, read_part, site_files)
+from .scenario import Scenario, load_scenario, parse_toml, read_text_file
+
+__all__ = ["Site", "load_fleet", "replay_sites", "fleet_report", "dask_client"]
+
+_SITE_KEYS = {"scenario": "the site's flow scenario file",
+              "data": "a list of its data files or globs"}
+
+
+@dataclass(frozen=True)
+class Site:
+    """One site of a fleet: its name, scenario and data files in record order."""
+
+    name: str
+    scenario: Scenario
+    files: tuple[str, ...]
+
+
+def single_site(name: str, scenario: Scenario, files: Sequence[str]) -> Site:
+    """A site from the command line (``replay A.csv B.csv --scenario S``)."""
+    return Site(name, scenario, tuple(files))
+
+
+def load_fleet(path: str) -> list[Site]:
+    """Read and check a fleet file; every scenario must plan a flow."""
+    data = parse_toml(read_text_file(path, "fleet file"), path, "a fleet file")
+    extra = sorted(set(data) - {"title", "sites"})
+    if extra:
+        raise ScenarioError(path, extra[0], "unknown key; a fleet file holds [sites.NAME] "
+                            "tables (and an optional title)")
+    sites = data.get("sites")
+    if not isinstance(sites, dict) or not sites:
+        raise ScenarioError(path, "sites", "no sites; give one [sites.NAME] table per site "
+                            "with scenario = \"...\" and data = [\"...\"]")
+    base = Path(path).resolve().parent
+    return [_site(path, base, name, table) for name, table in sites.items()]
+
+
+def _site(path: str, base: Path, name: str, table: Any) -> Site:
+    where = f"sites.{name}"
+    if not isinstance(table, dict):
+        raise ScenarioError(path, where, "expected a table [sites.NAME]")
+    for key in table:
+        if key not in _SITE_KEYS:
+            raise ScenarioError(path, f"{where}.{key}", "unknown key; allowed: "
+                                + "; ".join(f"{k} ({v})" for k, v in _SITE_KEYS.items()))
+    scen = table.get("scenario")
+    if not isinstance(scen, str) or not scen:
+        raise ScenarioError(path, f"{where}.scenario", "missing; give the site's flow "
+                            "scenario file (relative to the fleet file)")
+    data = table.get("data")
+    if isinstance(data, str):
+        data = [data]
+    if (not isinstance(data, list) or not data
+            or not all(isinstance(d, str) and d for d in data)):
+        raise ScenarioError(path, f"{where}.data", "expected a list of data files or "
+                            "globs, e.g. data = [\"logs/north/*.csv\"]")
+    scenario = load_scenario(str(base / scen) if not Path(scen).is_absolute() else scen)
+    if not isinstance(scenario.basis, Flow):
+        raise ScenarioError(path, f"{where}.scenario", f"{scen} plans a batch; replay needs "
+                            "a flow scenario ([flow] m3_per_h)")
+    return Site(name, scenario, tuple(site_files(data, base, f"{where}.data")))
+
+
+# ----------------------------------------------------------------- run --
+@contextlib.contextmanager
+def dask_client(scheduler: str | None = None, workers: int | None = None) -> Iterator[Any]:
+    """A Dask client: on the cluster at ``scheduler``, or on a local cluster
+    of ``workers`` processes (default: one per core), stopped afterwards."""
+    try:
+        from distributed import Client, LocalCluster
+    except ImportError:
+        raise UsageError("--fleet", "the fleet replay runs on Dask; install it with "
+                         "pip install 'neutral-dosing[fleet]'") from None
+    if scheduler:
+        try:
+            client = Client(scheduler, timeout="10s")
+        except (OSError, TimeoutError, ValueError) as err:
+            raise UsageError("--scheduler", f"no Dask scheduler answers at {scheduler} "
+                             f"({' '.join(str(err).split())[:120]})") from None
+        with client:
+            yield client
+        return
+    n = workers or os.cpu_count() or 1
+    try:
+        # One thread per worker process: the kernel is numpy, the GIL is shared.
+        cluster = LocalCluster(n_workers=n, threads_per_worker=1, processes=True,
+                               dashboard_address=":0", silence_logs=logging.ERROR)
+    except (RuntimeError, OSError) as err:
+        raise UsageError("--workers", f"a local Dask cluster of {n} workers did not start "
+                         f"({' '.join(str(err).split())[:120]})") from None
+    with cluster, Client(cluster) as client:
+        yield client
+
+
+def replay_sites(sites: Sequence[Site], client, *, part_bytes: int = PART_BYTES,
+                 chunk_rows: int = CHUNK_ROWS, keep_hourly: bool = False,
+                 progress: Callable[[int, int], None] | None = None
+                 ) -> dict[str, tuple[dict, ReplayTotals]]:
+    """Replay every site on the client's cluster: {name: (report, totals)}.
+
+    ``progress(done, total)`` is called as parts finish. ``chunk_rows`` is
+    the chunk a one-pass replay would read first, which sets the record's
+    usual time step (so both give the same figures).
+    """
+    import dask.dataframe as dd
+    plan: list[tuple[int, Part]] = []
+    for i, site in enumerate(sites):
+        plan.extend((i, part) for f in site.files for part in file_parts(f, part_bytes))
+    steps = [_first_step(site, chunk_rows) for site in sites]
+    frames = dd.from_map(read_part, [p for _, p in plan], meta=_RAW_META,
+                         enforce_metadata=False)
+    parts = frames.map_partitions(_plan_partition, [i for i, _ in plan], list(sites), steps,
+                                  keep_hourly, meta=pd.Series(dtype=object))
+    futures = client.compute(parts.to_delayed())
+    results = _gather(client, futures, progress)
+    out = {}
+    for i, site in enumerate(sites):
+        mine = [r for (j, _), r in zip(plan, results) if j == i]
+        totals = ReplayTotals(rate_unit=_rate_unit(site.scenario), keep_hourly=keep_hourly)
+        stitch(mine, site.scenario, steps[i], totals)
+        out[site.name] = (finish_replay(totals, site.scenario, site.files), totals)
+    return out
+
+
+_RAW_META = pd.DataFrame({"timestamp": pd.Series(dtype="datetime64[ns]"),
+                          "flow_m3_h": pd.Series(dtype=object),
+                          "ph": pd.Series(dtype=object)})
+
+
+def _rate_unit(scenario: Scenario) -> str:
+    return "kg/h" if scenario.reagent.kg_product_per_mol is not None else "L/h"
+
+
+def _first_step(site: Site, chunk_rows: int) -> float:
+    """The site's usual time step, from the chunk a one-pass replay reads first."""
+    with contextlib.closing(iter_site_chunks(site.files, chunk_rows)) as chunks:
+        for chunk in chunks:
+            return nominal_step(chunk)
+    return nominal_step(pd.DataFrame({"timestamp": pd.Series(dtype="datetime64[ns]")}))
+
+
+def _plan_partition(frame: pd.DataFrame, owners: list[int], sites: list[Site],
+                    steps: list[float], keep_hourly: bool, partition_info=None) -> pd.Series:
+    """The kernel one Dask partition runs: one part of one site's record."""
+    k = partition_info["number"]
+    site = sites[owners[k]]
+    result = plan_part(frame, site.scenario, steps[owners[k]], _rate_unit(site.scenario),
+                       keep_hourly)
+    return pd.Series([result], index=[k], dtype=object)
+
+
+def _gather(client, futures, progress) -> list:
+    """Wait for every part, reporting progress; the parts in record order."""
+    from distributed import as_completed
+    done = 0
+    for _ in as_completed(futures):
+        done += 1
+        if progress:
+            progress(done, len(futures))
+    return [s.iloc[0] for s in client.gather(futures)]
+
+
+# -------------------------------------------------------------- report --
+def fleet_report(fleet: str, results: Mapping[str, tuple[dict, ReplayTotals]],
+                 workers: int) -> dict[str, Any]:
+    """The fleet summary: each site's report, and totals per product (a kg of
+    caustic and a kg of acid are never added together)."""
+    products: dict[str, dict[str, Any]] = {}
+    cautions: list[str] = []
+    for name, (r, _) in results.items():
+        p = products.setdefault(r["reagent"], {
+            "reagent_name": r["reagent_name"], "sites": [], "kg_product": 0.0,
+            "litres_product": 0.0, "cost": 0.0, "sites_without_price": []})
+        p["sites"].append(name)
+        p["kg_product"] += r["total"]["kg_product"]
+        p["litres_product"] += r["total"]["litres_product"] or 0.0
+        if r["total"]["cost"] is None:
+            p["sites_without_price"].append(name)
+        else:
+            p["cost"] += r["total"]["cost"]
+        cautions.extend(c for c in r["cautions"] if c not in cautions and c != GENERAL_CAUTION)
+    return {"fleet": fleet, "workers": workers,
+            "rows": sum(r["rows"] for r, _ in results.values()),
+            "rows_planned": sum(r["rows_planned"] for r, _ in results.values()),
+            "products": products,
+            "sites": {name: r for name, (r, _) in results.items()},
+            "cautions": cautions + [GENERAL_CAUTION]}
