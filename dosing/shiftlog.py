@@ -255,9 +255,16 @@ class ShiftLog:
 
     def _identify(self, db: sqlite3.Connection) -> int:
         """Refuse another program's file or a newer schema; return the schema version."""
-        app_id = db.execute("PRAGMA application_id").fetchone()[0]
-        version = db.execute("PRAGMA user_version").fetchone()[0]
-        tables = db.execute("SELECT count(*) FROM sqlite_master").fetchone()[0]
+        # One read transaction, so the three reads see one state of the file:
+        # read apart, a new log being set up by another writer could show its
+        # tables but not yet its id, and be taken for another program's file.
+        db.execute("BEGIN")
+        try:
+            app_id = db.execute("PRAGMA application_id").fetchone()[0]
+            version = db.execute("PRAGMA user_version").fetchone()[0]
+            tables = db.execute("SELECT count(*) FROM sqlite_master").fetchone()[0]
+        finally:
+            db.execute("COMMIT")
         if app_id not in (0, APPLICATION_ID) or (app_id == 0 and (tables or version)):
             raise ShiftLogError(f"{self.path}: is an SQLite database of another program, "
                                 "not a shift log; it was not changed")

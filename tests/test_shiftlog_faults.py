@@ -195,3 +195,33 @@ def test_a_write_lock_held_elsewhere_names_the_holder_and_writes_nothing(tmp_pat
         holder.wait()
     with ShiftLog(db, writable=False) as log:
         assert log.count() == 2
+
+
+def test_a_log_being_set_up_by_another_writer_is_not_taken_for_a_foreign_file(tmp_path):
+    # Two writers starting on a new file: the second read the file's id (0,
+    # not yet set), then the first committed its tables, then the second
+    # counted tables and refused "an SQLite database of another program"
+    # (seen about once in 90 starts of six writers at once). The reads are
+    # now one snapshot; here the first writer is made to commit between them.
+    path = tmp_path / "log.sqlite"
+    first = sqlite3.connect(path)
+    first.execute("PRAGMA journal_mode = WAL")     # a new log: WAL, no tables yet
+    first.close()
+    reader = sqlite3.connect(path, isolation_level=None)
+
+    class Interleaved:
+        set_up = False
+
+        def execute(self, sql):
+            cursor = reader.execute(sql)
+            if "application_id" in sql and not self.set_up:
+                self.set_up = True
+                ShiftLog(path).close()          # the other writer sets the log up now
+            return cursor
+
+    second = ShiftLog.__new__(ShiftLog)
+    second.path = path
+    assert second._identify(Interleaved()) == 0     # the empty file it first saw
+    reader.close()
+    with ShiftLog(path) as log:                     # and the log is ours, set up once
+        assert list(log.entries()) == []
