@@ -29,7 +29,7 @@ import numpy as np
 
 from .water import density
 
-__all__ = ["DAVIES_LINEAR_COEFF", "DAVIES_I_LIMIT", "debye_huckel_a",
+__all__ = ["DAVIES_LINEAR_COEFF", "DAVIES_I_LIMIT", "debye_huckel_a", "davies_unit",
            "davies_log_gamma"]
 
 #: Coefficient of the linear term in the Davies equation [-].
@@ -70,7 +70,21 @@ def davies_log_gamma(charge, ionic_strength, a):
     >>> round(float(davies_log_gamma(1, 0.01, 0.5108)), 4)
     -0.0449
     """
+    z = np.asarray(charge, dtype=float)
+    return -z**2 * davies_unit(ionic_strength, a)
+
+
+def davies_unit(ionic_strength, a):
+    """The Davies term per unit squared charge: log10 γ_z = -z² × this [-].
+
+    The solver computes it once per water and scales it by each species'
+    charge instead of evaluating the equation per species.
+
+    Examples
+    --------
+    >>> round(float(davies_unit(0.01, 0.5108)), 4)
+    0.0449
+    """
     i = np.maximum(np.asarray(ionic_strength, dtype=float), 0.0)
     s = np.sqrt(i)
-    z = np.asarray(charge, dtype=float)
-    return -a * z**2 * (s / (1.0 + s) - DAVIES_LINEAR_COEFF * i)
+    return a * (s / (1.0 + s) - DAVIES_LINEAR_COEFF * i)

@@ -49,7 +49,7 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
-from .activity import davies_log_gamma, debye_huckel_a
+from .activity import davies_unit, debye_huckel_a
 from .errors import ModelError
 from .metals import METALS, METAL_IDS
 from .species import SITE_IDS, SYSTEMS, SYSTEM_IDS
@@ -281,6 +281,9 @@ class Speciation:
         return self.totals_mol_l[:, system] * self.alpha[:, system, form]
 
 
+_LN10 = float(np.log(10.0))
+
+
 def _alpha(ah, kc):
     """Fractions (n, m, s+1) from a_H (n,) and mixed constants (n, m, s)."""
     steps = kc.shape[2]
@@ -288,9 +291,12 @@ def _alpha(ah, kc):
     terms[:, :, 0] = 1.0
     inv = (1.0 / ah)[:, None]
     np.multiply(kc[:, :, 0], inv, out=terms[:, :, 1])
+    total = 1.0 + terms[:, :, 1]
     for i in range(1, steps):
         np.multiply(terms[:, :, i] * kc[:, :, i], inv, out=terms[:, :, i + 1])
-    terms /= terms.sum(axis=-1, keepdims=True)
+        total += terms[:, :, i + 1]
+    # (a running sum: numpy reduces a length-4 last axis slowly)
+    terms *= (1.0 / total)[:, :, None]
     return terms
 
 
@@ -411,28 +417,30 @@ def _species(r: _Rows, ah, ionic):
     Ksp / (gamma_Ca gamma_CO3 alpha_Ca alpha_CO3); for a water open to air
     (carbonate held) it enters calcium's solubility instead.
     """
+    z2 = r.z * r.z
     if r.davies:
         # Trial pH values far from the root can imply absurd ionic strengths;
         # capping them keeps the trial finite (the answer never sits there).
-        i_c = np.minimum(ionic, _I_CEILING)
-        lg = davies_log_gamma(r.z[None, :, :], i_c[:, None, None], r.a[:, None, None])
-        kc = r.k * 10.0 ** (lg[:, :, :-1] - lg[:, :, 1:])
-        g1 = 10.0 ** davies_log_gamma(1, i_c, r.a)
+        # log10 γ_z = -z² t for every species, t once per water: a step from
+        # charge z to z - 1 scales its constant by 10^(-t (z² - (z-1)²)).
+        t = davies_unit(np.minimum(ionic, _I_CEILING), r.a)
+        g1 = 10.0 ** -t
+        kc = r.k * np.exp((-_LN10 * t)[:, None, None] * (z2[:, :-1] - z2[:, 1:])[None])
     else:
-        lg, kc, g1 = None, r.k, 1.0
+        t, kc, g1 = None, r.k, 1.0
     alpha = _alpha(ah, kc)
     q = np.einsum("nmk,mk->nm", alpha, r.z)
-    m2 = np.einsum("nmk,mk->nm", alpha, r.z * r.z)
+    m2 = np.einsum("nmk,mk->nm", alpha, z2)
     sol = None
     if r.has_solids:
         log_free = r.log_ks0 + r.zs[None, :] * np.log10(ah)[:, None]
-        if lg is not None:
-            log_free = log_free - lg[:, :, 0]
+        if t is not None:
+            log_free = log_free + z2[None, :, 0] * t[:, None]
         with np.errstate(divide="ignore", over="ignore"):
             sol = 10.0 ** np.minimum(log_free, 300.0) / alpha[:, :, 0]
     kcal = None
     if r.ca >= 0:
-        log_g = 0.0 if lg is None else lg[:, r.ca, 0] + lg[:, r.carb, 2]
+        log_g = 0.0 if t is None else -(z2[r.ca, 0] + z2[r.carb, 2]) * t
         with np.errstate(divide="ignore", over="ignore"):
             kcal = 10.0 ** np.minimum(r.log_kc - log_g, 300.0) / (
                 alpha[:, r.ca, 0] * alpha[:, r.carb, 2])
@@ -663,9 +671,9 @@ def strong_balance_at_ph(totals_mol_l, ph, temperature_c, *, davies: bool,
     s, i1 = at(extra)
     if not davies:
         return s, i1
-    ionic = _settle(lambda i: at(i)[1], extra, i1, max_iter)
-    s, i_end = at(np.where(np.isfinite(ionic), ionic, 0.0))
-    return np.where(np.isfinite(ionic), s, np.nan), np.where(np.isfinite(ionic), i_end, np.nan)
+    # Each water keeps S from the step at which its ionic strength settled.
+    ionic, (s,) = _settle(lambda i: at(i)[::-1], extra, i1, max_iter, payload=True)
+    return np.where(np.isfinite(ionic), s, np.nan), ionic
 
 
 def carbonate_for_alkalinity(totals_mol_l, ph, temperature_c, alk_eq_l,
@@ -972,8 +980,13 @@ class _DoseJob:
         dose, den, new_i, sol, capped = self.at(ionic, capped)
         if not self.mix.davies:
             return dose, den, sol, capped
-        ionic = _settle(lambda i: self.at(i, capped)[2], ionic, new_i, max_iter)
-        dose, den, _, sol, _ = self.at(np.where(np.isfinite(ionic), ionic, 0.0), capped)
+
+        def step(i):
+            d, slope, i_new, sl, _ = self.at(i, capped)
+            return i_new, d, slope, sl
+        # Each water keeps the dose of the step at which its ionic strength
+        # settled (within 1e-10 of it), so no last pass is needed.
+        ionic, (dose, den, sol) = _settle(step, ionic, new_i, max_iter, payload=True)
         # Waters whose ionic strength does not settle (a dose without bound,
         # where the reagent has no grip) get no number.
         return np.where(np.isfinite(ionic), dose, np.nan), den, sol, capped
@@ -983,29 +996,40 @@ class _DoseJob:
 _I_CEILING = 20.0
 
 
-def _settle(fn, x0, x1, max_iter):
+def _settle(fn, x0, x1, max_iter, *, payload: bool = False):
     """Fixed point x = fn(x) for every element, with secant acceleration.
 
     Each step takes the secant root of g(x) = fn(x) - x through the last two
     points when it is positive and finite, else the plain fixed-point step.
     Elements that do not settle within ``max_iter`` steps or pass
     :data:`_I_CEILING` come back as NaN.
+
+    With ``payload``, ``fn`` returns ``(fx, *arrays)`` (arrays with one row
+    per element, or None) and the result is ``(x, arrays)``: each element's
+    rows from the step at which it settled (from the first step for those
+    that never settle).
     """
     x_prev, g_prev = x0, x1 - x0
     x = x1
     out = np.full_like(x0, np.nan)
     live = np.ones(x0.shape, dtype=bool)
+    kept = None
     for _ in range(max_iter):
-        fx = fn(x)
+        fx, *extra = fn(x) if payload else (fn(x),)
+        if kept is None:
+            kept = [None if e is None else e.copy() for e in extra]
         g = fx - x
         done = live & (np.abs(g) <= 1e-13 + 1e-10 * np.abs(fx))
         out[done] = fx[done]
+        for k, e in zip(kept, extra):
+            if k is not None:
+                k[done] = e[done]
         live &= ~done & np.isfinite(fx) & (fx < _I_CEILING)
         if not live.any():
-            return out
+            break
         with np.errstate(divide="ignore", invalid="ignore"):
             sec = x - g * (x - x_prev) / (g - g_prev)
         step = np.where(np.isfinite(sec) & (sec >= 0.0), sec, fx)
         x_prev, g_prev = x, g
         x = np.where(live, step, x)
-    return out
+    return (out, tuple(kept)) if payload else out
