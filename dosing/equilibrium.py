@@ -285,19 +285,21 @@ _LN10 = float(np.log(10.0))
 
 
 def _alpha(ah, kc):
-    """Fractions (n, m, s+1) from a_H (n,) and mixed constants (n, m, s)."""
-    steps = kc.shape[2]
-    terms = np.empty(kc.shape[:2] + (steps + 1,))
-    terms[:, :, 0] = 1.0
+    """Fractions (n, m, s+1) from a_H (n,) and mixed constants (n, m, s).
+
+    Built form by form in contiguous (n, m) planes (a stride-4 last axis is
+    slow in numpy); the result is a view with the form as its last axis.
+    """
+    k = np.moveaxis(kc, -1, 0).copy()
+    steps = k.shape[0]
     inv = (1.0 / ah)[:, None]
-    np.multiply(kc[:, :, 0], inv, out=terms[:, :, 1])
-    total = 1.0 + terms[:, :, 1]
-    for i in range(1, steps):
-        np.multiply(terms[:, :, i] * kc[:, :, i], inv, out=terms[:, :, i + 1])
-        total += terms[:, :, i + 1]
-    # (a running sum: numpy reduces a length-4 last axis slowly)
-    terms *= (1.0 / total)[:, :, None]
-    return terms
+    planes = np.empty((steps + 1,) + kc.shape[:2])
+    planes[0] = 1.0
+    for i in range(steps):
+        np.multiply(planes[i], k[i], out=planes[i + 1])
+        planes[i + 1] *= inv
+    planes /= planes.sum(axis=0)
+    return np.moveaxis(planes, 0, -1)
 
 
 def _state(r: "_Rows", ph, ionic_strength):
