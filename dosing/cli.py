@@ -52,6 +52,18 @@ def _parser() -> argparse.ArgumentParser:
                    "this tank (how far its doses ran from plan); read only")
     p.add_argument("--units", choices=("metric", "us"), default="metric",
                    help="units of the dose sheet (default metric)")
+    w = sub.add_parser("sweep", help="tank sizes (or flows) against product strengths")
+    w.add_argument("scenario", help="scenario file (TOML)")
+    w.add_argument("--strengths", metavar="PCT,PCT", help="strengths of the scenario's "
+                   "product in %% (default: its usual ones, e.g. 20,25,32,50 for caustic)")
+    w.add_argument("--sizes", metavar="X,Y", help="tank volumes in m3 (or flows in m3/h) "
+                   "(default: a quarter to four times the scenario's)")
+    w.add_argument("--with", dest="others", action="append", metavar="REAGENT",
+                   help="another catalogue product side by side (repeat; default one "
+                   "alternative; 'none' for none)")
+    w.add_argument("--json", action="store_true", help="print the grid as JSON")
+    w.add_argument("--csv", metavar="OUT.csv", help="write the grid as CSV (SI units)")
+    w.add_argument("--units", choices=("metric", "us"), default="metric")
     sub.add_parser("reagents", help="list the reagent catalogue")
     sub.add_parser("solutes", help="list the solutes a scenario may name")
     t = sub.add_parser("tui", help="open Tankside, the terminal view")
@@ -150,6 +162,47 @@ def _cmd_plan(args) -> int:
         write_atomic(args.plot, png)
         sys.stderr.write(f"dosing: wrote the plot to {args.plot}\n")
     sys.stdout.write(text)
+    return 0
+
+
+def _numbers(option: str, text: str | None, low: float, high: float, unit: str):
+    """A comma-separated list of numbers within (low, high], or None."""
+    if text is None:
+        return None
+    try:
+        values = tuple(float(v) for v in text.split(",") if v.strip())
+    except ValueError:
+        values = ()
+    if not values or not all(low < v <= high for v in values):
+        raise UsageError(option, f"{text!r}; give numbers separated by commas, each "
+                         f"above {low:g} and up to {high:,g} {unit}")
+    return values
+
+
+def _cmd_sweep(args) -> int:
+    from .reagents import get_reagent
+    from .scenario import load_scenario
+    from .sweep import default_alternative, default_sizes, strength_grid
+    from .sweep_sheet import render_sweep, sweep_csv, sweep_dict
+    if args.csv and not args.csv.lower().endswith(".csv"):
+        raise ScenarioError(args.csv, "", "give a file name ending in .csv")
+    strengths = _numbers("--strengths", args.strengths, 0.0, 100.0, "%")
+    scenario = load_scenario(args.scenario)
+    sizes = _numbers("--sizes", args.sizes, 0.0, 1e6, "m3 (or m3/h)")
+    if args.others == ["none"]:
+        others = ()
+    elif args.others:
+        others = tuple(get_reagent(o) for o in args.others)
+    else:
+        others = (default_alternative(scenario.reagent),)
+    result = strength_grid(scenario, sizes or default_sizes(scenario.basis),
+                           strengths=tuple(v / 100 for v in strengths) if strengths else None,
+                           others=others)
+    data = require_finite(sweep_dict(result, scenario), "sweep")
+    if args.csv:
+        write_atomic(args.csv, sweep_csv(result, scenario).encode())
+        sys.stderr.write(f"dosing: wrote the grid to {args.csv}\n")
+    sys.stdout.write(to_json(data) if args.json else render_sweep(result, scenario, args.units))
     return 0
 
 
@@ -418,7 +471,7 @@ def main(argv: list[str] | None = None) -> int:
     """Entry point of the ``dosing`` command; returns the exit code."""
     args = _parser().parse_args(argv)
     handler = {"plan": _cmd_plan, "reagents": _cmd_reagents, "solutes": _cmd_solutes,
-               "tui": _cmd_tui, "log": _cmd_log, "replay": _cmd_replay,
+               "tui": _cmd_tui, "log": _cmd_log, "replay": _cmd_replay, "sweep": _cmd_sweep,
                "titration": _cmd_titration}[args.command]
     try:
         return handler(args)

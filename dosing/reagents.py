@@ -39,7 +39,8 @@ from .errors import InputError
 from .species import MOLAR_MASS
 
 __all__ = ["Compound", "COMPOUNDS", "Reagent", "CATALOGUE", "REAGENT_IDS", "with_purity",
-           "get_reagent", "custom_reagent", "GENERAL_CAUTION"]
+           "get_reagent", "custom_reagent", "GENERAL_CAUTION", "STRENGTHS",
+           "strengths_of", "at_strength"]
 
 #: Shown with every dose, by every front end.
 GENERAL_CAUTION = ("This plan is an aid to judgement, not an approval: local "
@@ -331,6 +332,73 @@ def get_reagent(reagent_id: str) -> Reagent:
         raise InputError("reagent.id", f"unknown reagent {reagent_id!r}; the "
                          "catalogue has " + ", ".join(REAGENT_IDS)
                          + ", or give a custom reagent") from None
+
+
+#: Strengths a solution is sold or made up at, for the sizes-against-strengths
+#: grid: compound -> (mass fraction, density at 20 °C [kg/L]) rows. Source:
+#: CRC Handbook of Chemistry and Physics, "Concentrative properties of aqueous
+#: solutions" (20 °C), from memory where not already in the catalogue;
+#: tests/test_reagents.py checks each row against Laliberté 2009 inside that
+#: model's fit range. 25 % sulfuric is a day-tank dilution (common practice:
+#: diluted acid is easier to meter into a small stream; diluting it is hot).
+STRENGTHS: dict[str, tuple[tuple[float, float], ...]] = {
+    "NaOH": ((0.20, 1.2191), (0.25, 1.2740), (0.32, 1.3490), (0.50, 1.5253)),
+    "H2SO4": ((0.25, 1.1783), (0.93, 1.8276), (0.98, 1.8361)),
+    "HCl": ((0.10, 1.0474), (0.20, 1.0980), (0.32, 1.1594)),
+}
+#: Purities a solid product is compared at (common practice: commercial grades).
+SOLID_PURITIES = (0.85, 0.90, 0.95)
+_FAMILY = {"NaOH": ("caustic", "caustic soda"), "H2SO4": ("sulfuric", "sulfuric acid"),
+           "HCl": ("hydrochloric", "hydrochloric acid")}
+
+
+def strengths_of(reagent: Reagent) -> tuple[float, ...]:
+    """The strengths (mass fractions) ``reagent`` is compared at: a listed
+    solution's table, a solid's usual purities, else only its own."""
+    table = STRENGTHS.get(reagent.compound.formula)
+    if reagent.form == "liquid" and table and reagent.molarity_mol_l is None:
+        return tuple(w for w, _ in table)
+    if reagent.form == "solid" and reagent.id != "custom":
+        return tuple(sorted({*SOLID_PURITIES, reagent.mass_fraction}))
+    return (reagent.mass_fraction,)
+
+
+def at_strength(reagent: Reagent, fraction: float) -> Reagent:
+    """The same product at another strength: a solution at a row of
+    :data:`STRENGTHS` (the catalogue entry where there is one), a solid at
+    any purity.
+
+    Raises
+    ------
+    InputError
+        A strength with no density at hand, or a product that has no
+        strengths to choose from (a gas, a solution given by molarity).
+    """
+    if abs(fraction - reagent.mass_fraction) < 1e-9:
+        return reagent
+    if reagent.form == "solid":
+        return replace(with_purity(reagent, fraction), id=f"{reagent.id}-{fraction * 100:g}")
+    formula = reagent.compound.formula
+    table = dict(STRENGTHS.get(formula, ()))
+    if reagent.form != "liquid" or reagent.molarity_mol_l is not None or not table:
+        raise InputError("strengths", f"{reagent.name} has no other strengths here; "
+                         "compare it with other products instead")
+    rho = next((d for w, d in table.items() if abs(w - fraction) < 1e-9), None)
+    if rho is None:
+        listed = ", ".join(f"{w * 100:g}" for w in table)
+        raise InputError("strengths", f"{formula} at {fraction * 100:g} %: no density at "
+                         f"hand; allowed: {listed} % (or a custom reagent with its "
+                         "density)")
+    family, name = _FAMILY[formula]
+    rid = f"{family}-{fraction * 100:g}"
+    if rid in CATALOGUE:
+        return CATALOGUE[rid]
+    model = CATALOGUE[{"NaOH": "caustic-25", "H2SO4": "sulfuric-93",
+                       "HCl": "hydrochloric-32"}[formula]]
+    return replace(model, id=rid, name=f"{name} {fraction * 100:g} %", mass_fraction=fraction,
+                   density_kg_l=rho, density_source="CRC Handbook, concentrative properties "
+                   "of aqueous solutions, 20 °C (from memory)", dilution_heat_kj_mol=None,
+                   dilution_heat_source="")
 
 
 def with_purity(reagent: Reagent, purity: float) -> Reagent:

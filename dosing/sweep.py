@@ -10,10 +10,11 @@ from dataclasses import dataclass
 
 from .errors import DosingError
 from .plan import Amounts, Batch, Flow, Plan, amounts_for, plan_dose
-from .reagents import Reagent, get_reagent
+from .reagents import Reagent, at_strength, get_reagent, strengths_of
 from .scenario import Scenario
 
-__all__ = ["SweepCell", "Sweep", "sweep", "default_alternative", "default_sizes"]
+__all__ = ["SweepCell", "Sweep", "sweep", "strength_grid", "default_alternative",
+           "default_sizes"]
 
 _SIBLING = {"caustic-50": "caustic-25", "caustic-25": "caustic-50",
             "sulfuric-98": "sulfuric-93", "sulfuric-93": "sulfuric-98",
@@ -81,3 +82,20 @@ def sweep(scenario: Scenario, reagents: tuple[Reagent | str, ...],
                        else SweepCell(amounts_for(dose, r, basis)))
         rows.append(tuple(row))
     return Sweep(tuple(sizes), flow, rs, tuple(rows))
+
+
+def strength_grid(scenario: Scenario, sizes: tuple[float, ...], *,
+                  strengths: tuple[float, ...] | None = None,
+                  others: tuple[Reagent | str, ...] = (),
+                  known: dict[str, Plan] | None = None) -> Sweep:
+    """Sizes against strengths: the scenario's product at each strength (its
+    usual ones by default, see :func:`~dosing.reagents.strengths_of`), then
+    ``others`` side by side. Each strength is planned on its own (a weaker
+    solution adds more water with the same moles)."""
+    r = scenario.reagent
+    products = [at_strength(r, w) for w in (strengths or strengths_of(r))]
+    for o in others:
+        o = get_reagent(o) if isinstance(o, str) else o
+        if all(o.id != p.id for p in products):
+            products.append(o)
+    return sweep(scenario, tuple(products), sizes, known=known)

@@ -31,7 +31,7 @@ from dosing.sheet import (make_plan, render_sheet, render_titration, sheet_dict,
 from dosing.titration import check_curve, compare, parse_titrant
 from dosing.titration_io import read_titration_csv
 from dosing.shiftlog import ShiftLog
-from dosing.sweep import default_alternative, default_sizes, sweep
+from dosing.sweep import default_alternative, default_sizes, strength_grid
 
 from .form import FIELDS, ScenarioForm, field_id
 from .screens.help import HelpScreen
@@ -253,8 +253,9 @@ class Tankside(App):
     def _render_sweep(self) -> None:
         s = self.scenario
         other = self.query_one("#compare", Select).value
-        reagents = (s.reagent,) if other == s.reagent.id else (s.reagent, other)
-        result = sweep(s, reagents, default_sizes(s.basis), known={s.reagent.id: self.plan})
+        others = () if other == s.reagent.id else (other,)
+        result = strength_grid(s, default_sizes(s.basis), others=others,
+                               known={s.reagent.id: self.plan})
         self.query_one(SweepTable).show(result, self.units)
 
     # -------------------------------------------------------- handlers --

@@ -1,34 +1,30 @@
-"""The sweep table: doses for several sizes and two reagents side by side."""
+"""The sweep table: tank sizes (or flows) against product strengths, and
+another product side by side (the rows of :mod:`dosing.sweep_sheet`)."""
 
 from __future__ import annotations
 
+from rich.text import Text
 from textual.widgets import DataTable
 
-from dosing.numbers import fmt
-from dosing.sheet import UNIT_SYSTEMS, product_text
 from dosing.sweep import Sweep
+from dosing.sweep_sheet import grid_rows, size_heading, size_labels
 
 __all__ = ["SweepTable"]
 
 
 class SweepTable(DataTable):
-    """Rows: tank volumes or flows; columns: reagents (kg = L of product)."""
+    """Rows: each strength of the product (kg, and L for a solution, per
+    batch or per hour); columns: tank volumes or flows."""
 
     def show(self, result: Sweep, units: str) -> None:
-        u = UNIT_SYSTEMS[units]
         self.clear(columns=True)
-        size_unit = u.flow if result.per_flow else u.water_volume
-        per = "per hour" if result.per_flow else "per batch"
-        self.add_column(f"size, {size_unit}", key="size")
-        for r in result.reagents:
-            self.add_column(f"{r.id} ({per})", key=r.id)
-        for size, row in zip(result.sizes, result.cells):
-            factor = u.flow_per_m3_h if result.per_flow else u.water_volume_per_m3
-            cells = [fmt(size * factor)]
-            for cell in row:
-                a = cell.amounts
-                if a is None:
-                    cells.append("cannot: " + cell.problem[:40])
-                    continue
-                cells.append(product_text(a.kg_product, a.litres_product, units))
-            self.add_row(*cells)
+        unit, heads = size_labels(result, units)
+        self.add_column(size_heading(result, unit), key="product")
+        self.add_column("", key="unit")
+        for k, h in enumerate(heads):
+            self.add_column(Text(h, justify="right"), key=f"size-{k}")
+        for row in grid_rows(result, units):
+            cells = list(row.cells) + [""] * (len(heads) - len(row.cells))
+            self.add_row(row.label, row.unit,
+                         *(c if c.startswith("cannot") else Text(c, justify="right")
+                           for c in cells))
