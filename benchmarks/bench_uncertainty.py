@@ -23,7 +23,8 @@ from dosing.sheet import make_plan
 from dosing.uncertainty import Spread, dose_uncertainty, staged_dose, trim_doses
 
 ROOT = Path(__file__).resolve().parents[1]
-DEMOS = ("plating-rinse-metals", "food-acetate-stream", "hard-wash-lime", "lime-acid-batch")
+DEMOS = ("plating-rinse-metals", "pickling-ferrous-rinse", "alum-rinse", "magnesia-acid-rinse",
+         "food-acetate-stream", "hard-wash-lime", "lime-acid-batch")
 
 
 def main() -> None:
