@@ -12,6 +12,7 @@ functions, so a dose reads the same everywhere, with the same cautions.
 
 from __future__ import annotations
 
+import re
 from dataclasses import dataclass, replace
 from typing import Any
 
@@ -30,7 +31,7 @@ from .scenario import Scenario, scenario_key, water_inputs
 __all__ = ["Units", "UNIT_SYSTEMS", "make_plan", "with_uncertainty", "sheet_dict", "render_sheet",
            "render_fleet",
            "metals_dict", "metal_lines",
-           "fmt", "product_text", "dose_lines", "check_lines", "caution_lines",
+           "fmt", "product_text", "dose_lines", "check_lines", "caution_lines", "in_units",
            "render_replay", "render_titration"]
 
 L_PER_US_GAL = 3.785411784     # exact by definition (NIST SP 811)
@@ -417,19 +418,47 @@ def dose_lines(scenario: Scenario, plan: Plan, units: str = "metric") -> list[tu
 _MARK = {"danger": "!!", "warning": "! ", "info": "  "}
 
 
-def check_lines(plan: Plan) -> list[tuple[str, str]]:
+def check_lines(plan: Plan, units: str = "metric") -> list[tuple[str, str]]:
     """(mark, text) of each chemistry check, dangers first."""
     order = {"danger": 0, "warning": 1, "info": 2}
-    return [(_MARK[c.level], c.message)
+    return [(_MARK[c.level], in_units(c.message, units))
             for c in sorted(plan.checks, key=lambda c: order[c.level])]
 
 
-def caution_lines(plan: Plan) -> list[str]:
+def caution_lines(plan: Plan, units: str = "metric") -> list[str]:
     """Warnings, dangers and cautions, as every front end lists them."""
-    return ([f"!! {m}" for k, m in check_lines(plan) if k == "!!"]
-            + [f"! {w}" for w in plan.warnings]
-            + [f"! {m}" for k, m in check_lines(plan) if k == "! "]
+    checks = check_lines(plan, units)
+    return ([f"!! {m}" for k, m in checks if k == "!!"]
+            + [f"! {in_units(w, units)}" for w in plan.warnings]
+            + [f"! {m}" for k, m in checks if k == "! "]
             + [f"- {c}" for c in plan.cautions])
+
+
+L_PER_FT3 = 28.316846592       # exact by definition (NIST SP 811)
+_NUM = r"(-?\d[\d,]*(?:\.\d+)?)"
+
+
+def in_units(text: str, units: str) -> str:
+    """A check or warning as the engine words it (SI), with the US
+    equivalents of its temperatures, temperature changes and gas volumes
+    beside them when ``units`` is "us".
+
+    Examples
+    --------
+    >>> in_units("the water ends near 46 °C; a rise of about 0.85 K", "us")
+    'the water ends near 46 °C (115 °F); a rise of about 0.85 K (1.5 °F)'
+    >>> in_units("up to 1,200 L of CO2 gas can come off", "us")
+    'up to 1,200 L (42.4 ft³) of CO2 gas can come off'
+    """
+    if units != "us":
+        return text
+
+    def num(m) -> float:
+        return float(m[1].replace(",", ""))
+    text = re.sub(_NUM + r" °C\b", lambda m: f"{m[1]} °C ({num(m) * 1.8 + 32:.0f} °F)", text)
+    text = re.sub(_NUM + r" K\b", lambda m: f"{m[1]} K ({fmt(num(m) * 1.8, 2)} °F)", text)
+    return re.sub(_NUM + r" L of (\S+) gas",
+                  lambda m: f"{m[1]} L ({fmt(num(m) / L_PER_FT3)} ft³) of {m[2]} gas", text)
 
 
 def _wrap(text: str, width: int, indent: str) -> list[str]:
@@ -458,12 +487,14 @@ def water_lines(scenario: Scenario, plan: Plan, units: str = "metric",
     else:
         amount = f"flow of {fmt(plan.basis.m3_per_h * u.flow_per_m3_h)} {u.flow}"
     eff = scenario.data.get("effluent", {})
-    measured = [f"pH {w.ph:.2f} at {w.temperature_c:g} °C"]
+    measured = [f"pH {w.ph:.2f} at {in_units(f'{w.temperature_c:g} °C', units)}"]
     if "alkalinity_mg_l_as_caco3" in eff:
         measured.append(f"alkalinity {eff['alkalinity_mg_l_as_caco3']:g} mg/L as CaCO3")
     if "acidity_mg_l_as_caco3" in eff:
         measured.append(f"acidity {eff['acidity_mg_l_as_caco3']:g} mg/L as CaCO3")
-    out.append(f"water    {amount}; {', '.join(measured)}")
+    import textwrap
+    out.extend(textwrap.wrap(f"water    {amount}; {', '.join(measured)}", width,
+                             subsequent_indent=" " * 9))
     solutes = ", ".join(f"{_total_name(w, k)} {fmt(v * 1000, floor=1e-4)}"
                         for k, v in (w.totals_mol_l | w.metals_mol_l).items())
     if solutes:
@@ -473,8 +504,9 @@ def water_lines(scenario: Scenario, plan: Plan, units: str = "metric",
                      f"{'Davies' if w.davies else 'ideal'} activity", width, "         "))
     if plan.air is not None:
         out.extend(_wrap(_air_line(plan.air), width, "         "))
-    dens = (f", {plan.reagent.density_kg_l:.4g} kg/L at 20 °C" if plan.reagent.density_kg_l
-            else "")
+    rho = plan.reagent.density_kg_l
+    dens = "" if not rho else (f", {rho:.4g} kg/L at 20 °C" if units != "us" else
+                               f", {rho * L_PER_US_GAL / KG_PER_LB:.4g} lb/gal at 68 °F")
     out.append(f"reagent  {plan.reagent.name} [{plan.reagent.id}]{dens}")
     out.append(f"target   pH {plan.target.ph_min:g} to {plan.target.ph_max:g}, "
                f"aim {plan.target.ph_aim:g}")
@@ -539,13 +571,13 @@ def render_sheet(scenario: Scenario, plan: Plan, units: str = "metric",
         _table(out, metal_rows, width)
     out.append("")
     out.append("CHECKS")
-    for mark, msg in check_lines(plan):
+    for mark, msg in check_lines(plan, units):
         out.extend(_wrap(msg, width, f" {mark} "))
     if plan.warnings:
         out.append("")
         out.append("WARNINGS")
         for msg in plan.warnings:
-            out.extend(_wrap(msg, width, "  ! "))
+            out.extend(_wrap(in_units(msg, units), width, "  ! "))
     out.append("")
     out.append("CAUTIONS")
     for msg in plan.cautions:
@@ -799,11 +831,21 @@ def staging_lines(plan: Plan, units: str = "metric") -> list[str]:
     return out
 
 
+#: Above this pH change per 1 % of the dose the curve is called near-vertical
+#: at the aim and no linear slope is printed (common practice: a dose
+#: metered to 1 % should not swing the pH by a whole unit).
+STEEP_PH_PER_PERCENT = 1.0
+
+
 def _slope_text(plan: Plan, u, flow: bool) -> str:
     """How the pH answers the dose at the aim, in what the operator adjusts:
     per 1 % of the dose, and per unit of product (per kg/h for a flow)."""
     slope = abs(plan.slope_ph_per_mmol_l)
     per_percent = slope * plan.dose_mol_l * 1000 * 0.01
+    if per_percent > STEEP_PH_PER_PERCENT:
+        # A slope of 113 pH per 1 % reads as nonsense: the curve is a step here.
+        return (f"near-vertical at the aim: more than {STEEP_PH_PER_PERCENT:g} pH per 1 % "
+                "of the dose, so the dosing-error range and a staged dose are what to go by")
     text = f"pH moves {fmt(per_percent, 2)} per 1 % of the dose at the aim"
     kg_per_mmol = plan.amounts(1e-3).kg_product
     if kg_per_mmol:

@@ -97,3 +97,26 @@ def test_files_that_carry_doses_carry_the_cautions(tmp_path):
     import pandas as pd
     frame = pd.read_csv(exp)
     assert "final word" in frame["cautions"][0]
+
+
+def test_a_near_vertical_curve_prints_no_absurd_slope():
+    # An unbuffered acid rinse taken to pH 7: the linear slope at the aim was
+    # printed as "pH moves 113 per 1 % of the dose", a figure no pH can do.
+    r = run_cli("plan", str(ROOT / "scenarios" / "acid-rinse-caustic.toml"))
+    assert r.returncode == 0, r.stderr
+    line = " ".join(r.stdout.split("sensitivity", 1)[1].split("lab precision")[0].split())
+    assert "near-vertical at the aim" in line and "per 1 % of the dose" in line
+    assert not re.search(r"pH moves \d", line)
+    # a buffered stream keeps its figure
+    r = run_cli("plan", str(ROOT / "scenarios" / "flow-metering-pump.toml"))
+    assert re.search(r"pH moves 0\.\d+ per 1 % of the dose", " ".join(r.stdout.split()))
+
+
+def test_us_units_switch_temperatures_densities_and_gas_volumes():
+    # Issue 18 item 5: "Temperatures, densities and CO2 gas volumes switch
+    # too". Exact factors (NIST SP 811): °F = 1.8 °C + 32; 1 gal = 3.785411784
+    # L, 1 lb = 0.45359237 kg, so 1.8361 kg/L = 15.32 lb/gal.
+    us = " ".join(run_cli("plan", str(CIP), "--units", "us").stdout.split())
+    assert "45 °C (113 °F)" in us and "15.32 lb/gal at 68 °F" in us
+    metric = run_cli("plan", str(CIP)).stdout
+    assert "°F" not in metric and "1.836 kg/L at 20 °C" in metric

@@ -244,3 +244,29 @@ def test_switching_product_drops_the_old_price_and_lists_names():
         assert box.value == "" and app.plan.reagent.id == "hydrochloric-32"
         assert "cost" not in app.query_one("#dose-panel").plain_text
     drive(check)
+
+
+def test_us_units_switch_the_inputs_and_keep_the_values():
+    # Issue 18 item 5: in US units the form asks in °F, gal and lb/gal, and a
+    # value nobody retyped goes back exactly as it came (exact NIST SP 811
+    # factors: 1 gal = 3.785411784 L, 1 lb = 0.45359237 kg).
+    async def check(app, pilot):
+        before = app.plan.dose_mol_l
+        form_data = app.query_one("#form").to_data()[0]
+        await pilot.press("f6")
+        await pilot.pause()
+        temp = app.query_one("#" + field_id("effluent.temperature_c"))
+        c = form_data["effluent"]["temperature_c"]
+        assert float(temp.value) == pytest.approx(c * 1.8 + 32, abs=1e-3)
+        assert str(app.query_one("#" + field_id("effluent.temperature_c") + "-unit")
+                   .render()) == "°F"
+        assert str(app.query_one("#" + field_id("basis.amount") + "-unit").render()) == "gal"
+        assert app.query_one("#form").to_data()[0] == form_data      # nothing moved
+        await set_field(app, pilot, "basis.amount", "2641.72")     # 10.0000 m³
+        assert app.plan.basis.volume_m3 == pytest.approx(10.0, rel=1e-6)
+        await pilot.press("f6")
+        await pilot.pause()
+        box = app.query_one("#" + field_id("basis.amount"))
+        assert float(box.value) == pytest.approx(10.0, rel=1e-5)
+        assert app.plan.dose_mol_l == pytest.approx(before, rel=1e-9)
+    drive(check)

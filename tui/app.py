@@ -225,6 +225,7 @@ class Tankside(App):
         self._render_views()
 
     def watch_units(self) -> None:
+        self.query_one(ScenarioForm).set_units(self.units)
         self._render_views()
 
     def watch_status(self, value: str) -> None:

@@ -18,8 +18,9 @@ from textual.message import Message
 from textual.widgets import Input, Label, Select, Static, Switch
 
 from dosing.reagents import CATALOGUE, COMPOUNDS
+from dosing.sheet import KG_PER_LB, L_PER_US_GAL
 
-__all__ = ["Field", "FIELDS", "ScenarioForm", "field_id", "parse_pairs"]
+__all__ = ["Field", "FIELDS", "ScenarioForm", "field_id", "parse_pairs", "US_FIELDS"]
 
 
 @dataclass(frozen=True)
@@ -46,6 +47,30 @@ FIELDS = (
     Field("reagent.density_kg_l", "density", "kg/L"),
     Field("reagent.price_per_kg", "price", "per kg"),
 )
+
+
+@dataclass(frozen=True)
+class Shown:
+    """How a field reads in US units: its unit and the conversions from and
+    to the SI value a scenario file holds."""
+
+    unit: str
+    from_si: Any
+    to_si: Any
+
+
+_LB_GAL_PER_KG_L = L_PER_US_GAL / KG_PER_LB        # 8.345 lb/gal per kg/L
+#: Fields that read differently in US units (NIST SP 811 factors, exact).
+US_FIELDS = {
+    "effluent.temperature_c": Shown("°F", lambda c: c * 1.8 + 32.0, lambda f: (f - 32.0) / 1.8),
+    "batch.volume_m3": Shown("gal", lambda m3: m3 * 1000.0 / L_PER_US_GAL,
+                             lambda gal: gal * L_PER_US_GAL / 1000.0),
+    "flow.m3_per_h": Shown("gpm", lambda q: q * 1000.0 / L_PER_US_GAL / 60.0,
+                           lambda gpm: gpm * 60.0 * L_PER_US_GAL / 1000.0),
+    "reagent.density_kg_l": Shown("lb/gal", lambda d: d * _LB_GAL_PER_KG_L,
+                                  lambda d: d / _LB_GAL_PER_KG_L),
+    "reagent.price_per_kg": Shown("per lb", lambda p: p * KG_PER_LB, lambda p: p / KG_PER_LB),
+}
 
 
 def field_id(key: str) -> str:
@@ -86,6 +111,11 @@ class ScenarioForm(VerticalScroll):
         super().__init__(**kwargs)
         self._base: dict[str, Any] = {}
         self._loading = False
+        #: "metric" or "us": the units the fields are shown and typed in.
+        self.units = "metric"
+        #: key -> (text shown, SI value) for converted fields, so a value
+        #: nobody retyped goes back to the file exactly as it came.
+        self._shown: dict[str, tuple[str, float]] = {}
 
     def compose(self) -> ComposeResult:
         yield Static("Effluent", classes="section")
@@ -145,14 +175,14 @@ class ScenarioForm(VerticalScroll):
             self.query_one("#f-basis--mode", Select).value = "flow" if flow else "batch"
             amount = data.get("flow", {}).get("m3_per_h") if flow else \
                 data.get("batch", {}).get("volume_m3")
-            self.query_one("#" + field_id("basis.amount"), Input).value = _fmt(amount)
+            self._shown = {}
+            self._put("basis.amount", amount)
             self._label_amount(flow)
             for f in FIELDS:
                 if f.key == "basis.amount":
                     continue
                 section, key = f.key.split(".")
-                self.query_one("#" + field_id(f.key), Input).value = _fmt(
-                    data.get(section, {}).get(key))
+                self._put(f.key, data.get(section, {}).get(key))
             r = data.get("reagent", {})
             rid = r.get("id", "custom")
             self.query_one("#f-reagent--id", Select).value = rid if rid in CATALOGUE \
@@ -193,7 +223,8 @@ class ScenarioForm(VerticalScroll):
                 data[section].pop(key, None)
                 continue
             try:
-                data[section][key] = parse_pairs(text) if f.kind == "pairs" else float(text)
+                data[section][key] = parse_pairs(text) if f.kind == "pairs" else \
+                    self._get(f.key, text)
             except ValueError as err:
                 errors[f.key] = (str(err) if f.kind == "pairs"
                                  else f"{text!r} is not a number")
@@ -209,7 +240,7 @@ class ScenarioForm(VerticalScroll):
             if k != key:
                 section.pop(k, None)
         try:
-            section[key] = float(amount_text)
+            section[key] = self._get("basis.amount", amount_text)
         except ValueError:
             errors["basis.amount"] = (f"{amount_text!r} is not a number" if amount_text
                                       else "missing; give the tank volume or the flow")
@@ -254,7 +285,65 @@ class ScenarioForm(VerticalScroll):
         self.query_one("#" + field_id("basis.amount") + "-label", Label).update(
             "flow" if flow else "volume")
         self.query_one("#" + field_id("basis.amount") + "-unit", Label).update(
-            "m³/h" if flow else "m³")
+            self._unit("basis.amount", "m³/h" if flow else "m³"))
+
+    # ------------------------------------------------------------- units --
+    def _unit_key(self, key: str) -> str:
+        """The key whose US conversion a field uses (the amount's depends on the mode)."""
+        if key != "basis.amount":
+            return key
+        flow = self.query_one("#f-basis--mode", Select).value == "flow"
+        return "flow.m3_per_h" if flow else "batch.volume_m3"
+
+    def _unit(self, key: str, metric: str) -> str:
+        conv = US_FIELDS.get(self._unit_key(key))
+        return conv.unit if self.units == "us" and conv else metric
+
+    def _put(self, key: str, si_value: Any) -> None:
+        """Show a scenario value in the form's units."""
+        conv = US_FIELDS.get(self._unit_key(key))
+        text = _fmt(si_value)
+        if self.units == "us" and conv and isinstance(si_value, (int, float)):
+            text = _fmt(float(f"{conv.from_si(si_value):.6g}"))
+            self._shown[key] = (text, si_value)
+        self.query_one("#" + field_id(key), Input).value = text
+
+    def _get(self, key: str, text: str) -> float:
+        """A typed number in SI units; raises ValueError if it is no number."""
+        conv = US_FIELDS.get(self._unit_key(key))
+        if self.units != "us" or not conv:
+            return float(text)
+        shown = self._shown.get(key)
+        if shown and shown[0] == text:
+            return shown[1]          # not retyped: the file's value, exactly
+        return conv.to_si(float(text))
+
+    def set_units(self, units: str) -> None:
+        """Show and read the fields in ``units`` ("metric" or "us"): each
+        converted field keeps its value, its text and unit label follow."""
+        if units == self.units:
+            return
+        values = {}
+        for key in ("basis.amount", *US_FIELDS):
+            if key in US_FIELDS and not any(f.key == key for f in FIELDS):
+                continue
+            text = self.query_one("#" + field_id(key), Input).value.strip()
+            try:
+                values[key] = self._get(key, text) if text else None
+            except ValueError:
+                values[key] = text          # left as typed: its error stays shown
+        self.units = units
+        self._shown = {}
+        for key, value in values.items():
+            if isinstance(value, str):
+                self.query_one("#" + field_id(key), Input).value = value
+            else:
+                self._put(key, value)
+        for f in FIELDS:
+            if f.key != "basis.amount":
+                self.query_one("#" + field_id(f.key) + "-unit", Label).update(
+                    self._unit(f.key, f.unit))
+        self._label_amount(self.query_one("#f-basis--mode", Select).value == "flow")
 
     def _show_custom(self, custom: bool) -> None:
         for w in self.query(".custom"):
@@ -271,6 +360,9 @@ class ScenarioForm(VerticalScroll):
     def on_select_changed(self, event: Select.Changed) -> None:
         event.stop()
         if event.select.id == "f-basis--mode":
+            # The number stays and now means a flow (or a volume): in US units
+            # the value it was converted from no longer applies.
+            self._shown.pop("basis.amount", None)
             self._label_amount(event.value == "flow")
         if event.select.id == "f-reagent--id":
             self._show_custom(event.value == "custom")

@@ -38,9 +38,9 @@ class DosePanel(Static):
             for line in stage_rows:
                 staged.append(line + "\n")
         notes = Text()
-        for line in caution_lines(plan):
+        for line in caution_lines(plan, units):
             notes.append(line + "\n", style=_STYLE.get(line[:2], ""))
-        for mark, message in check_lines(plan):
+        for mark, message in check_lines(plan, units):
             if mark == "  ":
                 notes.append(f"· {message}\n", style="dim")
         group = Group(head, table, Text(""), staged, notes)
