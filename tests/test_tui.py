@@ -270,3 +270,25 @@ def test_us_units_switch_the_inputs_and_keep_the_values():
         assert float(box.value) == pytest.approx(10.0, rel=1e-5)
         assert app.plan.dose_mol_l == pytest.approx(before, rel=1e-9)
     drive(check)
+
+
+def test_after_opening_a_file_keys_go_to_the_form():
+    # Issue 18 item 8: after Ctrl+O the keystrokes went nowhere.
+    other = str(ROOT / "scenarios" / "flow-metering-pump.toml")
+
+    async def check(app, pilot):
+        await pilot.press("f4")                     # working in another view
+        app.query_one("#compare").focus()
+        await pilot.press("ctrl+o")
+        await pilot.pause()
+        box = app.screen.query_one("Input")
+        box.value = other
+        await pilot.press("enter")
+        await pilot.pause()
+        assert app.path == other
+        ph = app.query_one("#" + field_id("effluent.ph"))
+        assert app.focused is ph
+        await pilot.press("end", "backspace", "backspace", "backspace", "backspace", "9", ".", "9")
+        await pilot.pause()
+        assert ph.value == "9.9" and app.plan.ph_start == 9.9
+    drive(check)

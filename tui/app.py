@@ -292,6 +292,8 @@ class Tankside(App):
         self.path = path
         self._source = _read_text(path)
         self._load(data)
+        # Keystrokes go to the form at once: its first field, as on start-up.
+        self.query_one("#" + field_id("effluent.ph")).focus()
 
     def action_save(self) -> None:
         self.push_screen(PathScreen("Save scenario as:", self.path or "scenario.toml"),
