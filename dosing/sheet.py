@@ -531,9 +531,10 @@ def render_sheet(scenario: Scenario, plan: Plan, units: str = "metric",
     dose it, then the chemistry for the engineer, then the cautions."""
     out: list[str] = []
     head = f"DOSE SHEET  {scenario.title}"
-    out.append(head)
+    out.extend(_wrap(head, width, ""))
     if scenario.site or scenario.tank:
-        out.append("  " + " / ".join(x for x in (scenario.site, scenario.tank) if x))
+        out.extend(_wrap(" / ".join(x for x in (scenario.site, scenario.tank) if x), width,
+                         "  "))
     out.append("=" * min(width, max(len(head), 40)))
     out.extend(_wrap(headline(scenario, plan, units), width, ""))
     for breach in permit_breaches(plan):

@@ -292,3 +292,12 @@ def test_after_opening_a_file_keys_go_to_the_form():
         await pilot.pause()
         assert ph.value == "9.9" and app.plan.ph_start == 9.9
     drive(check)
+
+
+def test_a_permit_breach_heads_the_dose_panel():
+    # Issue 18 item 2: the CIP demo breaks its sulfate cap; the panel says so
+    # before the dose, not among the notes below it.
+    async def check(app, pilot):
+        text = app.query_one("#dose-panel").plain_text
+        assert text.index("PERMIT BREACH: permit cap sulfate") < text.index("product per batch")
+    drive(check)

@@ -98,8 +98,10 @@ class Tankside(App):
     """True while the plan's uncertainty is being sampled in the background."""
 
     def __init__(self, path: str | None = None, data: dict[str, Any] | None = None,
-                 db: str | None = None):
+                 db: str | None = None, *, show_timing: bool = True):
         super().__init__()
+        #: Status lines say how long planning took (off in layout snapshots).
+        self.show_timing = show_timing
         self.path = path
         self._source: str | None = None      # text of the file opened (kept on save)
         self._overwrite_ok: str | None = None  # a path the user agreed to overwrite
@@ -190,12 +192,16 @@ class Tankside(App):
         self.stale = False
         self.scenario, self.plan = scenario, plan     # the watcher renders the views
         self.last_recompute_ms = (time.perf_counter() - t0) * 1000
-        self.status = f"planned and shown in {self.last_recompute_ms:.0f} ms"
+        self.status = f"planned and shown{self._took()}"
         if plan.dose_needed:
             self.sampling = True
             self.status += "; sampling how sure the dose is..."
             self.run_worker(lambda: self._sample_in_background(scenario, plan), thread=True,
                             exclusive=True, group="sampling")
+
+    def _took(self) -> str:
+        """The time planning took (" in 39 ms"), or nothing when not shown."""
+        return f" in {self.last_recompute_ms:.0f} ms" if self.show_timing else ""
 
     def _full_plan(self) -> Plan:
         """The plan with its uncertainty (sampled now if the background has not finished)."""
@@ -217,7 +223,7 @@ class Tankside(App):
             self.plan = full
             # Only replace the status this run set (a later message stays).
             if full.uncertainty is not None and self.status.endswith("dose is..."):
-                self.status = (f"planned in {self.last_recompute_ms:.0f} ms; "
+                self.status = (f"planned{self._took()}; "
                                f"{full.uncertainty.valid:,} plausible waters sampled")
         self.sampling = False
 
@@ -246,7 +252,7 @@ class Tankside(App):
     def _sheet_width(self) -> int:
         """Columns the sheet may use in its pane (78 until the pane is laid out)."""
         width = self.query_one("#views").size.width
-        return max(40, min(100, width - 6)) if width else 78
+        return max(30, min(100, width - 8)) if width else 78
 
     def on_resize(self) -> None:
         self._render_views()
@@ -414,9 +420,9 @@ def _read_text(path: str) -> str | None:
 
 
 def make_app(path: str | None = None, data: dict[str, Any] | None = None,
-             db: str | None = None) -> Tankside:
+             db: str | None = None, *, show_timing: bool = True) -> Tankside:
     """The one factory for the command line and the tests."""
-    return Tankside(path=path, data=data, db=db)
+    return Tankside(path=path, data=data, db=db, show_timing=show_timing)
 
 
 def run(path: str | None = None, db: str | None = None) -> int:

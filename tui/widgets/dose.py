@@ -7,9 +7,10 @@ from rich.table import Table
 from rich.text import Text
 from textual.widgets import Static
 
-from dosing.plan import Plan
+from dosing.plan import Plan, permit_breaches
 from dosing.scenario import Scenario
-from dosing.sheet import caution_lines, check_lines, dose_lines, metal_lines, staging_lines
+from dosing.sheet import (caution_lines, check_lines, dose_lines, in_units, metal_lines,
+                          staging_lines)
 
 __all__ = ["DosePanel"]
 
@@ -30,6 +31,9 @@ class DosePanel(Static):
         if stale:
             head.append("Last valid plan shown: fix the field marked in red.\n",
                         style="bold reverse yellow")
+        # A plan that breaks the permit says so first, above the dose.
+        for breach in permit_breaches(plan):
+            head.append(f"PERMIT BREACH: {in_units(breach, units)}\n", style="bold reverse red")
         head.append(f"{plan.reagent.name} for {scenario.title}\n", style="bold")
         staged = Text()
         stage_rows = staging_lines(plan, units)
