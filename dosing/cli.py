@@ -48,6 +48,8 @@ def _parser() -> argparse.ArgumentParser:
     p.add_argument("scenario", help="scenario file (TOML)")
     p.add_argument("--json", action="store_true", help="print the plan as JSON")
     p.add_argument("--plot", metavar="FILE.png", help="write the titration curve as PNG")
+    p.add_argument("--figure", choices=("operator", "engineer"), default="operator",
+                   help="engineer: the figure also draws the buffer intensity")
     p.add_argument("--db", metavar="PATH", help="compare with the shift log's record of "
                    "this tank (how far its doses ran from plan); read only")
     p.add_argument("--units", choices=("metric", "us"), default="metric",
@@ -155,7 +157,8 @@ def _cmd_plan(args) -> int:
     png = None
     if args.plot:
         from .plot import plan_figure_png
-        png = plan_figure_png(plan, scenario.title, args.units)
+        png = plan_figure_png(plan, scenario.title, args.units,
+                              engineer=args.figure == "engineer")
     data = require_finite(sheet_dict(scenario, plan), "plan")
     text = to_json(data) if args.json else render_sheet(scenario, plan, args.units)
     if png is not None:

@@ -20,7 +20,7 @@ from .sheet import UNIT_SYSTEMS  # noqa: E402
 from .metals import HARDNESS  # noqa: E402
 from .solids import dissolved_vs_ph  # noqa: E402
 
-__all__ = ["plan_figure_png", "replay_figure_png", "titration_figure_png"]
+__all__ = ["plan_figure", "plan_figure_png", "replay_figure_png", "titration_figure_png"]
 
 FOOTER = ("Model estimate. Local codes, the discharge permit and a licensed engineer "
           "have the final word.")
@@ -42,34 +42,74 @@ def _png(fig, cautions: tuple[str, ...] | list[str] = ()) -> bytes:
     return buf.getvalue()
 
 
-def plan_figure_png(plan: Plan, title: str = "", units: str = "metric") -> bytes:
-    """PNG bytes of pH against dose of product, with the window and the plan.
+def plan_figure_png(plan: Plan, title: str = "", units: str = "metric", *,
+                    engineer: bool = False) -> bytes:
+    """PNG bytes of :func:`plan_figure`, with the cautions under it."""
+    return _png(plan_figure(plan, title, units, engineer=engineer), plan.cautions)
+
+
+def plan_figure(plan: Plan, title: str = "", units: str = "metric", *,
+                engineer: bool = False):
+    """The figure of pH against dose of product, with the window and the plan.
 
     The x axis is product per batch (or per hour for a flow) in the unit
-    system's mass unit; the buffer intensity of the dosed water is on a
-    second axis.
+    system's mass unit, with litres (or gallons) along the top for a
+    solution. ``engineer`` adds the buffer intensity of the dosed water on a
+    second axis (it clutters the operator's figure). Metal and uncertainty
+    panels follow when the plan has them.
     """
     u = UNIT_SYSTEMS[units]
     per = "per batch" if isinstance(plan.basis, Batch) else "per hour"
-    kg_per_mol = plan.reagent.kg_product_per_mol
-    if kg_per_mol is not None:
-        scale = plan.basis.litres * kg_per_mol * u.mass_per_kg
-        unit = u.mass
-        xlabel = f"{plan.reagent.name}, {u.mass} {per}"
-    else:
-        scale = plan.basis.litres * plan.reagent.litres_product_per_mol * u.product_volume_per_l
-        unit = u.product_volume
-        xlabel = f"{plan.reagent.name}, {u.product_volume} {per}"
-    if not isinstance(plan.basis, Batch):
-        unit += "/h"                 # every amount of a flow carries its time base
-    c = plan.curve
-    x = c.dose_mol_l * scale
+    scale, unit, xlabel = _dose_axis(plan, u, per)
     metals = plan.water.tank_metals_mol_l
     panels = 1 + bool(metals) + (plan.uncertainty is not None)
     fig, axes = plt.subplots(panels, 1, figsize=(8.0, 5.6 + 4.4 * (panels - 1)), dpi=110,
                              squeeze=False)
-    ax = axes[0, 0]
     extra = list(axes[1:, 0])
+    _curve_panel(axes[0, 0], plan, scale, unit, xlabel, engineer)
+    _litres_axis(axes[0, 0], plan, u, per)
+    axes[0, 0].set_title(title or "Titration curve", fontsize=11, pad=24 if
+                         plan.reagent.form == "liquid" else 6)
+    if metals:
+        _metals_panel(extra.pop(0), plan, {k: v for k, v in metals.items()
+                                           if k not in HARDNESS} or metals)
+    if plan.uncertainty is not None:
+        _uncertainty_panel(extra.pop(0), plan, scale, unit, per)
+    return fig
+
+
+def _dose_axis(plan: Plan, u, per: str) -> tuple[float, str, str]:
+    """(product per mol/L of dose, its unit, the axis label): mass of product
+    where it has one, else volume; a flow's unit carries /h."""
+    kg_per_mol = plan.reagent.kg_product_per_mol
+    if kg_per_mol is not None:
+        scale = plan.basis.litres * kg_per_mol * u.mass_per_kg
+        unit, xlabel = u.mass, f"{plan.reagent.name}, {u.mass} {per}"
+    else:
+        scale = plan.basis.litres * plan.reagent.litres_product_per_mol * u.product_volume_per_l
+        unit, xlabel = u.product_volume, f"{plan.reagent.name}, {u.product_volume} {per}"
+    if not isinstance(plan.basis, Batch):
+        unit += "/h"                 # every amount of a flow carries its time base
+    return scale, unit, xlabel
+
+
+def _litres_axis(ax, plan: Plan, u, per: str) -> None:
+    """The same doses in litres (gallons) along the top, for a solution
+    measured by mass."""
+    r = plan.reagent
+    if r.form != "liquid" or r.kg_product_per_mol is None:
+        return
+    f = (r.litres_product_per_mol * u.product_volume_per_l) / (r.kg_product_per_mol
+                                                               * u.mass_per_kg)
+    top = ax.secondary_xaxis("top", functions=(lambda m: m * f, lambda v: v / f))
+    top.set_xlabel(f"{u.product_volume} {per}", fontsize=9)
+
+
+def _curve_panel(ax, plan: Plan, scale: float, unit: str, xlabel: str,
+                 engineer: bool) -> None:
+    """pH against dose: the window, the doses that keep it, the aim, the plan."""
+    c = plan.curve
+    x = c.dose_mol_l * scale
     ax.axhspan(plan.target.ph_min, plan.target.ph_max, color="tab:green", alpha=0.13,
                label=f"permit window pH {plan.target.ph_min:g}–{plan.target.ph_max:g}")
     lo, hi = plan.band_mol_l
@@ -90,23 +130,18 @@ def plan_figure_png(plan: Plan, title: str = "", units: str = "metric") -> bytes
     hi_ph = max(np.max(c.ph), plan.target.ph_max) + 0.5
     ax.set_ylim(max(0.0, lo_ph), min(14.0, hi_ph))
     ax.grid(True, alpha=0.3)
-    ax2 = ax.twinx()
-    ax2.plot(x, c.buffer_intensity_eq_l * 1000, color="tab:orange", lw=1.2, alpha=0.8,
-             label="buffer intensity β")
-    ax2.set_ylabel("buffer intensity β, mmol/L per pH", color="tab:orange")
-    ax2.tick_params(axis="y", colors="tab:orange")
-    ax2.set_ylim(bottom=0)
-    h1, l1 = ax.get_legend_handles_labels()
-    h2, l2 = ax2.get_legend_handles_labels()
-    ax.legend(h1 + h2, l1 + l2, loc="upper center", bbox_to_anchor=(0.5, -0.13),
+    handles, labels = ax.get_legend_handles_labels()
+    if engineer:
+        ax2 = ax.twinx()
+        ax2.plot(x, c.buffer_intensity_eq_l * 1000, color="tab:orange", lw=1.2, alpha=0.8,
+                 label="buffer intensity β")
+        ax2.set_ylabel("buffer intensity β, mmol/L per pH", color="tab:orange")
+        ax2.tick_params(axis="y", colors="tab:orange")
+        ax2.set_ylim(bottom=0)
+        h2, l2 = ax2.get_legend_handles_labels()
+        handles, labels = handles + h2, labels + l2
+    ax.legend(handles, labels, loc="upper center", bbox_to_anchor=(0.5, -0.13),
               ncol=3, fontsize=8, frameon=False)
-    ax.set_title(title or "Titration curve", fontsize=11)
-    if metals:
-        _metals_panel(extra.pop(0), plan, {k: v for k, v in metals.items()
-                                           if k not in HARDNESS} or metals)
-    if plan.uncertainty is not None:
-        _uncertainty_panel(extra.pop(0), plan, scale, unit, per)
-    return _png(fig, plan.cautions)
 
 
 def _uncertainty_panel(ax, plan: Plan, scale: float, unit: str, per: str) -> None:

@@ -845,8 +845,9 @@ def _slope_text(plan: Plan, u, flow: bool) -> str:
     per_percent = slope * plan.dose_mol_l * 1000 * 0.01
     if per_percent > STEEP_PH_PER_PERCENT:
         # A slope of 113 pH per 1 % reads as nonsense: the curve is a step here.
-        return (f"near-vertical at the aim: more than {STEEP_PH_PER_PERCENT:g} pH per 1 % "
-                "of the dose, so the dosing-error range and a staged dose are what to go by")
+        return (f"per 1 % of the dose the pH moves by more than {STEEP_PH_PER_PERCENT:g} "
+                "(the curve is near-vertical at the aim): go by the dosing-error range and "
+                "a staged dose")
     text = f"pH moves {fmt(per_percent, 2)} per 1 % of the dose at the aim"
     kg_per_mmol = plan.amounts(1e-3).kg_product
     if kg_per_mmol:

@@ -8,6 +8,8 @@ import json
 import re
 from pathlib import Path
 
+import pytest
+
 from tests.helpers import run_cli
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -105,7 +107,7 @@ def test_a_near_vertical_curve_prints_no_absurd_slope():
     r = run_cli("plan", str(ROOT / "scenarios" / "acid-rinse-caustic.toml"))
     assert r.returncode == 0, r.stderr
     line = " ".join(r.stdout.split("sensitivity", 1)[1].split("lab precision")[0].split())
-    assert "near-vertical at the aim" in line and "per 1 % of the dose" in line
+    assert "near-vertical at the aim" in line and "per 1 % of the dose the pH moves" in line
     assert not re.search(r"pH moves \d", line)
     # a buffered stream keeps its figure
     r = run_cli("plan", str(ROOT / "scenarios" / "flow-metering-pump.toml"))
@@ -120,3 +122,26 @@ def test_us_units_switch_temperatures_densities_and_gas_volumes():
     assert "45 °C (113 °F)" in us and "15.32 lb/gal at 68 °F" in us
     metric = run_cli("plan", str(CIP)).stdout
     assert "°F" not in metric and "1.836 kg/L at 20 °C" in metric
+
+
+def test_curve_figure_gives_litres_and_keeps_beta_for_the_engineer():
+    # Issue 18: the curve's x axis was kilograms only, and the buffer
+    # intensity cluttered the operator's figure.
+    import matplotlib.pyplot as plt
+    from dosing.plot import plan_figure
+    from dosing.scenario import load_scenario
+    from dosing.sheet import make_plan
+    s = load_scenario(ROOT / "scenarios" / "flow-metering-pump.toml")
+    plan = make_plan(s, sampled=False)
+    operator = plan_figure(plan, s.title)
+    ax = operator.axes[0]
+    assert len(operator.axes) == 1 and "kg per hour" in ax.get_xlabel()
+    top = [c for c in ax.get_children() if hasattr(c, "get_xlabel")
+           and c.get_xlabel() == "L per hour"]
+    assert top, "no litres axis along the top"
+    # 15 kg/h of 32 % HCl at 1.1594 kg/L (CRC) reads as 12.9 L/h on the top axis
+    assert top[0]._functions[0](15.0) == pytest.approx(15.0 / 1.1594, rel=1e-3)
+    engineer = plan_figure(plan, s.title, engineer=True)
+    assert any("buffer intensity" in a.get_ylabel() for a in engineer.axes)
+    assert not any("buffer intensity" in a.get_ylabel() for a in operator.axes)
+    plt.close("all")

@@ -23,7 +23,11 @@ pytest.importorskip("pytest_textual_snapshot")
 
 
 async def _settled(pilot) -> None:
-    """Wait until the plan and its background sampling are shown."""
+    """Wait until the plan and its background sampling are shown, with the
+    text cursor held still (a blinking cursor is drawn or not at random)."""
+    from textual.widgets import Input
+    for box in pilot.app.query(Input):
+        box.cursor_blink = False
     await pilot.pause()
     await pilot.app.workers.wait_for_complete()
     await pilot.pause()
