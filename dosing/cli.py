@@ -44,6 +44,20 @@ def _parser() -> argparse.ArgumentParser:
                     "a dose of product out. Local codes, the discharge permit and a "
                     "licensed engineer have the final word.")
     sub = ap.add_subparsers(dest="command", required=True, metavar="COMMAND")
+    _plan_parser(sub)
+    _sweep_parser(sub)
+    sub.add_parser("reagents", help="list the reagent catalogue")
+    sub.add_parser("solutes", help="list the solutes a scenario may name")
+    t = sub.add_parser("tui", help="open Tankside, the terminal view")
+    t.add_argument("scenario", nargs="?", help="scenario file to open")
+    t.add_argument("--db", metavar="PATH", help="shift log for recording decisions")
+    _log_parser(sub)
+    _replay_parser(sub)
+    _titration_parser(sub)
+    return ap
+
+
+def _plan_parser(sub) -> None:
     p = sub.add_parser("plan", help="plan the dose for a scenario file")
     p.add_argument("scenario", help="scenario file (TOML)")
     p.add_argument("--json", action="store_true", help="print the plan as JSON")
@@ -54,6 +68,9 @@ def _parser() -> argparse.ArgumentParser:
                    "this tank (how far its doses ran from plan); read only")
     p.add_argument("--units", choices=("metric", "us"), default="metric",
                    help="units of the dose sheet (default metric)")
+
+
+def _sweep_parser(sub) -> None:
     w = sub.add_parser("sweep", help="tank sizes (or flows) against product strengths")
     w.add_argument("scenario", help="scenario file (TOML)")
     w.add_argument("--strengths", metavar="PCT,PCT", help="strengths of the scenario's "
@@ -66,12 +83,9 @@ def _parser() -> argparse.ArgumentParser:
     w.add_argument("--json", action="store_true", help="print the grid as JSON")
     w.add_argument("--csv", metavar="OUT.csv", help="write the grid as CSV (SI units)")
     w.add_argument("--units", choices=("metric", "us"), default="metric")
-    sub.add_parser("reagents", help="list the reagent catalogue")
-    sub.add_parser("solutes", help="list the solutes a scenario may name")
-    t = sub.add_parser("tui", help="open Tankside, the terminal view")
-    t.add_argument("scenario", nargs="?", help="scenario file to open")
-    t.add_argument("--db", metavar="PATH", help="shift log for recording decisions")
-    _log_parser(sub)
+
+
+def _replay_parser(sub) -> None:
     r = sub.add_parser("replay", help="replay logged flow and pH data through the planner")
     r.add_argument("data", nargs="*", help="CSV (or Parquet) files or globs with timestamp, "
                    "flow (m3/h) and pH columns; several are read as one record, in order")
@@ -90,6 +104,9 @@ def _parser() -> argparse.ArgumentParser:
     r.add_argument("--units", choices=("metric", "us"), default="metric")
     r.add_argument("--chunk-rows", type=int, default=100_000, metavar="N",
                    help="rows read at a time (memory stays constant)")
+
+
+def _titration_parser(sub) -> None:
     t = sub.add_parser("titration", help="scale a bench titration to a full-scale dose")
     t.add_argument("data", help="CSV with titrant volume (mL) and pH columns")
     t.add_argument("--sample-ml", type=float, required=True, help="sample volume, mL")
@@ -108,7 +125,6 @@ def _parser() -> argparse.ArgumentParser:
     t.add_argument("--json", action="store_true")
     t.add_argument("--plot", metavar="FILE.png")
     t.add_argument("--units", choices=("metric", "us"), default="metric")
-    return ap
 
 
 def _log_parser(sub) -> None:

@@ -707,32 +707,71 @@ def carbonate_for_alkalinity(totals_mol_l, ph, temperature_c, alk_eq_l,
         positive for alkalinity (negative for acidity) the carbonate cannot
         explain the measurement and the caller should refuse the input.
     """
-    ph = np.atleast_1d(np.asarray(ph, dtype=float))
-    tot = np.broadcast_to(np.atleast_2d(np.asarray(totals_mol_l, dtype=float)),
-                          (ph.shape[0], N_SYSTEMS)).copy()
-    tot[:, CARBONATE] = 0.0
-    t = np.broadcast_to(np.asarray(temperature_c, dtype=float), ph.shape)
-    bare = Mixture.build(tot, 0.0, 0.0, t, np.nan, davies, unknown_pka)
-    rows = _restrict(bare, extra_cols=[CARBONATE])
-    car = rows.carb
-    alk = np.broadcast_to(np.asarray(alk_eq_l, dtype=float), ph.shape)
-    extra = np.broadcast_to(np.asarray(extra_ionic_strength, float), ph.shape)
-    ep = np.broadcast_to(np.asarray(endpoint_ph, float), ph.shape)
-    fe2 = np.flatnonzero(rows.cols == system_index("iron_ii"))
+    job = _AlkalinityJob.build(totals_mol_l, ph, temperature_c, alk_eq_l, endpoint_ph,
+                               davies, extra_ionic_strength, unknown_pka, ferrous_oxidised)
+    ionic, ionic_e = job.extra.copy(), job.extra.copy()
+    c, coef, new_i, new_ie = job.solve(ionic, ionic_e)
+    if not davies:
+        return c, coef, new_i
+    n = job.ph.shape[0]
 
-    def end_totals(sol_e):
-        t_e = rows.totals.copy()
-        if ferrous_oxidised and fe2.size:
-            t_e[:, fe2] = 0.0
-        capped = _capped(rows, sol_e, t_e)
+    # Settle both strengths at once: stack them as one fixed point.
+    def fn(x):
+        _, _, a_, b_ = job.solve(x[:n], x[n:])
+        return np.concatenate([a_, b_])
+    both = _settle(fn, np.concatenate([ionic, ionic_e]), np.concatenate([new_i, new_ie]),
+                   max_iter)
+    ok = np.isfinite(both[:n]) & np.isfinite(both[n:])
+    c, coef, new_i, _ = job.solve(np.where(ok, both[:n], 0.0), np.where(ok, both[n:], 0.0))
+    return np.where(ok, c, np.nan), coef, np.where(ok, new_i, np.nan)
+
+
+@dataclass(frozen=True)
+class _AlkalinityJob:
+    """The fixed parts of :func:`carbonate_for_alkalinity`: the water without
+    carbonate, at the sample pH and at the end point."""
+
+    rows: _Rows
+    ph: np.ndarray          # (n,) sample pH
+    ep: np.ndarray          # (n,) end-point pH
+    alk: np.ndarray         # (n,) alkalinity (+) or minus acidity [eq/L]
+    extra: np.ndarray       # (n,) known strong-ion ionic strength [mol/L]
+    fe2: np.ndarray         # column of ferrous iron in the view (empty if none)
+    ferrous_oxidised: bool
+
+    @classmethod
+    def build(cls, totals_mol_l, ph, temperature_c, alk_eq_l, endpoint_ph, davies,
+              extra_ionic_strength, unknown_pka, ferrous_oxidised) -> "_AlkalinityJob":
+        ph = np.atleast_1d(np.asarray(ph, dtype=float))
+        tot = np.broadcast_to(np.atleast_2d(np.asarray(totals_mol_l, dtype=float)),
+                              (ph.shape[0], N_SYSTEMS)).copy()
+        tot[:, CARBONATE] = 0.0
+        t = np.broadcast_to(np.asarray(temperature_c, dtype=float), ph.shape)
+        bare = Mixture.build(tot, 0.0, 0.0, t, np.nan, davies, unknown_pka)
+        rows = _restrict(bare, extra_cols=[CARBONATE])
+        return cls(rows, ph, np.broadcast_to(np.asarray(endpoint_ph, float), ph.shape),
+                   np.broadcast_to(np.asarray(alk_eq_l, dtype=float), ph.shape),
+                   np.broadcast_to(np.asarray(extra_ionic_strength, float), ph.shape),
+                   np.flatnonzero(rows.cols == system_index("iron_ii")), ferrous_oxidised)
+
+    def end_totals(self, sol_e):
+        """Totals at the end point: metals capped at their hydroxide's
+        solubility, ferrous iron gone when it is counted as oxidised."""
+        t_e = self.rows.totals.copy()
+        if self.ferrous_oxidised and self.fe2.size:
+            t_e[:, self.fe2] = 0.0
+        capped = _capped(self.rows, sol_e, t_e)
         if capped is not None:
             t_e[capped] = sol_e[capped]
         return t_e
 
-    def solve(ionic, ionic_e):
-        _, q, m2, h, oh, _, _ = _species(rows, 10.0 ** -ph, ionic)
-        _, qe, m2e, he, ohe, sol_e, _ = _species(rows, 10.0 ** -ep, ionic_e)
-        t_e = end_totals(sol_e)
+    def solve(self, ionic, ionic_e):
+        """(carbonate, its coefficient, new ionic strength at the sample and
+        at the end point) at the given ionic strengths."""
+        rows, car, alk, extra = self.rows, self.rows.carb, self.alk, self.extra
+        _, q, m2, h, oh, _, _ = _species(rows, 10.0 ** -self.ph, ionic)
+        _, qe, m2e, he, ohe, sol_e, _ = _species(rows, 10.0 ** -self.ep, ionic_e)
+        t_e = self.end_totals(sol_e)
         known = (t_e * qe - rows.totals * q).sum(-1) + (he - ohe) - (h - oh)
         coef = qe[:, car] - q[:, car]
         with np.errstate(divide="ignore", invalid="ignore"):
@@ -746,24 +785,6 @@ def carbonate_for_alkalinity(totals_mol_l, ph, temperature_c, alk_eq_l,
         new_ie = (0.5 * (he + ohe + (t_e * m2e).sum(-1)) + 0.5 * np.abs(s)
                   + 0.5 * np.abs(alk) + extra)
         return c, coef, new_i, new_ie
-
-    ionic, ionic_e = extra.copy(), extra.copy()
-    c, coef, new_i, new_ie = solve(ionic, ionic_e)
-    if davies:
-        n = ph.shape[0]
-        # Settle both strengths at once: stack them as one fixed point.
-        def fn(x):
-            _, _, a_, b_ = solve(x[:n], x[n:])
-            return np.concatenate([a_, b_])
-        both = _settle(fn, np.concatenate([ionic, ionic_e]), np.concatenate([new_i, new_ie]),
-                       max_iter)
-        ok = np.isfinite(both[:n]) & np.isfinite(both[n:])
-        c, coef, new_i, _ = solve(np.where(ok, both[:n], 0.0), np.where(ok, both[n:], 0.0))
-        c = np.where(ok, c, np.nan)
-        ionic = np.where(ok, new_i, np.nan)
-    else:
-        ionic = new_i
-    return c, coef, ionic
 
 
 @dataclass(frozen=True)

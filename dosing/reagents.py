@@ -446,6 +446,26 @@ def custom_reagent(compound: str, *, mass_fraction: float | None = None,
     if density_kg_l is not None and not (0.5 <= density_kg_l <= 2.5):
         raise InputError("reagent.density_kg_l", f"{density_kg_l:g} kg/L is not "
                          "a plausible product density; allowed: 0.5 to 2.5")
+    frac, form, label = _custom_strength(compound, comp, mass_fraction, density_kg_l,
+                                         molarity_mol_l, form)
+    if form not in ("liquid", "solid", "gas"):
+        raise InputError("reagent.form", f"{form!r}; allowed: liquid, solid, gas")
+    like = {"NaOH": "caustic-25", "KOH": "caustic-25", "Ca(OH)2": "lime",
+            "Na2CO3": "soda-ash", "NaHCO3": "bicarbonate", "H2SO4": "sulfuric-93",
+            "HCl": "hydrochloric-32", "HNO3": "hydrochloric-32", "CO2": "co2",
+            "CaO": "quicklime", "Mg(OH)2": "magnesia", "CaCO3": "limestone"}[compound]
+    model = CATALOGUE[like]
+    return Reagent("custom", name or f"custom {label}", comp, frac,
+                   density_kg_l if form == "liquid" else None, form,
+                   "given by the user" if density_kg_l else "",
+                   model.cautions, model.min_practical_ph, model.max_practical_ph,
+                   model.solubility_g_l, molarity_mol_l)
+
+
+def _custom_strength(compound: str, comp: Compound, mass_fraction, density_kg_l,
+                     molarity_mol_l, form):
+    """A custom product's mass fraction, form and label, from its molarity
+    or its mass fraction; raises InputError naming the field."""
     if molarity_mol_l is not None:
         if not (0.0 < molarity_mol_l <= 30.0) or not math.isfinite(molarity_mol_l):
             raise InputError("reagent.molarity_mol_l", f"{molarity_mol_l:g} is out "
@@ -468,15 +488,4 @@ def custom_reagent(compound: str, *, mass_fraction: float | None = None,
             raise InputError("reagent.density_kg_l", "a solution needs its density "
                              "to turn kilograms into litres")
         label = f"{compound} {mass_fraction * 100:g} %"
-    if form not in ("liquid", "solid", "gas"):
-        raise InputError("reagent.form", f"{form!r}; allowed: liquid, solid, gas")
-    like = {"NaOH": "caustic-25", "KOH": "caustic-25", "Ca(OH)2": "lime",
-            "Na2CO3": "soda-ash", "NaHCO3": "bicarbonate", "H2SO4": "sulfuric-93",
-            "HCl": "hydrochloric-32", "HNO3": "hydrochloric-32", "CO2": "co2",
-            "CaO": "quicklime", "Mg(OH)2": "magnesia", "CaCO3": "limestone"}[compound]
-    model = CATALOGUE[like]
-    return Reagent("custom", name or f"custom {label}", comp, frac,
-                   density_kg_l if form == "liquid" else None, form,
-                   "given by the user" if density_kg_l else "",
-                   model.cautions, model.min_practical_ph, model.max_practical_ph,
-                   model.solubility_g_l, molarity_mol_l)
+    return frac, form, label

@@ -359,6 +359,21 @@ def fit_water(curve: BenchCurve, base: Water, *, unknown_acid: str = "auto") -> 
     carbonate is replaced by the fit). ``unknown_acid``: "auto" (added when
     it halves the pH misfit), "yes" or "no".
     """
+    chosen, with_u, (r_ph, rms) = _least_squares_fit(curve, base, unknown_acid)
+    x = chosen.x
+    names = ["carbonate_mmol_l", "strong_ion_balance_meq_l"] + (
+        ["unknown_acid_mmol_l", "unknown_acid_pka"] if with_u else [])
+    std, cond = _standard_errors(chosen.jac, 2 * chosen.cost / max(curve.ph.size - len(x), 1))
+    warnings = _fit_warnings(names, x, std, cond, rms, with_u)
+    ml, mix = _model_ml(x, curve, base, with_u)
+    return WaterFit(_fitted_water(base, x, mix, with_u), dict(zip(names, map(float, x))),
+                    dict(zip(names, std)), ml - curve.added_ml, r_ph, rms, with_u,
+                    tuple(warnings))
+
+
+def _least_squares_fit(curve: BenchCurve, base: Water, unknown_acid: str):
+    """The least-squares fit without an unlisted acid, and with one where
+    asked or where it halves the pH misfit: (fit, with_unknown, misfit)."""
     # Starting points: the strong balance that matches the first reading
     # for a few carbonate totals.
     from .equilibrium import strong_balance_at_ph
@@ -368,7 +383,7 @@ def fit_water(curve: BenchCurve, base: Water, *, unknown_acid: str = "auto") -> 
         tot[0, CARBONATE] = c / 1000.0
         s, _ = strong_balance_at_ph(tot, curve.ph[0], base.temperature_c, davies=base.davies)
         starts.append([c, float(s[0]) * 1000.0])
-    plain, scale = _fit(curve, base, False, starts)
+    plain, _ = _fit(curve, base, False, starts)
     if plain is None:
         raise InputError("titration", "the model could not be fitted to this curve")
     chosen, with_u = plain, False
@@ -381,11 +396,13 @@ def fit_water(curve: BenchCurve, base: Water, *, unknown_acid: str = "auto") -> 
             misfit_u = _ph_resid(withu.x, curve, base, True)
             if unknown_acid == "yes" or misfit_u[1] < 0.5 * ph_rms_plain:
                 chosen, with_u, misfit = withu, True, misfit_u
-    x = chosen.x
-    names = ["carbonate_mmol_l", "strong_ion_balance_meq_l"] + (
-        ["unknown_acid_mmol_l", "unknown_acid_pka"] if with_u else [])
+    return chosen, with_u, misfit
+
+
+def _fit_warnings(names, x, std, cond, rms, with_u) -> list[str]:
+    """What the operator should know about a fit: values the curve cannot
+    tell apart or does not determine, a poor fit, an unlisted buffer."""
     warnings: list[str] = []
-    std, cond = _standard_errors(chosen.jac, 2 * chosen.cost / max(curve.ph.size - len(x), 1))
     if not math.isfinite(cond) or cond > 1e12:
         warnings.append("the fitted values are not identifiable from this curve (the "
                         "parameters trade off against each other); titrate further "
@@ -397,9 +414,6 @@ def fit_water(curve: BenchCurve, base: Water, *, unknown_acid: str = "auto") -> 
         elif abs(value) > 1e-9 and err > 0.5 * abs(value) and "pka" not in name:
             warnings.append(f"{FIT_LABELS[name][0]} is poorly determined "
                             f"({value:.3g} ± {err:.2g}{FIT_LABELS[name][1]})")
-    ml, mix = _model_ml(x, curve, base, with_u)
-    r_ml = ml - curve.added_ml
-    r_ph, rms = misfit
     if rms > 0.1:
         warnings.append(f"poor fit: the model misses the measured pH by {rms:.2f} "
                         "(RMS); a buffer the listed solutes do not explain, or a "
@@ -407,6 +421,12 @@ def fit_water(curve: BenchCurve, base: Water, *, unknown_acid: str = "auto") -> 
     if with_u:
         warnings.append(f"an unlisted buffer explains the curve: about {x[2]:.3g} mmol/L "
                         f"of a weak acid with pKa {x[3]:.2f}; identify it if you can")
+    return warnings
+
+
+def _fitted_water(base: Water, x, mix: Mixture, with_u: bool) -> Water:
+    """The sample as fitted: carbonate, strong-ion balance (and the unlisted
+    acid) from ``x``, its pH and ionic strength solved again."""
     totals = dict(base.totals_mol_l)
     totals["carbonate"] = x[0] / 1000.0
     if with_u:
@@ -416,13 +436,11 @@ def fit_water(curve: BenchCurve, base: Water, *, unknown_acid: str = "auto") -> 
                           x[3] if with_u else None)
     ph0 = float(solve_ph(start)[0])
     sp = speciate(start, ph0)
-    water = replace(base, ph=ph0, totals_mol_l=totals, strong_eq_l=x[1] / 1000.0,
-                    strong_ionic_strength=0.5 * abs(x[1]) / 1000.0,
-                    ionic_strength=float(sp.ionic_strength[0]), open_to_air=base.open_to_air,
-                    unknown_pka=float(x[3]) if with_u else None,
-                    notes=("water fitted to the bench titration",))
-    return WaterFit(water, dict(zip(names, map(float, x))), dict(zip(names, std)),
-                    r_ml, r_ph, rms, with_u, tuple(warnings))
+    return replace(base, ph=ph0, totals_mol_l=totals, strong_eq_l=x[1] / 1000.0,
+                   strong_ionic_strength=0.5 * abs(x[1]) / 1000.0,
+                   ionic_strength=float(sp.ionic_strength[0]), open_to_air=base.open_to_air,
+                   unknown_pka=float(x[3]) if with_u else None,
+                   notes=("water fitted to the bench titration",))
 
 
 def _standard_errors(jac: np.ndarray, s2: float) -> tuple[list[float | None], float]:

@@ -228,6 +228,13 @@ class ScenarioForm(VerticalScroll):
             except ValueError as err:
                 errors[f.key] = (str(err) if f.kind == "pairs"
                                  else f"{text!r} is not a number")
+        self._basis_to_data(data, errors)
+        self._reagent_to_data(data["reagent"])
+        self._model_to_data(data)
+        return data, errors
+
+    def _basis_to_data(self, data: dict[str, Any], errors: dict[str, str]) -> None:
+        """The tank or flow section: one of [batch] volume_m3 or [flow] m3_per_h."""
         mode = self.query_one("#f-basis--mode", Select).value
         amount_text = self.query_one("#" + field_id("basis.amount"), Input).value.strip()
         other = "batch" if mode == "flow" else "flow"
@@ -244,23 +251,28 @@ class ScenarioForm(VerticalScroll):
         except ValueError:
             errors["basis.amount"] = (f"{amount_text!r} is not a number" if amount_text
                                       else "missing; give the tank volume or the flow")
-        r = data["reagent"]
+
+    def _reagent_to_data(self, r: dict[str, Any]) -> None:
+        """The reagent section: a catalogue id, or a custom compound."""
         rid = self.query_one("#f-reagent--id", Select).value
         if rid == "custom":
             r.pop("id", None)
             r.pop("purity", None)
             r["compound"] = self.query_one("#f-reagent--compound", Select).value
+            return
+        for k in ("compound", "mass_fraction", "density_kg_l", "molarity_mol_l", "form"):
+            r.pop(k, None)
+        r["id"] = rid
+        if CATALOGUE[rid].form == "liquid":
+            r.pop("purity", None)
         else:
-            for k in ("compound", "mass_fraction", "density_kg_l", "molarity_mol_l", "form"):
-                r.pop(k, None)
-            r["id"] = rid
-            if CATALOGUE[rid].form == "liquid":
-                r.pop("purity", None)
-            else:
-                r.pop("storage_m3", None)
+            r.pop("storage_m3", None)
+
+    def _model_to_data(self, data: dict[str, Any]) -> None:
+        """The model section; a default the file did not write is not added
+        (saving keeps the file as it was)."""
         m = data["model"]
         base_model = self._base.get("model", {})
-        # A default the file did not write is not added (saving keeps the file as it was).
         for key, value, default in (
                 ("activity", self.query_one("#f-model--activity", Select).value, "davies"),
                 ("open_to_air", self.query_one("#f-model--open-to-air", Switch).value, False)):
@@ -270,7 +282,6 @@ class ScenarioForm(VerticalScroll):
                 m[key] = value
         if not m and "model" not in self._base:
             data.pop("model")
-        return data, errors
 
     def show_errors(self, errors: dict[str, str]) -> None:
         """Show each error beside its field; clear the others."""
