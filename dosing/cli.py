@@ -437,12 +437,11 @@ def _cmd_titration(args) -> int:
         why = getattr(err, "reason", str(err))
         raise ScenarioError(args.data, "", why if key in ("", "titration")
                             else f"{key}: {why}") from None
+    data = require_finite(report.to_dict(), "titration")
     if args.plot:
         from .plot import titration_figure_png
         write_atomic(args.plot, titration_figure_png(curve, report, scenario.title))
-    public = {k: v for k, v in report.items() if not k.startswith("_")}
-    require_finite(public, "titration")
-    sys.stdout.write(to_json(public) if args.json
+    sys.stdout.write(to_json(data) if args.json
                      else render_titration(scenario, report, args.units))
     return 0
 

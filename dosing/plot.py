@@ -210,10 +210,9 @@ def replay_figure_png(totals, report: dict, units: str = "metric") -> bytes:
                                  gridspec_kw={"height_ratios": [3, 2]})
     if hours:
         h = pd.to_datetime(hours)
-        vals = np.array([totals.hourly[k] for k in hours], dtype=float)
-        ph = np.where(vals[:, 1] > 0, vals[:, 0] / np.maximum(vals[:, 1], 1), np.nan)
+        ph = np.array([totals.hourly[k].ph_mean for k in hours])
         conv = u.mass_per_kg if totals.rate_unit == "kg/h" else u.product_volume_per_l
-        rate = np.where(vals[:, 3] > 0, vals[:, 2] / np.maximum(vals[:, 3], 1), np.nan) * conv
+        rate = np.array([totals.hourly[k].rate_mean for k in hours]) * conv
         frame = pd.DataFrame({"ph": ph, "rate": rate}, index=h)
         span_days = (h[-1] - h[0]).total_seconds() / 86400 if len(h) > 1 else 0
         if span_days > 14:
@@ -259,14 +258,14 @@ def replay_figure_png(totals, report: dict, units: str = "metric") -> bytes:
     return _png(fig, report.get("cautions", ()))
 
 
-def titration_figure_png(curve, report: dict, title: str = "") -> bytes:
-    """PNG bytes: measured points, PCHIP interpolation, model curve, window, dose;
-    with a buffer spectrum fitted, its sites as bars over pKa below."""
-    direct = report["_direct"]
-    plan = report["_plan"]
+def titration_figure_png(curve, comparison, title: str = "") -> bytes:
+    """PNG bytes of a :class:`~dosing.titration.Comparison`: measured points,
+    PCHIP interpolation, model curve, window, dose; with a buffer spectrum
+    fitted, its sites as bars over pKa below."""
+    direct = comparison.direct
+    plan = comparison.plan
     # The spectrum is drawn when the plan rests on it (not when the simple fit sufficed).
-    used = report["model"].get("used", "simple")
-    spec = report.get("_spectrum") if used == "spectrum" else None
+    spec = comparison.spectrum if comparison.used == "spectrum" else None
     water = plan.water
     if spec is not None:
         fig, (ax, ax_s) = plt.subplots(2, 1, figsize=(8.0, 9.0), dpi=110,
@@ -283,7 +282,7 @@ def titration_figure_png(curve, report: dict, title: str = "") -> bytes:
     from .titration import model_curve
     v, ph_model = model_curve(curve, water)
     ax.plot(v, ph_model, color="tab:blue", lw=1.8,
-            label="fitted water (" + ("buffer spectrum" if used == "spectrum" else "model")
+            label="fitted water (" + ("buffer spectrum" if comparison.used == "spectrum" else "model")
             + ")")
     ax.plot(curve.added_ml, curve.ph, "o", color="k", ms=4, label="measured")
     ax.axvline(direct.ml_at_aim, color="tab:red", ls=":", lw=1.0,

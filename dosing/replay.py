@@ -38,7 +38,7 @@ from .water import T_MAX_C, T_MIN_C
 
 __all__ = ["COLUMN_NAMES", "normalise_columns", "ReplayState", "plan_rows",
            "ReplayTotals", "replay_report", "FLAGS", "FLATLINE_ROWS", "GAP_LIMIT_S",
-           "PartResult", "plan_part", "stitch", "head_length", "nominal_step"]
+           "PartResult", "plan_part", "stitch", "head_length", "nominal_step", "HourSums"]
 
 #: Accepted spellings of each column (lower case, units in brackets ignored).
 COLUMN_NAMES = {
@@ -297,6 +297,29 @@ def _calcite_where_fast(mix: Mixture, reagent, aim: float, dose: np.ndarray) -> 
 _EDGES = np.concatenate([[0.0], np.logspace(-6, 6, 1201)])
 
 
+@dataclass(frozen=True)
+class HourSums:
+    """One hour of a replay, for the plot: sums and counts of the raw pH
+    and of the dose rate (means are sum / count)."""
+
+    ph_sum: float = 0.0
+    ph_n: int = 0
+    rate_sum: float = 0.0
+    rate_n: int = 0
+
+    def __add__(self, other: "HourSums") -> "HourSums":
+        return HourSums(self.ph_sum + other.ph_sum, self.ph_n + other.ph_n,
+                        self.rate_sum + other.rate_sum, self.rate_n + other.rate_n)
+
+    @property
+    def ph_mean(self) -> float:
+        return self.ph_sum / self.ph_n if self.ph_n else math.nan
+
+    @property
+    def rate_mean(self) -> float:
+        return self.rate_sum / self.rate_n if self.rate_n else math.nan
+
+
 @dataclass
 class ReplayTotals:
     """Sums that chunks add into; the report is made from these alone."""
@@ -314,7 +337,7 @@ class ReplayTotals:
     hist: np.ndarray = field(default_factory=lambda: np.zeros(_EDGES.size, dtype=np.int64))
     daily_kg: dict = field(default_factory=dict)
     daily_l: dict = field(default_factory=dict)
-    hourly: dict = field(default_factory=dict)
+    hourly: dict = field(default_factory=dict)      #: hour -> HourSums
     first: Any = None
     last: Any = None
     rate_unit: str = "kg/h"
@@ -363,9 +386,8 @@ class ReplayTotals:
                                 "rate_sum": g[rate_col].sum(),
                                 "rate_n": g[rate_col].count()})
             for h, row in agg.iterrows():
-                a = self.hourly.get(h, [0.0, 0, 0.0, 0])
-                self.hourly[h] = [a[0] + row.ph_sum, a[1] + int(row.ph_n),
-                                  a[2] + row.rate_sum, a[3] + int(row.rate_n)]
+                self.hourly[h] = self.hourly.get(h, HourSums()) + HourSums(
+                    float(row.ph_sum), int(row.ph_n), float(row.rate_sum), int(row.rate_n))
 
     def merge(self, other: "ReplayTotals") -> None:
         """Add another part's totals (parts of one site, in any order)."""
@@ -379,8 +401,7 @@ class ReplayTotals:
             for d, v in theirs.items():
                 mine[d] = mine.get(d, 0.0) + v
         for h, b in other.hourly.items():
-            a = self.hourly.get(h, [0.0, 0, 0.0, 0])
-            self.hourly[h] = [x + y for x, y in zip(a, b)]
+            self.hourly[h] = self.hourly.get(h, HourSums()) + b
         if other.first is not None:
             self.first = other.first if self.first is None else min(self.first, other.first)
             self.last = other.last if self.last is None else max(self.last, other.last)

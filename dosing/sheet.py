@@ -902,14 +902,16 @@ def _plus_minus(value: float, err: float | None, unit: str) -> str:
     return f"{shown} ± {fmt(err, 2)}{unit}"
 
 
-def render_titration(scenario: Scenario, report: dict[str, Any], units: str = "metric",
+def render_titration(scenario: Scenario, comparison, units: str = "metric",
                      width: int = 78) -> str:
-    """Both titration methods side by side, then the model plan's sheet."""
+    """Both titration methods side by side (a :class:`~dosing.titration.Comparison`),
+    then the model plan's sheet."""
     from .titration import FIT_LABELS
+    report = comparison.to_dict()
     d, m = report["direct"], report["model"]
     per = "per_h" if "kg_product_per_h" in d else "per_batch"
     kg, lit = d[f"kg_product_{per}"], d[f"litres_product_{per}"]
-    plan: Plan = report["_plan"]
+    plan: Plan = comparison.plan
     a = plan.amounts()
     label = "per hour" if per == "per_h" else "per batch"
 
@@ -919,15 +921,15 @@ def render_titration(scenario: Scenario, report: dict[str, Any], units: str = "m
     scaled = (f"{fmt(d['dose_mmol_per_l'])} mmol/L, {prod(kg, lit)} {label}"
               if d["dose_mmol_per_l"] is not None
               else "no dose by equivalents for this reagent (see the warnings)")
-    out = [f"BENCH TITRATION  {report['points']} points, {fmt(report['sample_ml'])} mL "
-           f"sample, titrant {report['titrant']}", "=" * 40,
-           f"direct scaling  {fmt(d['ml_titrant_at_aim'])} mL titrant to pH "
-           f"{plan.target.ph_aim:g} -> {scaled}",
-           f"model fit       {fmt(a.mmol_per_l)} mmol/L, {prod(a.kg_product, a.litres_product)} "
-           f"{label}"]
+    out = _wrap(f"BENCH TITRATION  {report['points']} points, {fmt(report['sample_ml'])} mL "
+                f"sample, titrant {report['titrant']}", width, "") + ["=" * 40]
+    out += _hanging("direct scaling", f"{fmt(d['ml_titrant_at_aim'])} mL titrant to pH "
+                    f"{plan.target.ph_aim:g} -> {scaled}", width)
+    out += _hanging("model fit", f"{fmt(a.mmol_per_l)} mmol/L, "
+                    f"{prod(a.kg_product, a.litres_product)} {label}", width)
     gap = report["gap_model_vs_direct"]
     if gap is not None:
-        out.append(f"                the model is {gap:+.1%} against the direct scaling")
+        out += _hanging("", f"the model is {gap:+.1%} against the direct scaling", width)
     spec = report.get("spectrum")
     if m.get("used") == "spectrum" and spec:
         out.extend(_wrap(f"buffer spectrum strong-ion balance {fmt(spec['strong_ion_balance_meq_l'])} "
@@ -939,15 +941,22 @@ def render_titration(scenario: Scenario, report: dict[str, Any], units: str = "m
         out.extend(_spectrum_bars(spec["sites"]))
         out = _titration_warnings(out, report, width)
         out += ["", "PLAN WITH THE FITTED WATER", ""]
-        out.append(render_sheet(report["_scenario"], plan, units, width))
+        out.append(render_sheet(comparison.scenario, plan, units, width))
         return "\n".join(out)
-    out.append("fitted water    " + ", ".join(
+    out += _hanging("fitted water", ", ".join(
         f"{FIT_LABELS[k][0]} {_plus_minus(v, m['stderr'][k], FIT_LABELS[k][1])}"
-        for k, v in m["fitted"].items()) + f"; pH misfit {m['rms_ph']:.3f} RMS")
+        for k, v in m["fitted"].items()) + f"; pH misfit {m['rms_ph']:.3f} RMS", width)
     out = _titration_warnings(out, report, width)
     out += ["", "PLAN WITH THE FITTED WATER", ""]
-    out.append(render_sheet(report["_scenario"], plan, units, width))
+    out.append(render_sheet(comparison.scenario, plan, units, width))
     return "\n".join(out)
+
+
+def _hanging(label: str, text: str, width: int, indent: int = 16) -> list[str]:
+    """A label and its text, the text wrapped under itself."""
+    import textwrap
+    return textwrap.wrap(f"{label:<{indent}}{text}", width, subsequent_indent=" " * indent,
+                         break_on_hyphens=False)
 
 
 def _spectrum_bars(sites: list[dict[str, float]], bar: int = 30) -> list[str]:

@@ -38,7 +38,7 @@ from .effluent import Water
 from .equilibrium import (CARBONATE, UNKNOWN, Mixture, ReagentVector, add_dose, dose_to_ph,
                           solve_ph, speciate)
 from .errors import InputError, UnreachableError
-from .plan import Flow, Target, amounts_for, plan_dose
+from .plan import Flow, Plan, Target, amounts_for, plan_dose
 from .reagents import COMPOUNDS, Compound, Reagent, get_reagent
 from .scenario import Scenario
 
@@ -518,9 +518,29 @@ def _choose_fit(curve: BenchCurve, base: Water, unknown_acid: str, mode: str):
     return simple, spec, use
 
 
+@dataclass(frozen=True)
+class Comparison:
+    """Both methods for one bench titration: the typed results and, in
+    :meth:`to_dict`, the same as plain JSON-ready data."""
+
+    direct: DirectScaling
+    fit: WaterFit
+    spectrum: Any                   #: the buffer spectrum, or None (simple fit only)
+    used: str                       #: "simple" or "spectrum": the water the plan rests on
+    plan: Plan                      #: the plan from the fitted water
+    scenario: Scenario              #: the scenario with the fitted water
+    gap: float | None               #: (model - direct) / direct dose
+    warnings: tuple[str, ...]
+    data: dict[str, Any]
+
+    def to_dict(self) -> dict[str, Any]:
+        """The comparison as plain data (SI units, JSON-ready)."""
+        return self.data
+
+
 def compare(curve: BenchCurve, scenario: Scenario, *, unknown_acid: str = "auto",
-            fit_mode: str = "auto") -> dict[str, Any]:
-    """Both methods for a scenario's reagent, window and tank, as plain data.
+            fit_mode: str = "auto") -> Comparison:
+    """Both methods for a scenario's reagent, window and tank.
 
     The model water is the simple fit (carbonate, strong-ion balance, at most
     one unlisted acid) while it explains the curve to about three times a
@@ -547,6 +567,14 @@ def compare(curve: BenchCurve, scenario: Scenario, *, unknown_acid: str = "auto"
                             "water model before dosing; dose in stages")
     a = amounts_for(direct.dose_mol_l, reagent, basis) if direct.dose_mol_l is not None \
         else None
+    data = _comparison_dict(curve, direct, a, basis, fit, spec, used, sheet_dict(fitted, plan),
+                            gap, warnings, plan)
+    return Comparison(direct, fit, spec, used, plan, fitted, gap, tuple(warnings), data)
+
+
+def _comparison_dict(curve, direct, a, basis, fit, spec, used, plan_dict, gap, warnings,
+                     plan) -> dict[str, Any]:
+    """The JSON of a :class:`Comparison`."""
     per = "per_h" if isinstance(basis, Flow) else "per_batch"
     return {
         "sample_ml": curve.sample_ml, "titrant": curve.titrant.label,
@@ -563,7 +591,7 @@ def compare(curve: BenchCurve, scenario: Scenario, *, unknown_acid: str = "auto"
         "model": {"fitted": fit.params, "stderr": fit.stderr, "rms_ph": fit.rms_ph,
                   "unknown_acid": fit.unknown_acid,
                   "residual_ml": [float(r) for r in fit.residual_ml],
-                  "used": used, "plan": sheet_dict(fitted, plan)},
+                  "used": used, "plan": plan_dict},
         "spectrum": None if spec is None else {
             "rms_ph": spec.rms_ph, "strong_ion_balance_meq_l": spec.strong_eq_l * 1000,
             "carbonate_mmol_l": spec.carbonate_mol_l * 1000,
@@ -576,5 +604,4 @@ def compare(curve: BenchCurve, scenario: Scenario, *, unknown_acid: str = "auto"
         "gap_model_vs_direct": gap,
         "warnings": warnings,
         "cautions": list(plan.cautions),
-        "_plan": plan, "_direct": direct, "_fit": fit, "_scenario": fitted, "_spectrum": spec,
     }

@@ -74,10 +74,10 @@ def test_compare_uses_the_spectrum_when_the_simple_fit_misses(tmp_path):
                            "batch": {"volume_m3": 10.0},
                            "target": {"ph_min": 6.0, "ph_max": 9.0, "ph_aim": 7.0},
                            "reagent": {"id": "caustic-50"}}, "jar.toml")
-    report = compare(curve, scen)
+    report = compare(curve, scen).to_dict()
     assert report["model"]["used"] == "spectrum"
     assert report["spectrum"]["rms_ph"] <= 3 * NOISE < report["model"]["rms_ph"]
-    simple = compare(curve, scen, fit_mode="simple")
+    simple = compare(curve, scen, fit_mode="simple").to_dict()
     assert simple["model"]["used"] == "simple" and simple["spectrum"] is None
 
 
@@ -90,11 +90,12 @@ def test_aim_outside_the_titrated_range_is_said(tmp_path):
                            "batch": {"volume_m3": 10.0},
                            "target": {"ph_min": 3.0, "ph_max": hi + 1.0, "ph_aim": hi - 0.3},
                            "reagent": {"id": "caustic-50"}}, "jar.toml")
-    ok = compare(curve, scen, fit_mode="spectrum")
+    result = compare(curve, scen, fit_mode="spectrum")
+    ok = result.to_dict()
     assert not [w for w in ok["warnings"] if "outside the titrated range" in w]
     from dosing.titration import _extrapolation_words
     from dosing.plan import Target
-    words = _extrapolation_words(curve, Target(3.0, hi + 2.0, hi + 1.0), ok["_spectrum"])
+    words = _extrapolation_words(curve, Target(3.0, hi + 2.0, hi + 1.0), result.spectrum)
     assert words and "extrapolates the fitted buffer sites" in words[0]
 
 

@@ -64,7 +64,7 @@ def test_the_two_methods_agree_on_a_clean_curve():
     tit = parse_titrant("0.1 N H2SO4")
     v = np.linspace(0, 12, 41)
     ph = synthetic(totals(carbonate=0.004), 0.008, tit, 50.0, v, t_c=s.water.temperature_c)
-    report = compare(check_curve(50.0, tit, v, ph), s)
+    report = compare(check_curve(50.0, tit, v, ph), s).to_dict()
     assert abs(report["gap_model_vs_direct"]) < 0.03
     assert not any("differ by" in w for w in report["warnings"])
     assert report["cautions"][-1].endswith("final word on any dose.")

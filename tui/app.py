@@ -404,9 +404,9 @@ class Tankside(App):
                                   width=self._sheet_width())))
         plot = self.query_one("#titration-plot", TitrationPlot)
         plot.display = True
-        plot.show(curve, report["_plan"].water, report["_plan"].target)
+        plot.show(curve, report.plan.water, report.plan.target)
         self.query_one(TabbedContent).active = "titration"
-        gap = report["gap_model_vs_direct"]
+        gap = report.gap
         self.status = (f"titration {path}: model {gap:+.0%} against direct scaling"
                        if gap is not None else f"titration {path} loaded")
 
