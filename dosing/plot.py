@@ -18,12 +18,13 @@ from .plan import Batch, Plan  # noqa: E402
 from .numbers import fmt  # noqa: E402
 from .sheet import UNIT_SYSTEMS  # noqa: E402
 from .metals import HARDNESS  # noqa: E402
+from .reagents import GENERAL_CAUTION  # noqa: E402
 from .solids import dissolved_vs_ph  # noqa: E402
 
 __all__ = ["plan_figure", "plan_figure_png", "replay_figure_png", "titration_figure_png"]
 
-FOOTER = ("Model estimate. Local codes, the discharge permit and a licensed engineer "
-          "have the final word.")
+#: The line under every figure: the general caution, once (reagents.py).
+FOOTER = f"Model estimate. {GENERAL_CAUTION}"
 
 
 def _png(fig, cautions: tuple[str, ...] | list[str] = ()) -> bytes:
