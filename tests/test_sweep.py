@@ -114,6 +114,7 @@ def test_tankside_sweep_shows_strengths():
         app = make_app(BATCH)
         async with app.run_test(size=(120, 40)) as pilot:
             await pilot.pause()
+            await app.workers.wait_for_complete()      # planned in a worker thread
             await pilot.press("f4")
             await pilot.pause()
             table = app.query_one("#sweep-table")

@@ -18,9 +18,16 @@ def drive(coro_fn, path=CIP):
     async def main():
         app = make_app(path)
         async with app.run_test(size=(150, 45)) as pilot:
-            await pilot.pause()
+            await settle(app, pilot)
             await coro_fn(app, pilot)
     asyncio.run(main())
+
+
+async def settle(app, pilot):
+    """Wait until the plan (made in a worker thread) and its sampling are shown."""
+    await pilot.pause()
+    await app.workers.wait_for_complete()
+    await pilot.pause()
 
 
 async def set_field(app, pilot, key, text):
@@ -28,7 +35,7 @@ async def set_field(app, pilot, key, text):
     box.focus()
     box.value = ""
     await pilot.press(*list(text)) if text else None
-    await pilot.pause()
+    await settle(app, pilot)
 
 
 def test_opens_a_scenario_and_shows_the_engine_dose():
@@ -76,7 +83,7 @@ def test_invalid_entry_shows_the_reason_and_keeps_the_plan():
 def test_switching_reagent_matches_the_engine():
     async def check(app, pilot):
         app.query_one("#f-reagent--id").value = "hydrochloric-32"
-        await pilot.pause()
+        await settle(app, pilot)
         assert app.plan.reagent.id == "hydrochloric-32"
         s = load_scenario(CIP)
         data = dict(s.data)
@@ -90,7 +97,7 @@ def test_switching_reagent_matches_the_engine():
 def test_custom_reagent_fields():
     async def check(app, pilot):
         app.query_one("#f-reagent--id").value = "custom"
-        await pilot.pause()
+        await settle(app, pilot)
         app.query_one("#f-reagent--compound").value = "H2SO4"
         await set_field(app, pilot, "reagent.mass_fraction", "0.5")
         await set_field(app, pilot, "reagent.density_kg_l", "1.3952")
@@ -106,7 +113,7 @@ def test_save_and_open_round_trip(tmp_path):
     async def check(app, pilot):
         await set_field(app, pilot, "target.ph_aim", "7.0")
         app.save_path(str(out))
-        await pilot.pause()
+        await settle(app, pilot)
         assert out.exists()
         saved = load_scenario(out)
         assert saved.target.ph_aim == 7.0
@@ -114,10 +121,10 @@ def test_save_and_open_round_trip(tmp_path):
         assert saved.permit == {"sulfate_mg_l": 1500}
         assert make_plan(saved).dose_mol_l == pytest.approx(app.plan.dose_mol_l, rel=1e-12)
         app.open_path(str(ROOT / "scenarios" / "lime-acid-batch.toml"))
-        await pilot.pause()
+        await settle(app, pilot)
         assert app.plan.reagent.id == "lime"
         app.open_path(str(tmp_path / "missing.toml"))
-        await pilot.pause()
+        await settle(app, pilot)
         assert "no such file" in app.status and app.plan.reagent.id == "lime"
     drive(check)
 
@@ -126,13 +133,13 @@ def test_views_help_and_units():
     async def check(app, pilot):
         for key in ("f3", "f4", "f5", "f2"):
             await pilot.press(key)
-            await pilot.pause()
+            await settle(app, pilot)
         await pilot.press("f6")
-        await pilot.pause()
+        await settle(app, pilot)
         assert app.units == "us"
         assert " lb" in app.query_one("#dose-panel").plain_text
         await pilot.press("f1")
-        await pilot.pause()
+        await settle(app, pilot)
         assert app.screen.__class__.__name__ == "HelpScreen"
         await pilot.press("escape")
         caution = str(app.query_one("#caution").render())
@@ -164,7 +171,7 @@ def test_loads_a_bench_titration(tmp_path):
 
     async def check(app, pilot):
         app.load_titration(f"{jar}; 50; 0.1 N H2SO4")
-        await pilot.pause()
+        await settle(app, pilot)
         text = str(app.query_one("#titration-text").content)
         assert "direct scaling" in text and "model fit" in text
         assert "[sulfuric-98]" in text         # shown as text, not eaten as markup
@@ -175,7 +182,7 @@ def test_loads_a_bench_titration(tmp_path):
         drawn = plot.plt.build()
         assert "measured" in drawn and "fitted water" in drawn
         app.load_titration(f"{tmp_path / 'none.csv'}; 50; 0.1 N H2SO4")
-        await pilot.pause()
+        await settle(app, pilot)
         assert "no such file" in app.status
     drive(check)
 
@@ -185,7 +192,7 @@ def test_uncertainty_is_sampled_off_the_event_loop_and_shown():
     # and equals what the command line computes for the same scenario.
     async def check(app, pilot):
         await app.workers.wait_for_complete()
-        await pilot.pause()
+        await settle(app, pilot)
         expected = make_plan(load_scenario(CIP))
         assert app.plan.uncertainty is not None
         assert app.plan.uncertainty.p50_mol_l == pytest.approx(
@@ -215,10 +222,10 @@ def test_saving_keeps_comments_and_asks_before_overwriting(tmp_path):
     async def check(app, pilot):
         await set_field(app, pilot, "target.ph_aim", "7.2")
         app.save_path(str(src))
-        await pilot.pause()
+        await settle(app, pilot)
         assert src.read_text() == before and "exists" in app.status   # asked first
         app.save_path(str(src))
-        await pilot.pause()
+        await settle(app, pilot)
         assert "saved" in app.status
     drive(check, str(src))
     after = src.read_text()
@@ -240,7 +247,7 @@ def test_switching_product_drops_the_old_price_and_lists_names():
         labels = [str(p[0]) for p in select._options]
         assert any("hydrochloric" in x.lower() for x in labels)     # names, not ids
         select.value = "hydrochloric-32"
-        await pilot.pause()
+        await settle(app, pilot)
         assert box.value == "" and app.plan.reagent.id == "hydrochloric-32"
         assert "cost" not in app.query_one("#dose-panel").plain_text
     drive(check)
@@ -254,7 +261,7 @@ def test_us_units_switch_the_inputs_and_keep_the_values():
         before = app.plan.dose_mol_l
         form_data = app.query_one("#form").to_data()[0]
         await pilot.press("f6")
-        await pilot.pause()
+        await settle(app, pilot)
         temp = app.query_one("#" + field_id("effluent.temperature_c"))
         c = form_data["effluent"]["temperature_c"]
         assert float(temp.value) == pytest.approx(c * 1.8 + 32, abs=1e-3)
@@ -265,7 +272,7 @@ def test_us_units_switch_the_inputs_and_keep_the_values():
         await set_field(app, pilot, "basis.amount", "2641.72")     # 10.0000 m³
         assert app.plan.basis.volume_m3 == pytest.approx(10.0, rel=1e-6)
         await pilot.press("f6")
-        await pilot.pause()
+        await settle(app, pilot)
         box = app.query_one("#" + field_id("basis.amount"))
         assert float(box.value) == pytest.approx(10.0, rel=1e-5)
         assert app.plan.dose_mol_l == pytest.approx(before, rel=1e-9)
@@ -280,16 +287,16 @@ def test_after_opening_a_file_keys_go_to_the_form():
         await pilot.press("f4")                     # working in another view
         app.query_one("#compare").focus()
         await pilot.press("ctrl+o")
-        await pilot.pause()
+        await settle(app, pilot)
         box = app.screen.query_one("Input")
         box.value = other
         await pilot.press("enter")
-        await pilot.pause()
+        await settle(app, pilot)
         assert app.path == other
         ph = app.query_one("#" + field_id("effluent.ph"))
         assert app.focused is ph
         await pilot.press("end", "backspace", "backspace", "backspace", "backspace", "9", ".", "9")
-        await pilot.pause()
+        await settle(app, pilot)
         assert ph.value == "9.9" and app.plan.ph_start == 9.9
     drive(check)
 
@@ -300,4 +307,36 @@ def test_a_permit_breach_heads_the_dose_panel():
     async def check(app, pilot):
         text = app.query_one("#dose-panel").plain_text
         assert text.index("PERMIT BREACH: permit cap sulfate") < text.index("product per batch")
+    drive(check)
+
+
+def test_planning_runs_off_the_event_loop_and_a_stale_result_is_dropped():
+    # Issue 15 item 6: the plan is made in a worker thread; a plan asked for
+    # before the latest keystroke arrives late and must not replace the plan
+    # for the values now in the form.
+    async def check(app, pilot):
+        shown = app.plan
+        other = make_plan(load_scenario(str(ROOT / "scenarios" / "acid-rinse-caustic.toml")),
+                          sampled=False)
+        app._planned(app._generation - 1, app.scenario, other)      # an older request
+        assert app.plan is shown and not app.planning
+        await set_field(app, pilot, "effluent.ph", "11.5")
+        assert app.plan.ph_start == 11.5 and not app.planning
+        assert [w for w in app.workers if w.group == "plan"] == []    # all finished
+    drive(check)
+
+
+def test_a_stale_plan_is_dimmed_and_errors_wrap():
+    # Issue 18 items 3 and 6: after a bad entry the kept plan is marked and
+    # dimmed; the field's error wraps instead of being cut.
+    async def check(app, pilot):
+        await set_field(app, pilot, "effluent.ph", "999")
+        panel = app.query_one("#dose-panel")
+        assert app.stale and panel.has_class("stale")
+        assert panel.plain_text.startswith("Last valid plan shown")
+        error = app.query_one("#" + field_id("effluent.ph") + "-error")
+        assert "allowed: up to 14" in str(error.render())
+        assert error.outer_size.width >= error.parent.size.width - 2   # the full row: it wraps
+        await set_field(app, pilot, "effluent.ph", "11.5")
+        assert not app.stale and not panel.has_class("stale")
     drive(check)

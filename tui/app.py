@@ -96,6 +96,8 @@ class Tankside(App):
     """One line for the status bar."""
     sampling: reactive[bool] = reactive(False, init=False)
     """True while the plan's uncertainty is being sampled in the background."""
+    planning: reactive[bool] = reactive(False, init=False)
+    """True while the form's latest values are being planned in the background."""
 
     def __init__(self, path: str | None = None, data: dict[str, Any] | None = None,
                  db: str | None = None, *, show_timing: bool = True):
@@ -108,6 +110,9 @@ class Tankside(App):
         self.db = db
         self._initial = data
         self.last_recompute_ms = 0.0
+        self._t0 = 0.0                       # when the latest plan was asked for
+        self._generation = 0                 # which form state the latest request is for
+        self._pick_compare = False
 
     # --------------------------------------------------------- layout --
     def compose(self) -> ComposeResult:
@@ -158,46 +163,75 @@ class Tankside(App):
         form = self.query_one(ScenarioForm)
         form.load_data(data)
         self.sub_title = self.path or "unsaved"
+        # The sweep's other product follows the file's reagent once it is planned.
+        self._pick_compare = True
         self.recompute()
-        if self.scenario is not None:
-            self.query_one("#compare", Select).value = default_alternative(
-                self.scenario.reagent)
 
     def recompute(self) -> None:
-        """Read the form, validate, plan; keep the last plan on any error."""
-        t0 = time.perf_counter()
+        """Read the form and validate it here; plan in a worker thread (the
+        view never waits on the chemistry); keep the last plan on any error."""
+        self._t0 = time.perf_counter()
+        self._generation += 1
         form = self.query_one(ScenarioForm)
         data, errors = form.to_data()
-        scenario = plan = None
+        scenario = None
         message = ""
         if not errors:
             try:
                 scenario = build_scenario(data, self.path or "form")
-                plan = make_plan(scenario, sampled=False)
             except ScenarioError as err:
                 key = _form_key(err.key)
                 if key:
                     errors[key] = err.reason
                 else:
                     message = f"{err.key or 'scenario'}: {err.reason}"
-            except DosingError as err:
-                message = str(err)
         form.show_errors(errors)
-        if plan is None:
-            self.stale = self.plan is not None
-            self.status = message or "fix the field marked in red"
-            self._render_views()
-            self.last_recompute_ms = (time.perf_counter() - t0) * 1000
+        if scenario is None:
+            self._not_planned(message)
             return
+        self.planning = True
+        self.status = "planning the latest values..."
+        generation = self._generation
+        self.run_worker(lambda: self._plan_in_background(generation, scenario), thread=True,
+                        exclusive=True, group="plan")
+
+    def _plan_in_background(self, generation: int, scenario: Scenario) -> None:
+        """The plan, computed off the event loop (a worker thread)."""
+        try:
+            result: Plan | str = make_plan(scenario, sampled=False)
+        except DosingError as err:
+            result = str(err)
+        self.call_from_thread(self._planned, generation, scenario, result)
+
+    def _planned(self, generation: int, scenario: Scenario, result: Plan | str) -> None:
+        """Show a plan, unless the form has moved on since it was asked for."""
+        if generation != self._generation:
+            return
+        self.planning = False
+        if isinstance(result, str):
+            self._not_planned(result)
+            return
+        plan = result
         self.stale = False
         self.scenario, self.plan = scenario, plan     # the watcher renders the views
-        self.last_recompute_ms = (time.perf_counter() - t0) * 1000
+        self.last_recompute_ms = (time.perf_counter() - self._t0) * 1000
         self.status = f"planned and shown{self._took()}"
+        if self._pick_compare:
+            self._pick_compare = False
+            self.query_one("#compare", Select).value = default_alternative(scenario.reagent)
         if plan.dose_needed:
             self.sampling = True
             self.status += "; sampling how sure the dose is..."
             self.run_worker(lambda: self._sample_in_background(scenario, plan), thread=True,
                             exclusive=True, group="sampling")
+
+    def _not_planned(self, message: str) -> None:
+        """No plan for the form as it stands: the last one stays, marked stale."""
+        self.planning = False
+        self.stale = self.plan is not None
+        self.status = message or "fix the field marked in red"
+        self._render_views()
+        self.last_recompute_ms = (time.perf_counter() - self._t0) * 1000
 
     def _took(self) -> str:
         """The time planning took (" in 39 ms"), or nothing when not shown."""
@@ -335,6 +369,9 @@ class Tankside(App):
     def action_record(self) -> None:
         if self.stale or self.plan is None:
             self.status = "not recorded: fix the field marked in red first"
+            return
+        if self.planning:
+            self.status = "not recorded: the plan for the latest values is not ready; try again"
             return
         self.push_screen(PathScreen("Record in the shift log. Operator name "
                                     "(optionally: name; kg dosed; note):", ""),

@@ -21,6 +21,9 @@ class DosePanel(Static):
     """Shows one plan; ``stale`` marks a plan kept while the form is invalid."""
 
     def show(self, scenario: Scenario, plan: Plan, units: str, stale: bool) -> None:
+        # A plan kept while the form is invalid is dimmed under its banner:
+        # it is not the dose for what the form now says.
+        self.set_class(stale, "stale")
         table = Table.grid(padding=(0, 2))
         table.add_column(style="bold")
         table.add_column()
