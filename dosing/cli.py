@@ -160,9 +160,15 @@ def _log_parser(sub) -> None:
     ex.add_argument("--db", metavar="PATH", help=db_help)
 
 
+def _now() -> str:
+    """The local date and time a figure is made, to print on it."""
+    from datetime import datetime
+    return datetime.now().strftime("%Y-%m-%d %H:%M")
+
+
 def _cmd_plan(args) -> int:
     from .scenario import load_scenario
-    from .sheet import make_plan, render_sheet, sheet_dict
+    from .sheet import figure_title, make_plan, render_sheet, sheet_dict
     if args.plot and not args.plot.lower().endswith(".png"):
         raise ScenarioError(args.plot, "", "the plot is written as PNG; give a "
                             "file name ending in .png")
@@ -173,7 +179,7 @@ def _cmd_plan(args) -> int:
     png = None
     if args.plot:
         from .plot import plan_figure_png
-        png = plan_figure_png(plan, scenario.title, args.units,
+        png = plan_figure_png(plan, figure_title(scenario, _now()), args.units,
                               engineer=args.figure == "engineer")
     data = require_finite(sheet_dict(scenario, plan), "plan")
     text = to_json(data) if args.json else render_sheet(scenario, plan, args.units)
@@ -440,7 +446,9 @@ def _cmd_titration(args) -> int:
     data = require_finite(report.to_dict(), "titration")
     if args.plot:
         from .plot import titration_figure_png
-        write_atomic(args.plot, titration_figure_png(curve, report, scenario.title))
+        from .sheet import figure_title
+        write_atomic(args.plot, titration_figure_png(curve, report,
+                                                     figure_title(scenario, _now())))
     sys.stdout.write(to_json(data) if args.json
                      else render_titration(scenario, report, args.units))
     return 0

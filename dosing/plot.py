@@ -114,9 +114,12 @@ def _curve_panel(ax, plan: Plan, scale: float, unit: str, xlabel: str,
     ax.axhspan(plan.target.ph_min, plan.target.ph_max, color="tab:green", alpha=0.13,
                label=f"permit window pH {plan.target.ph_min:g}–{plan.target.ph_max:g}")
     lo, hi = plan.band_mol_l
-    ax.axvspan(lo * scale, (hi if hi is not None else c.dose_mol_l[-1]) * scale,
-               color="tab:green", alpha=0.10, hatch="//", lw=0,
+    band_hi = (hi if hi is not None else c.dose_mol_l[-1]) * scale
+    ax.axvspan(lo * scale, band_hi, color="tab:green", alpha=0.10, hatch="//", lw=0,
                label="doses that keep pH in the window")
+    # The band's edges as lines: a narrow band (a steep curve) stays visible.
+    for edge in (lo * scale, band_hi):
+        ax.axvline(edge, color="tab:green", lw=0.9, alpha=0.8)
     ax.plot(x, c.ph, color="tab:blue", lw=2.0, label="pH after dose (model)")
     ax.axhline(plan.target.ph_aim, color="tab:green", ls="--", lw=1.0,
                label=f"aim pH {plan.target.ph_aim:g}")
@@ -244,8 +247,9 @@ def replay_figure_png(totals, report: dict, units: str = "metric") -> bytes:
         lo_ph, hi_ph = np.nanmin(ph), np.nanmax(ph)
         a1.set_ylim(lo_ph - 0.5, hi_ph + 0.25 * (hi_ph - lo_ph) + 0.8)
     name = report.get("reagent_name", report["reagent"])
+    where = " / ".join(x for x in (report.get("site"), report.get("tank")) if x)
     a1.set_title(f"{report['scenario']}: {name}, {report['first'][:10]} to "
-                 f"{report['last'][:10]}", fontsize=11)
+                 f"{report['last'][:10]}" + (f"\n{where}" if where else ""), fontsize=11)
     a1.grid(True, alpha=0.3)
     days = sorted(totals.daily_kg)
     if days:

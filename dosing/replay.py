@@ -527,6 +527,8 @@ def replay_report(totals: ReplayTotals, scenario: Scenario, source: str) -> dict
     return {
         "source": source,
         "scenario": scenario.title,
+        "site": scenario.site,
+        "tank": scenario.tank,
         "reagent": scenario.reagent.id,
         "rows": totals.rows,
         "rows_planned": totals.planned,

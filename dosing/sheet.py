@@ -29,7 +29,7 @@ from .uncertainty import MATERIAL_RISK, dose_uncertainty, staged_dose
 from .scenario import Scenario, scenario_key, water_inputs
 
 __all__ = ["Units", "UNIT_SYSTEMS", "make_plan", "with_uncertainty", "sheet_dict", "render_sheet",
-           "render_fleet",
+           "render_fleet", "figure_title",
            "metals_dict", "metal_lines",
            "fmt", "product_text", "dose_lines", "check_lines", "caution_lines", "in_units",
            "render_replay", "render_titration"]
@@ -523,6 +523,14 @@ def headline(scenario: Scenario, plan: Plan, units: str = "metric") -> str:
     return (f"DOSE {plan_amount(plan, plan.dose_mol_l, units)} of {plan.reagent.name}"
             f"{per}{where}: pH {plan.ph_start:.2f} to {plan.ph_end:.2f} "
             f"(window {plan.target.ph_min:g} to {plan.target.ph_max:g})")
+
+
+def figure_title(scenario: Scenario, when: str = "") -> str:
+    """A figure's title: the job, where it is (site / tank) and when it was
+    planned, so a printed figure says what it belongs to."""
+    where = " / ".join(x for x in (scenario.site, scenario.tank) if x)
+    tail = ", ".join(x for x in (where, f"planned {when}" if when else "") if x)
+    return f"{scenario.title}\n{tail}" if tail else scenario.title
 
 
 def render_sheet(scenario: Scenario, plan: Plan, units: str = "metric",

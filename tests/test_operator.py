@@ -145,3 +145,23 @@ def test_curve_figure_gives_litres_and_keeps_beta_for_the_engineer():
     assert any("buffer intensity" in a.get_ylabel() for a in engineer.axes)
     assert not any("buffer intensity" in a.get_ylabel() for a in operator.axes)
     plt.close("all")
+
+
+def test_figures_name_the_site_the_tank_and_the_date():
+    # Issue 18: "no plot names the site, tank and date".
+    from dosing.scenario import load_scenario
+    from dosing.sheet import figure_title
+    s = load_scenario(CIP)
+    title = figure_title(s, "2026-12-02 10:00")
+    assert title.splitlines() == [s.title, f"{s.site} / {s.tank}, planned 2026-12-02 10:00"]
+
+
+def test_replay_report_carries_site_and_tank(tmp_path):
+    data = tmp_path / "log.csv"
+    data.write_text("timestamp,flow,ph\n2026-01-01T00:00,5,3.6\n2026-01-01T00:01,5,3.7\n")
+    r = run_cli("replay", str(data), "--scenario", str(FLOW), "--json")
+    assert r.returncode == 0, r.stderr
+    d = json.loads(r.stdout)
+    from dosing.scenario import load_scenario
+    s = load_scenario(FLOW)
+    assert (d["site"], d["tank"]) == (s.site, s.tank) and s.site and s.tank
