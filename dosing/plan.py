@@ -97,6 +97,9 @@ class Batch:
         """Water treated [L] (per batch)."""
         return self.volume_m3 * 1000.0
 
+    #: What every amount of a batch is per, in words.
+    per = "per batch"
+
 
 @dataclass(frozen=True)
 class Flow:
@@ -114,6 +117,9 @@ class Flow:
     def litres(self) -> float:
         """Water treated [L] (per hour)."""
         return self.m3_per_h * 1000.0
+
+    #: What every amount of a flow is per, in words.
+    per = "per hour"
 
 
 @dataclass(frozen=True)

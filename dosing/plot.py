@@ -14,9 +14,9 @@ matplotlib.use("Agg")
 import matplotlib.pyplot as plt  # noqa: E402
 import numpy as np  # noqa: E402
 
-from .plan import Batch, Plan  # noqa: E402
+from .plan import Plan  # noqa: E402
 from .numbers import fmt  # noqa: E402
-from .sheet import UNIT_SYSTEMS  # noqa: E402
+from .sheet import UNIT_SYSTEMS, dose_axis  # noqa: E402
 from .metals import HARDNESS  # noqa: E402
 from .reagents import GENERAL_CAUTION  # noqa: E402
 from .solids import dissolved_vs_ph  # noqa: E402
@@ -60,8 +60,8 @@ def plan_figure(plan: Plan, title: str = "", units: str = "metric", *,
     panels follow when the plan has them.
     """
     u = UNIT_SYSTEMS[units]
-    per = "per batch" if isinstance(plan.basis, Batch) else "per hour"
-    scale, unit, xlabel = _dose_axis(plan, u, per)
+    per = plan.basis.per
+    scale, unit, xlabel = dose_axis(plan, units)
     metals = plan.water.tank_metals_mol_l
     panels = 1 + bool(metals) + (plan.uncertainty is not None)
     fig, axes = plt.subplots(panels, 1, figsize=(8.0, 5.6 + 4.4 * (panels - 1)), dpi=110,
@@ -77,21 +77,6 @@ def plan_figure(plan: Plan, title: str = "", units: str = "metric", *,
     if plan.uncertainty is not None:
         _uncertainty_panel(extra.pop(0), plan, scale, unit, per)
     return fig
-
-
-def _dose_axis(plan: Plan, u, per: str) -> tuple[float, str, str]:
-    """(product per mol/L of dose, its unit, the axis label): mass of product
-    where it has one, else volume; a flow's unit carries /h."""
-    kg_per_mol = plan.reagent.kg_product_per_mol
-    if kg_per_mol is not None:
-        scale = plan.basis.litres * kg_per_mol * u.mass_per_kg
-        unit, xlabel = u.mass, f"{plan.reagent.name}, {u.mass} {per}"
-    else:
-        scale = plan.basis.litres * plan.reagent.litres_product_per_mol * u.product_volume_per_l
-        unit, xlabel = u.product_volume, f"{plan.reagent.name}, {u.product_volume} {per}"
-    if not isinstance(plan.basis, Batch):
-        unit += "/h"                 # every amount of a flow carries its time base
-    return scale, unit, xlabel
 
 
 def _litres_axis(ax, plan: Plan, u, per: str) -> None:

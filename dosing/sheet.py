@@ -29,7 +29,7 @@ from .uncertainty import MATERIAL_RISK, dose_uncertainty, staged_dose
 from .scenario import Scenario, scenario_key, water_inputs
 
 __all__ = ["Units", "UNIT_SYSTEMS", "make_plan", "with_uncertainty", "sheet_dict", "render_sheet",
-           "render_fleet", "figure_title",
+           "render_fleet", "figure_title", "dose_axis",
            "metals_dict", "metal_lines",
            "fmt", "product_text", "dose_lines", "check_lines", "caution_lines", "in_units",
            "render_replay", "render_titration"]
@@ -152,7 +152,7 @@ def _sludge(scenario: Scenario, plan: Plan) -> Sludge:
 
 
 def _per(plan: Plan) -> str:
-    return "per batch" if isinstance(plan.basis, Batch) else "per hour"
+    return plan.basis.per
 
 
 def _daily(scenario: Scenario, plan: Plan) -> dict[str, float | None]:
@@ -523,6 +523,22 @@ def headline(scenario: Scenario, plan: Plan, units: str = "metric") -> str:
     return (f"DOSE {plan_amount(plan, plan.dose_mol_l, units)} of {plan.reagent.name}"
             f"{per}{where}: pH {plan.ph_start:.2f} to {plan.ph_end:.2f} "
             f"(window {plan.target.ph_min:g} to {plan.target.ph_max:g})")
+
+
+def dose_axis(plan: Plan, units: str = "metric") -> tuple[float, str, str]:
+    """How a dose axis reads, for the figure and the terminal curve alike:
+    (product per mol/L of dose, its unit, the axis label). Mass of product
+    where it has one, else volume; a flow's unit carries /h."""
+    u = UNIT_SYSTEMS[units]
+    r = plan.reagent
+    if r.kg_product_per_mol is not None:
+        scale = plan.basis.litres * r.kg_product_per_mol * u.mass_per_kg
+        unit = u.mass
+    else:
+        scale = plan.basis.litres * r.litres_product_per_mol * u.product_volume_per_l
+        unit = u.product_volume
+    label = f"{r.name}, {unit} {plan.basis.per}"
+    return scale, unit + ("/h" if isinstance(plan.basis, Flow) else ""), label
 
 
 def figure_title(scenario: Scenario, when: str = "") -> str:
@@ -921,7 +937,7 @@ def render_titration(scenario: Scenario, comparison, units: str = "metric",
     kg, lit = d[f"kg_product_{per}"], d[f"litres_product_{per}"]
     plan: Plan = comparison.plan
     a = plan.amounts()
-    label = "per hour" if per == "per_h" else "per batch"
+    label = plan.basis.per
 
     def prod(k, l_):
         return product_text(k, l_, units)

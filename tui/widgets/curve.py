@@ -4,23 +4,15 @@ from __future__ import annotations
 
 from textual_plotext import PlotextPlot
 
-from dosing.plan import Batch, Plan
-from dosing.sheet import UNIT_SYSTEMS
+from dosing.plan import Plan
+from dosing.sheet import dose_axis
 
 __all__ = ["CurvePlot", "TitrationPlot", "curve_axes"]
 
 
 def curve_axes(plan: Plan, units: str) -> tuple[list[float], list[float], str, float]:
     """x (product per batch or hour), pH, x label and the planned x."""
-    u = UNIT_SYSTEMS[units]
-    per = "per batch" if isinstance(plan.basis, Batch) else "per hour"
-    if plan.reagent.kg_product_per_mol is not None:
-        scale = plan.basis.litres * plan.reagent.kg_product_per_mol * u.mass_per_kg
-        label = f"{plan.reagent.id}, {u.mass} {per}"
-    else:
-        scale = (plan.basis.litres * plan.reagent.litres_product_per_mol
-                 * u.product_volume_per_l)
-        label = f"{plan.reagent.id}, {u.product_volume} {per}"
+    scale, _, label = dose_axis(plan, units)
     x = [float(v) * scale for v in plan.curve.dose_mol_l]
     return x, [float(v) for v in plan.curve.ph], label, plan.dose_mol_l * scale
 
