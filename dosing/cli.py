@@ -20,7 +20,7 @@ import argparse
 import contextlib
 import sys
 
-from .errors import DosingError, ScenarioError, UsageError
+from .errors import DosingError, InputError, ScenarioError, UsageError
 from .files import write_atomic
 from .numbers import require_finite, to_json
 
@@ -35,6 +35,12 @@ class _OneLineParser(argparse.ArgumentParser):
     def error(self, message: str):
         self.exit(EXIT_BAD_INPUT, f"{self.prog}: error: {' '.join(message.split())} "
                                   f"(see {self.prog} -h)\n")
+
+
+#: Engine fields given on the command line as options (errors name the option).
+OPTION_OF_FIELD = {"titrant": "--titrant", "sample_ml": "--sample-ml", "fit": "--fit",
+                   "operator": "--operator", "ph_after": "--ph-after", "since": "--since",
+                   "dosed": "--dosed"}
 
 
 def _parser() -> argparse.ArgumentParser:
@@ -428,7 +434,7 @@ def _cmd_titration(args) -> int:
         vols, phs, lines, notes = read_titration_csv(args.data, args.drop)
         curve = check_curve(args.sample_ml, titrant, vols, phs, lines, source="titration")
     except InputError as err:
-        key = err.field if err.field.startswith("--") else ""
+        key = OPTION_OF_FIELD.get(err.field, "")
         raise ScenarioError(args.data if not key else key, "", err.reason) from None
     from dataclasses import replace
     curve = replace(curve, notes=tuple(notes) + curve.notes)
@@ -438,8 +444,8 @@ def _cmd_titration(args) -> int:
         report = compare(curve, scenario, unknown_acid=args.unknown_acid, fit_mode=args.fit)
     except (InputError, UnreachableError) as err:
         key = getattr(err, "field", "")
-        if key.startswith("--"):
-            raise ScenarioError(key, "", err.reason) from None
+        if key in OPTION_OF_FIELD:
+            raise ScenarioError(OPTION_OF_FIELD[key], "", err.reason) from None
         why = getattr(err, "reason", str(err))
         raise ScenarioError(args.data, "", why if key in ("", "titration")
                             else f"{key}: {why}") from None
@@ -502,6 +508,9 @@ def main(argv: list[str] | None = None) -> int:
     try:
         return handler(args)
     except DosingError as err:
+        if isinstance(err, InputError) and err.field in OPTION_OF_FIELD:
+            # The engine names its fields; on the command line they are options.
+            err = UsageError(OPTION_OF_FIELD[err.field], err.reason)
         sys.stderr.write(f"dosing: error: {err}\n")
         return EXIT_BAD_INPUT
     except BrokenPipeError:

@@ -94,7 +94,7 @@ def parse_since(text: str) -> str:
     try:
         when = datetime.fromisoformat(text.strip())
     except ValueError:
-        raise InputError("--since", f"{text!r} is not a date; write 2026-11-30 or "
+        raise InputError("since", f"{text!r} is not a date; write 2026-11-30 or "
                          "2026-11-30T06:00") from None
     if when.tzinfo is None:
         when = when.astimezone()
@@ -373,8 +373,8 @@ class ShiftLog:
                         note: str = "", corrects: int | None = None) -> int:
         """Append a decision (or a correction of entry ``corrects``); returns its id."""
         if not operator.strip():
-            raise InputError("--operator", "give the operator's name")
-        for name, v, lo, hi in (("--dosed", dosed_kg, 0.0, 1e9), ("--ph-after", ph_after, 0, 14)):
+            raise InputError("operator", "give the operator's name")
+        for name, v, lo, hi in (("dosed", dosed_kg, 0.0, 1e9), ("ph_after", ph_after, 0, 14)):
             if v is not None and not (lo <= v <= hi):
                 raise InputError(name, f"{v:g} is out of range; allowed: {lo:g} to {hi:g}")
         dose = plan.get("dose", {})
@@ -393,7 +393,7 @@ class ShiftLog:
                          note: str = "") -> int:
         """Attach a later pH reading to entry ``entry_id``; returns the new id."""
         if not (0 <= ph_after <= 14):
-            raise InputError("--ph-after", f"{ph_after:g} is not a pH; allowed: 0 to 14")
+            raise InputError("ph_after", f"{ph_after:g} is not a pH; allowed: 0 to 14")
         target = self.get(entry_id)
         return self._insert({"kind": "follow_up", "operator": operator.strip() or "-",
                              "site": target.site, "tank": target.tank, "title": target.title,

@@ -100,30 +100,30 @@ def parse_titrant(text: str) -> Titrant:
         r = None
     if r is not None:
         if r.litres_product_per_mol is None:
-            raise InputError("--titrant", f"{text} is not a solution; titrate with a "
+            raise InputError("titrant", f"{text} is not a solution; titrate with a "
                              "solution of known strength")
         return Titrant(r.compound, 1.0 / r.litres_product_per_mol, r.name)
     m = _STRENGTH.match(text)
     if not m:
-        raise InputError("--titrant", f"{text!r}: give a catalogue id or a strength "
+        raise InputError("titrant", f"{text!r}: give a catalogue id or a strength "
                          "such as '0.1 M NaOH', '0.02 N H2SO4' or 'HCl:0.1'")
     comp = m.group("c1") or m.group("c2")
     try:
         value = float(m.group("n1") or m.group("n2"))
     except ValueError:
-        raise InputError("--titrant", f"{text!r}: the strength is not a number; write it "
+        raise InputError("titrant", f"{text!r}: the strength is not a number; write it "
                          "as '0.1 M NaOH', '0.02 N H2SO4' or 'HCl:0.1'") from None
     unit = m.group("u1") or m.group("u2") or "M"
     if comp not in COMPOUNDS:
-        raise InputError("--titrant", f"unknown compound {comp!r}; allowed: "
+        raise InputError("titrant", f"unknown compound {comp!r}; allowed: "
                          + ", ".join(COMPOUNDS))
     c = COMPOUNDS[comp]
     eq = equivalents_per_mol(c)
     if eq is None:
-        raise InputError("--titrant", "CO2 is not a titrant; use a strong acid")
+        raise InputError("titrant", "CO2 is not a titrant; use a strong acid")
     molarity = value / eq if unit == "N" else value
     if not 1e-4 <= molarity <= 20:
-        raise InputError("--titrant", f"{value:g} {unit} is not a plausible titrant "
+        raise InputError("titrant", f"{value:g} {unit} is not a plausible titrant "
                          "strength; allowed: 0.0001 to 20 mol/L")
     return Titrant(c, molarity, f"{molarity:g} M {comp}")
 
@@ -179,7 +179,7 @@ def check_curve(sample_ml: float, titrant: Titrant, added_ml, ph, rows=None,
     p = np.asarray(ph, dtype=float)
     rows = np.arange(1, v.size + 1) if rows is None else np.asarray(rows)
     if not (math.isfinite(sample_ml) and 1.0 <= sample_ml <= 1e5):
-        raise InputError("--sample-ml", f"{sample_ml:g}; allowed: 1 to 100,000 mL")
+        raise InputError("sample_ml", f"{sample_ml:g}; allowed: 1 to 100,000 mL")
     bad = ~np.isfinite(v) | ~np.isfinite(p)
     if bad.any():
         raise InputError(source, "rows with a missing or unreadable number: "
@@ -250,7 +250,7 @@ def direct_scaling(curve: BenchCurve, reagent: Reagent, target: Target) -> Direc
     keep = np.concatenate([[True], np.diff(p) != 0])     # PCHIP needs strict order
     x, y = p[keep], curve.added_ml[keep]
     if curve.titrant.compound.raises_ph != reagent.raises_ph:
-        raise InputError("--titrant", f"the titrant {curve.titrant.label} and the "
+        raise InputError("titrant", f"the titrant {curve.titrant.label} and the "
                          f"reagent {reagent.name} push the pH opposite ways")
     if x[0] > x[-1]:
         x, y = x[::-1], y[::-1]
@@ -508,7 +508,7 @@ def _choose_fit(curve: BenchCurve, base: Water, unknown_acid: str, mode: str):
     """The simple fit, the buffer spectrum, and which one the plan uses."""
     from .buffer_fit import fit_spectrum
     if mode not in FIT_MODES:
-        raise InputError("--fit", f"{mode!r}; allowed: " + ", ".join(FIT_MODES))
+        raise InputError("fit", f"{mode!r}; allowed: " + ", ".join(FIT_MODES))
     simple = fit_water(curve, base, unknown_acid=unknown_acid)
     if mode == "simple":
         return simple, None, "simple"
