@@ -139,7 +139,8 @@ def test_added_ions_and_permit_caps():
     added = c["discharge"].values["sodium_added_mg_l"]
     assert added == pytest.approx(plan.dose_mol_l * 22.990e3, rel=1e-3)
     assert c["permit-sodium_mg_l"].values["value_mg_l"] == pytest.approx(100 + added, rel=1e-3)
-    assert c["permit-sodium_mg_l"].level == ("danger" if 100 + added > 150 else "info")
+    # 100 mg/L plus about 80 mg/L from the dose is over the 150 mg/L cap.
+    assert 100 + added > 150 and c["permit-sodium_mg_l"].level == "danger"
     assert c["permit-tds_increase_mg_l"].level == "info"
 
 
@@ -160,7 +161,8 @@ def test_calcite_saturation_after_lime():
     co3 = c_t * k1 * k2 / (h * h + k1 * h + k1 * k2)
     si = math.log10(ca * co3) + float(calcite_pksp(25.0))
     assert c.values["calcite_si"] == pytest.approx(si, abs=0.01)
-    assert c.level == ("warning" if si > 0.3 else "info")
+    # SI about +2: calcite scale on the tank and pipes is likely.
+    assert si > 1.5 and c.level == "warning"
 
 
 def test_every_plan_has_heat_and_discharge_checks():
@@ -184,5 +186,5 @@ def test_gypsum_saturation_after_lime_on_sulfate_water():
     so4 = 0.030 / (1 + 10 ** (1.99 - 7.5))
     si = math.log10(ca * so4) + 4.58
     assert c.values["gypsum_si"] == pytest.approx(si, abs=0.01)
-    assert c.level == ("warning" if si > 0 else "info")
     assert si > 0        # 10 mM Ca x 30 mM SO4 is well past gypsum's solubility
+    assert c.level == "warning"
