@@ -9,6 +9,7 @@ from dosing.scenario import load_scenario, parse_scenario
 from dosing.sheet import make_plan
 from tui.app import make_app
 from tui.form import field_id
+from tui.screens.ask import TitrationAnswer
 
 ROOT = Path(__file__).resolve().parents[1]
 CIP = str(ROOT / "scenarios" / "cip-sulfuric.toml")
@@ -170,7 +171,7 @@ def test_loads_a_bench_titration(tmp_path):
     jar.write_text("ml,pH\n" + "".join(f"{a:.3f},{b:.4f}\n" for a, b in zip(v, ph)))
 
     async def check(app, pilot):
-        app.load_titration(f"{jar}; 50; 0.1 N H2SO4")
+        app.load_titration(TitrationAnswer(str(jar), 50.0, "0.1 N H2SO4"))
         await settle(app, pilot)
         text = str(app.query_one("#titration-text").content)
         assert "direct scaling" in text and "model fit" in text
@@ -181,7 +182,7 @@ def test_loads_a_bench_titration(tmp_path):
         assert plot.display
         drawn = plot.plt.build()
         assert "measured" in drawn and "fitted water" in drawn
-        app.load_titration(f"{tmp_path / 'none.csv'}; 50; 0.1 N H2SO4")
+        app.load_titration(TitrationAnswer(str(tmp_path / "none.csv"), 50.0, "0.1 N H2SO4"))
         await settle(app, pilot)
         assert "no such file" in app.status
     drive(check)
@@ -340,3 +341,37 @@ def test_a_stale_plan_is_dimmed_and_errors_wrap():
         await set_field(app, pilot, "effluent.ph", "11.5")
         assert not app.stale and not panel.has_class("stale")
     drive(check)
+
+
+def test_recording_asks_in_its_own_boxes(tmp_path):
+    # Issue 15 item 6: the record prompt was one line split on ";". Now a
+    # dialog with a box per value checks the numbers before anything is
+    # written, and hands back typed values.
+    db = tmp_path / "log.sqlite"
+
+    async def main():
+        app = make_app(CIP, db=str(db))
+        async with app.run_test(size=(120, 40)) as pilot:
+            await settle(app, pilot)
+            await pilot.press("f7")
+            await pilot.pause()
+            dialog = app.screen
+            assert dialog.query_one("#ask-dosed").parent.query_one(".unit").render() == "kg"
+            dialog.query_one("#ask-operator").value = "R. Vale"
+            dialog.query_one("#ask-dosed").value = "thirty"
+            dialog.query_one("#ask-operator").focus()
+            await pilot.press("enter")
+            await pilot.pause()
+            assert app.screen is dialog                     # refused, still open
+            assert "'thirty' is not a number" in str(dialog.query_one("#ask-error").render())
+            assert not db.exists()
+            dialog.query_one("#ask-dosed").value = "29.5"
+            dialog.query_one("#ask-ph_after").value = "7.4"
+            await pilot.press("enter")
+            await settle(app, pilot)
+            assert "recorded as entry 1" in app.status
+        from dosing.shiftlog import ShiftLog
+        with ShiftLog(str(db), writable=False) as log:
+            (entry,) = list(log.entries())
+        assert (entry.operator, entry.dosed_kg, entry.ph_after) == ("R. Vale", 29.5, 7.4)
+    asyncio.run(main())

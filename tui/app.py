@@ -23,7 +23,7 @@ from textual.widgets import (Footer, Header, Label, Select, Static, TabbedConten
 
 from dosing.errors import DosingError, ScenarioError
 from dosing.files import write_atomic
-from dosing.plan import Plan
+from dosing.plan import Flow, Plan
 from dosing.reagents import CATALOGUE, GENERAL_CAUTION
 from dosing.scenario import Scenario, build_scenario, load_scenario, scenario_to_toml
 from dosing.sheet import (make_plan, render_sheet, render_titration, sheet_dict,
@@ -35,6 +35,7 @@ from dosing.sweep import default_alternative, default_sizes, strength_grid
 
 from .form import FIELDS, ScenarioForm, field_id
 from .screens.help import HelpScreen
+from .screens.ask import RecordAnswer, TitrationAnswer, record_dialog, titration_dialog
 from .screens.path import PathScreen
 from .widgets.curve import CurvePlot, TitrationPlot
 from .widgets.dose import DosePanel
@@ -373,31 +374,20 @@ class Tankside(App):
         if self.planning:
             self.status = "not recorded: the plan for the latest values is not ready; try again"
             return
-        self.push_screen(PathScreen("Record in the shift log. Operator name "
-                                    "(optionally: name; kg dosed; note):", ""),
+        self.push_screen(record_dialog(per_hour=isinstance(self.plan.basis, Flow)),
                          self.record)
 
-    def record(self, answer: str | None) -> None:
+    def record(self, answer: RecordAnswer | None) -> None:
         """Record the current plan in the shift log (same code as `dosing log add`)."""
-        if not answer:
+        if answer is None:
             return
-        parts = [p.strip() for p in answer.split(";")]
-        operator = parts[0]
-        dosed = None
-        if len(parts) > 1 and parts[1]:
-            try:
-                dosed = float(parts[1])
-            except ValueError:
-                self.status = f"not recorded: {parts[1]!r} is not a number of kg"
-                return
-        note = ";".join(parts[2:]).strip()
         data, _ = self.query_one(ScenarioForm).to_data()
         try:
             with ShiftLog(self.db) as log:
                 entry = log.record_decision(
-                    operator=operator, scenario_toml=scenario_to_toml(data),
-                    plan=sheet_dict(self.scenario, self._full_plan()), dosed_kg=dosed,
-                    note=note)
+                    operator=answer.operator, scenario_toml=scenario_to_toml(data),
+                    plan=sheet_dict(self.scenario, self._full_plan()), dosed_kg=answer.dosed,
+                    ph_after=answer.ph_after, note=answer.note)
                 where = log.path
         except DosingError as err:
             self.status = f"not recorded: {err}"
@@ -409,24 +399,13 @@ class Tankside(App):
         if self.stale or self.scenario is None:
             self.status = "fix the field marked in red before scaling a titration"
             return
-        self.push_screen(PathScreen("Bench titration: FILE.csv; sample mL; titrant "
-                                    "(e.g. jar.csv; 50; 0.02 N H2SO4):", ""),
-                         self.load_titration)
+        self.push_screen(titration_dialog(), self.load_titration)
 
-    def load_titration(self, answer: str | None) -> None:
+    def load_titration(self, answer: TitrationAnswer | None) -> None:
         """Scale a bench titration with the current scenario (same code as the CLI)."""
-        if not answer:
+        if answer is None:
             return
-        parts = [p.strip() for p in answer.split(";")]
-        if len(parts) != 3:
-            self.status = "give three parts: FILE.csv; sample mL; titrant"
-            return
-        path, sample, titrant_text = parts
-        try:
-            sample_ml = float(sample)
-        except ValueError:
-            self.status = f"not loaded: sample volume {sample!r} is not a number of mL"
-            return
+        path, sample_ml, titrant_text = answer.path, answer.sample_ml, answer.titrant
         try:
             titrant = parse_titrant(titrant_text)
             vols, phs, lines, notes = read_titration_csv(path)

@@ -21,8 +21,8 @@ Change any value on the left: the dose is planned again at once.
 | Ctrl+O | open a scenario file |
 | Ctrl+S | save the scenario (TOML, same as `dosing plan` reads) |
 | F6 | metric / US units |
-| F7 | record this decision in the shift log (name; kg dosed; note) |
-| F8 | scale a bench titration (file; sample mL; titrant) with this scenario |
+| F7 | record this decision in the shift log (operator, what was dosed, pH after, note) |
+| F8 | scale a bench titration (file, sample mL, titrant) with this scenario |
 | F1 | this help |
 | Ctrl+Q | quit |
 

@@ -1,0 +1,125 @@
+"""Small dialogs that ask for a few values and return a dataclass.
+
+Each field has its own labelled box with its unit; numbers are checked in
+the dialog (the reason shows under the boxes and the dialog stays open), so
+the caller receives typed values: never a line to split on ";".
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Any, Callable, Generic, TypeVar
+
+from textual import on
+from textual.app import ComposeResult
+from textual.containers import Horizontal, Vertical
+from textual.screen import ModalScreen
+from textual.widgets import Input, Label
+
+__all__ = ["Ask", "AskScreen", "RecordAnswer", "TitrationAnswer", "record_dialog",
+           "titration_dialog"]
+
+T = TypeVar("T")
+
+
+@dataclass(frozen=True)
+class Ask:
+    """One box of a dialog."""
+
+    key: str
+    label: str
+    unit: str = ""
+    number: bool = False         #: must read as a number (None when left empty)
+    required: bool = False
+    example: str = ""            #: shown greyed in the empty box
+
+
+@dataclass(frozen=True)
+class RecordAnswer:
+    """What the operator records with a decision (as ``dosing log add`` takes it)."""
+
+    operator: str
+    dosed: float | None          #: product given [kg per batch, or kg/h for a flow]
+    ph_after: float | None
+    note: str
+
+
+@dataclass(frozen=True)
+class TitrationAnswer:
+    """A bench titration to scale: its file, sample volume and titrant."""
+
+    path: str
+    sample_ml: float
+    titrant: str
+
+
+class AskScreen(ModalScreen["T | None"], Generic[T]):
+    """A title, labelled boxes, Enter to accept, Escape to cancel. Returns
+    ``make(values)`` (values: str, or float/None for numbers), or None."""
+
+    BINDINGS = [("escape", "cancel", "cancel")]
+
+    def __init__(self, title: str, asks: list[Ask], make: Callable[[dict[str, Any]], T],
+                 action: str = "accept"):
+        super().__init__()
+        self._title, self._asks, self._make, self._action = title, asks, make, action
+
+    def compose(self) -> ComposeResult:
+        with Vertical(id="ask-box"):
+            yield Label(self._title, classes="section")
+            for a in self._asks:
+                with Horizontal(classes="row"):
+                    yield Label(a.label, classes="label")
+                    yield Input(id=f"ask-{a.key}", classes="value", compact=True,
+                                placeholder=a.example)
+                    yield Label(a.unit, classes="unit")
+            error = Label("", id="ask-error", classes="error")
+            error.display = False
+            yield error
+            yield Label(f"Enter to {self._action}, Escape to cancel, Tab for the next box",
+                        classes="hint")
+
+    @on(Input.Submitted)
+    def _accept(self) -> None:
+        values: dict[str, Any] = {}
+        for a in self._asks:
+            text = self.query_one(f"#ask-{a.key}", Input).value.strip()
+            if a.required and not text:
+                return self._refuse(f"{a.label}: missing; it is needed")
+            if a.number and text:
+                try:
+                    values[a.key] = float(text)
+                except ValueError:
+                    return self._refuse(f"{a.label}: {text!r} is not a number")
+            else:
+                values[a.key] = text if text or not a.number else None
+        self.dismiss(self._make(values))
+
+    def _refuse(self, why: str) -> None:
+        error = self.query_one("#ask-error", Label)
+        error.update(why)
+        error.display = True
+
+    def action_cancel(self) -> None:
+        self.dismiss(None)
+
+
+def record_dialog(per_hour: bool) -> AskScreen[RecordAnswer]:
+    """Ask who records the decision and, optionally, what was dosed."""
+    return AskScreen("Record this decision in the shift log", [
+        Ask("operator", "operator", required=True, example="your name"),
+        Ask("dosed", "dosed", "kg/h" if per_hour else "kg", number=True, example="optional"),
+        Ask("ph_after", "pH after", number=True, example="optional"),
+        Ask("note", "note", example="optional")],
+        lambda v: RecordAnswer(v["operator"], v["dosed"], v["ph_after"], v["note"]),
+        action="record")
+
+
+def titration_dialog() -> AskScreen[TitrationAnswer]:
+    """Ask for a bench titration's file, sample volume and titrant."""
+    return AskScreen("Scale a bench titration with this scenario", [
+        Ask("path", "file (CSV)", required=True, example="jar.csv"),
+        Ask("sample_ml", "sample", "mL", number=True, required=True),
+        Ask("titrant", "titrant", required=True, example="0.02 N H2SO4 or 0.1 M NaOH")],
+        lambda v: TitrationAnswer(v["path"], v["sample_ml"], v["titrant"]),
+        action="scale it")
