@@ -375,3 +375,19 @@ def test_recording_asks_in_its_own_boxes(tmp_path):
             (entry,) = list(log.entries())
         assert (entry.operator, entry.dosed_kg, entry.ph_after) == ("R. Vale", 29.5, 7.4)
     asyncio.run(main())
+
+
+def test_loading_a_file_plans_once():
+    # Issue 15 item 6: filling the form from a file posted a Changed message
+    # per box after the "loading" flag was already reset, so opening a file
+    # planned nine times over; Textual's message prevention stops them.
+    other = str(ROOT / "scenarios" / "plating-rinse-metals.toml")
+
+    async def check(app, pilot):
+        calls = []
+        plan_once = app.recompute
+        app.recompute = lambda: (calls.append(1), plan_once())
+        app.open_path(other)
+        await settle(app, pilot)
+        assert len(calls) == 1 and app.plan.reagent.id == "caustic-25"
+    drive(check)

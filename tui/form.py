@@ -31,6 +31,7 @@ class Field:
     label: str
     unit: str = ""
     kind: str = "number"   #: "number" or "pairs" (name=value, ...)
+    section: str = "effluent"   #: the form section it shows in
 
 
 FIELDS = (
@@ -39,13 +40,13 @@ FIELDS = (
     Field("effluent.alkalinity_mg_l_as_caco3", "alkalinity", "mg/L CaCO3"),
     Field("effluent.acidity_mg_l_as_caco3", "acidity", "mg/L CaCO3"),
     Field("effluent.solutes_mmol_l", "solutes", "mmol/L", "pairs"),
-    Field("basis.amount", "volume", "m³"),
-    Field("target.ph_min", "pH min"),
-    Field("target.ph_max", "pH max"),
-    Field("target.ph_aim", "pH aim"),
-    Field("reagent.mass_fraction", "strength", "mass fraction"),
-    Field("reagent.density_kg_l", "density", "kg/L"),
-    Field("reagent.price_per_kg", "price", "per kg"),
+    Field("basis.amount", "volume", "m³", section="tank"),
+    Field("target.ph_min", "pH min", section="window"),
+    Field("target.ph_max", "pH max", section="window"),
+    Field("target.ph_aim", "pH aim", section="window"),
+    Field("reagent.mass_fraction", "strength", "mass fraction", section="reagent"),
+    Field("reagent.density_kg_l", "density", "kg/L", section="reagent"),
+    Field("reagent.price_per_kg", "price", "per kg", section="reagent"),
 )
 
 
@@ -71,6 +72,11 @@ US_FIELDS = {
                                   lambda d: d / _LB_GAL_PER_KG_L),
     "reagent.price_per_kg": Shown("per lb", lambda p: p * KG_PER_LB, lambda p: p / KG_PER_LB),
 }
+
+
+def _in_section(section: str) -> tuple[Field, ...]:
+    """The fields of one form section, in order."""
+    return tuple(f for f in FIELDS if f.section == section)
 
 
 def field_id(key: str) -> str:
@@ -110,7 +116,6 @@ class ScenarioForm(VerticalScroll):
     def __init__(self, **kwargs):
         super().__init__(**kwargs)
         self._base: dict[str, Any] = {}
-        self._loading = False
         #: "metric" or "us": the units the fields are shown and typed in.
         self.units = "metric"
         #: key -> (text shown, SI value) for converted fields, so a value
@@ -119,7 +124,7 @@ class ScenarioForm(VerticalScroll):
 
     def compose(self) -> ComposeResult:
         yield Static("Effluent", classes="section")
-        for f in FIELDS[:5]:
+        for f in _in_section("effluent"):
             yield from self._row(f)
         yield Static("", classes="kept", id="kept-effluent")
         yield Static("Tank or flow", classes="section")
@@ -128,9 +133,10 @@ class ScenarioForm(VerticalScroll):
             yield Select([("batch (tank)", "batch"), ("continuous flow", "flow")],
                          value="batch", allow_blank=False, id="f-basis--mode", compact=True,
                          classes="value")
-        yield from self._row(FIELDS[5])
+        for f in _in_section("tank"):
+            yield from self._row(f)
         yield Static("Permit window", classes="section")
-        for f in FIELDS[6:9]:
+        for f in _in_section("window"):
             yield from self._row(f)
         yield Static("Reagent", classes="section")
         with Horizontal(classes="row"):
@@ -145,7 +151,7 @@ class ScenarioForm(VerticalScroll):
             yield Select([(c, c) for c in COMPOUNDS], value="NaOH", allow_blank=False,
                          compact=True,
                          id="f-reagent--compound", classes="value")
-        for f in FIELDS[9:]:
+        for f in _in_section("reagent"):
             yield from self._row(f, "custom" if f.key != "reagent.price_per_kg" else "")
         yield Static("Model", classes="section")
         with Horizontal(classes="row"):
@@ -167,42 +173,44 @@ class ScenarioForm(VerticalScroll):
 
     # --------------------------------------------------------------- data --
     def load_data(self, data: dict[str, Any]) -> None:
-        """Fill the form from scenario data (no Edited messages)."""
-        self._loading = True
-        try:
-            self._base = copy.deepcopy(data)
-            flow = "flow" in data
-            self.query_one("#f-basis--mode", Select).value = "flow" if flow else "batch"
-            amount = data.get("flow", {}).get("m3_per_h") if flow else \
-                data.get("batch", {}).get("volume_m3")
-            self._shown = {}
-            self._put("basis.amount", amount)
-            self._label_amount(flow)
-            for f in FIELDS:
-                if f.key == "basis.amount":
-                    continue
-                section, key = f.key.split(".")
-                self._put(f.key, data.get(section, {}).get(key))
-            r = data.get("reagent", {})
-            rid = r.get("id", "custom")
-            self.query_one("#f-reagent--id", Select).value = rid if rid in CATALOGUE \
-                else "custom"
-            if r.get("compound") in COMPOUNDS:
-                self.query_one("#f-reagent--compound", Select).value = r["compound"]
-            m = data.get("model", {})
-            self.query_one("#f-model--activity", Select).value = m.get("activity", "davies")
-            self.query_one("#f-model--open-to-air", Switch).value = bool(
-                m.get("open_to_air", False))
-            self._show_custom(rid not in CATALOGUE)
-            shown = {f.key.split(".")[1] for f in FIELDS if f.key.startswith("effluent.")}
-            kept = {k: v for k, v in data.get("effluent", {}).items() if k not in shown}
-            note = self.query_one("#kept-effluent", Static)
-            note.update("kept from the file: " + "; ".join(f"{k} {_fmt(v)}"
-                                                         for k, v in kept.items())
-                        if kept else "")
-            note.display = bool(kept)
-        finally:
-            self._loading = False
+        """Fill the form from scenario data (no Edited messages: the caller plans)."""
+        # Textual's message prevention: the boxes changed here post no
+        # Changed messages (a flag reset before they arrived did not stop them).
+        with self.prevent(Input.Changed, Select.Changed, Switch.Changed):
+            self._fill(data)
+
+    def _fill(self, data: dict[str, Any]) -> None:
+        self._base = copy.deepcopy(data)
+        flow = "flow" in data
+        self.query_one("#f-basis--mode", Select).value = "flow" if flow else "batch"
+        amount = data.get("flow", {}).get("m3_per_h") if flow else \
+            data.get("batch", {}).get("volume_m3")
+        self._shown = {}
+        self._put("basis.amount", amount)
+        self._label_amount(flow)
+        for f in FIELDS:
+            if f.key == "basis.amount":
+                continue
+            section, key = f.key.split(".")
+            self._put(f.key, data.get(section, {}).get(key))
+        r = data.get("reagent", {})
+        rid = r.get("id", "custom")
+        self.query_one("#f-reagent--id", Select).value = rid if rid in CATALOGUE \
+            else "custom"
+        if r.get("compound") in COMPOUNDS:
+            self.query_one("#f-reagent--compound", Select).value = r["compound"]
+        m = data.get("model", {})
+        self.query_one("#f-model--activity", Select).value = m.get("activity", "davies")
+        self.query_one("#f-model--open-to-air", Switch).value = bool(
+            m.get("open_to_air", False))
+        self._show_custom(rid not in CATALOGUE)
+        shown = {f.key.split(".")[1] for f in FIELDS if f.key.startswith("effluent.")}
+        kept = {k: v for k, v in data.get("effluent", {}).items() if k not in shown}
+        note = self.query_one("#kept-effluent", Static)
+        note.update("kept from the file: " + "; ".join(f"{k} {_fmt(v)}"
+                                                     for k, v in kept.items())
+                    if kept else "")
+        note.display = bool(kept)
 
     def to_data(self) -> tuple[dict[str, Any], dict[str, str]]:
         """Scenario data from the form, and field errors found while reading it.
@@ -345,11 +353,13 @@ class ScenarioForm(VerticalScroll):
                 values[key] = text          # left as typed: its error stays shown
         self.units = units
         self._shown = {}
-        for key, value in values.items():
-            if isinstance(value, str):
-                self.query_one("#" + field_id(key), Input).value = value
-            else:
-                self._put(key, value)
+        # The values do not change, only how they read: no Edited messages.
+        with self.prevent(Input.Changed):
+            for key, value in values.items():
+                if isinstance(value, str):
+                    self.query_one("#" + field_id(key), Input).value = value
+                else:
+                    self._put(key, value)
         for f in FIELDS:
             if f.key != "basis.amount":
                 self.query_one("#" + field_id(f.key) + "-unit", Label).update(
@@ -361,8 +371,7 @@ class ScenarioForm(VerticalScroll):
             w.display = custom
 
     def _edited(self) -> None:
-        if not self._loading:
-            self.post_message(self.Edited(self))
+        self.post_message(self.Edited(self))
 
     def on_input_changed(self, event: Input.Changed) -> None:
         event.stop()
@@ -377,8 +386,7 @@ class ScenarioForm(VerticalScroll):
             self._label_amount(event.value == "flow")
         if event.select.id == "f-reagent--id":
             self._show_custom(event.value == "custom")
-            if not self._loading:
-                self._forget_product_terms(event.value)
+            self._forget_product_terms(event.value)
         self._edited()
 
     def _forget_product_terms(self, rid: str) -> None:
