@@ -526,63 +526,35 @@ def infer_water(ph: float, temperature_c: float = 25.0, *,
                 metals_mg_l: Mapping[str, float] | None = None,
                 oxidise_ferrous: bool = False, hours_in_air: float = 0.0,
                 depth_m: float = DEFAULT_DEPTH_M, calcite: str = "auto") -> Water:
-    """Build the :class:`Water` that matches what was measured.
+    """Build the :class:`Water` that matches what was measured; an
+    :class:`InputError` names the field when a value is out of range or the
+    measurements contradict each other.
 
-    Parameters
+    Parameters (units in the names; ranges are checked, see :func:`_validate`)
     ----------
-    ph : float
-        Measured pH, 0-14 [-].
-    temperature_c : float
-        Temperature of the water, 0-60 [°C].
-    alkalinity_mg_l_as_caco3 : float, optional
-        Total alkalinity to ``alkalinity_endpoint_ph`` [mg/L as CaCO3].
-    acidity_mg_l_as_caco3 : float, optional
-        Acidity to ``acidity_endpoint_ph`` [mg/L as CaCO3]; with metals, the
-        hot-peroxide acidity of Standard Methods 2310 (metal acidity
-        included, ferrous iron counted as oxidised).
-    solutes_mmol_l : mapping, optional
-        Known totals by solute id [mmol/L]; ``carbonate`` allowed when
-        neither alkalinity nor acidity is given.
-    solutes_mg_l : mapping, optional
-        Known totals on each laboratory basis (ammonia as N ...) [mg/L].
-    activity : {"davies", "ideal"}
-        Activity model.
-    open_to_air : bool
-        The tank is open to air (see :class:`Water`).
-    pco2_uatm : float
-        CO2 partial pressure of that air [µatm].
-    hours_in_air, depth_m : float
-        With ``open_to_air``: how long the dosed water stands before the pH
-        that counts [h], and its depth [m]. The dose is planned at CO2
-        equilibrium with air only when that time is long enough to reach it
-        (:data:`FULL_EXCHANGE`); otherwise with the carbonate as sampled.
-    calcite : {"auto", "precipitates", "dissolved"}
-        Whether the dosed water drops calcite (see :class:`Water`).
-    extra_ionic_strength_mol_l : float
-        Ionic strength of strong ions beyond those given (e.g. a known salt
-        load) [mol/L].
-    ions_mg_l : mapping, optional
-        Background ions by name (:data:`BACKGROUND_IONS`) [mg/L].
-    unknown_pka : float, optional
-        pKa of the ``unknown`` solute (an unidentified monoprotic acid, e.g.
-        fitted to a bench titration) [-].
-    metals_mg_l : mapping, optional
-        Dissolved metals of a filtered sample by id (:data:`dosing.metals.METAL_IDS`)
-        [mg/L as the element].
-    oxidise_ferrous : bool
-        Plan with ferrous iron oxidised by aeration before dosing
+    ph, temperature_c : measured pH (0-14) and temperature (0-60 °C).
+    alkalinity_mg_l_as_caco3, acidity_mg_l_as_caco3 : optional, one of them:
+        titrated to ``alkalinity_endpoint_ph`` / ``acidity_endpoint_ph``; with
+        metals, the acidity is the hot-peroxide one of Standard Methods 2310
+        (metal acidity included, ferrous iron counted as oxidised).
+    solutes_mmol_l, solutes_mg_l : known totals by solute id, in mmol/L or
+        on each laboratory basis (ammonia as N ...); ``carbonate`` allowed
+        when neither alkalinity nor acidity is given.
+    ions_mg_l, metals_mg_l : background ions (:data:`BACKGROUND_IONS`) and
+        dissolved metals of a filtered sample (as the element).
+    activity, calcite : "davies" or "ideal"; "auto", "precipitates" or "dissolved".
+    open_to_air, pco2_uatm, hours_in_air, depth_m : an open tank, the CO2 of
+        its air, how long the dosed water stands and how deep it is; the
+        dose is planned at CO2 equilibrium with air only when that time
+        reaches :data:`FULL_EXCHANGE` (see :class:`Water`).
+    extra_ionic_strength_mol_l : strong ions beyond those given (a salt load).
+    unknown_pka : pKa of the ``unknown`` solute (an unlisted acid, e.g. fitted).
+    oxidise_ferrous : plan with ferrous iron oxidised by aeration first
         (4 Fe2+ + O2 + 10 H2O -> 4 Fe(OH)3 + 8 H+).
-
-    Raises
-    ------
-    InputError
-        Naming the field, when a value is out of range or the measurements
-        contradict each other.
 
     Examples
     --------
-    A bicarbonate water: 100 mg/L as CaCO3 at pH 8.0 (ideal model) holds
-    just under 2 mmol/L of inorganic carbon.
+    100 mg/L as CaCO3 at pH 8.0 (ideal) is just under 2 mmol/L of carbonate:
 
     >>> w = infer_water(8.0, 25.0, alkalinity_mg_l_as_caco3=100, activity="ideal")
     >>> round(w.carbonate_mol_l * 1000, 3)
@@ -597,6 +569,14 @@ def infer_water(ph: float, temperature_c: float = 25.0, *,
     if calcite not in CALCITE_MODES:
         raise InputError("calcite", f"{calcite!r}; allowed: " + ", ".join(CALCITE_MODES))
     depth_m = _check_number("depth_m", depth_m, 0.05, 100.0)
+    return _solved_water(job, totals, metals, ions, measured, open_to_air, oxidise_ferrous,
+                         hours_in_air, depth_m, calcite)
+
+
+def _solved_water(job, totals, metals, ions, measured, open_to_air, oxidise_ferrous,
+                  hours_in_air, depth_m, calcite) -> Water:
+    """The water from checked inputs: its carbonate (from the lab value), its
+    strong-ion balance (from the pH) and the notes that go with them."""
     notes: list[str] = []
     carb = _carbonate(job, measured, "carbonate" in totals, open_to_air, notes)
     if carb is not None:

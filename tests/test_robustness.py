@@ -407,3 +407,33 @@ def test_output_into_a_read_only_folder_is_one_line(tmp_path, monkeypatch):
     assert code == 2
     _one_line(err, str(out), "Permission denied", "nothing was changed")
     assert not out.exists()
+
+
+_FLEET_VALUES = st.one_of(_LITERALS, st.sampled_from([
+    '"flow.toml"', '"batch.toml"', '"none.toml"', '["none-*.csv"]', '["log.csv", "log.csv"]',
+    '[]', '["../../etc"]', '"log.csv"', '[1, 2]']))
+
+
+@pytest.mark.fuzz
+@_FUZZ
+@given(st.lists(st.tuples(st.sampled_from(["a", "b c", "ü", ""]),
+                          st.sampled_from(["scenario", "data", "pump", ""]), _FLEET_VALUES),
+                max_size=4),
+       st.booleans())
+def test_fuzz_fleet_file(tmp_path, entries, title):
+    # The fleet reader (issue 17): any file is refused in one line naming it
+    # (and the key), exit 2, before a cluster starts; here no site's data
+    # exist, so no entry can be valid.
+    (tmp_path / "flow.toml").write_text(Path(FLOW).read_text())
+    (tmp_path / "batch.toml").write_text((ROOT / "scenarios" / "cip-sulfuric.toml").read_text())
+    lines = ['title = "fuzz"'] if title else []
+    for site, key, value in entries:
+        lines.append(f'[sites."{site}"]')
+        if key:
+            lines.append(f"{key} = {value}")
+    path = tmp_path / "fleet.toml"
+    path.write_text("\n".join(lines) + "\n")
+    code, out, err = run("replay", "--fleet", str(path), "--workers", "1")
+    assert code == 2 and out == "", (code, err)
+    assert "Traceback" not in err and len(err.strip().splitlines()) == 1, err
+    assert str(tmp_path) in err, err
