@@ -249,7 +249,8 @@ def _dose_for(scenario: Scenario, ph, temp, alk, flag, ok) -> np.ndarray:
         bad |= ~np.isfinite(carb) | (carb < 0)
         base[:, CARBONATE] = np.where(bad, 0.0, carb)
     s, _ = strong_balance_at_ph(base, ph, temp, davies=w.davies, extra_ionic_strength=extra,
-                                unknown_pka=pka, known_strong_eq_l=w.known_strong_eq_l)
+                                unknown_pka=pka, known_strong_eq_l=w.known_strong_eq_l,
+                                ionic_guess=w.ionic_strength)
     co2 = (co2_in_air_mol_l(temp, w.pco2_atm) if w.dosed_at_air_equilibrium
            else np.full(m, np.nan))
     unsettled = ~np.isfinite(s) & ~bad
