@@ -205,13 +205,15 @@ def test_parse_since():
 
 def test_tankside_records_through_the_same_code(tmp_path):
     from tui.app import make_app
+    from tui.screens.ask import RecordAnswer
     db = str(tmp_path / "log.sqlite")
 
     async def main():
         app = make_app(SCEN, db=db)
         async with app.run_test(size=(150, 45)) as pilot:
             await pilot.pause()
-            app.record("D. Osei; 29.5; split over two batches")
+            await app.workers.wait_for_complete()      # planned in a worker thread
+            app.record(RecordAnswer("D. Osei", 29.5, None, "split over two batches"))
             await pilot.pause()
             assert "recorded as entry 1" in app.status
     asyncio.run(main())
