@@ -34,8 +34,12 @@ both). Choose *custom product* to enter your own strength and density.
 **When a value is wrong** the reason shows under the field in red and the
 last valid plan stays on screen, marked as such.
 
-**Sweep** shows the dose for tank sizes (or flows) around yours, for the
-chosen reagent and the one in *compare with*.
+**Sweep** shows the product for tank sizes (or flows) around yours at each
+strength it is sold or made up at, and the product in *compare with*
+beside it (`dosing sweep` prints the same grid, and writes it as CSV).
+
+**F6** switches the units of the fields too: °F, gallons or gpm, lb/gal and
+price per lb; the file keeps SI units.
 
 {GENERAL_CAUTION}
 
