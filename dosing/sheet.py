@@ -14,7 +14,7 @@ from __future__ import annotations
 
 import re
 from dataclasses import dataclass, replace
-from typing import Any
+from typing import Any, Literal
 
 from . import __version__
 from .effluent import CACO3_MG_PER_MEQ
@@ -28,7 +28,8 @@ from .control import control_design
 from .uncertainty import MATERIAL_RISK, dose_uncertainty, staged_dose
 from .scenario import Scenario, scenario_key, water_inputs
 
-__all__ = ["Units", "UNIT_SYSTEMS", "make_plan", "with_uncertainty", "sheet_dict", "render_sheet",
+__all__ = ["Units", "UnitSystem", "UNIT_SYSTEMS", "make_plan", "with_uncertainty",
+           "sheet_dict", "render_sheet",
            "render_fleet", "figure_title", "dose_axis",
            "metals_dict", "metal_lines",
            "fmt", "product_text", "dose_lines", "check_lines", "caution_lines", "in_units",
@@ -53,7 +54,10 @@ class Units:
     flow_per_m3_h: float
 
 
-UNIT_SYSTEMS = {
+#: The unit systems by name (the keys of :data:`UNIT_SYSTEMS`).
+UnitSystem = Literal["metric", "us"]
+
+UNIT_SYSTEMS: dict[str, Units] = {
     "metric": Units("metric", "kg", 1.0, "L", 1.0, "m³", 1.0, "m³/h", 1.0),
     "us": Units("us", "lb", 1.0 / KG_PER_LB, "gal", 1.0 / L_PER_US_GAL,
                 "gal", 1000.0 / L_PER_US_GAL, "gpm", 1000.0 / L_PER_US_GAL / 60.0),
@@ -956,7 +960,8 @@ def render_titration(scenario: Scenario, comparison, units: str = "metric",
         out += _hanging("", f"the model is {gap:+.1%} against the direct scaling", width)
     spec = report.get("spectrum")
     if m.get("used") == "spectrum" and spec:
-        out.extend(_wrap(f"buffer spectrum strong-ion balance {fmt(spec['strong_ion_balance_meq_l'])} "
+        balance = fmt(spec["strong_ion_balance_meq_l"])
+        out.extend(_wrap(f"buffer spectrum strong-ion balance {balance} "
                          f"meq/L, carbonate {fmt(spec['carbonate_mmol_l'], floor=1e-4)} mmol/L; "
                          f"pH misfit {spec['rms_ph']:.3f} RMS (the simple fit misses by "
                          f"{m['rms_ph']:.3f})", width, "                "))

@@ -18,8 +18,8 @@ from .scenario import Scenario
 from .sheet import UNIT_SYSTEMS, _wrap
 from .sweep import Sweep
 
-__all__ = ["GridRow", "grid_rows", "size_labels", "size_heading", "render_sweep", "sweep_dict", "sweep_csv",
-           "SWEEP_NOTE"]
+__all__ = ["GridRow", "grid_rows", "size_labels", "size_heading", "render_sweep",
+           "sweep_dict", "sweep_csv", "SWEEP_NOTE"]
 
 #: What the grid leaves out, said under it.
 SWEEP_NOTE = ("Each product is planned as the sheet plans it; its own plan (dosing plan) "

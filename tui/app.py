@@ -26,7 +26,7 @@ from dosing.files import write_atomic
 from dosing.plan import Flow, Plan
 from dosing.reagents import CATALOGUE, GENERAL_CAUTION
 from dosing.scenario import Scenario, build_scenario, load_scenario, scenario_to_toml
-from dosing.sheet import (make_plan, render_sheet, render_titration, sheet_dict,
+from dosing.sheet import (UnitSystem, make_plan, render_sheet, render_titration, sheet_dict,
                           with_uncertainty)
 from dosing.titration import check_curve, compare, parse_titrant
 from dosing.titration_io import read_titration_csv
@@ -91,7 +91,7 @@ class Tankside(App):
     """The scenario the plan was made from."""
     stale: reactive[bool] = reactive(False, init=False)
     """True while the form is invalid and the plan shown is the last valid one."""
-    units: reactive[str] = reactive("metric", init=False)
+    units: reactive[UnitSystem] = reactive("metric", init=False)
     """Unit system of the views: "metric" or "us"."""
     status: reactive[str] = reactive("")
     """One line for the status bar."""

@@ -18,7 +18,7 @@ from textual.message import Message
 from textual.widgets import Input, Label, Select, Static, Switch
 
 from dosing.reagents import CATALOGUE, COMPOUNDS
-from dosing.sheet import KG_PER_LB, L_PER_US_GAL
+from dosing.sheet import KG_PER_LB, L_PER_US_GAL, UnitSystem
 
 __all__ = ["Field", "FIELDS", "ScenarioForm", "field_id", "parse_pairs", "US_FIELDS"]
 
@@ -117,7 +117,7 @@ class ScenarioForm(VerticalScroll):
         super().__init__(**kwargs)
         self._base: dict[str, Any] = {}
         #: "metric" or "us": the units the fields are shown and typed in.
-        self.units = "metric"
+        self.units: UnitSystem = "metric"
         #: key -> (text shown, SI value) for converted fields, so a value
         #: nobody retyped goes back to the file exactly as it came.
         self._shown: dict[str, tuple[str, float]] = {}
@@ -337,7 +337,7 @@ class ScenarioForm(VerticalScroll):
             return shown[1]          # not retyped: the file's value, exactly
         return conv.to_si(float(text))
 
-    def set_units(self, units: str) -> None:
+    def set_units(self, units: UnitSystem) -> None:
         """Show and read the fields in ``units`` ("metric" or "us"): each
         converted field keeps its value, its text and unit label follow."""
         if units == self.units:

@@ -5,12 +5,12 @@ from __future__ import annotations
 from textual_plotext import PlotextPlot
 
 from dosing.plan import Plan
-from dosing.sheet import dose_axis
+from dosing.sheet import UnitSystem, dose_axis
 
 __all__ = ["CurvePlot", "TitrationPlot", "curve_axes"]
 
 
-def curve_axes(plan: Plan, units: str) -> tuple[list[float], list[float], str, float]:
+def curve_axes(plan: Plan, units: UnitSystem) -> tuple[list[float], list[float], str, float]:
     """x (product per batch or hour), pH, x label and the planned x."""
     scale, _, label = dose_axis(plan, units)
     x = [float(v) * scale for v in plan.curve.dose_mol_l]
@@ -20,7 +20,7 @@ def curve_axes(plan: Plan, units: str) -> tuple[list[float], list[float], str, f
 class CurvePlot(PlotextPlot):
     """pH against dose with the window edges, the aim and the planned dose."""
 
-    def show(self, plan: Plan, units: str) -> None:
+    def show(self, plan: Plan, units: UnitSystem) -> None:
         x, ph, label, planned = curve_axes(plan, units)
         p = self.plt
         p.clear_data()

@@ -9,7 +9,7 @@ from textual.widgets import Static
 
 from dosing.plan import Plan, permit_breaches
 from dosing.scenario import Scenario
-from dosing.sheet import (caution_lines, check_lines, dose_lines, in_units, metal_lines,
+from dosing.sheet import (UnitSystem, caution_lines, check_lines, dose_lines, in_units, metal_lines,
                           staging_lines)
 
 __all__ = ["DosePanel"]
@@ -20,7 +20,7 @@ _STYLE = {"!!": "bold red", "! ": "yellow", "- ": "dim", "  ": ""}
 class DosePanel(Static):
     """Shows one plan; ``stale`` marks a plan kept while the form is invalid."""
 
-    def show(self, scenario: Scenario, plan: Plan, units: str, stale: bool) -> None:
+    def show(self, scenario: Scenario, plan: Plan, units: UnitSystem, stale: bool) -> None:
         # A plan kept while the form is invalid is dimmed under its banner:
         # it is not the dose for what the form now says.
         self.set_class(stale, "stale")

@@ -6,6 +6,7 @@ from __future__ import annotations
 from rich.text import Text
 from textual.widgets import DataTable
 
+from dosing.sheet import UnitSystem
 from dosing.sweep import Sweep
 from dosing.sweep_sheet import grid_rows, size_heading, size_labels
 
@@ -16,7 +17,7 @@ class SweepTable(DataTable):
     """Rows: each strength of the product (kg, and L for a solution, per
     batch or per hour); columns: tank volumes or flows."""
 
-    def show(self, result: Sweep, units: str) -> None:
+    def show(self, result: Sweep, units: UnitSystem) -> None:
         self.clear(columns=True)
         unit, heads = size_labels(result, units)
         self.add_column(size_heading(result, unit), key="product")
