@@ -154,6 +154,8 @@ def replay_sites(sites: Sequence[Site], client, *, part_bytes: int = PART_BYTES,
     plan: list[tuple[int, Part]] = []
     for i, site in enumerate(sites):
         plan.extend((i, part) for f in site.files for part in file_parts(f, part_bytes))
+    if progress:
+        progress(0, len(plan))            # the bar shows its total from the start
     steps = [_first_step(site, chunk_rows) for site in sites]
     frames = dd.from_map(read_part, [p for _, p in plan], meta=_RAW_META,
                          enforce_metadata=False)
