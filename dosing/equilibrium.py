@@ -498,9 +498,9 @@ def _balance(r: _Rows, alpha, q, m2, h, oh, sol=None, kcal=None):
     extra_beta = 0.0
     if kcal is not None and not opened.all():
         extra_beta = _calcite(r, q, totals, kcal, ~opened, calcite)
-    resid = r.strong + h - oh + (totals * q).sum(-1)
-    beta = _LN10 * (h + oh + (totals * var).sum(-1)) + extra_beta
-    new_i = 0.5 * (h + oh + (totals * m2).sum(-1)) + r.strong_i
+    resid = r.strong + h - oh + np.einsum("nm,nm->n", totals, q)
+    beta = _LN10 * (h + oh + np.einsum("nm,nm->n", totals, var)) + extra_beta
+    new_i = 0.5 * (h + oh + np.einsum("nm,nm->n", totals, m2)) + r.strong_i
     return totals, resid, beta, new_i, calcite
 
 
@@ -919,39 +919,59 @@ class _DoseJob:
             capped = (np.zeros(rows.totals.shape, dtype=bool) if sol is None
                       else self.capped_after(np.zeros(mix.n), sol))
         w = h - oh
-        tot = rows.totals
-        nr = np.broadcast_to(self.n_r, tot.shape)
-        fixed = np.zeros(tot.shape, dtype=bool)
-        held = np.zeros(tot.shape)        # concentrations fixed by a phase
+        fixed, held = self._fixed(alpha, sol, capped)
+        if fixed is None:
+            # Nothing held by a phase (the common case): sums without temporaries.
+            num = mix.strong_eq_l + np.einsum("nm,nm->n", rows.totals, q) + w
+            den = self.reagent.strong_eq + q @ self.n_r + v * w
+        else:
+            w = w + np.einsum("nm,nm->n", held, q)
+            num = mix.strong_eq_l + np.einsum("nm,nm->n", np.where(fixed, 0.0, rows.totals),
+                                              q) + w
+            den = (self.reagent.strong_eq
+                   + np.einsum("nm,nm->n", np.where(fixed, 0.0, self.n_r[None, :]), q) + v * w)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            dose = -num / den
+        calcite = np.zeros(mix.n)
+        if kcal is not None:
+            no_fix = np.zeros(rows.totals.shape, dtype=bool) if fixed is None else fixed
+            dose, calcite = self._calcite(dose, num, den, q, kcal, no_fix)
+        if not mix.davies:
+            return dose, den, None, sol, capped
+        g = self.given(dose)
+        f = 1.0 / (1.0 + g * v)
+        if fixed is None and kcal is None:
+            weak = f * (np.einsum("nm,nm->n", rows.totals, m2) + g * (m2 @ self.n_r))
+        else:
+            tot_after = f[:, None] * (rows.totals + g[:, None] * self.n_r)
+            if fixed is not None:
+                tot_after = np.where(fixed, held, tot_after)
+            if kcal is not None:
+                tot_after[:, rows.ca] -= f * calcite
+                tot_after[:, rows.carb] -= f * calcite
+            weak = np.einsum("nm,nm->n", tot_after, m2)
+        strong_i = f * (mix.strong_ionic_strength + g * self.reagent.ionic_strength)
+        new_i = 0.5 * (h + oh + weak) + strong_i
+        return dose, den, new_i, sol, capped
+
+    def _fixed(self, alpha, sol, capped):
+        """Columns whose concentration a phase holds (carbonate open to air, a
+        metal at its hydroxide's solubility) and those concentrations; (None,
+        None) when there are none."""
+        rows, mix = self.rows, self.mix
         opened = mix.open_to_air
-        if rows.carb >= 0 and opened.any():
+        open_c = rows.carb >= 0 and bool(opened.any())
+        if not open_c and not capped.any():
+            return None, None
+        fixed = np.zeros(rows.totals.shape, dtype=bool)
+        held = np.zeros(rows.totals.shape)
+        if open_c:
             fixed[opened, rows.carb] = True
             held[opened, rows.carb] = mix.co2_air_mol_l[opened] / alpha[opened, rows.carb, 0]
         if capped.any():
             fixed |= capped
             held[capped] = sol[capped]
-        if fixed.any():
-            w = w + (held * q).sum(-1)
-            tot = np.where(fixed, 0.0, tot)
-            nr = np.where(fixed, 0.0, nr)
-        num = mix.strong_eq_l + (tot * q).sum(-1) + w
-        den = self.reagent.strong_eq + (nr * q).sum(-1) + v * w
-        with np.errstate(divide="ignore", invalid="ignore"):
-            dose = -num / den
-        calcite = np.zeros(mix.n)
-        if kcal is not None:
-            dose, calcite = self._calcite(dose, num, den, q, kcal, fixed)
-        if not mix.davies:
-            return dose, den, None, sol, capped
-        g = self.given(dose)
-        f = 1.0 / (1.0 + g * v)
-        tot_after = np.where(fixed, held, f[:, None] * (rows.totals + g[:, None] * self.n_r))
-        if kcal is not None:
-            tot_after[:, rows.ca] -= f * calcite
-            tot_after[:, rows.carb] -= f * calcite
-        strong_i = f * (mix.strong_ionic_strength + g * self.reagent.ionic_strength)
-        new_i = 0.5 * (h + oh + (tot_after * m2).sum(-1)) + strong_i
-        return dose, den, new_i, sol, capped
+        return fixed, held
 
     def _calcite(self, dose, num, den, q, kcal, fixed):
         """Dose with calcite precipitating in closed waters, and the calcite
