@@ -133,6 +133,15 @@ def constants_at(temperature_c, cols=None) -> Constants:
     cols = np.arange(N_SYSTEMS) if cols is None else np.asarray(cols, dtype=int)
     if t.size > 32:
         uniq, inv = np.unique(t, return_inverse=True)
+        if uniq.size == 1:
+            # One temperature (a replay without a temperature column): views,
+            # not n copies; they are read-only, and nothing writes into them.
+            c = _constants(uniq, cols)
+            n = t.size
+            return Constants(kw=np.broadcast_to(c.kw, (n,)),
+                             k=np.broadcast_to(c.k, (n,) + c.k.shape[1:]),
+                             a=np.broadcast_to(c.a, (n,)),
+                             log_ks0=np.broadcast_to(c.log_ks0, (n,) + c.log_ks0.shape[1:]))
         if uniq.size < t.size:
             c = _constants(uniq, cols)
             return Constants(kw=c.kw[inv], k=c.k[inv], a=c.a[inv], log_ks0=c.log_ks0[inv])
@@ -284,19 +293,19 @@ class Speciation:
 _LN10 = float(np.log(10.0))
 
 
-def _alpha(ah, kc):
-    """Fractions (n, m, s+1) from a_H (n,) and mixed constants (n, m, s).
+def _alpha(ah, kp):
+    """Fractions (n, m, s+1) from a_H (n,) and mixed constants as planes
+    (s, n, m), one per step.
 
     Built form by form in contiguous (n, m) planes (a stride-4 last axis is
     slow in numpy); the result is a view with the form as its last axis.
     """
-    k = np.moveaxis(kc, -1, 0).copy()
-    steps = k.shape[0]
+    steps = kp.shape[0]
     inv = (1.0 / ah)[:, None]
-    planes = np.empty((steps + 1,) + kc.shape[:2])
+    planes = np.empty((steps + 1,) + kp.shape[1:])
     planes[0] = 1.0
     for i in range(steps):
-        np.multiply(planes[i], k[i], out=planes[i + 1])
+        np.multiply(planes[i], kp[i], out=planes[i + 1])
         planes[i + 1] *= inv
     planes /= planes.sum(axis=0)
     return np.moveaxis(planes, 0, -1)
@@ -427,10 +436,14 @@ def _species(r: _Rows, ah, ionic):
         # charge z to z - 1 scales its constant by 10^(-t (z² - (z-1)²)).
         t = davies_unit(np.minimum(ionic, _I_CEILING), r.a)
         g1 = 10.0 ** -t
-        kc = r.k * np.exp((-_LN10 * t)[:, None, None] * (z2[:, :-1] - z2[:, 1:])[None])
+        # Written as planes, one per step, for _alpha.
+        kp = np.multiply(np.moveaxis(r.k, -1, 0),
+                         np.exp((-_LN10 * t)[None, :, None] * (z2[:, :-1] - z2[:, 1:]).T[:, None]),
+                         order="C")
     else:
-        t, kc, g1 = None, r.k, 1.0
-    alpha = _alpha(ah, kc)
+        t, g1 = None, 1.0
+        kp = np.ascontiguousarray(np.moveaxis(r.k, -1, 0))
+    alpha = _alpha(ah, kp)
     q = np.einsum("nmk,mk->nm", alpha, r.z)
     m2 = np.einsum("nmk,mk->nm", alpha, z2)
     sol = None
