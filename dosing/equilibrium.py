@@ -1053,6 +1053,14 @@ class _DoseJob:
         return np.where(np.isfinite(ionic), dose, np.nan), den, sol, capped
 
 
+#: Relative change of the ionic strength at which :func:`_settle` stops.
+#: The secant converges fast, so the ionic strength is then within about
+#: 1e-10 of its fixed point; measured on three demos (20,000 waters each,
+#: dose and strong balance), doses differ from those at 1e-10 by at most
+#: 1.1e-10 relative, far inside the 1e-4 at which outside solvers are
+#: checked. It saves one pass of four in the dose solve.
+_SETTLE_RTOL = 1e-8
+
 #: Ionic strength above which a fixed point is abandoned [mol/L].
 _I_CEILING = 20.0
 
@@ -1080,7 +1088,7 @@ def _settle(fn, x0, x1, max_iter, *, payload: bool = False):
         if kept is None:
             kept = [None if e is None else e.copy() for e in extra]
         g = fx - x
-        done = live & (np.abs(g) <= 1e-13 + 1e-10 * np.abs(fx))
+        done = live & (np.abs(g) <= 1e-13 + _SETTLE_RTOL * np.abs(fx))
         out[done] = fx[done]
         for k, e in zip(kept, extra):
             if k is not None:

@@ -296,3 +296,22 @@ def test_strong_balance_does_not_depend_on_the_starting_ionic_strength():
         s1, i1 = strong_balance_at_ph(tot, ph, 32.0, davies=True, ionic_guess=guess)
         np.testing.assert_allclose(s1, s0, rtol=1e-8)
         np.testing.assert_allclose(i1, i0, rtol=1e-8)
+
+
+def test_the_fixed_point_tolerance_costs_the_dose_nothing_measurable(monkeypatch):
+    # The ionic-strength fixed point stops at 1e-8 relative change (it saves
+    # a pass); against a 1e-12 stop the dose moves by under 1e-9 relative,
+    # far inside the 1e-4 of the outside-solver checks.
+    import numpy as np
+    import dosing.equilibrium as eq
+    tot = totals(carbonate=0.007, silicate=0.0006, borate=0.0002)
+    ph = np.linspace(9.0, 11.0, 200)
+    reagent = get_reagent("hydrochloric-32").vector()
+
+    def doses():
+        s, _ = eq.strong_balance_at_ph(tot, ph, 32.0, davies=True)
+        mix = Mixture.build(tot, s, 0.5 * np.abs(s), 32.0, math.nan, True)
+        return dose_to_ph(mix, reagent, 7.5)[0]
+    loose = doses()
+    monkeypatch.setattr(eq, "_SETTLE_RTOL", 1e-12)
+    np.testing.assert_allclose(loose, doses(), rtol=1e-9)
