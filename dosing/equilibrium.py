@@ -393,7 +393,7 @@ class _Rows:
 
 def _used(mix: Mixture, extra_cols=()) -> np.ndarray:
     """Columns with a non-zero total (plus ``extra_cols``, and open carbonate)."""
-    used = np.any(mix.totals_mol_l != 0.0, axis=0)
+    used = mix.totals_mol_l.any(axis=0)      # non-zero (NaN counts), no temporary
     used[list(extra_cols)] = True
     if mix.open_to_air.any():
         used[CARBONATE] = True
