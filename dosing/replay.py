@@ -443,10 +443,14 @@ def head_length(frame: pd.DataFrame) -> int:
     the last valid time before it, which lies inside the part after its
     first valid timestamp.
     """
-    t = _seconds(frame["timestamp"])
+    return _head_rows(_seconds(frame["timestamp"]))
+
+
+def _head_rows(t: np.ndarray) -> int:
+    """:func:`head_length` from the part's times [s] (NaN where unreadable)."""
     valid = np.flatnonzero(~np.isnan(t))
-    first_valid = int(valid[0]) + 1 if valid.size else len(frame)
-    return min(len(frame), max(FLATLINE_ROWS - 1, first_valid))
+    first_valid = int(valid[0]) + 1 if valid.size else t.size
+    return min(t.size, max(FLATLINE_ROWS - 1, first_valid))
 
 
 @dataclass
@@ -470,7 +474,8 @@ def plan_part(frame: pd.DataFrame, scenario: Scenario, nominal_s: float,
               rate_unit: str, keep_hourly: bool = True) -> PartResult:
     """Plan one part of a record; see :func:`stitch` for putting parts together."""
     frame = frame.reset_index(drop=True)
-    n, h = len(frame), head_length(frame)
+    t = _seconds(frame["timestamp"])
+    n, h = len(frame), _head_rows(t)
     totals = ReplayTotals(rate_unit=rate_unit, keep_hourly=keep_hourly)
     state = ReplayState(nominal_s=nominal_s)
     if h < n:
@@ -478,7 +483,6 @@ def plan_part(frame: pd.DataFrame, scenario: Scenario, nominal_s: float,
     ph = pd.to_numeric(frame["ph"], errors="coerce").to_numpy(dtype=float)
     changes = np.flatnonzero(ph[1:] != ph[:-1])      # NaN differs from everything
     tail_run = n - 1 - int(changes[-1]) if changes.size else n
-    t = _seconds(frame["timestamp"])
     valid = t[~np.isnan(t)]
     return PartResult(totals=totals, head=frame.iloc[:h], rows=n,
                       last_ph=float(ph[-1]) if n else math.nan, tail_run=max(tail_run, 1),

@@ -155,10 +155,6 @@ def _sludge(scenario: Scenario, plan: Plan) -> Sludge:
                      cake_density_kg_l=scenario.sludge[1])
 
 
-def _per(plan: Plan) -> str:
-    return plan.basis.per
-
-
 def _daily(scenario: Scenario, plan: Plan) -> dict[str, float | None]:
     """Daily use and days of supply, for a flow."""
     a = plan.amounts()
@@ -324,7 +320,7 @@ def metal_lines(scenario: Scenario, plan: Plan, units: str = "metric") -> list[t
     by the text sheet and the terminal view.
     """
     u = UNIT_SYSTEMS[units]
-    per = _per(plan)
+    per = plan.basis.per
     rows: list[tuple[str, str]] = []
     if plan.ph_ceiling is not None:
         rows.append(("pH ceiling", f"an overdose of {plan.reagent.name} takes this water "
@@ -365,7 +361,7 @@ def dose_lines(scenario: Scenario, plan: Plan, units: str = "metric") -> list[tu
     """
     u = UNIT_SYSTEMS[units]
     a = plan.amounts()
-    per = _per(plan)
+    per = plan.basis.per
     flow = isinstance(plan.basis, Flow)
     rows: list[tuple[str, str]] = []
 
@@ -496,9 +492,7 @@ def water_lines(scenario: Scenario, plan: Plan, units: str = "metric",
         measured.append(f"alkalinity {eff['alkalinity_mg_l_as_caco3']:g} mg/L as CaCO3")
     if "acidity_mg_l_as_caco3" in eff:
         measured.append(f"acidity {eff['acidity_mg_l_as_caco3']:g} mg/L as CaCO3")
-    import textwrap
-    out.extend(textwrap.wrap(f"water    {amount}; {', '.join(measured)}", width,
-                             subsequent_indent=" " * 9))
+    out.extend(_hanging("water", f"{amount}; {', '.join(measured)}", width, indent=9))
     solutes = ", ".join(f"{_total_name(w, k)} {fmt(v * 1000, floor=1e-4)}"
                         for k, v in (w.totals_mol_l | w.metals_mol_l).items())
     if solutes:
@@ -523,7 +517,7 @@ def headline(scenario: Scenario, plan: Plan, units: str = "metric") -> str:
     if not plan.dose_needed:
         return (f"NO DOSE NEEDED{where}: pH {plan.ph_start:.2f} is inside the window "
                 f"{plan.target.ph_min:g} to {plan.target.ph_max:g}")
-    per = "" if isinstance(plan.basis, Flow) else f" {_per(plan)}"
+    per = "" if isinstance(plan.basis, Flow) else f" {plan.basis.per}"
     return (f"DOSE {plan_amount(plan, plan.dose_mol_l, units)} of {plan.reagent.name}"
             f"{per}{where}: pH {plan.ph_start:.2f} to {plan.ph_end:.2f} "
             f"(window {plan.target.ph_min:g} to {plan.target.ph_max:g})")
@@ -621,11 +615,9 @@ def render_replay(report: dict[str, Any], units: str = "metric", width: int = 78
     rate = r["dose_rate"]
     conv = u.mass_per_kg if rate["unit"] == "kg/h" else u.product_volume_per_l
     rate_unit = (f"{u.mass}/h" if rate["unit"] == "kg/h" else f"{u.product_volume}/h")
-    import textwrap
     out = [f"REPLAY  {r['scenario']}  [{r['reagent']}]", "=" * 40]
-    out += textwrap.wrap(f"data     {r['source']}: {r['rows']:,} rows, {r['first']} to "
-                         f"{r['last']} ({fmt(r['hours_covered'] / 24)} days)", width,
-                         subsequent_indent=" " * 9, break_on_hyphens=False)
+    out += _hanging("data", f"{r['source']}: {r['rows']:,} rows, {r['first']} to "
+                    f"{r['last']} ({fmt(r['hours_covered'] / 24)} days)", width, indent=9)
     out += [f"planned  {r['rows_planned']:,} rows; not planned {r['rows_not_planned']:,}"]
     for key, v in r["not_planned"].items():
         out.append(f"           {v['rows']:>9,}  {v['why']}")
@@ -772,7 +764,7 @@ def uncertainty_lines(plan: Plan, units: str = "metric") -> list[tuple[str, str]
     unc = plan.uncertainty
     if unc is None:
         return []
-    per = _per(plan)
+    per = plan.basis.per
 
     def prod(mol):
         return plan_amount(plan, mol, units)
@@ -792,7 +784,7 @@ def log_lines(plan: Plan, units: str = "metric") -> list[str]:
     b = plan.log_bias
     return [b.words() + ".",
             f"Offered, not applied: with that bias the dose would be "
-            f"{plan_amount(plan, plan.dose_mol_l * b.mean_ratio, units)} {_per(plan)}. The plan "
+            f"{plan_amount(plan, plan.dose_mol_l * b.mean_ratio, units)} {plan.basis.per}. The plan "
             "above is the model's; decide with the engineer which to dose."]
 
 

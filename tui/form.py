@@ -343,9 +343,7 @@ class ScenarioForm(VerticalScroll):
         if units == self.units:
             return
         values = {}
-        for key in ("basis.amount", *US_FIELDS):
-            if key in US_FIELDS and not any(f.key == key for f in FIELDS):
-                continue
+        for key in (f.key for f in FIELDS if self._unit_key(f.key) in US_FIELDS):
             text = self.query_one("#" + field_id(key), Input).value.strip()
             try:
                 values[key] = self._get(key, text) if text else None
