@@ -38,7 +38,7 @@ from .water import T_MAX_C, T_MIN_C
 
 __all__ = ["COLUMN_NAMES", "normalise_columns", "ReplayState", "plan_rows",
            "ReplayTotals", "replay_report", "FLAGS", "FLATLINE_ROWS", "GAP_LIMIT_S",
-           "PartResult", "plan_part", "stitch", "head_length", "nominal_step", "HourSums"]
+           "PartResult", "plan_part", "as_numbers", "stitch", "head_length", "nominal_step", "HourSums"]
 
 #: Accepted spellings of each column (lower case, units in brackets ignored).
 COLUMN_NAMES = {
@@ -74,6 +74,9 @@ FLAGS = {
     "cannot_reach": "the aim cannot be reached with this reagent",
     "model_failed": "the ionic strength of this water did not settle (a brine?)",
 }
+#: Row flags are kept as small codes while planning (0: planned).
+_FLAG_NAMES = ("",) + tuple(FLAGS)
+_FLAG_CODE = {name: k for k, name in enumerate(_FLAG_NAMES)}
 
 
 def _key(name: str) -> str:
@@ -124,14 +127,14 @@ def plan_rows(frame: pd.DataFrame, scenario: Scenario, state: ReplayState) -> pd
     window) and ``flag`` ("" when planned). ``state`` carries the time step
     and the pH run from the rows before and is updated for the rows after.
     """
-    flag = np.full(len(frame), "", dtype=object)
+    flag = _no_flags(len(frame))
     t, dt = _time_steps(frame, state, flag)
     flow, ph, temp = _readings(frame, scenario, flag)
     _flatline(ph, state, flag)
     good_t = ~np.isnan(t)
     if good_t.any():
         state.last_ts = t[good_t][-1]
-    ok = flag == ""
+    ok = flag == 0
     dose = np.full(len(frame), np.nan)
     if ok.any():
         dose[ok] = _dose_for(scenario, ph[ok], temp[ok],
@@ -140,9 +143,14 @@ def plan_rows(frame: pd.DataFrame, scenario: Scenario, state: ReplayState) -> pd
     return _row_results(frame, scenario, flag, flow, ph, temp, dt, dose)
 
 
+def _no_flags(n: int) -> np.ndarray:
+    """A flag code per row, all 0 (planned): see :data:`_FLAG_NAMES`."""
+    return np.zeros(n, dtype=np.uint8)
+
+
 def _mark(flag: np.ndarray, mask: np.ndarray, name: str) -> None:
     """Flag the rows in ``mask`` not flagged already (the first reason wins)."""
-    flag[mask & (flag == "")] = name
+    flag[mask & (flag == 0)] = _FLAG_CODE[name]
 
 
 def _time_steps(frame: pd.DataFrame, state: ReplayState, flag: np.ndarray):
@@ -177,19 +185,30 @@ def _time_steps(frame: pd.DataFrame, state: ReplayState, flag: np.ndarray):
 
 def _readings(frame: pd.DataFrame, scenario: Scenario, flag: np.ndarray):
     """Flow [m3/h], pH and temperature [°C] as numbers, implausible ones flagged."""
-    flow = pd.to_numeric(frame["flow_m3_h"], errors="coerce").to_numpy(dtype=float)
-    ph = pd.to_numeric(frame["ph"], errors="coerce").to_numpy(dtype=float)
+    flow = as_numbers(frame["flow_m3_h"])
+    ph = as_numbers(frame["ph"])
     _mark(flag, np.isnan(flow), "flow_missing")
     _mark(flag, flow < 0, "flow_negative")
     _mark(flag, ~(flow <= FLOW_MAX_M3_H), "flow_implausible")
     _mark(flag, np.isnan(ph), "ph_missing")
     _mark(flag, (ph < 0) | (ph > 14), "ph_out_of_range")
     if "temperature_c" in frame:
-        temp = pd.to_numeric(frame["temperature_c"], errors="coerce").to_numpy(dtype=float)
+        temp = as_numbers(frame["temperature_c"])
     else:
         temp = np.full(len(frame), scenario.water.temperature_c)
     _mark(flag, ~((temp >= T_MIN_C) & (temp <= T_MAX_C)), "temperature_out_of_range")
     return flow, ph, temp
+
+
+def as_numbers(col) -> np.ndarray:
+    """A column as floats: a cell that is not a number becomes NaN (and a
+    column the reader took as true/false is not numbers at all)."""
+    col = pd.Series(col)
+    if col.dtype.kind in "iuf":
+        return col.to_numpy(dtype=float)
+    if col.dtype.kind == "b":
+        return np.full(len(col), np.nan)
+    return pd.to_numeric(col, errors="coerce").to_numpy(dtype=float)
 
 
 def _flatline(ph: np.ndarray, state: ReplayState, flag: np.ndarray) -> None:
@@ -207,7 +226,7 @@ def _flatline(ph: np.ndarray, state: ReplayState, flag: np.ndarray) -> None:
 
 def _row_results(frame, scenario: Scenario, flag, flow, ph, temp, dt, dose) -> pd.DataFrame:
     """The per-row output frame: dose, product per hour and per row, window."""
-    planned = flag == ""
+    planned = flag == 0
     r_ = scenario.reagent
     kg_mol = r_.kg_product_per_mol
     l_mol = r_.litres_product_per_mol
@@ -223,12 +242,47 @@ def _row_results(frame, scenario: Scenario, flag, flow, ph, temp, dt, dose) -> p
     out["litres"] = out["dose_l_h"] * dt / 3600.0
     t_ = scenario.target
     out["outside"] = ~np.isnan(ph) & ((ph < t_.ph_min) | (ph > t_.ph_max))
-    out["flag"] = flag
+    out["flag"] = pd.Categorical.from_codes(flag, categories=_FLAG_NAMES)
     return out
 
 
 def _dose_for(scenario: Scenario, ph, temp, alk, flag, ok) -> np.ndarray:
-    """Dose to the aim [mol/L] for rows that passed the data checks."""
+    """Dose to the aim [mol/L] for rows that passed the data checks.
+
+    Rows with the same pH, temperature (and alkalinity) are the same water:
+    each distinct one is solved once and its dose shared. Logged readings
+    are rounded (to 0.01 or 0.001 pH), so a year of minute rows holds a few
+    thousand distinct waters, not half a million.
+    """
+    a = as_numbers(alk) if alk is not None else None
+    first, inverse = distinct_rows([ph, temp] + ([a] if a is not None else []))
+    dose, why = _dose_distinct(scenario, ph[first], temp[first],
+                               a[first] if a is not None else None)
+    why = why[inverse]
+    hit = why != 0
+    flag[np.flatnonzero(ok)[hit]] = why[hit]
+    return dose[inverse]
+
+
+def distinct_rows(columns: list[np.ndarray]) -> tuple[np.ndarray, np.ndarray]:
+    """Rows that differ in at least one column: (index of each distinct
+    row's first appearance, which distinct row each row is). NaN equals NaN.
+
+    Hash-based, O(rows): each column is factorised and the codes combined.
+    """
+    code = np.zeros(len(columns[0]), dtype=np.int64)
+    for col in columns:
+        k, uniq = pd.factorize(col, use_na_sentinel=False)
+        code, _ = pd.factorize(code * len(uniq) + k)
+    # Codes number the distinct rows in order of first appearance, so a
+    # row is a first appearance exactly when its code beats all before it.
+    before = np.maximum.accumulate(np.concatenate([[-1], code]))[:-1]
+    new = code > before
+    return np.flatnonzero(new), code
+
+
+def _dose_distinct(scenario: Scenario, ph, temp, a) -> tuple[np.ndarray, np.ndarray]:
+    """Dose [mol/L] and flag code (0 when planned) for distinct waters."""
     w, reagent, target = scenario.water, scenario.reagent, scenario.target
     m = ph.size
     # Each row's water as sampled: the scenario's solutes and metals.
@@ -236,10 +290,8 @@ def _dose_for(scenario: Scenario, ph, temp, alk, flag, ok) -> np.ndarray:
                            (m, N_SYSTEMS)).copy()
     pka = w.unknown_pka
     extra = w.known_ionic_strength
-    positions = np.flatnonzero(ok)
     bad = np.zeros(m, dtype=bool)
-    if alk is not None:
-        a = pd.to_numeric(pd.Series(alk), errors="coerce").to_numpy(dtype=float)
+    if a is not None:
         bad |= ~(a >= 0) | ~(a <= MEASURED_MAX_MG_L)
         a_eq = np.where(bad, 0.0, a) / CACO3_MG_PER_MEQ / 1000.0
         carb, coef, _ = carbonate_for_alkalinity(base, ph, temp, a_eq, ALKALINITY_ENDPOINT_PH,
@@ -266,12 +318,13 @@ def _dose_for(scenario: Scenario, ph, temp, alk, flag, ok) -> np.ndarray:
     no_grip = ~has_grip(reagent, dose, grip) | limit
     wrong = ~no_grip & (dose < 0) & ~inside
     dose = np.where(~no_grip & (dose < 0) & inside, 0.0, dose)
-    flag[positions[bad]] = "alkalinity_bad"
-    flag[positions[unsettled]] = "model_failed"
+    why = _no_flags(m)
+    why[bad] = _FLAG_CODE["alkalinity_bad"]
+    why[unsettled] = _FLAG_CODE["model_failed"]
     bad = bad | unsettled
-    flag[positions[~bad & no_grip]] = "cannot_reach"
-    flag[positions[~bad & ~no_grip & wrong]] = "wrong_direction"
-    return np.where(bad | no_grip | wrong, np.nan, dose)
+    why[~bad & no_grip] = _FLAG_CODE["cannot_reach"]
+    why[~bad & ~no_grip & wrong] = _FLAG_CODE["wrong_direction"]
+    return np.where(bad | no_grip | wrong, np.nan, dose), why
 
 
 def _calcite_where_fast(mix: Mixture, reagent, aim: float, dose: np.ndarray) -> np.ndarray:
@@ -347,48 +400,66 @@ class ReplayTotals:
     def add(self, rows: pd.DataFrame) -> None:
         """Add one chunk of :func:`plan_rows` output."""
         self.rows += len(rows)
-        ok = (rows["flag"] == "").to_numpy()
+        codes = rows["flag"].cat.codes.to_numpy()
+        ok = codes == 0
         self.planned += int(ok.sum())
-        self.flags.update(rows.loc[~ok, "flag"].tolist())
+        counts = np.bincount(codes[~ok], minlength=len(_FLAG_NAMES))
+        self.flags.update({_FLAG_NAMES[k]: int(c) for k, c in enumerate(counts) if k and c})
         dt = rows["dt_s"].to_numpy()
         self.seconds += float(dt.sum())
         self.seconds_outside += float(dt[rows["outside"].to_numpy()].sum())
         rate_col = "dose_kg_h" if self.rate_unit == "kg/h" else "dose_l_h"
-        rate = rows[rate_col].to_numpy()[ok]
-        rate = rate[np.isfinite(rate)]
+        rate_all = rows[rate_col].to_numpy()
         self.seconds_planned += float(dt[ok].sum())
         self.kg += float(np.nansum(rows["kg"].to_numpy()[ok]))
         self.litres += float(np.nansum(rows["litres"].to_numpy()[ok]))
+        self._add_rates(rate_all[ok])
+        ts = rows["timestamp"].to_numpy(dtype="datetime64[ns]")
+        valid = ~np.isnat(ts)
+        if valid.any():
+            tv = ts[valid]
+            # Earliest and latest, whatever the order of the rows.
+            lo, hi = pd.Timestamp(tv.min()), pd.Timestamp(tv.max())
+            self.first = lo if self.first is None else min(self.first, lo)
+            self.last = hi if self.last is None else max(self.last, hi)
+        self._add_days(ts[ok & valid], rows["kg"].to_numpy()[ok & valid],
+                       rows["litres"].to_numpy()[ok & valid])
+        if self.keep_hourly and valid.any():
+            self._add_hours(ts[valid], rows["ph"].to_numpy()[valid], rate_all[valid])
+
+    def _add_rates(self, rate: np.ndarray) -> None:
+        """Sum, maximum and histogram of the planned rows' dose rates."""
+        rate = rate[np.isfinite(rate)]
         if rate.size:
             self.rate_sum += float(rate.sum())
             self.rate_max = max(self.rate_max, float(rate.max()))
             idx = np.searchsorted(_EDGES, rate, side="right") - 1
             idx[rate <= 0] = 0
-            np.add.at(self.hist, np.clip(idx, 0, _EDGES.size - 1), 1)
-        ts = pd.to_datetime(rows["timestamp"])
-        valid = ts.notna().to_numpy()
-        if valid.any():
-            tv = ts[valid]
-            # Earliest and latest, whatever the order of the rows.
-            self.first = tv.min() if self.first is None else min(self.first, tv.min())
-            self.last = tv.max() if self.last is None else max(self.last, tv.max())
-        planned = rows[ok & valid]
-        if len(planned):
-            day = pd.to_datetime(planned["timestamp"]).dt.strftime("%Y-%m-%d")
-            for d, v in planned.groupby(day.to_numpy())["kg"].sum().items():
-                self.daily_kg[d] = self.daily_kg.get(d, 0.0) + float(v)
-            for d, v in planned.groupby(day.to_numpy())["litres"].sum().items():
-                self.daily_l[d] = self.daily_l.get(d, 0.0) + float(v)
-        both = rows[valid] if self.keep_hourly else rows.iloc[:0]
-        if len(both):
-            hour = pd.to_datetime(both["timestamp"]).dt.floor("h")
-            g = both.assign(_h=hour.to_numpy()).groupby("_h")
-            agg = pd.DataFrame({"ph_sum": g["ph"].sum(), "ph_n": g["ph"].count(),
-                                "rate_sum": g[rate_col].sum(),
-                                "rate_n": g[rate_col].count()})
-            for h, row in agg.iterrows():
-                self.hourly[h] = self.hourly.get(h, HourSums()) + HourSums(
-                    float(row.ph_sum), int(row.ph_n), float(row.rate_sum), int(row.rate_n))
+            self.hist += np.bincount(np.clip(idx, 0, _EDGES.size - 1), minlength=_EDGES.size)
+
+    def _add_hours(self, ts: np.ndarray, ph: np.ndarray, rate: np.ndarray) -> None:
+        """Sums and counts per clock hour of the raw pH and the dose rate
+        (readings that are not numbers left out)."""
+        hours, which = np.unique(ts.astype("datetime64[h]"), return_inverse=True)
+
+        def sum_count(x):
+            have = ~np.isnan(x)
+            return (np.bincount(which[have], weights=x[have], minlength=hours.size).tolist(),
+                    np.bincount(which[have], minlength=hours.size).tolist())
+        (ph_s, ph_n), (r_s, r_n) = sum_count(ph), sum_count(rate)
+        for k, h in enumerate(pd.DatetimeIndex(hours.astype("datetime64[ns]"))):
+            self.hourly[h] = self.hourly.get(h, HourSums()) + HourSums(
+                ph_s[k], ph_n[k], r_s[k], r_n[k])
+
+    def _add_days(self, ts: np.ndarray, kg: np.ndarray, litres: np.ndarray) -> None:
+        """Product per calendar day (``YYYY-MM-DD``) of planned rows."""
+        if not ts.size:
+            return
+        days, which = np.unique(ts.astype("datetime64[D]"), return_inverse=True)
+        for book, vals in ((self.daily_kg, kg), (self.daily_l, litres)):
+            sums = np.bincount(which, weights=np.nan_to_num(vals), minlength=days.size)
+            for d, v in zip(np.datetime_as_string(days), sums.tolist()):
+                book[d] = book.get(d, 0.0) + v
 
     def merge(self, other: "ReplayTotals") -> None:
         """Add another part's totals (parts of one site, in any order)."""
@@ -431,7 +502,7 @@ def nominal_step(frame: pd.DataFrame) -> float:
     (60 s when that chunk has no step), as :func:`plan_rows` finds it."""
     state = ReplayState()
     frame = frame.reset_index(drop=True)
-    _time_steps(frame, state, np.full(len(frame), "", dtype=object))
+    _time_steps(frame, state, _no_flags(len(frame)))
     return state.nominal_s
 
 

@@ -17,7 +17,8 @@ from typing import Callable, Iterator, Sequence
 import pandas as pd
 
 from .errors import ScenarioError
-from .replay import ReplayState, ReplayTotals, normalise_columns, plan_rows, replay_report
+from .replay import (ReplayState, ReplayTotals, as_numbers, normalise_columns, plan_rows,
+                     replay_report)
 from .scenario import Scenario
 
 __all__ = ["iter_chunks", "iter_site_chunks", "run_replay", "site_files", "Part",
@@ -32,11 +33,32 @@ def _parse_times(col: pd.Series) -> pd.Series:
     The rule for zones: a timestamp with a UTC offset (``+01:00``, ``Z``) is
     converted to UTC; one without is taken as written. So a file that mixes
     offsets (a logger that changed zone, summer time) reads on one clock.
+    ISO 8601 text is read by pandas' fast vectorised parser; only what that
+    leaves unread goes through the slower any-format one.
     """
+    col = _as_text(col)
+    out = _naive_times(col, "ISO8601")
+    missed = (out.isna() & col.notna()).to_numpy()
+    if missed.any():
+        out = out.copy()
+        out[missed] = _naive_times(col[missed], "mixed")
+    return out
+
+
+def _as_text(col: pd.Series) -> pd.Series:
+    """A time column the CSV reader took as numbers (``20250101``, or all
+    empty) back as the text it was written as."""
+    if col.dtype.kind not in "iuf":
+        return col
+    return pd.Series([None if v != v else str(int(v)) if float(v).is_integer() else repr(v)
+                      for v in col.tolist()], index=col.index, dtype=object)
+
+
+def _naive_times(col: pd.Series, fmt: str) -> pd.Series:
     try:
-        out = pd.to_datetime(col, errors="coerce", utc=False, format="mixed")
+        out = pd.to_datetime(col, errors="coerce", utc=False, format=fmt)
     except ValueError:                      # offsets differ between rows
-        out = pd.to_datetime(col, errors="coerce", utc=True, format="mixed")
+        out = pd.to_datetime(col, errors="coerce", utc=True, format=fmt)
     if getattr(out.dt, "tz", None) is not None:
         out = out.dt.tz_convert("UTC").dt.tz_localize(None)
     return out
@@ -51,14 +73,15 @@ def iter_chunks(path: str, chunk_rows: int = CHUNK_ROWS) -> Iterator[pd.DataFram
         yield from _parquet_chunks(path, chunk_rows)
         return
     with _csv_errors(path):
+        mapping = normalise_columns(list(pd.read_csv(path, nrows=0, skipinitialspace=True)
+                                         .columns), path)
+        # Numbers are parsed by the C reader (a cell it cannot read leaves
+        # its column as text, coerced row by row later); asking for text
+        # columns by name would make the reader four times slower.
         # The reader is closed even when the caller stops early.
-        with pd.read_csv(path, chunksize=chunk_rows, dtype=str,
-                         skipinitialspace=True) as reader:
+        with pd.read_csv(path, chunksize=chunk_rows, skipinitialspace=True) as reader:
             first = True
-            mapping = None
             for raw in reader:
-                if mapping is None:
-                    mapping = normalise_columns(list(raw.columns), path)
                 yield _our_frame(raw, mapping, first)
                 first = False
 
@@ -89,7 +112,15 @@ def _our_frame(raw: pd.DataFrame, mapping: dict[str, str], first: bool) -> pd.Da
         if (pd.isna(_parse_times(pd.Series([row["timestamp"]])).iloc[0])
                 and pd.isna(pd.to_numeric(pd.Series([row["ph"]]), errors="coerce").iloc[0])):
             frame = frame.iloc[1:]
-    frame["timestamp"] = _parse_times(frame["timestamp"])
+    return _typed(frame)
+
+
+def _typed(frame: pd.DataFrame) -> pd.DataFrame:
+    """Timestamps parsed and every other column as floats (NaN where a cell
+    is not a number), so each chunk and part has the same column types."""
+    for col in frame.columns:
+        frame[col] = (_parse_times(frame[col]) if col == "timestamp"
+                      else as_numbers(frame[col]))
     return frame
 
 
@@ -185,8 +216,9 @@ def read_part(part: Part) -> pd.DataFrame:
             if data and not data.endswith(b"\n"):
                 data += fh.readline()           # finish the last line begun here
     with _csv_errors(part.path):
-        raw = pd.read_csv(io.BytesIO(part.header + data), dtype=str, skipinitialspace=True)
-        mapping = normalise_columns(list(raw.columns), part.path)
+        mapping = normalise_columns(list(pd.read_csv(io.BytesIO(part.header), nrows=0,
+                                                     skipinitialspace=True).columns), part.path)
+        raw = pd.read_csv(io.BytesIO(part.header + data), skipinitialspace=True)
         return _our_frame(raw, mapping, part.start == len(part.header))
 
 
@@ -200,9 +232,7 @@ def _read_row_group(part: Part) -> pd.DataFrame:
 
 
 def _our_parquet_frame(table, mapping: dict[str, str]) -> pd.DataFrame:
-    frame = table.to_pandas().rename(columns={v: k for k, v in mapping.items()})
-    frame["timestamp"] = _parse_times(frame["timestamp"])
-    return frame
+    return _typed(table.to_pandas().rename(columns={v: k for k, v in mapping.items()}))
 
 
 @contextlib.contextmanager
