@@ -272,6 +272,8 @@ def distinct_rows(columns: list[np.ndarray]) -> tuple[np.ndarray, np.ndarray]:
     """
     code = np.zeros(len(columns[0]), dtype=np.int64)
     for col in columns:
+        if col.size and (col == col[0]).all():
+            continue                    # one value (the scenario's temperature, say)
         k, uniq = pd.factorize(col, use_na_sentinel=False)
         code, _ = pd.factorize(code * len(uniq) + k)
     # Codes number the distinct rows in order of first appearance, so a
@@ -349,6 +351,35 @@ def _calcite_where_fast(mix: Mixture, reagent, aim: float, dose: np.ndarray) -> 
 # Histogram of dose rates for percentiles with constant memory: a zero bin
 # and 100 bins per decade from 1e-6 to 1e6 (2.3 % wide).
 _EDGES = np.concatenate([[0.0], np.logspace(-6, 6, 1201)])
+
+
+def _calendar_groups(ts: np.ndarray, unit: str) -> tuple[np.ndarray, np.ndarray]:
+    """The days or hours (``unit`` "D" or "h") the valid times fall in, in
+    order, and which of them each time is in; without sorting when they
+    span a short stretch, as a chunk of a log does."""
+    k = ts.astype(f"datetime64[{unit}]").astype(np.int64)
+    lo, hi = int(k.min()), int(k.max())
+    if hi - lo >= 4 * k.size + 1024:
+        keys, which = np.unique(k, return_inverse=True)
+    else:
+        present = np.bincount(k - lo, minlength=hi - lo + 1) > 0
+        keys = np.flatnonzero(present) + lo
+        which = (np.cumsum(present) - 1)[k - lo]
+    return keys.astype(f"datetime64[{unit}]"), which
+
+
+def _bin_of(rate: np.ndarray) -> np.ndarray:
+    """Histogram bin of each finite rate: as ``searchsorted(_EDGES, rate,
+    side="right") - 1`` (0 for rates at or below zero), found from the
+    logarithm and then put right against the edges themselves."""
+    with np.errstate(divide="ignore", invalid="ignore"):
+        guess = np.floor((np.log10(rate) + 6.0) * 100.0)
+    idx = np.clip(np.nan_to_num(guess, nan=-1.0, neginf=-1.0), -1, _EDGES.size - 2)
+    idx = idx.astype(np.int64) + 1
+    idx -= rate < _EDGES[idx]
+    idx += (idx < _EDGES.size - 1) & (rate >= _EDGES[np.minimum(idx + 1, _EDGES.size - 1)])
+    idx[rate <= 0] = 0
+    return idx
 
 
 @dataclass(frozen=True)
@@ -433,14 +464,12 @@ class ReplayTotals:
         if rate.size:
             self.rate_sum += float(rate.sum())
             self.rate_max = max(self.rate_max, float(rate.max()))
-            idx = np.searchsorted(_EDGES, rate, side="right") - 1
-            idx[rate <= 0] = 0
-            self.hist += np.bincount(np.clip(idx, 0, _EDGES.size - 1), minlength=_EDGES.size)
+            self.hist += np.bincount(_bin_of(rate), minlength=_EDGES.size)
 
     def _add_hours(self, ts: np.ndarray, ph: np.ndarray, rate: np.ndarray) -> None:
         """Sums and counts per clock hour of the raw pH and the dose rate
         (readings that are not numbers left out)."""
-        hours, which = np.unique(ts.astype("datetime64[h]"), return_inverse=True)
+        hours, which = _calendar_groups(ts, "h")
 
         def sum_count(x):
             have = ~np.isnan(x)
@@ -455,7 +484,7 @@ class ReplayTotals:
         """Product per calendar day (``YYYY-MM-DD``) of planned rows."""
         if not ts.size:
             return
-        days, which = np.unique(ts.astype("datetime64[D]"), return_inverse=True)
+        days, which = _calendar_groups(ts, "D")
         for book, vals in ((self.daily_kg, kg), (self.daily_l, litres)):
             sums = np.bincount(which, weights=np.nan_to_num(vals), minlength=days.size)
             for d, v in zip(np.datetime_as_string(days), sums.tolist()):

@@ -37,12 +37,31 @@ def _parse_times(col: pd.Series) -> pd.Series:
     leaves unread goes through the slower any-format one.
     """
     col = _as_text(col)
+    fast = _arrow_times(col)
+    if fast is not None:
+        return fast
     out = _naive_times(col, "ISO8601")
     missed = (out.isna() & col.notna()).to_numpy()
     if missed.any():
         out = out.copy()
         out[missed] = _naive_times(col[missed], "mixed")
     return out
+
+
+def _arrow_times(col: pd.Series) -> pd.Series | None:
+    """The common case, fast: text held by Arrow (pandas' own string type
+    when pyarrow is installed) that is all plain ISO 8601 without a UTC
+    offset, cast by Arrow in one pass. None when any cell is anything else
+    (an offset, another format, junk), for the general parser to handle."""
+    if getattr(col.dtype, "storage", None) != "pyarrow":
+        return None
+    import pyarrow as pa
+    try:
+        out = pa.array(col.array).cast(pa.timestamp("us"))
+    except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
+        return None
+    return pd.Series(out.to_numpy(zero_copy_only=False), index=col.index,
+                     dtype="datetime64[us]")
 
 
 def _as_text(col: pd.Series) -> pd.Series:
@@ -154,6 +173,26 @@ def iter_site_chunks(paths: Sequence[str], chunk_rows: int = CHUNK_ROWS):
     """Chunks of several files read as one record, in the order given."""
     for path in paths:
         yield from iter_chunks(path, chunk_rows)
+
+
+def read_ahead(chunks: Iterator[pd.DataFrame]) -> Iterator[pd.DataFrame]:
+    """The same chunks, the next one read in a second thread while the
+    caller plans this one (the CSV reader lets go of the interpreter lock
+    while it parses). Reading errors surface where they would have."""
+    from concurrent.futures import ThreadPoolExecutor
+    done = object()
+    with ThreadPoolExecutor(1, thread_name_prefix="dosing-read") as pool:
+        try:
+            ahead = pool.submit(next, chunks, done)
+            while (chunk := ahead.result()) is not done:
+                ahead = pool.submit(next, chunks, done)
+                yield chunk
+        finally:
+            ahead.cancel()
+            pool.shutdown(wait=True)
+            closer = getattr(chunks, "close", None)
+            if closer is not None:
+                closer()
 
 
 # ------------------------------------------------------------ parts --
@@ -286,7 +325,7 @@ def run_replay(paths: str | Sequence[str], scenario: Scenario, *,
         for line in tuple(scenario.reagent.cautions) + (GENERAL_CAUTION,):
             rows_out.write(f"# {line}\n")
     paths = [paths] if isinstance(paths, str) else list(paths)
-    for chunk in iter_site_chunks(paths, chunk_rows):
+    for chunk in read_ahead(iter_site_chunks(paths, chunk_rows)):
         rows = plan_rows(chunk.reset_index(drop=True), scenario, state)
         totals.add(rows)
         if rows_out is not None:
