@@ -108,6 +108,9 @@ class ReplayState:
     last_ph: float = math.nan
     run: int = 0
     nominal_s: float | None = None
+    #: Waters solved so far in this record: (pH, temperature[, alkalinity])
+    #: -> (dose [mol/L], flag code); a few thousand for a rounded log.
+    solved: dict = field(default_factory=dict, repr=False)
 
 
 def _seconds(ts: pd.Series) -> np.ndarray:
@@ -139,7 +142,8 @@ def plan_rows(frame: pd.DataFrame, scenario: Scenario, state: ReplayState) -> pd
     if ok.any():
         dose[ok] = _dose_for(scenario, ph[ok], temp[ok],
                              frame["alkalinity_mg_l_as_caco3"].to_numpy()[ok]
-                             if "alkalinity_mg_l_as_caco3" in frame else None, flag, ok)
+                             if "alkalinity_mg_l_as_caco3" in frame else None, flag, ok,
+                             state.solved)
     return _row_results(frame, scenario, flag, flow, ph, temp, dt, dose)
 
 
@@ -246,22 +250,39 @@ def _row_results(frame, scenario: Scenario, flag, flow, ph, temp, dt, dose) -> p
     return out
 
 
-def _dose_for(scenario: Scenario, ph, temp, alk, flag, ok) -> np.ndarray:
+def _dose_for(scenario: Scenario, ph, temp, alk, flag, ok, solved: dict) -> np.ndarray:
     """Dose to the aim [mol/L] for rows that passed the data checks.
 
     Rows with the same pH, temperature (and alkalinity) are the same water:
-    each distinct one is solved once and its dose shared. Logged readings
-    are rounded (to 0.01 or 0.001 pH), so a year of minute rows holds a few
-    thousand distinct waters, not half a million.
+    each distinct one is solved once and its dose shared, and ``solved``
+    keeps them for the chunks after. Logged readings are rounded (to 0.01
+    or 0.001 pH), so a year of minute rows holds a few thousand distinct
+    waters, not half a million.
     """
     a = as_numbers(alk) if alk is not None else None
-    first, inverse = distinct_rows([ph, temp] + ([a] if a is not None else []))
-    dose, why = _dose_distinct(scenario, ph[first], temp[first],
-                               a[first] if a is not None else None)
+    cols = [ph, temp] + ([a] if a is not None else [])
+    first, inverse = distinct_rows(cols)
+    keys = list(zip(*(c[first].tolist() for c in cols)))
+    known = [solved.get(k) for k in keys]
+    new = np.array([v is None for v in known], dtype=bool)
+    dose = np.array([v[0] if v is not None else np.nan for v in known])
+    why = np.array([v[1] if v is not None else 0 for v in known], dtype=np.uint8)
+    if new.any():
+        fresh = first[new]
+        dose[new], why[new] = _dose_distinct(scenario, ph[fresh], temp[fresh],
+                                             a[fresh] if a is not None else None)
+        if len(solved) > _SOLVED_MAX:
+            solved.clear()
+        solved.update(zip((k for k, n in zip(keys, new) if n),
+                          zip(dose[new].tolist(), why[new].tolist())))
     why = why[inverse]
     hit = why != 0
     flag[np.flatnonzero(ok)[hit]] = why[hit]
     return dose[inverse]
+
+
+#: Distinct waters kept between chunks (past this the memory is started afresh).
+_SOLVED_MAX = 200_000
 
 
 def distinct_rows(columns: list[np.ndarray]) -> tuple[np.ndarray, np.ndarray]:

@@ -10,6 +10,7 @@ from __future__ import annotations
 import contextlib
 import glob
 import io
+import re
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Callable, Iterator, Sequence
@@ -84,39 +85,57 @@ def _naive_times(col: pd.Series, fmt: str) -> pd.Series:
 
 
 def iter_chunks(path: str, chunk_rows: int = CHUNK_ROWS) -> Iterator[pd.DataFrame]:
-    """Chunks of the file with our column names; a units row is skipped."""
+    """Chunks of about ``chunk_rows`` rows of the file, with our column
+    names; a units row is skipped.
+
+    A CSV file is cut into byte ranges of about that many lines (the same
+    parts a fleet replay hands its workers) and each is parsed whole: the C
+    reader is about twice as fast that way as in its own chunked mode.
+    """
     p = Path(path)
     if not p.is_file():
         raise ScenarioError(path, "", "no such file")
     if p.suffix.lower() in PARQUET_SUFFIXES:
         yield from _parquet_chunks(path, chunk_rows)
         return
-    with _csv_errors(path):
-        mapping = normalise_columns(list(pd.read_csv(path, nrows=0, skipinitialspace=True)
-                                         .columns), path)
-        # Numbers are parsed by the C reader (a cell it cannot read leaves
-        # its column as text, coerced row by row later); asking for text
-        # columns by name would make the reader four times slower.
-        # The reader is closed even when the caller stops early.
-        with pd.read_csv(path, chunksize=chunk_rows, skipinitialspace=True) as reader:
-            first = True
-            for raw in reader:
-                yield _our_frame(raw, mapping, first)
-                first = False
+    line = 2                                    # the file line a part starts on
+    for part in file_parts(path, _bytes_for_rows(path, chunk_rows)):
+        data = _part_data(part)
+        yield _parse_part(part, data, line)
+        line += data.count(b"\n")
+
+
+def _bytes_for_rows(path: str, rows: int) -> int:
+    """Bytes that hold about ``rows`` lines of the file (from the lines in
+    its first 64 KiB)."""
+    with open(path, "rb") as fh:
+        sample = fh.read(65536)
+    per_line = len(sample) / max(sample.count(b"\n"), 1)
+    return max(int(rows * per_line), 1024)
 
 
 PARQUET_SUFFIXES = (".parquet", ".pq")
 
 
 @contextlib.contextmanager
-def _csv_errors(path: str):
-    """pandas' reading errors as one line naming the file."""
+def _csv_errors(path: str, where: Callable[[int], int] | None = None, start: int = 0):
+    """pandas' reading errors as one line naming the file.
+
+    The reader numbers lines from the start of what it was given; ``where``
+    turns that into the file's line number, or, when it is None and the
+    text began ``start`` bytes into the file, the message says so.
+    """
     try:
         yield
     except pd.errors.EmptyDataError:
         raise ScenarioError(path, "", "the file is empty") from None
     except (pd.errors.ParserError, UnicodeDecodeError) as err:
         why = " ".join(str(err).split())[:160]
+        if where is not None:
+            why = re.sub(r"line (\d+)", lambda m: f"line {where(int(m.group(1)))}", why)
+        elif start:
+            why = re.sub(r"line (\d+)", lambda m: f"line {m.group(1)} of the part from byte "
+                         f"{start}", why)
         raise ScenarioError(path, "", f"not a readable CSV file ({why}); every line needs the "
                             "header's fields, no more") from None
 
@@ -175,26 +194,6 @@ def iter_site_chunks(paths: Sequence[str], chunk_rows: int = CHUNK_ROWS):
         yield from iter_chunks(path, chunk_rows)
 
 
-def read_ahead(chunks: Iterator[pd.DataFrame]) -> Iterator[pd.DataFrame]:
-    """The same chunks, the next one read in a second thread while the
-    caller plans this one (the CSV reader lets go of the interpreter lock
-    while it parses). Reading errors surface where they would have."""
-    from concurrent.futures import ThreadPoolExecutor
-    done = object()
-    with ThreadPoolExecutor(1, thread_name_prefix="dosing-read") as pool:
-        try:
-            ahead = pool.submit(next, chunks, done)
-            while (chunk := ahead.result()) is not done:
-                ahead = pool.submit(next, chunks, done)
-                yield chunk
-        finally:
-            ahead.cancel()
-            pool.shutdown(wait=True)
-            closer = getattr(chunks, "close", None)
-            if closer is not None:
-                closer()
-
-
 # ------------------------------------------------------------ parts --
 #: Default size of one part of a CSV file for a parallel replay [bytes].
 PART_BYTES = 16 * 2**20
@@ -244,6 +243,11 @@ def read_part(part: Part) -> pd.DataFrame:
     only ever in the first part of a file)."""
     if part.row_group >= 0:
         return _read_row_group(part)
+    return _parse_part(part, _part_data(part), None)
+
+
+def _part_data(part: Part) -> bytes:
+    """The bytes of the lines that begin in the part."""
     with open(part.path, "rb") as fh:
         fh.seek(part.start - 1)
         if fh.read(1) != b"\n":
@@ -254,7 +258,15 @@ def read_part(part: Part) -> pd.DataFrame:
             data = fh.read(part.end - pos)
             if data and not data.endswith(b"\n"):
                 data += fh.readline()           # finish the last line begun here
-    with _csv_errors(part.path):
+    return data
+
+
+def _parse_part(part: Part, data: bytes, line: int | None) -> pd.DataFrame:
+    """A part's lines as our frame. ``line`` is the file line the part
+    starts on, so that an error names the line of the file (None when not
+    known: the error then names the line counted from the part's start)."""
+    where = (lambda k: k + line - 2) if line is not None else None
+    with _csv_errors(part.path, where, part.start):
         mapping = normalise_columns(list(pd.read_csv(io.BytesIO(part.header), nrows=0,
                                                      skipinitialspace=True).columns), part.path)
         raw = pd.read_csv(io.BytesIO(part.header + data), skipinitialspace=True)
@@ -325,7 +337,7 @@ def run_replay(paths: str | Sequence[str], scenario: Scenario, *,
         for line in tuple(scenario.reagent.cautions) + (GENERAL_CAUTION,):
             rows_out.write(f"# {line}\n")
     paths = [paths] if isinstance(paths, str) else list(paths)
-    for chunk in read_ahead(iter_site_chunks(paths, chunk_rows)):
+    for chunk in iter_site_chunks(paths, chunk_rows):
         rows = plan_rows(chunk.reset_index(drop=True), scenario, state)
         totals.add(rows)
         if rows_out is not None:

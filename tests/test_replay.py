@@ -207,3 +207,82 @@ def test_replay_of_a_metal_water_matches_the_single_water_planner(tmp_path):
                         oxidise_ferrous=True)
         plan = plan_dose(w, s.reagent, s.target, s.basis)
         assert row.dose_mmol_l == pytest.approx(plan.dose_mol_l * 1000, rel=1e-5)
+
+
+# ------------------------------------------- distinct waters, fast paths --
+# The replay solves each distinct (pH, temperature, alkalinity) once and keeps
+# it for later chunks; these check the shortcuts against the plain way.
+
+from hypothesis import given, settings  # noqa: E402
+from hypothesis import strategies as st  # noqa: E402
+from hypothesis.extra.numpy import arrays  # noqa: E402
+
+from dosing import replay as replay_mod  # noqa: E402
+from dosing.replay_io import iter_site_chunks  # noqa: E402
+
+
+def test_rows_sharing_a_water_get_the_dose_it_gets_alone(tmp_path):
+    # 3,000 rows over 80 distinct waters, read in chunks of about 500 rows so
+    # that later chunks take their doses from the waters kept from before.
+    rng = np.random.default_rng(3)
+    n = 3000
+    ph = rng.choice(np.round(np.linspace(9.0, 11.0, 20), 2), n)
+    temp = rng.choice([25.0, 31.5], n)
+    alk = rng.choice([150.0, 151.0], n)
+    ts = pd.Timestamp("2026-01-01") + pd.to_timedelta(np.arange(n), unit="min")
+    f = tmp_path / "rep.csv"
+    pd.DataFrame({"timestamp": ts.strftime("%Y-%m-%d %H:%M"), "flow_m3_h": 10.0, "ph": ph,
+                  "temperature_c": temp, "alkalinity": alk}).to_csv(f, index=False)
+    s = load_scenario(SCEN)
+    state = replay_mod.ReplayState()
+    chunks = list(iter_site_chunks([str(f)], 500))
+    assert len(chunks) >= 5
+    rows = pd.concat([replay_mod.plan_rows(c.reset_index(drop=True), s, state)
+                      for c in chunks], ignore_index=True)
+    assert len(state.solved) == 20 * 2 * 2
+    alone, why = replay_mod._dose_distinct(s, ph, temp, alk)    # every row solved by itself
+    assert (why == 0).all() and (rows["flag"] == "").all()
+    np.testing.assert_allclose(rows["dose_mmol_l"], alone * 1000.0, rtol=1e-12)
+
+
+@settings(max_examples=60, deadline=None, derandomize=True)
+@given(arrays(np.float64, st.integers(0, 60), elements=st.sampled_from([1.0, 2.0, np.nan, -0.0])),
+       st.integers(0, 3))
+def test_distinct_rows_finds_each_distinct_row_once(col, seed):
+    other = np.random.default_rng(seed).choice([5.0, 6.0], col.size)
+    first, which = replay_mod.distinct_rows([col, other])
+    key = [(None if np.isnan(a) else a, b) for a, b in zip(col.tolist(), other.tolist())]
+    # first appearances, in order, and every row pointing at its own kind
+    expect_first = [k for k in range(len(key)) if key[k] not in key[:k]]
+    assert first.tolist() == expect_first
+    assert all(key[first[w]] == key[k] for k, w in enumerate(which.tolist()))
+
+
+@settings(max_examples=100, deadline=None, derandomize=True)
+@given(arrays(np.float64, st.integers(1, 50),
+              elements=st.floats(-1.0, 1e9, allow_nan=False, allow_infinity=False)))
+def test_histogram_bins_match_a_search_of_the_edges(rate):
+    edges = replay_mod._EDGES
+    rate = np.concatenate([rate, edges, np.nextafter(edges, -1.0)])
+    expect = np.clip(np.searchsorted(edges, rate, side="right") - 1, 0, edges.size - 1)
+    expect[rate <= 0] = 0
+    assert (replay_mod._bin_of(rate) == expect).all()
+
+
+@settings(max_examples=60, deadline=None, derandomize=True)
+@given(st.lists(st.integers(0, 10 ** 11), min_size=1, max_size=40), st.sampled_from(["D", "h"]))
+def test_calendar_groups_match_a_sort(seconds, unit):
+    ts = np.datetime64("2020-01-01T00:00:00", "ns") + np.array(seconds).astype("timedelta64[s]")
+    keys, which = replay_mod._calendar_groups(ts, unit)
+    expect_keys, expect_which = np.unique(ts.astype(f"datetime64[{unit}]"), return_inverse=True)
+    assert (keys == expect_keys).all() and (which == expect_which).all()
+
+
+def test_a_bad_line_deep_in_the_file_is_named_by_its_file_line(tmp_path):
+    lines = ["timestamp,flow,ph"] + [f"2026-01-01T{k // 60:02d}:{k % 60:02d},5,9" for k in range(1200)]
+    lines[1000] += ",99"                     # file line 1001
+    f = tmp_path / "deep.csv"
+    f.write_text("\n".join(lines) + "\n")
+    r = cli("replay", str(f), "--scenario", str(SCEN), "--chunk-rows", "1000")
+    assert r.returncode == 2
+    assert "line 1001," in r.stderr and len(r.stderr.strip().splitlines()) == 1
