@@ -414,11 +414,12 @@ def _restrict(mix: Mixture, extra_cols=(), *, cap: bool = True) -> _Rows:
                  mix.davies, cols, const.log_ks0, _SOLID_Z[cols], cap, ca, log_kc)
 
 
-def _species(r: _Rows, ah, ionic):
+def _species(r: _Rows, ah, ionic, *, m2: bool = True):
     """Fractions and charge moments of the view's systems, [H+] and [OH-].
 
     Returns (alpha (n, mc, 5), mean charge (n, mc), mean squared charge
-    (n, mc), [H+] (n,), [OH-] (n,), solubility (n, mc) or None, calcite
+    (n, mc; None when ``m2`` is false: only the ionic strength needs it),
+    [H+] (n,), [OH-] (n,), solubility (n, mc) or None, calcite
     product (n,) or None) at activity ``ah`` and ionic strength ``ionic``
     (mixed constants from the Davies equation, or ideal). The solubility is
     the dissolved total each column's hydroxide allows, [Me z+]/alpha_0
@@ -445,7 +446,7 @@ def _species(r: _Rows, ah, ionic):
         kp = np.ascontiguousarray(np.moveaxis(r.k, -1, 0))
     alpha = _alpha(ah, kp)
     q = np.einsum("nmk,mk->nm", alpha, r.z)
-    m2 = np.einsum("nmk,mk->nm", alpha, z2)
+    m2 = np.einsum("nmk,mk->nm", alpha, z2) if m2 else None
     sol = None
     if r.has_solids:
         log_free = r.log_ks0 + r.zs[None, :] * np.log10(ah)[:, None]
@@ -927,7 +928,7 @@ class _DoseJob:
         solubility at the target before any dose (most waters keep it).
         """
         rows, mix, v = self.rows, self.mix, self.reagent.volume_l
-        alpha, q, m2, h, oh, sol, kcal = _species(rows, self.ah, ionic)
+        alpha, q, m2, h, oh, sol, kcal = _species(rows, self.ah, ionic, m2=mix.davies)
         if capped is None:
             capped = (np.zeros(rows.totals.shape, dtype=bool) if sol is None
                       else self.capped_after(np.zeros(mix.n), sol))
