@@ -5,7 +5,10 @@
    with a nested brentq for the pH (ideal model).
 2. A year of one-minute rows (525,600) replayed end to end, CSV read
    included, in a fresh process, against a bare ``pandas.read_csv`` of the
-   same file in another fresh process (first run and best of three more).
+   same file in another fresh process (first run and best of three more);
+   and the whole ``dosing replay`` command against the whole bare
+   ``python -c "import pandas; pandas.read_csv(...)"`` (start-up and imports
+   included in both).
 3. Peak memory of a chunked replay of a 5,000,000-row file, in a fresh
    process (``--big``; the file takes a minute to write).
 
@@ -31,13 +34,14 @@ ROOT = Path(__file__).resolve().parents[1]
 SCEN = ROOT / "scenarios" / "flow-metering-pump.toml"
 
 
-def make_log(path: Path, n: int) -> None:
-    rng = np.random.default_rng(5)
+def make_log(path: Path, n: int, first: int = 0) -> None:
+    """An invented log of ``n`` one-minute rows, from minute ``first`` of 2025."""
+    rng = np.random.default_rng(5 + first)
     step = 1_000_000
     with open(path, "w") as fh:
         for start in range(0, n, step):
             m = min(step, n - start)
-            i = np.arange(start, start + m)
+            i = np.arange(first + start, first + start + m)
             ts = pd.Timestamp("2025-01-01") + pd.to_timedelta(i, unit="min")
             day = np.sin(i / 1440 * 2 * np.pi)
             frame = pd.DataFrame({"timestamp": ts.strftime("%Y-%m-%d %H:%M"),
@@ -131,6 +135,20 @@ def end_to_end(path: Path, label: str) -> None:
           f" the replay takes x{warm / bare_warm:.1f} that (first runs: x{cold / bare_cold:.1f})")
 
 
+def whole_commands(path: Path) -> None:
+    """The comparison as a user meets it: wall time of the whole ``dosing
+    replay`` command (start-up, imports, read, plan, report) against the
+    whole ``python -c "import pandas; pandas.read_csv(...)"``; best of three."""
+    replay = best_of(3, lambda: subprocess.run(
+        [sys.executable, "-m", "dosing.cli", "replay", str(path), "--scenario", str(SCEN)],
+        capture_output=True, check=True))
+    bare = best_of(3, lambda: subprocess.run(
+        [sys.executable, "-c", f"import pandas; pandas.read_csv({str(path)!r})"],
+        capture_output=True, check=True))
+    print(f"  whole commands: dosing replay {replay:.2f} s, python -c \"import pandas; "
+          f"pandas.read_csv(...)\" {bare:.2f} s: x{replay / bare:.1f}")
+
+
 def _bare_read_s(path: Path) -> tuple[float, float]:
     """Seconds a plain ``pandas.read_csv`` of the file takes in a fresh
     process: the first read and the best of three more."""
@@ -148,6 +166,7 @@ def main() -> None:
         year = Path(d) / "year.csv"
         make_log(year, 525_600)
         end_to_end(year, "one year of minute data")
+        whole_commands(year)
         if "--big" in sys.argv:
             big = Path(d) / "big.csv"
             make_log(big, 5_000_000)

@@ -119,6 +119,7 @@ def dask_client(scheduler: str | None = None, workers: int | None = None) -> Ite
             raise UsageError("--scheduler", f"no Dask scheduler answers at {scheduler} "
                              f"({' '.join(str(err).split())[:120]})") from None
         with client:
+            _ready(client, "--scheduler")
             yield client
         return
     import dask
@@ -137,7 +138,30 @@ def dask_client(scheduler: str | None = None, workers: int | None = None) -> Ite
         raise UsageError("--workers", f"a local Dask cluster of {n} workers did not start "
                          f"({' '.join(str(err).split())[:120]})") from None
     with cluster, Client(cluster) as client:
+        _ready(client, "--workers")
         yield client
+
+
+def _import_kernel() -> bool:
+    import dosing.replay_io  # noqa: F401  (the reader, the kernel; numpy, pandas, scipy)
+    try:
+        import pyarrow  # noqa: F401  (the time parser's fast path, when installed)
+    except ImportError:
+        pass
+    return True
+
+
+def _ready(client, option: str) -> None:
+    """Import the replay kernel on every worker, and Dask's dataframe here,
+    before any work is sent (each takes about a second the first time); a
+    worker that cannot import the kernel (this package not installed there)
+    is a clear error."""
+    import dask.dataframe  # noqa: F401
+    try:
+        client.run(_import_kernel)
+    except ImportError as err:
+        raise UsageError(option, f"the Dask workers cannot import the replay kernel ({err}); "
+                         "install this package on every worker") from None
 
 
 def replay_sites(sites: Sequence[Site], client, *, part_bytes: int = PART_BYTES,
