@@ -295,14 +295,14 @@ _LN10 = float(np.log(10.0))
 
 def _alpha(ah, kp):
     """Fractions (n, m, s+1) from a_H (n,) and mixed constants as planes
-    (s, n, m), one per step.
+    (s, n, m), one per step (or (s, 1, m): the same constants for every water).
 
     Built form by form in contiguous (n, m) planes (a stride-4 last axis is
     slow in numpy); the result is a view with the form as its last axis.
     """
     steps = kp.shape[0]
     inv = (1.0 / ah)[:, None]
-    planes = np.empty((steps + 1,) + kp.shape[1:])
+    planes = np.empty((steps + 1, ah.size, kp.shape[2]))
     planes[0] = 1.0
     for i in range(steps):
         np.multiply(planes[i], kp[i], out=planes[i + 1])
@@ -443,7 +443,9 @@ def _species(r: _Rows, ah, ionic, *, m2: bool = True):
                          order="C")
     else:
         t, g1 = None, 1.0
-        kp = np.ascontiguousarray(np.moveaxis(r.k, -1, 0))
+        # One row of constants viewed n times (one temperature) stays one row.
+        k = r.k[:1] if r.k.shape[0] and r.k.strides[0] == 0 else r.k
+        kp = np.ascontiguousarray(np.moveaxis(k, -1, 0))
     alpha = _alpha(ah, kp)
     q = np.einsum("nmk,mk->nm", alpha, r.z)
     m2 = np.einsum("nmk,mk->nm", alpha, z2) if m2 else None
