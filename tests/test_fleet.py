@@ -257,3 +257,18 @@ def test_glob_with_no_match_is_named(tmp_path):
     code, _, err = run("replay", str(tmp_path / "none-*.csv"), "--scenario", str(ACID))
     assert code == 2
     _one_line(err, "no file matches")
+
+
+def test_workers_that_cannot_import_the_kernel_are_a_clear_error():
+    # A remote cluster whose workers lack this package: refused before any
+    # work is sent, naming the option and what to do.
+    from dosing.errors import UsageError
+    from dosing.fleet import _ready
+
+    class NoKernel:
+        def run(self, fn):
+            raise ModuleNotFoundError("No module named 'dosing'")
+
+    with pytest.raises(UsageError) as err:
+        _ready(NoKernel(), "--scheduler")
+    assert "--scheduler" in str(err.value) and "install this package" in str(err.value)
