@@ -272,3 +272,21 @@ def test_workers_that_cannot_import_the_kernel_are_a_clear_error():
     with pytest.raises(UsageError) as err:
         _ready(NoKernel(), "--scheduler")
     assert "--scheduler" in str(err.value) and "install this package" in str(err.value)
+
+
+def test_fleet_runs_on_an_existing_cluster_named_by_its_scheduler(client, fleet):
+    # The module's 2-worker cluster stands for a plant's own Dask cluster.
+    address = client.scheduler.address
+    code, out, err = run("replay", "--fleet", str(fleet), "--scheduler", address,
+                         "--part-mb", "0.02", "--json")
+    assert code == 0, err
+    d = _strict_json(out)
+    for site in load_fleet(str(fleet)):
+        alone, _ = run_replay(list(site.files), site.scenario)
+        _assert_same_report(alone, d["sites"][site.name])
+
+
+def test_a_scheduler_that_does_not_answer_is_one_line(fleet):
+    code, out, err = run("replay", "--fleet", str(fleet), "--scheduler", "tcp://127.0.0.1:9")
+    assert code == 2 and out == ""
+    _one_line(err, "--scheduler", "tcp://127.0.0.1:9")
