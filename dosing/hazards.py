@@ -45,6 +45,7 @@ from .activity import davies_log_gamma, debye_huckel_a
 from .effluent import BACKGROUND_IONS, Water
 from .numbers import fmt
 from .equilibrium import CARBONATE, Speciation, co2_in_air_mol_l, system_index
+from .metals import label
 from .reagents import Reagent
 from .species import MOLAR_MASS, SYSTEMS
 from .water import R_J_MOL_K, calcite_pksp, density
@@ -296,7 +297,7 @@ def _discharge_checks(water: Water, reagent: Reagent, d: float, f: float,
         level = "danger" if value > cap else "info"
         checks.append(Check(
             f"permit-{key}", level,
-            f"permit cap {key.removesuffix('_mg_l').replace('_', ' ')} {cap:g} mg/L: "
+            f"permit cap {label(key.removesuffix('_mg_l'))} {cap:g} mg/L: "
             f"{fmt(value)} mg/L ({basis})" + (" - EXCEEDS THE CAP" if value > cap else
                                             " - within the cap"),
             {"value_mg_l": value, "cap_mg_l": cap}))

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from .numbers import fmt
+from .metals import label
 from .reagents import GENERAL_CAUTION
 from .shiftlog import Entry, ShiftLog
 
@@ -130,5 +131,5 @@ def _solid_lines(plan: dict, per: str) -> list[str]:
     left = plan.get("metals_after_mg_l") or {}
     if left:
         out.append("  metals left: " + ", ".join(
-            f"{k.replace('_', ' ')} {fmt(v, floor=1e-3)} mg/L" for k, v in left.items()))
+            f"{label(k)} {fmt(v, floor=1e-3)} mg/L" for k, v in left.items()))
     return out

@@ -63,7 +63,7 @@ from dataclasses import dataclass
 
 from .errors import InputError
 
-__all__ = ["Metal", "METALS", "METAL_IDS", "HARDNESS", "get_metal", "KCAL"]
+__all__ = ["Metal", "METALS", "METAL_IDS", "HARDNESS", "get_metal", "KCAL", "label"]
 
 #: kJ per kcal (thermochemical calorie, exact).
 KCAL = 4.184
@@ -242,3 +242,13 @@ def get_metal(metal_id: str) -> Metal:
     except KeyError:
         raise InputError(metal_id, "unknown metal; known metals are "
                          + ", ".join(METAL_IDS)) from None
+
+
+def label(key: str) -> str:
+    """A metal's (or other solute's) key as people write it: ``iron_iii``
+    -> ``iron(III)``, ``chromium_iii`` -> ``chromium(III)``, ``iron_ii`` ->
+    ``iron(II)``, other underscores as spaces."""
+    for suffix, charge in (("_iii", "(III)"), ("_ii", "(II)")):
+        if key.endswith(suffix):
+            return key[: -len(suffix)].replace("_", " ") + charge
+    return key.replace("_", " ")

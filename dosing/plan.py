@@ -32,7 +32,7 @@ from .equilibrium import (CARBONATE, Mixture, add_dose, dose_to_ph, solve_ph,
                           speciate)
 from .errors import InputError, ModelError, UnreachableError
 from .hazards import Check, assess
-from .metals import METAL_IDS
+from .metals import METAL_IDS, label
 from .numbers import fmt
 from .reagents import GENERAL_CAUTION, Reagent
 from .solids import (METAL_PERMIT_KEYS, CapWindow, Solid, cap_window, metals_after_mg_l,
@@ -622,7 +622,7 @@ def _metal_checks(metals_after: Mapping[str, float], caps: Mapping[str, float],
         value = metals_after[metal]
         over = value > cap
         out.append(Check(f"permit-{metal}_mg_l", "danger" if over else "info",
-                         f"permit cap {metal.replace('_', ' ')} {cap:g} mg/L: "
+                         f"permit cap {label(metal)} {cap:g} mg/L: "
                          f"{fmt(value)} mg/L dissolved at pH {target.ph_aim:g}"
                          + (" - EXCEEDS THE CAP" if over else " - within the cap"),
                          {"value_mg_l": value, "cap_mg_l": cap}))

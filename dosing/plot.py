@@ -16,6 +16,7 @@ import numpy as np  # noqa: E402
 
 from .plan import Plan  # noqa: E402
 from .numbers import fmt  # noqa: E402
+from .metals import label as metal_label  # noqa: E402
 from .sheet import UNIT_SYSTEMS, dose_axis  # noqa: E402
 from .metals import HARDNESS  # noqa: E402
 from .reagents import GENERAL_CAUTION  # noqa: E402
@@ -172,10 +173,10 @@ def _metals_panel(ax3, plan: Plan, metals) -> None:
     for i, (mid, mg) in enumerate(curves.items()):
         color = f"C{i}"
         ax3.plot(grid, np.maximum(mg, 1e-6), color=color, lw=1.8,
-                 label=f"{mid.replace('_', ' ')} dissolved")
+                 label=f"{metal_label(mid)} dissolved")
         if mid in caps:
             ax3.axhline(caps[mid], color=color, ls="--", lw=1.0,
-                        label=f"{mid.replace('_', ' ')} cap {caps[mid]:g} mg/L")
+                        label=f"{metal_label(mid)} cap {caps[mid]:g} mg/L")
     ax3.axvline(plan.target.ph_aim, color="tab:red", ls=":", lw=1.0,
                 label=f"aim pH {plan.target.ph_aim:g}")
     ax3.set_yscale("log")

@@ -20,7 +20,7 @@ from . import __version__
 from .effluent import CACO3_MG_PER_MEQ
 from .numbers import fmt
 from .plan import METERING_ERROR, Batch, Flow, Plan, permit_breaches, plan_dose
-from .metals import HARDNESS
+from .metals import HARDNESS, label as metal_label
 from .solids import Sludge, sludge_of
 from .errors import InputError, ModelError, ScenarioError, UnreachableError
 from .precision import lab_sensitivity, precision_warning
@@ -338,7 +338,7 @@ def metal_lines(scenario: Scenario, plan: Plan, units: str = "metric") -> list[t
     metals = {k: v for k, v in plan.metals_after_mg_l.items() if k not in HARDNESS}
     if metals:
         rows.append(("metals left", ", ".join(
-            f"{k.replace('_', ' ')} {fmt(v, floor=1e-3)} mg/L" for k, v in metals.items())
+            f"{metal_label(k)} {fmt(v, floor=1e-3)} mg/L" for k, v in metals.items())
                      + f" dissolved at pH {plan.ph_end:.2f} (estimate: a jar test is "
                      "the check)"))
     cw = plan.cap_window
@@ -898,7 +898,7 @@ def _total_name(w, key: str) -> str:
         i = int(key.split("_")[1]) - 1
         if i < len(w.site_pka):
             return f"site pKa {w.site_pka[i]:.1f}"
-    return key.replace("_", " ")
+    return metal_label(key)
 
 
 def _air_line(a) -> str:
