@@ -558,6 +558,7 @@ def compare(curve: BenchCurve, scenario: Scenario, *, unknown_acid: str = "auto"
     warnings = list(curve.notes) + list(direct.notes) + (
         list(fit.warnings) if used == "simple" else [])
     warnings += _extrapolation_words(curve, target, spec if used == "spectrum" else None)
+    warnings += _sample_words(curve, scenario.water.ph)
     gap = None
     if direct.dose_mol_l and plan.dose_mol_l:
         gap = (plan.dose_mol_l - direct.dose_mol_l) / direct.dose_mol_l
@@ -570,6 +571,24 @@ def compare(curve: BenchCurve, scenario: Scenario, *, unknown_acid: str = "auto"
     data = _comparison_dict(curve, direct, a, basis, fit, spec, used, sheet_dict(fitted, plan),
                             gap, warnings, plan)
     return Comparison(direct, fit, spec, used, plan, fitted, gap, tuple(warnings), data)
+
+
+#: The sample's own pH (no titrant yet) and the scenario's pH differ by more
+#: than two meters usually do (common practice: about 0.1-0.2 pH).
+SAMPLE_PH_WARN = 0.3
+
+
+def _sample_words(curve: BenchCurve, scenario_ph: float) -> list[str]:
+    """A warning when the titrated sample, before any titrant, is not at the
+    scenario's pH: another sample, or a meter to recalibrate."""
+    if curve.added_ml.size == 0 or curve.added_ml[0] != 0.0:
+        return []
+    first = float(curve.ph[0])
+    if abs(first - scenario_ph) <= SAMPLE_PH_WARN:
+        return []
+    return [f"the titrated sample starts at pH {first:.2f} but the scenario's water is at "
+            f"pH {scenario_ph:.2f}: another sample, or a meter to recalibrate? Check before "
+            "dosing from this titration"]
 
 
 def _comparison_dict(curve, direct, a, basis, fit, spec, used, plan_dict, gap, warnings,

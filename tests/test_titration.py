@@ -70,6 +70,23 @@ def test_the_two_methods_agree_on_a_clean_curve():
     assert report["cautions"][-1].endswith("final word on any dose.")
 
 
+def test_a_sample_not_at_the_scenarios_ph_is_questioned():
+    # The jar starts 0.8 pH below the scenario's water: another sample or a
+    # meter out of calibration (two meters agree within about 0.1-0.2 pH,
+    # common practice), said before anyone doses from it.
+    s = load_scenario(CIP)
+    tit = parse_titrant("0.1 N H2SO4")
+    v = np.linspace(0, 12, 41)
+    ph = synthetic(totals(carbonate=0.004), 0.008, tit, 50.0, v, t_c=s.water.temperature_c)
+    shifted = compare(check_curve(50.0, tit, v, ph - 0.8), s)
+    said = [w for w in shifted.warnings if "another sample" in w]
+    assert said and f"pH {ph[0] - 0.8:.2f}" in said[0] and f"pH {s.water.ph:.2f}" in said[0]
+    # within the meters' agreement, or a first reading with titrant in: nothing said
+    from dosing.titration import _sample_words
+    assert _sample_words(check_curve(50.0, tit, v, ph), float(ph[0]) + 0.25) == []
+    assert _sample_words(check_curve(50.0, tit, v[1:], ph[1:]), float(ph[1]) + 2.0) == []
+
+
 def test_acetic_acid_with_naoh_textbook():
     # 50.00 mL of 0.1000 M acetic acid titrated with 0.1000 M NaOH (the
     # standard weak-acid example of Skoog, West, Holler & Crouch,
