@@ -313,6 +313,8 @@ def _spectrum_panel(ax, spec) -> None:
     ax.set_xlabel("pKa")
     ax.set_ylabel("site total, mmol/L")
     ax.grid(True, alpha=0.3)
-    ax.legend(fontsize=8, loc="upper right")
+    # Below the axes: inside, it would sit on the labels of high-pKa sites.
+    ax.legend(fontsize=8, loc="upper center", bbox_to_anchor=(0.5, -0.18), ncol=3,
+              frameon=False)
     ax.set_title(f"Buffer spectrum fitted to the curve (pH misfit {spec.rms_ph:.3f} RMS; "
                  "names are guesses from the pKa alone)", fontsize=9)
