@@ -180,7 +180,10 @@ def replay_sites(sites: Sequence[Site], client, *, part_bytes: int = PART_BYTES,
         plan.extend((i, part) for f in site.files for part in file_parts(f, part_bytes))
     if progress:
         progress(0, len(plan))            # the bar shows its total from the start
-    steps = [_first_step(site, chunk_rows) for site in sites]
+    # Each site's usual time step, from its first chunk: read on the workers
+    # (in parallel, where the data is) rather than one site after another here.
+    steps = client.gather(client.map(_first_step, list(sites), chunk_rows=chunk_rows,
+                                     pure=False))
     frames = dd.from_map(read_part, [p for _, p in plan], meta=_RAW_META,
                          enforce_metadata=False)
     parts = frames.map_partitions(_plan_partition, [i for i, _ in plan], list(sites), steps,
