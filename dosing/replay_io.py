@@ -34,8 +34,9 @@ def _parse_times(col: pd.Series) -> pd.Series:
     The rule for zones: a timestamp with a UTC offset (``+01:00``, ``Z``) is
     converted to UTC; one without is taken as written. So a file that mixes
     offsets (a logger that changed zone, summer time) reads on one clock.
-    ISO 8601 text is read by pandas' fast vectorised parser; only what that
-    leaves unread goes through the slower any-format one.
+    Plain ISO 8601 text is cast by Arrow when it can be (all of a chunk);
+    otherwise pandas' ISO 8601 parser reads what it can and the slower
+    any-format parser only what that leaves.
     """
     col = _as_text(col)
     fast = _arrow_times(col)
