@@ -209,7 +209,7 @@ def as_numbers(col) -> np.ndarray:
     column the reader took as true/false is not numbers at all)."""
     col = pd.Series(col)
     if col.dtype.kind in "iuf":
-        return col.to_numpy(dtype=float)
+        return col.to_numpy(dtype=float, na_value=np.nan)   # nullable ints too
     if col.dtype.kind == "b":
         return np.full(len(col), np.nan)
     return pd.to_numeric(col, errors="coerce").to_numpy(dtype=float)
