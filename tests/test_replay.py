@@ -286,3 +286,13 @@ def test_a_bad_line_deep_in_the_file_is_named_by_its_file_line(tmp_path):
     r = cli("replay", str(f), "--scenario", str(SCEN), "--chunk-rows", "1000")
     assert r.returncode == 2
     assert "line 1001," in r.stderr and len(r.stderr.strip().splitlines()) == 1
+
+
+@pytest.mark.parametrize("col, expect", [
+    (pd.Series([7, None], dtype="Int64"), [7.0, np.nan]),          # Parquet ints with a gap
+    (pd.Series(["7.5", " 8", "x", None], dtype=object), [7.5, 8.0, np.nan, np.nan]),
+    (pd.Series([True, False]), [np.nan, np.nan]),                 # not readings at all
+    (pd.Series([9.25, np.inf]), [9.25, np.inf]),                  # inf is flagged later
+])
+def test_a_column_of_any_type_reads_as_numbers(col, expect):
+    np.testing.assert_array_equal(replay_mod.as_numbers(col), np.array(expect))
