@@ -109,7 +109,7 @@ def _replay_parser(sub) -> None:
     r.add_argument("--plot", metavar="FILE.png", help="write time series and daily use")
     r.add_argument("--units", choices=("metric", "us"), default="metric")
     r.add_argument("--chunk-rows", type=int, default=100_000, metavar="N",
-                   help="rows read at a time (memory stays constant)")
+                   help="about this many rows read at a time (memory stays constant)")
 
 
 def _titration_parser(sub) -> None:
