@@ -16,9 +16,8 @@ import numpy as np  # noqa: E402
 
 from .plan import Plan  # noqa: E402
 from .numbers import fmt  # noqa: E402
-from .metals import label as metal_label  # noqa: E402
 from .sheet import UNIT_SYSTEMS, dose_axis  # noqa: E402
-from .metals import HARDNESS  # noqa: E402
+from .metals import HARDNESS, label as metal_label  # noqa: E402
 from .reagents import GENERAL_CAUTION  # noqa: E402
 from .solids import dissolved_vs_ph  # noqa: E402
 

@@ -474,8 +474,9 @@ class ReplayTotals:
             lo, hi = pd.Timestamp(tv.min()), pd.Timestamp(tv.max())
             self.first = lo if self.first is None else min(self.first, lo)
             self.last = hi if self.last is None else max(self.last, hi)
-        self._add_days(ts[ok & valid], rows["kg"].to_numpy()[ok & valid],
-                       rows["litres"].to_numpy()[ok & valid])
+        day_rows = ok & valid
+        self._add_days(ts[day_rows], rows["kg"].to_numpy()[day_rows],
+                       rows["litres"].to_numpy()[day_rows])
         if self.keep_hourly and valid.any():
             self._add_hours(ts[valid], rows["ph"].to_numpy()[valid], rate_all[valid])
 
@@ -601,7 +602,7 @@ def plan_part(frame: pd.DataFrame, scenario: Scenario, nominal_s: float,
     state = ReplayState(nominal_s=nominal_s)
     if h < n:
         totals.add(plan_rows(frame, scenario, state).iloc[h:])
-    ph = pd.to_numeric(frame["ph"], errors="coerce").to_numpy(dtype=float)
+    ph = as_numbers(frame["ph"])
     changes = np.flatnonzero(ph[1:] != ph[:-1])      # NaN differs from everything
     tail_run = n - 1 - int(changes[-1]) if changes.size else n
     valid = t[~np.isnan(t)]

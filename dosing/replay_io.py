@@ -10,6 +10,7 @@ from __future__ import annotations
 import contextlib
 import glob
 import io
+import math
 import re
 from dataclasses import dataclass
 from pathlib import Path
@@ -149,7 +150,7 @@ def _our_frame(raw: pd.DataFrame, mapping: dict[str, str], first: bool) -> pd.Da
     if first and len(frame):
         row = frame.iloc[0]
         if (pd.isna(_parse_times(pd.Series([row["timestamp"]])).iloc[0])
-                and pd.isna(pd.to_numeric(pd.Series([row["ph"]]), errors="coerce").iloc[0])):
+                and math.isnan(as_numbers([row["ph"]])[0])):
             frame = frame.iloc[1:]
     return _typed(frame)
 
