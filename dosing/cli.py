@@ -434,8 +434,9 @@ def _cmd_titration(args) -> int:
         vols, phs, lines, notes = read_titration_csv(args.data, args.drop)
         curve = check_curve(args.sample_ml, titrant, vols, phs, lines, source="titration")
     except InputError as err:
-        key = OPTION_OF_FIELD.get(err.field, "")
-        raise ScenarioError(args.data if not key else key, "", err.reason) from None
+        if err.field in OPTION_OF_FIELD:
+            raise                   # main names the option
+        raise ScenarioError(args.data, "", err.reason) from None
     from dataclasses import replace
     curve = replace(curve, notes=tuple(notes) + curve.notes)
     scenario = (load_scenario(args.scenario) if args.scenario
@@ -445,7 +446,7 @@ def _cmd_titration(args) -> int:
     except (InputError, UnreachableError) as err:
         key = getattr(err, "field", "")
         if key in OPTION_OF_FIELD:
-            raise ScenarioError(OPTION_OF_FIELD[key], "", err.reason) from None
+            raise                   # main names the option
         why = getattr(err, "reason", str(err))
         raise ScenarioError(args.data, "", why if key in ("", "titration")
                             else f"{key}: {why}") from None
