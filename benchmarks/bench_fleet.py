@@ -58,8 +58,8 @@ def main() -> None:
     ap.add_argument("--sites", type=int, default=4)
     ap.add_argument("--rows", type=int, default=1_000_000, help="rows per file")
     a = ap.parse_args()
-    from dosing.fleet import dask_client, load_fleet, replay_sites
-    from dosing.replay_io import run_replay
+    from dosing.io.fleet import dask_client, load_fleet, replay_sites
+    from dosing.io.replay_io import run_replay
     with tempfile.TemporaryDirectory() as tmp:
         t0 = time.perf_counter()
         fleet = write_fleet(Path(tmp), a.sites, a.rows)

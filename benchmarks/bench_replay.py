@@ -62,10 +62,10 @@ def best_of(k: int, job) -> float:
 
 
 def dose_solve_rates() -> None:
-    from dosing.equilibrium import (N_SYSTEMS, Mixture, constants_at, dose_to_ph,
+    from dosing.chem.equilibrium import (N_SYSTEMS, Mixture, constants_at, dose_to_ph,
                                     strong_balance_at_ph, system_index)
-    from dosing.reagents import get_reagent
-    from dosing.scenario import load_scenario
+    from dosing.planning.reagents import get_reagent
+    from dosing.io.scenario import load_scenario
     s = load_scenario(SCEN)
     reagent = get_reagent("hydrochloric-32")
     n = 500_000
@@ -117,8 +117,8 @@ def end_to_end(path: Path, label: str) -> None:
     timed the same way in another fresh process."""
     # Peak memory from VmHWM of the child: it starts afresh at exec, whereas
     # ru_maxrss carries over the parent's high-water mark on Linux.
-    code = (f"import time; from dosing.scenario import load_scenario; "
-            f"from dosing.replay_io import run_replay; s = load_scenario({str(SCEN)!r}); "
+    code = (f"import time; from dosing.io.scenario import load_scenario; "
+            f"from dosing.io.replay_io import run_replay; s = load_scenario({str(SCEN)!r}); "
             f"ts = []\nfor _ in range(4):\n t = time.perf_counter(); "
             f"r, _ = run_replay({str(path)!r}, s, keep_hourly=False); "
             f"ts.append(time.perf_counter() - t)\n"

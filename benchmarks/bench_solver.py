@@ -16,9 +16,9 @@ import time
 import numpy as np
 from scipy.optimize import brentq
 
-from dosing.equilibrium import (N_SYSTEMS, Mixture, constants_at, dose_to_ph, solve_ph,
+from dosing.chem.equilibrium import (N_SYSTEMS, Mixture, constants_at, dose_to_ph, solve_ph,
                                 system_index)
-from dosing.reagents import get_reagent
+from dosing.planning.reagents import get_reagent
 
 
 def waters(n: int, davies: bool, seed: int = 7, metals: bool = False) -> Mixture:

@@ -17,9 +17,9 @@ import numpy as np
 
 from dosing import infer_water
 from _timing import best_of
-from dosing.buffer_fit import fit_spectrum
-from dosing.equilibrium import N_SYSTEMS, Mixture, add_dose, solve_ph, system_index
-from dosing.titration import check_curve, fit_water, parse_titrant
+from dosing.planning.buffer_fit import fit_spectrum
+from dosing.chem.equilibrium import N_SYSTEMS, Mixture, add_dose, solve_ph, system_index
+from dosing.planning.titration import check_curve, fit_water, parse_titrant
 
 
 def curve_of(n: int = 40, t_c: float = 15.0):

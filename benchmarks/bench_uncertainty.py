@@ -16,11 +16,11 @@ from pathlib import Path
 import numpy as np
 
 from _timing import best_of
-from dosing.effluent import infer_water
-from dosing.equilibrium import dose_to_ph
-from dosing.scenario import load_scenario, water_inputs
-from dosing.sheet import make_plan
-from dosing.uncertainty import Spread, dose_uncertainty, staged_dose, trim_doses
+from dosing.planning.effluent import infer_water
+from dosing.chem.equilibrium import dose_to_ph
+from dosing.io.scenario import load_scenario, water_inputs
+from dosing.report.sheet import make_plan
+from dosing.planning.uncertainty import Spread, dose_uncertainty, staged_dose, trim_doses
 
 ROOT = Path(__file__).resolve().parents[1]
 DEMOS = ("plating-rinse-metals", "pickling-ferrous-rinse", "alum-rinse", "magnesia-acid-rinse",

@@ -17,12 +17,12 @@ The engine is pure: no printing, no files. Every error is a
 :class:`DosingError`.
 """
 
-from .effluent import Water, infer_water
-from .equilibrium import Mixture, dose_to_ph, solve_ph, speciate
+from .planning.effluent import Water, infer_water
+from .chem.equilibrium import Mixture, dose_to_ph, solve_ph, speciate
 from .errors import (DosingError, InputError, ModelError, ScenarioError,
                      UnreachableError)
-from .plan import Batch, Flow, Plan, Target, plan_dose, titration_curve
-from .reagents import CATALOGUE, Reagent, custom_reagent, get_reagent
+from .planning.plan import Batch, Flow, Plan, Target, plan_dose, titration_curve
+from .planning.reagents import CATALOGUE, Reagent, custom_reagent, get_reagent
 
 __version__ = "0.1.0"
 

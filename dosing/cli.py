@@ -21,7 +21,7 @@ import contextlib
 import sys
 
 from .errors import DosingError, InputError, ScenarioError, UsageError
-from .files import write_atomic
+from .io.files import write_atomic
 from .numbers import require_finite, to_json
 
 __all__ = ["main"]
@@ -173,8 +173,8 @@ def _now() -> str:
 
 
 def _cmd_plan(args) -> int:
-    from .scenario import load_scenario
-    from .sheet import figure_title, make_plan, render_sheet, sheet_dict
+    from .io.scenario import load_scenario
+    from .report.sheet import figure_title, make_plan, render_sheet, sheet_dict
     if args.plot and not args.plot.lower().endswith(".png"):
         raise ScenarioError(args.plot, "", "the plot is written as PNG; give a "
                             "file name ending in .png")
@@ -184,7 +184,7 @@ def _cmd_plan(args) -> int:
         plan = _with_log_bias(args.db, scenario, plan)
     png = None
     if args.plot:
-        from .plot import plan_figure_png
+        from .report.plot import plan_figure_png
         png = plan_figure_png(plan, figure_title(scenario, _now()), args.units,
                               engineer=args.figure == "engineer")
     data = require_finite(sheet_dict(scenario, plan), "plan")
@@ -211,10 +211,10 @@ def _numbers(option: str, text: str | None, low: float, high: float, unit: str):
 
 
 def _cmd_sweep(args) -> int:
-    from .reagents import get_reagent
-    from .scenario import load_scenario
-    from .sweep import default_alternative, default_sizes, strength_grid
-    from .sweep_sheet import render_sweep, sweep_csv, sweep_dict
+    from .planning.reagents import get_reagent
+    from .io.scenario import load_scenario
+    from .planning.sweep import default_alternative, default_sizes, strength_grid
+    from .report.sweep_sheet import render_sweep, sweep_csv, sweep_dict
     if args.csv and not args.csv.lower().endswith(".csv"):
         raise ScenarioError(args.csv, "", "give a file name ending in .csv")
     strengths = _numbers("--strengths", args.strengths, 0.0, 100.0, "%")
@@ -240,7 +240,7 @@ def _cmd_sweep(args) -> int:
 def _with_log_bias(db: str, scenario, plan):
     """The plan with what the shift log says about the scenario's tank."""
     from dataclasses import replace
-    from .shiftlog import BIAS_MIN_ENTRIES, ShiftLog
+    from .io.shiftlog import BIAS_MIN_ENTRIES, ShiftLog
     tank = scenario.tank
     with ShiftLog(db, writable=False) as log:
         tanks = log.tanks()
@@ -255,7 +255,7 @@ def _with_log_bias(db: str, scenario, plan):
 
 
 def _cmd_reagents(_args) -> int:
-    from .reagents import CATALOGUE, COMPOUNDS
+    from .planning.reagents import CATALOGUE, COMPOUNDS
     for r in CATALOGUE.values():
         dens = f"{r.density_kg_l:.4g} kg/L" if r.density_kg_l else r.form
         sys.stdout.write(f"{r.id:<16} {r.name:<32} {r.compound.formula:<8} {dens}\n")
@@ -268,7 +268,7 @@ def _cmd_reagents(_args) -> int:
 
 
 def _cmd_solutes(_args) -> int:
-    from .species import SITE_IDS, SYSTEMS
+    from .chem.species import SITE_IDS, SYSTEMS
     for s in (x for x in SYSTEMS if x.id not in SITE_IDS):
         pks = ", ".join(f"{p:g}" for p in s.pka25)
         sys.stdout.write(f"{s.id:<10} {s.name:<32} pKa {pks:<20} mg/L as {s.basis}\n")
@@ -320,7 +320,7 @@ class _progress:
 
 
 def _cmd_replay(args) -> int:
-    from .sheet import render_replay
+    from .report.sheet import render_replay
     for opt, ext in ((args.csv, ".csv"), (args.plot, ".png")):
         if opt and not opt.lower().endswith(ext):
             raise ScenarioError(opt, "", f"give a file name ending in {ext}")
@@ -337,26 +337,26 @@ def _cmd_replay(args) -> int:
     if not args.scenario:
         raise UsageError("--scenario", "missing; give the flow scenario the data belong to")
     scenario = _flow_scenario(args.scenario)
-    from .replay_io import site_files
+    from .io.replay_io import site_files
     files = site_files(args.data, where="data")
     if args.scheduler or args.workers:
         if args.csv:
             raise UsageError("--csv", "per-row results are written by a one-process replay; "
                              "leave out --workers and --scheduler")
-        from .fleet import Site
+        from .io.fleet import Site
         report, totals = _run_on_dask(args, [Site("data", scenario, tuple(files))])[0]["data"]
     else:
         report, totals = _replay_in_process(args, scenario, files)
     if args.plot:
-        from .plot import replay_figure_png
+        from .report.plot import replay_figure_png
         write_atomic(args.plot, replay_figure_png(totals, report, args.units))
     sys.stdout.write(to_json(report) if args.json else render_replay(report, args.units))
     return 0
 
 
 def _flow_scenario(path: str):
-    from .plan import Flow
-    from .scenario import load_scenario
+    from .planning.plan import Flow
+    from .io.scenario import load_scenario
     scenario = load_scenario(path)
     if not isinstance(scenario.basis, Flow):
         raise ScenarioError(path, "[flow]", "replay needs a flow scenario: logged "
@@ -367,8 +367,8 @@ def _flow_scenario(path: str):
 
 def _replay_in_process(args, scenario, files: list[str]):
     """One site, one pass, in this process (the per-row CSV is written here)."""
-    from .files import atomic_text_writer
-    from .replay_io import run_replay
+    from .io.files import atomic_text_writer
+    from .io.replay_io import run_replay
     counts = [_count_lines(f) for f in files]
     total = None if None in counts else sum(counts)
     # The finite check runs inside the CSV writer, so a report that cannot be
@@ -385,7 +385,7 @@ def _replay_in_process(args, scenario, files: list[str]):
 def _run_on_dask(args, sites):
     """Replay sites on Dask (a local cluster or ``--scheduler``):
     ({name: (report, totals)}, the number of workers)."""
-    from .fleet import dask_client, replay_sites
+    from .io.fleet import dask_client, replay_sites
     with _progress(None, "parts") as progress, \
             dask_client(args.scheduler, args.workers) as client:
         workers = len(client.scheduler_info().get("workers", {}))
@@ -398,8 +398,8 @@ def _run_on_dask(args, sites):
 
 
 def _replay_fleet(args) -> int:
-    from .fleet import fleet_report, load_fleet
-    from .sheet import render_fleet
+    from .io.fleet import fleet_report, load_fleet
+    from .report.sheet import render_fleet
     for given, option in ((args.data, "data files"), (args.scenario, "--scenario"),
                           (args.csv, "--csv"), (args.plot, "--plot")):
         if given:
@@ -412,7 +412,7 @@ def _replay_fleet(args) -> int:
 
 
 def _default_titration_scenario(titrant):
-    from .scenario import build_scenario
+    from .io.scenario import build_scenario
     product = "caustic-50" if titrant.compound.raises_ph else "sulfuric-98"
     return build_scenario({
         "title": "bench titration (no scenario: per m3, window 6-9)",
@@ -423,10 +423,10 @@ def _default_titration_scenario(titrant):
 
 def _cmd_titration(args) -> int:
     from .errors import InputError, UnreachableError
-    from .scenario import load_scenario
-    from .sheet import render_titration
-    from .titration import check_curve, compare, parse_titrant
-    from .titration_io import read_titration_csv
+    from .io.scenario import load_scenario
+    from .report.sheet import render_titration
+    from .planning.titration import check_curve, compare, parse_titrant
+    from .io.titration_io import read_titration_csv
     if args.plot and not args.plot.lower().endswith(".png"):
         raise ScenarioError(args.plot, "", "give a file name ending in .png")
     try:
@@ -452,8 +452,8 @@ def _cmd_titration(args) -> int:
                             else f"{key}: {why}") from None
     data = require_finite(report.to_dict(), "titration")
     if args.plot:
-        from .plot import titration_figure_png
-        from .sheet import figure_title
+        from .report.plot import titration_figure_png
+        from .report.sheet import figure_title
         write_atomic(args.plot, titration_figure_png(curve, report,
                                                      figure_title(scenario, _now())))
     sys.stdout.write(to_json(data) if args.json
@@ -462,15 +462,15 @@ def _cmd_titration(args) -> int:
 
 
 def _cmd_log(args) -> int:
-    from .shiftlog import ShiftLog, parse_since
-    from . import logview
+    from .io.shiftlog import ShiftLog, parse_since
+    from .report import logview
     since = parse_since(args.since) if getattr(args, "since", None) else None
     if args.log_command == "export":
         if not args.csv.lower().endswith(".csv"):
             raise ScenarioError(args.csv, "", "the export is CSV; give a name ending in .csv")
     if args.log_command == "add":
-        from .scenario import load_scenario
-        from .sheet import make_plan, sheet_dict
+        from .io.scenario import load_scenario
+        from .report.sheet import make_plan, sheet_dict
         scenario = load_scenario(args.scenario)
         plan = make_plan(scenario)
         from pathlib import Path

@@ -13,9 +13,9 @@ import numpy as np
 import pytest
 
 from dosing import get_reagent, infer_water
-from dosing.buffer_fit import fit_spectrum
-from dosing.equilibrium import Mixture, dose_to_ph
-from dosing.titration import check_curve, compare, parse_titrant
+from dosing.planning.buffer_fit import fit_spectrum
+from dosing.chem.equilibrium import Mixture, dose_to_ph
+from dosing.planning.titration import check_curve, compare, parse_titrant
 from tests.helpers import run_cli, totals
 from tests.test_titration import synthetic
 
@@ -67,7 +67,7 @@ def test_regions_name_the_buffers_they_sit_on():
 
 
 def test_compare_uses_the_spectrum_when_the_simple_fit_misses(tmp_path):
-    from dosing.scenario import build_scenario
+    from dosing.io.scenario import build_scenario
     _, curve, _ = _case("food", 15.0, "0.1 M NaOH", -0.004, 12.0)
     scen = build_scenario({"effluent": {"ph": float(curve.ph[0]), "temperature_c": 15.0,
                                         "solutes_mmol_l": {"carbonate": 0.0}},
@@ -82,7 +82,7 @@ def test_compare_uses_the_spectrum_when_the_simple_fit_misses(tmp_path):
 
 
 def test_aim_outside_the_titrated_range_is_said(tmp_path):
-    from dosing.scenario import build_scenario
+    from dosing.io.scenario import build_scenario
     _, curve, _ = _case("food", 15.0, "0.1 M NaOH", -0.004, 3.0)     # stops near pH 6
     hi = float(curve.ph.max())
     scen = build_scenario({"effluent": {"ph": float(curve.ph[0]), "temperature_c": 15.0,
@@ -93,8 +93,8 @@ def test_aim_outside_the_titrated_range_is_said(tmp_path):
     result = compare(curve, scen, fit_mode="spectrum")
     ok = result.to_dict()
     assert not [w for w in ok["warnings"] if "outside the titrated range" in w]
-    from dosing.titration import _extrapolation_words
-    from dosing.plan import Target
+    from dosing.planning.titration import _extrapolation_words
+    from dosing.planning.plan import Target
     words = _extrapolation_words(curve, Target(3.0, hi + 2.0, hi + 1.0), result.spectrum)
     assert words and "extrapolates the fitted buffer sites" in words[0]
 

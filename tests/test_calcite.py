@@ -18,7 +18,7 @@ import pytest
 from hypothesis import given, settings, strategies as st
 
 from dosing import Batch, Target, get_reagent, infer_water, plan_dose
-from dosing.equilibrium import (Mixture, add_dose, dose_to_ph, solve_ph, speciate,
+from dosing.chem.equilibrium import (Mixture, add_dose, dose_to_ph, solve_ph, speciate,
                                 system_index, N_SYSTEMS)
 from tests.helpers import run_cli
 

@@ -8,9 +8,9 @@ from pathlib import Path
 
 import pytest
 
-from dosing.scenario import build_scenario
-from dosing.sheet import make_plan, sheet_dict
-from dosing.control import PUMP_ACCURACY
+from dosing.io.scenario import build_scenario
+from dosing.report.sheet import make_plan, sheet_dict
+from dosing.planning.control import PUMP_ACCURACY
 
 NO_SPREAD = {"ph": 0, "lab_percent": 0, "solutes_percent": 0, "metals_percent": 0,
              "temperature_c": 0, "amount_percent": 0, "strength_percent": 0, "samples": 200}
@@ -64,7 +64,7 @@ def test_a_wide_window_needs_one_stage():
 
 def test_batches_have_no_control_design_and_json_has_it_for_flows():
     root = Path(__file__).resolve().parents[1] / "scenarios"
-    from dosing.scenario import load_scenario
+    from dosing.io.scenario import load_scenario
     s = load_scenario(str(root / "food-acetate-stream.toml"))
     d = sheet_dict(s, make_plan(s))["control"]
     assert d["flow_range_given"] and d["turndown"] > 11 / 2.5 * 0.9

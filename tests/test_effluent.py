@@ -5,10 +5,10 @@ import math
 import pytest
 from scipy.optimize import brentq
 
-from dosing.effluent import CACO3_MG_PER_MEQ, infer_water
-from dosing.equilibrium import Mixture, add_dose, solve_ph
+from dosing.planning.effluent import CACO3_MG_PER_MEQ, infer_water
+from dosing.chem.equilibrium import Mixture, add_dose, solve_ph
 from dosing.errors import InputError
-from dosing.reagents import COMPOUNDS
+from dosing.planning.reagents import COMPOUNDS
 
 
 def test_caco3_equivalent_weight():

@@ -10,11 +10,11 @@ import pytest
 from hypothesis import given, settings, strategies as st
 from scipy.optimize import brentq
 
-from dosing.equilibrium import (CARBONATE, Mixture, constants_at, dose_to_ph,
+from dosing.chem.equilibrium import (CARBONATE, Mixture, constants_at, dose_to_ph,
                                 solve_ph, speciate, strong_balance_at_ph,
                                 system_index)
-from dosing.reagents import get_reagent
-from dosing.species import SYSTEMS
+from dosing.planning.reagents import get_reagent
+from dosing.chem.species import SYSTEMS
 
 from tests.helpers import totals
 
@@ -245,7 +245,7 @@ def test_dose_is_monotone_in_target_ph(mix, p1, p2, rid):
        rid=st.sampled_from(["caustic-50", "caustic-25", "soda-ash", "sulfuric-93",
                             "hydrochloric-32", "co2"]))
 def test_dose_then_forward_solve_returns_the_target_and_conserves_mass(mix, target, rid):
-    from dosing.equilibrium import add_dose
+    from dosing.chem.equilibrium import add_dose
     reagent = get_reagent(rid)
     vec = reagent.vector()
     d, grip = dose_to_ph(mix, vec, target)
@@ -275,7 +275,7 @@ def test_strong_balance_from_ph_round_trips(mix, ph):
 def test_open_to_air_holds_dissolved_co2():
     # Pure water under 420 µatm CO2 at 25 °C: pH about 5.6 (common knowledge
     # of rain water in today's air).
-    from dosing.equilibrium import co2_in_air_mol_l
+    from dosing.chem.equilibrium import co2_in_air_mol_l
     c0 = float(co2_in_air_mol_l(25.0, 420e-6))
     mix = Mixture.build(totals(), 0.0, 0.0, 25.0, c0, davies=False)
     ph = float(solve_ph(mix)[0])
@@ -288,7 +288,7 @@ def test_strong_balance_does_not_depend_on_the_starting_ionic_strength():
     # The replay starts the fixed point from the scenario's ionic strength to
     # save steps; the answer must be the one found from the usual start.
     import numpy as np
-    from dosing.equilibrium import strong_balance_at_ph
+    from dosing.chem.equilibrium import strong_balance_at_ph
     tot = totals(carbonate=0.007, silicate=0.0006, borate=0.0002)
     ph = np.linspace(8.5, 11.5, 50)
     s0, i0 = strong_balance_at_ph(tot, ph, 32.0, davies=True)
@@ -303,7 +303,7 @@ def test_the_fixed_point_tolerance_costs_the_dose_nothing_measurable(monkeypatch
     # a pass); against a 1e-12 stop the dose moves by under 1e-9 relative,
     # far inside the 1e-4 of the outside-solver checks.
     import numpy as np
-    import dosing.equilibrium as eq
+    import dosing.chem.equilibrium as eq
     tot = totals(carbonate=0.007, silicate=0.0006, borate=0.0002)
     ph = np.linspace(9.0, 11.0, 200)
     reagent = get_reagent("hydrochloric-32").vector()

@@ -19,10 +19,10 @@ import pandas as pd
 import pytest
 from hypothesis import given, settings, strategies as st
 
-from dosing.fleet import dask_client, fleet_report, load_fleet, replay_sites
-from dosing.replay import ReplayState, ReplayTotals, plan_part, plan_rows, stitch, nominal_step
-from dosing.replay_io import file_parts, iter_chunks, read_part, run_replay
-from dosing.scenario import load_scenario
+from dosing.io.fleet import dask_client, fleet_report, load_fleet, replay_sites
+from dosing.planning.replay import ReplayState, ReplayTotals, plan_part, plan_rows, stitch, nominal_step
+from dosing.io.replay_io import file_parts, iter_chunks, read_part, run_replay
+from dosing.io.scenario import load_scenario
 from tests.test_robustness import _one_line, _strict_json, run
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -263,7 +263,7 @@ def test_workers_that_cannot_import_the_kernel_are_a_clear_error():
     # A remote cluster whose workers lack this package: refused before any
     # work is sent, naming the option and what to do.
     from dosing.errors import UsageError
-    from dosing.fleet import _ready
+    from dosing.io.fleet import _ready
 
     class NoKernel:
         def run(self, fn):

@@ -5,9 +5,9 @@ import math
 import pytest
 
 from dosing import Batch, Target, get_reagent, infer_water, plan_dose
-from dosing.equilibrium import speciate
-from dosing.hazards import DH_WATER_KJ_MOL
-from dosing.water import calcite_pksp
+from dosing.chem.equilibrium import speciate
+from dosing.planning.hazards import DH_WATER_KJ_MOL
+from dosing.chem.water import calcite_pksp
 
 
 def checks(plan):
@@ -51,14 +51,14 @@ def test_water_formed_agrees_from_both_proton_balances():
                     alkalinity_mg_l_as_caco3=None)
     r = get_reagent("caustic-50")
     plan = plan_dose(w, r, Target(6, 9, 7.5), Batch(1))
-    from dosing.plan import mix_closed
-    from dosing.equilibrium import add_dose, solve_ph
+    from dosing.planning.plan import mix_closed
+    from dosing.chem.equilibrium import add_dose, solve_ph
     before = speciate(mix_closed(w), w.ph)
     dosed = add_dose(mix_closed(w), r.vector(), plan.dose_mol_l)
     after = speciate(dosed, solve_ph(dosed))
     grow = 1 + plan.dose_mol_l * r.litres_product_per_mol
     # H+ balance: dH = sum(xi_steps) + xi_w  ->  xi_w from H+
-    from dosing.hazards import _stepwise
+    from dosing.planning.hazards import _stepwise
     xi_steps = float((_stepwise(after)[0] * grow - _stepwise(before)[0]).sum())
     xi_w_h = float(after.h_mol_l[0]) * grow - float(before.h_mol_l[0]) - xi_steps
     xi_w_oh = float(after.oh_mol_l[0]) * grow - float(before.oh_mol_l[0]) - plan.dose_mol_l

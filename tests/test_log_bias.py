@@ -10,7 +10,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from dosing.shiftlog import ShiftLog
+from dosing.io.shiftlog import ShiftLog
 from tests.helpers import run_cli
 
 ROOT = Path(__file__).resolve().parents[1]

@@ -15,11 +15,11 @@ import pytest
 from hypothesis import given, settings, strategies as st
 
 from dosing import Batch, Target, get_reagent, infer_water, plan_dose
-from dosing.equilibrium import (Mixture, add_dose, constants_at, dose_to_ph, solve_ph,
+from dosing.chem.equilibrium import (Mixture, add_dose, constants_at, dose_to_ph, solve_ph,
                                 speciate, system_index)
-from dosing.metals import METALS, get_metal
-from dosing.reagents import COMPOUNDS
-from dosing.solids import dissolved_vs_ph
+from dosing.chem.metals import METALS, get_metal
+from dosing.planning.reagents import COMPOUNDS
+from dosing.planning.solids import dissolved_vs_ph
 from tests.helpers import run_cli, totals
 
 

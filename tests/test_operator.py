@@ -128,9 +128,9 @@ def test_curve_figure_gives_litres_and_keeps_beta_for_the_engineer():
     # Issue 18: the curve's x axis was kilograms only, and the buffer
     # intensity cluttered the operator's figure.
     import matplotlib.pyplot as plt
-    from dosing.plot import plan_figure
-    from dosing.scenario import load_scenario
-    from dosing.sheet import make_plan
+    from dosing.report.plot import plan_figure
+    from dosing.io.scenario import load_scenario
+    from dosing.report.sheet import make_plan
     s = load_scenario(ROOT / "scenarios" / "flow-metering-pump.toml")
     plan = make_plan(s, sampled=False)
     operator = plan_figure(plan, s.title)
@@ -149,8 +149,8 @@ def test_curve_figure_gives_litres_and_keeps_beta_for_the_engineer():
 
 def test_figures_name_the_site_the_tank_and_the_date():
     # Issue 18: "no plot names the site, tank and date".
-    from dosing.scenario import load_scenario
-    from dosing.sheet import figure_title
+    from dosing.io.scenario import load_scenario
+    from dosing.report.sheet import figure_title
     s = load_scenario(CIP)
     title = figure_title(s, "2026-12-02 10:00")
     assert title.splitlines() == [s.title, f"{s.site} / {s.tank}, planned 2026-12-02 10:00"]
@@ -162,6 +162,6 @@ def test_replay_report_carries_site_and_tank(tmp_path):
     r = run_cli("replay", str(data), "--scenario", str(FLOW), "--json")
     assert r.returncode == 0, r.stderr
     d = json.loads(r.stdout)
-    from dosing.scenario import load_scenario
+    from dosing.io.scenario import load_scenario
     s = load_scenario(FLOW)
     assert (d["site"], d["tank"]) == (s.site, s.tank) and s.site and s.tank

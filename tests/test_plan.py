@@ -5,8 +5,8 @@ import pytest
 
 from dosing import (Batch, Flow, Target, UnreachableError, get_reagent, infer_water,
                     plan_dose)
-from dosing.equilibrium import add_dose, solve_ph
-from dosing.reagents import GENERAL_CAUTION, custom_reagent
+from dosing.chem.equilibrium import add_dose, solve_ph
+from dosing.planning.reagents import GENERAL_CAUTION, custom_reagent
 
 
 def test_strong_acid_batch_to_ph7_with_50_percent_caustic_by_hand():

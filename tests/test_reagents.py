@@ -3,7 +3,7 @@
 import pytest
 
 from dosing.errors import InputError
-from dosing.reagents import CATALOGUE, COMPOUNDS, custom_reagent, get_reagent, with_purity
+from dosing.planning.reagents import CATALOGUE, COMPOUNDS, custom_reagent, get_reagent, with_purity
 
 thermo_electrochem = pytest.importorskip("thermo.electrochem")
 chemicals_elements = pytest.importorskip("chemicals.elements")

@@ -10,9 +10,9 @@ import pytest
 from tests.helpers import run_cli
 
 from dosing import plan_dose
-from dosing.effluent import infer_water
-from dosing.replay_io import run_replay
-from dosing.scenario import load_scenario
+from dosing.planning.effluent import infer_water
+from dosing.io.replay_io import run_replay
+from dosing.io.scenario import load_scenario
 
 ROOT = Path(__file__).resolve().parents[1]
 SCEN = ROOT / "scenarios" / "flow-metering-pump.toml"
@@ -217,8 +217,8 @@ from hypothesis import given, settings  # noqa: E402
 from hypothesis import strategies as st  # noqa: E402
 from hypothesis.extra.numpy import arrays  # noqa: E402
 
-from dosing import replay as replay_mod  # noqa: E402
-from dosing.replay_io import iter_site_chunks  # noqa: E402
+from dosing.planning import replay as replay_mod  # noqa: E402
+from dosing.io.replay_io import iter_site_chunks  # noqa: E402
 
 
 def test_rows_sharing_a_water_get_the_dose_it_gets_alone(tmp_path):

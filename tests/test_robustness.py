@@ -26,7 +26,7 @@ import pytest
 from hypothesis import HealthCheck, given, settings, strategies as st
 
 from dosing.cli import main
-from dosing.titration import _standard_errors, check_curve, parse_titrant
+from dosing.planning.titration import _standard_errors, check_curve, parse_titrant
 from dosing.errors import InputError
 from tests.helpers import run_cli
 
@@ -232,7 +232,7 @@ def test_output_write_error_part_way_is_one_line_and_leaves_nothing(tmp_path):
 
 
 def test_output_temporaries_of_a_killed_run_are_cleaned_up(tmp_path):
-    from dosing.files import write_atomic
+    from dosing.io.files import write_atomic
     dead = subprocess.Popen([sys.executable, "-c", "pass"])
     dead.wait()
     stale = tmp_path / f".dosing-{dead.pid}-abcd.tmp"
@@ -266,7 +266,7 @@ def test_output_killed_replay_leaves_litter_only_until_the_next_run(tmp_path):
 
 
 def test_output_files_honour_the_umask_and_keep_an_existing_mode(tmp_path):
-    from dosing.files import write_atomic
+    from dosing.io.files import write_atomic
     old = os.umask(0o022)
     try:
         write_atomic(tmp_path / "new.png", b"1")

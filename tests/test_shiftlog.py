@@ -16,7 +16,7 @@ import pytest
 from tests.helpers import run_cli
 
 from dosing.errors import InputError
-from dosing.shiftlog import SCHEMA_VERSION, ShiftLog, ShiftLogError, parse_since
+from dosing.io.shiftlog import SCHEMA_VERSION, ShiftLog, ShiftLogError, parse_since
 
 ROOT = Path(__file__).resolve().parents[1]
 SCEN = str(ROOT / "scenarios" / "cip-sulfuric.toml")
@@ -140,7 +140,7 @@ def test_schema_is_versioned(tmp_path):
 
 WRITER = textwrap.dedent("""
     import sys
-    from dosing.shiftlog import ShiftLog
+    from dosing.io.shiftlog import ShiftLog
     db, name, n = sys.argv[1], sys.argv[2], int(sys.argv[3])
     plan = {"tank": "T-1", "reagent": "caustic-50", "dose": {"kg_product": 1.0}}
     with ShiftLog(db) as log:

@@ -16,7 +16,7 @@ import pytest
 
 from tests.helpers import run_cli as cli
 
-from dosing.shiftlog import ShiftLog, ShiftLogError
+from dosing.io.shiftlog import ShiftLog, ShiftLogError
 
 ROOT = Path(__file__).resolve().parents[1]
 SCEN = str(ROOT / "scenarios" / "cip-sulfuric.toml")

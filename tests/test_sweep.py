@@ -10,9 +10,9 @@ from pathlib import Path
 
 import pytest
 
-from dosing.reagents import STRENGTHS, at_strength, get_reagent, strengths_of
-from dosing.scenario import load_scenario
-from dosing.sweep import default_sizes, strength_grid
+from dosing.planning.reagents import STRENGTHS, at_strength, get_reagent, strengths_of
+from dosing.io.scenario import load_scenario
+from dosing.planning.sweep import default_sizes, strength_grid
 from tests.test_robustness import _one_line, _strict_json, run
 
 thermo_electrochem = pytest.importorskip("thermo.electrochem")

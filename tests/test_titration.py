@@ -8,13 +8,13 @@ import pytest
 
 from tests.helpers import run_cli
 
-from dosing.effluent import infer_water
-from dosing.equilibrium import Mixture, add_dose, solve_ph
+from dosing.planning.effluent import infer_water
+from dosing.chem.equilibrium import Mixture, add_dose, solve_ph
 from dosing.errors import InputError, UnreachableError
-from dosing.plan import Target
-from dosing.reagents import get_reagent
-from dosing.scenario import load_scenario
-from dosing.titration import (check_curve, compare, direct_scaling, fit_water,
+from dosing.planning.plan import Target
+from dosing.planning.reagents import get_reagent
+from dosing.io.scenario import load_scenario
+from dosing.planning.titration import (check_curve, compare, direct_scaling, fit_water,
                               parse_titrant)
 from tests.helpers import totals
 
@@ -82,7 +82,7 @@ def test_a_sample_not_at_the_scenarios_ph_is_questioned():
     said = [w for w in shifted.warnings if "another sample" in w]
     assert said and f"pH {ph[0] - 0.8:.2f}" in said[0] and f"pH {s.water.ph:.2f}" in said[0]
     # within the meters' agreement, or a first reading with titrant in: nothing said
-    from dosing.titration import _sample_words
+    from dosing.planning.titration import _sample_words
     assert _sample_words(check_curve(50.0, tit, v, ph), float(ph[0]) + 0.25) == []
     assert _sample_words(check_curve(50.0, tit, v[1:], ph[1:]), float(ph[1]) + 2.0) == []
 

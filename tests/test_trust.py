@@ -176,7 +176,7 @@ def test_issue_11_hours_in_air_is_checked(tmp_path):
 
 # Issue 11 item 3: near an end point the inferred carbonate is ill-conditioned.
 def _ill_scenario(tmp_path, alk, ph=4.6, aim=7.0):
-    from dosing.scenario import load_scenario
+    from dosing.io.scenario import load_scenario
     f = tmp_path / f"ill-{alk}.toml"
     f.write_text(f"[effluent]\nph = {ph}\nalkalinity_mg_l_as_caco3 = {alk}\n"
                  f"[batch]\nvolume_m3 = 10\n[target]\nph_min = 6\nph_max = 9\n"
@@ -185,7 +185,7 @@ def _ill_scenario(tmp_path, alk, ph=4.6, aim=7.0):
 
 
 def test_issue_11_ill_conditioned_carbonate_is_said_with_its_figure(tmp_path):
-    from dosing.sheet import make_plan, sheet_dict
+    from dosing.report.sheet import make_plan, sheet_dict
     s = _ill_scenario(tmp_path, 2.5)
     plan = make_plan(s)
     # The issue's figure: 9.9 mmol/L of caustic to pH 7 at pH 4.6, 2.5 mg/L.
@@ -200,7 +200,7 @@ def test_issue_11_ill_conditioned_carbonate_is_said_with_its_figure(tmp_path):
 
 
 def test_issue_11_well_conditioned_water_gets_no_precision_warning(tmp_path):
-    from dosing.sheet import make_plan
+    from dosing.report.sheet import make_plan
     plan = make_plan(_ill_scenario(tmp_path, 150, ph=6.8, aim=8.5))
     assert not [w for w in plan.warnings if "rests on" in w]
     assert all(p.largest_change(plan.dose_mol_l) < 0.25 for p in plan.precision)
@@ -211,7 +211,7 @@ def test_issue_11_precision_step_agrees_with_a_fine_finite_difference(tmp_path):
     # match the derivative from a central difference 200 times finer, taken
     # through the public plan_dose (a separate path through the engine).
     from dosing import Batch, Target, get_reagent, infer_water, plan_dose
-    from dosing.sheet import make_plan
+    from dosing.report.sheet import make_plan
     plan = make_plan(_ill_scenario(tmp_path, 150, ph=6.8, aim=8.5))
     alk = plan.precision[0]
     secant = ((alk.dose_high_reading_mol_l - alk.dose_low_reading_mol_l)
@@ -249,7 +249,7 @@ def test_issue_11_no_dose_needed_prints_no_temperature_noise(tmp_path):
 
 def test_issue_11_titration_fit_prints_no_noise(tmp_path):
     import numpy as np
-    from dosing.titration import parse_titrant
+    from dosing.planning.titration import parse_titrant
     from tests.helpers import totals
     from tests.test_titration import synthetic
     tit = parse_titrant("0.1 M NaOH")
@@ -292,8 +292,8 @@ _REAGENTS = ["caustic-50", "caustic-25", "lime", "soda-ash", "sulfuric-98",
 def test_issue_11_accepted_scenarios_stay_within_physical_bounds(
         ph, t, lab, lab_value, solutes, metals, reagent, aim, activity, open_air):
     from dosing.errors import DosingError
-    from dosing.scenario import build_scenario
-    from dosing.sheet import make_plan
+    from dosing.io.scenario import build_scenario
+    from dosing.report.sheet import make_plan
     eff = {"ph": ph, "temperature_c": t, "solutes_mmol_l": solutes, "metals_mg_l": metals}
     if lab:
         eff[lab] = lab_value

@@ -5,8 +5,8 @@ from pathlib import Path
 
 import pytest
 
-from dosing.scenario import load_scenario, parse_scenario
-from dosing.sheet import make_plan
+from dosing.io.scenario import load_scenario, parse_scenario
+from dosing.report.sheet import make_plan
 from tui.app import make_app
 from tui.form import field_id
 from tui.screens.ask import TitrationAnswer
@@ -155,14 +155,14 @@ def test_starts_without_a_file():
 
 
 def _toml(data):
-    from dosing.scenario import scenario_to_toml
+    from dosing.io.scenario import scenario_to_toml
     return scenario_to_toml(data)
 
 
 def test_loads_a_bench_titration(tmp_path):
     from tests.test_titration import synthetic
     from tests.helpers import totals
-    from dosing.titration import parse_titrant
+    from dosing.planning.titration import parse_titrant
     import numpy as np
     tit = parse_titrant("0.1 N H2SO4")
     v = np.linspace(0, 12, 30)
@@ -370,7 +370,7 @@ def test_recording_asks_in_its_own_boxes(tmp_path):
             await pilot.press("enter")
             await settle(app, pilot)
             assert "recorded as entry 1" in app.status
-        from dosing.shiftlog import ShiftLog
+        from dosing.io.shiftlog import ShiftLog
         with ShiftLog(str(db), writable=False) as log:
             (entry,) = list(log.entries())
         assert (entry.operator, entry.dosed_kg, entry.ph_after) == ("R. Vale", 29.5, 7.4)

@@ -8,9 +8,9 @@ import math
 
 import pytest
 
-from dosing.activity import davies_log_gamma, debye_huckel_a
+from dosing.chem.activity import davies_log_gamma, debye_huckel_a
 from dosing.errors import InputError
-from dosing.water import (_pkw_iapws, calcite_pksp, carbonate_pk, check_temperature,
+from dosing.chem.water import (_pkw_iapws, calcite_pksp, carbonate_pk, check_temperature,
                           density, henry_co2, pkw, vant_hoff_pk)
 
 chemicals_iapws = pytest.importorskip("chemicals.iapws")

@@ -1,7 +1,7 @@
 """Tankside, the terminal view: edit a scenario, see the dose at once.
 
 Only the engine, the scenario loader and the shared presentation in
-``dosing.sheet`` are used here; there is no chemistry in the UI. One
+``dosing.report.sheet`` are used here; there is no chemistry in the UI. One
 factory, :func:`make_app`, builds the app for the command line and for the
 tests.
 """
@@ -22,16 +22,16 @@ from textual.widgets import (Footer, Header, Label, Select, Static, TabbedConten
                              TabPane)
 
 from dosing.errors import DosingError, ScenarioError
-from dosing.files import write_atomic
-from dosing.plan import Flow, Plan
-from dosing.reagents import CATALOGUE, GENERAL_CAUTION
-from dosing.scenario import Scenario, build_scenario, load_scenario, scenario_to_toml
-from dosing.sheet import (UnitSystem, make_plan, render_sheet, render_titration, sheet_dict,
+from dosing.io.files import write_atomic
+from dosing.planning.plan import Flow, Plan
+from dosing.planning.reagents import CATALOGUE, GENERAL_CAUTION
+from dosing.io.scenario import Scenario, build_scenario, load_scenario, scenario_to_toml
+from dosing.report.sheet import (UnitSystem, make_plan, render_sheet, render_titration, sheet_dict,
                           with_uncertainty)
-from dosing.titration import check_curve, compare, parse_titrant
-from dosing.titration_io import read_titration_csv
-from dosing.shiftlog import ShiftLog
-from dosing.sweep import default_alternative, default_sizes, strength_grid
+from dosing.planning.titration import check_curve, compare, parse_titrant
+from dosing.io.titration_io import read_titration_csv
+from dosing.io.shiftlog import ShiftLog
+from dosing.planning.sweep import default_alternative, default_sizes, strength_grid
 
 from .form import FIELDS, ScenarioForm, field_id
 from .screens.help import HelpScreen

@@ -17,8 +17,8 @@ from textual.containers import Horizontal, VerticalScroll
 from textual.message import Message
 from textual.widgets import Input, Label, Select, Static, Switch
 
-from dosing.reagents import CATALOGUE, COMPOUNDS
-from dosing.sheet import KG_PER_LB, L_PER_US_GAL, UnitSystem
+from dosing.planning.reagents import CATALOGUE, COMPOUNDS
+from dosing.report.sheet import KG_PER_LB, L_PER_US_GAL, UnitSystem
 
 __all__ = ["Field", "FIELDS", "ScenarioForm", "field_id", "parse_pairs", "US_FIELDS"]
 

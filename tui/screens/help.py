@@ -7,7 +7,7 @@ from textual.containers import VerticalScroll
 from textual.screen import ModalScreen
 from textual.widgets import Markdown
 
-from dosing.reagents import GENERAL_CAUTION
+from dosing.planning.reagents import GENERAL_CAUTION
 
 HELP = f"""\
 # Tankside, neutralisation dosing

@@ -4,8 +4,8 @@ from __future__ import annotations
 
 from textual_plotext import PlotextPlot
 
-from dosing.plan import Plan
-from dosing.sheet import UnitSystem, dose_axis
+from dosing.planning.plan import Plan
+from dosing.report.sheet import UnitSystem, dose_axis
 
 __all__ = ["CurvePlot", "TitrationPlot", "curve_axes"]
 
@@ -43,7 +43,7 @@ class TitrationPlot(PlotextPlot):
     """A bench titration: the readings, and the fitted water's curve through them."""
 
     def show(self, curve, water, target) -> None:
-        from dosing.titration import model_curve
+        from dosing.planning.titration import model_curve
         v, ph = model_curve(curve, water, points=120)
         p = self.plt
         p.clear_data()

@@ -7,9 +7,9 @@ from rich.table import Table
 from rich.text import Text
 from textual.widgets import Static
 
-from dosing.plan import Plan, permit_breaches
-from dosing.scenario import Scenario
-from dosing.sheet import (UnitSystem, caution_lines, check_lines, dose_lines, in_units, metal_lines,
+from dosing.planning.plan import Plan, permit_breaches
+from dosing.io.scenario import Scenario
+from dosing.report.sheet import (UnitSystem, caution_lines, check_lines, dose_lines, in_units, metal_lines,
                           staging_lines)
 
 __all__ = ["DosePanel"]

@@ -1,14 +1,14 @@
 """The sweep table: tank sizes (or flows) against product strengths, and
-another product side by side (the rows of :mod:`dosing.sweep_sheet`)."""
+another product side by side (the rows of :mod:`dosing.report.sweep_sheet`)."""
 
 from __future__ import annotations
 
 from rich.text import Text
 from textual.widgets import DataTable
 
-from dosing.sheet import UnitSystem
-from dosing.sweep import Sweep
-from dosing.sweep_sheet import grid_rows, size_heading, size_labels
+from dosing.report.sheet import UnitSystem
+from dosing.planning.sweep import Sweep
+from dosing.report.sweep_sheet import grid_rows, size_heading, size_labels
 
 __all__ = ["SweepTable"]
 

@@ -33,8 +33,8 @@ from typing import Any, Mapping
 import numpy as np
 
 from .effluent import Perturbation, infer_many
-from .equilibrium import Mixture, add_dose, dose_to_ph, solve_ph, strong_balance_at_ph
-from .errors import InputError
+from ..chem.equilibrium import Mixture, add_dose, dose_to_ph, solve_ph, strong_balance_at_ph
+from ..errors import InputError
 from .plan import has_grip
 from .precision import lab_field
 
@@ -216,7 +216,7 @@ def dose_uncertainty(inputs: Mapping[str, Any], plan, spread: Spread = Spread()
                      ) -> DoseUncertainty | None:
     """Sample the plausible waters behind ``plan`` and see how its dose fares.
 
-    ``inputs`` are the :func:`~dosing.effluent.infer_water` keyword arguments
+    ``inputs`` are the :func:`~dosing.planning.effluent.infer_water` keyword arguments
     of the plan's water. The dose a sampled water needs is expressed as
     nominal product per stated litre (what the operator would have had to
     meter): the true need times the true volume over the stated, over the

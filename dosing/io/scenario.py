@@ -21,16 +21,16 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Mapping
 
-from .effluent import (ACIDITY_ENDPOINT_PH, ALKALINITY_ENDPOINT_PH, BACKGROUND_IONS,
+from ..planning.effluent import (ACIDITY_ENDPOINT_PH, ALKALINITY_ENDPOINT_PH, BACKGROUND_IONS,
                        DEFAULT_DEPTH_M, DEFAULT_PCO2_UATM, Water, infer_water)
-from .errors import InputError, ScenarioError
-from .plan import Batch, Flow, Target
-from .reagents import Reagent, custom_reagent, get_reagent, with_purity
-from .hazards import ION_PERMIT_KEYS
-from .metals import METAL_IDS
-from .solids import CAKE_DENSITY_KG_L, CAKE_SOLIDS_FRACTION, METAL_PERMIT_KEYS
-from .species import SYSTEM_IDS
-from .uncertainty import SPREAD_KEYS, Spread, spread_from
+from ..errors import InputError, ScenarioError
+from ..planning.plan import Batch, Flow, Target
+from ..planning.reagents import Reagent, custom_reagent, get_reagent, with_purity
+from ..planning.hazards import ION_PERMIT_KEYS
+from ..chem.metals import METAL_IDS
+from ..planning.solids import CAKE_DENSITY_KG_L, CAKE_SOLIDS_FRACTION, METAL_PERMIT_KEYS
+from ..chem.species import SYSTEM_IDS
+from ..planning.uncertainty import SPREAD_KEYS, Spread, spread_from
 
 __all__ = ["Scenario", "PERMIT_KEYS", "parse_scenario", "load_scenario",
            "scenario_to_toml", "build_scenario", "scenario_key", "water_inputs"]

@@ -8,7 +8,7 @@ The model
 ---------
 A water is described by a :class:`Mixture`:
 
-* the total of each weak-acid system of :data:`dosing.species.SYSTEMS`
+* the total of each weak-acid system of :data:`dosing.chem.species.SYSTEMS`
   ``T_j`` [mol/L];
 * the strong-ion balance ``S`` [eq/L]: strong cations (Na+, K+, Ca2+ ...)
   minus strong anions (Cl-, NO3- ...), in equivalents;
@@ -38,7 +38,7 @@ equation is the special case of one system.
 Activity
 --------
 pH is the activity pH. With ``davies=True`` each ion's activity coefficient
-comes from :func:`dosing.activity.davies_log_gamma` at the ionic strength of
+comes from :func:`dosing.chem.activity.davies_log_gamma` at the ionic strength of
 the solution itself; with ``davies=False`` the solution is ideal.
 Concentrations are mol/L, taken equal to mol/kg (dilute water).
 """
@@ -50,7 +50,7 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from .activity import davies_unit, debye_huckel_a
-from .errors import ModelError
+from ..errors import ModelError
 from .metals import METALS, METAL_IDS
 from .species import SITE_IDS, SYSTEMS, SYSTEM_IDS
 from .water import calcite_pksp, carbonate_pk, henry_co2, pkw, vant_hoff_pk

@@ -6,7 +6,7 @@ alkalinity (Standard Methods 2320 B, titration to pH 4.5) or acidity
 totals. :func:`infer_water` turns that into a :class:`Water`: the carbonate
 total that explains the alkalinity or acidity, and the strong-ion balance
 that puts the water at its measured pH by charge balance. Both are direct
-solves (see :mod:`dosing.equilibrium`).
+solves (see :mod:`dosing.chem.equilibrium`).
 
 Assumptions
 -----------
@@ -21,7 +21,7 @@ Assumptions
 * Dissolved metals (a filtered sample, mg/L as the element) are dissolved
   at the measured pH; calcium and magnesium given among the ions are the
   same metals. Along a dose they precipitate as hydroxides wherever the
-  water is supersaturated (:mod:`dosing.metals`).
+  water is supersaturated (:mod:`dosing.chem.metals`).
 * A tank "open to air" has its dissolved CO2 held at equilibrium with air
   (default 420 µatm) while it is dosed; the measured pH and alkalinity
   describe the water as it arrives.
@@ -42,14 +42,14 @@ from typing import Any, Mapping
 
 import numpy as np
 
-from .activity import DAVIES_I_LIMIT
-from .equilibrium import (CARBONATE, METAL_COLUMNS, N_ACIDS, N_SYSTEMS, Mixture,
+from ..chem.activity import DAVIES_I_LIMIT
+from ..chem.equilibrium import (CARBONATE, METAL_COLUMNS, N_ACIDS, N_SYSTEMS, Mixture,
                           carbonate_for_alkalinity, co2_in_air_mol_l, speciate,
                           strong_balance_at_ph, system_index)
-from .errors import InputError, ModelError
-from .metals import METAL_IDS, get_metal
-from .species import MOLAR_MASS, SOLUTE_IDS, SYSTEM_IDS, get_system
-from .water import check_temperature
+from ..errors import InputError, ModelError
+from ..chem.metals import METAL_IDS, get_metal
+from ..chem.species import MOLAR_MASS, SOLUTE_IDS, SYSTEM_IDS, get_system
+from ..chem.water import check_temperature
 
 __all__ = ["CACO3_MG_PER_MEQ", "ALKALINITY_ENDPOINT_PH", "ACIDITY_ENDPOINT_PH",
            "DEFAULT_PCO2_UATM", "BACKGROUND_IONS", "STRONG_IONS", "Water", "infer_water",
@@ -65,7 +65,7 @@ ALKALINITY_ENDPOINT_PH = 4.5
 ACIDITY_ENDPOINT_PH = 8.3
 #: Background ions a scenario may give in ``ions_mg_l``, with the formula
 #: used for their molar mass. Calcium and magnesium are metals of
-#: :mod:`dosing.metals` (they take part in the solids); the rest are strong
+#: :mod:`dosing.chem.metals` (they take part in the solids); the rest are strong
 #: ions.
 BACKGROUND_IONS = {"sodium": "Na", "potassium": "K", "calcium": "Ca",
                    "magnesium": "Mg", "chloride": "Cl", "nitrate": "NO3"}
@@ -180,7 +180,7 @@ class Water:
     calcite : {"auto", "precipitates", "dissolved"}
         Whether the dosed water drops calcite: "auto" lets the plan decide
         from how supersaturated the dose leaves it (see
-        :data:`dosing.plan.CALCITE_SI_FAST`).
+        :data:`dosing.planning.plan.CALCITE_SI_FAST`).
     """
 
     ph: float

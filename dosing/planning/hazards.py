@@ -1,7 +1,7 @@
 """Checks that follow from the chemistry of a dosed water: heat, gas,
 what the dose adds to the discharge, and scale.
 
-:func:`assess` is called by :func:`dosing.plan.plan_dose` for every plan, so
+:func:`assess` is called by :func:`dosing.planning.plan.plan_dose` for every plan, so
 every front end shows the same checks. Each :class:`Check` carries its
 numbers (with units in the key names) and a plain message; its level is
 ``info``, ``warning`` or ``danger``. Thresholds that are common practice,
@@ -30,7 +30,7 @@ References
    solvent. Atmos. Chem. Phys. 15, 4399 (H2S, NH3, HCN; values from memory).
 4. NIOSH Pocket Guide to Chemical Hazards: IDLH of H2S 100 ppm, HCN 50 ppm,
    NH3 300 ppm (from memory).
-5. Plummer, L. N.; Busenberg, E. (1982), calcite solubility (dosing.water).
+5. Plummer, L. N.; Busenberg, E. (1982), calcite solubility (dosing.chem.water).
 """
 
 from __future__ import annotations
@@ -41,14 +41,14 @@ from typing import Mapping
 
 import numpy as np
 
-from .activity import davies_log_gamma, debye_huckel_a
+from ..chem.activity import davies_log_gamma, debye_huckel_a
 from .effluent import BACKGROUND_IONS, Water
-from .numbers import fmt
-from .equilibrium import CARBONATE, Speciation, co2_in_air_mol_l, system_index
-from .metals import label
+from ..numbers import fmt
+from ..chem.equilibrium import CARBONATE, Speciation, co2_in_air_mol_l, system_index
+from ..chem.metals import label
 from .reagents import Reagent
-from .species import MOLAR_MASS, SYSTEMS
-from .water import R_J_MOL_K, calcite_pksp, density
+from ..chem.species import MOLAR_MASS, SYSTEMS
+from ..chem.water import R_J_MOL_K, calcite_pksp, density
 
 __all__ = ["Check", "assess", "reaction_heat_kj_l", "DH_WATER_KJ_MOL", "gypsum_si", "calcite_si",
            "ION_PERMIT_KEYS", "GYPSUM_LOG_KSP"]
@@ -84,11 +84,11 @@ CO2_OFFGAS_NOTE_MMOL_L = 1.0
 CO2_FOAM_MMOL_L = 5.0
 #: Molar gas constant in L atm/(K mol), from R [J/(mol K)] and 1 atm = 101 325 Pa.
 R_L_ATM = R_J_MOL_K / 101.325
-#: Permit keys on ions and dissolved solids (metal caps are in dosing.solids).
+#: Permit keys on ions and dissolved solids (metal caps are in dosing.planning.solids).
 ION_PERMIT_KEYS = ("sodium_mg_l", "calcium_mg_l", "sulfate_mg_l", "chloride_mg_l",
                    "magnesium_mg_l", "tds_increase_mg_l")
 #: Strong ions a dose can add, by formula, with the names used for the
-#: background ions of an effluent (dosing.effluent.BACKGROUND_IONS).
+#: background ions of an effluent (dosing.planning.effluent.BACKGROUND_IONS).
 _ION_NAMES = {formula: name for name, formula in BACKGROUND_IONS.items()} | {"SO4": "sulfate"}
 
 # Henry's constants at 25 °C [mol/(kg atm)] and d ln KH / d(1/T) [K]
@@ -157,7 +157,7 @@ def assess(water: Water, reagent: Reagent, dose_mol_l: float, before: Speciation
     ``before`` and ``after`` are the speciation of the water before and after
     the dose; ``batch_litres`` is the water a batch (or an hour of flow)
     holds, for moles and litres of gas. ``permit`` caps on metals are
-    checked by :mod:`dosing.solids`, not here.
+    checked by :mod:`dosing.planning.solids`, not here.
     """
     f = 1.0 / (1.0 + dose_mol_l * (reagent.litres_product_per_mol or 0.0))
     added = {ion: n * dose_mol_l * f * MOLAR_MASS[ion] * 1000.0

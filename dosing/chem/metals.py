@@ -14,7 +14,7 @@ protonated form is the free ion (charge +z) and whose stepwise constants are
 the totals array. At a given pH the dissolved total a hydroxide allows is
 [Me(z+)] / alpha_0 with [Me(z+)] = *Ks0 {H+}^z / gamma_z, so the dissolved
 part of a metal is the lesser of its total and that solubility, which
-depends on the pH alone (see :mod:`dosing.equilibrium`).
+depends on the pH alone (see :mod:`dosing.chem.equilibrium`).
 
 Choice of solid
 ---------------
@@ -61,7 +61,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-from .errors import InputError
+from ..errors import InputError
 
 __all__ = ["Metal", "METALS", "METAL_IDS", "HARDNESS", "get_metal", "KCAL", "label"]
 

@@ -27,14 +27,14 @@ import pandas as pd
 
 from .effluent import (ALKALINITY_ENDPOINT_PH, CACO3_MG_PER_MEQ, MEASURED_MAX_MG_L, aerate,
                        totals_vector)
-from .equilibrium import (CARBONATE, N_SYSTEMS, Mixture, add_dose, carbonate_for_alkalinity,
+from ..chem.equilibrium import (CARBONATE, N_SYSTEMS, Mixture, add_dose, carbonate_for_alkalinity,
                           co2_in_air_mol_l, dose_to_ph, speciate, strong_balance_at_ph,
                           system_index)
 from .hazards import calcite_si
 from .plan import CALCITE_SI_FAST, has_grip
-from .errors import ScenarioError
-from .scenario import Scenario
-from .water import T_MAX_C, T_MIN_C
+from ..errors import ScenarioError
+from ..io.scenario import Scenario
+from ..chem.water import T_MAX_C, T_MIN_C
 
 __all__ = ["COLUMN_NAMES", "normalise_columns", "ReplayState", "plan_rows",
            "ReplayTotals", "replay_report", "FLAGS", "FLATLINE_ROWS", "GAP_LIMIT_S",
@@ -352,7 +352,7 @@ def _dose_distinct(scenario: Scenario, ph, temp, a) -> tuple[np.ndarray, np.ndar
 
 def _calcite_where_fast(mix: Mixture, reagent, aim: float, dose: np.ndarray) -> np.ndarray:
     """The planner's calcite rule row by row: where the dose without calcite
-    leaves the water above :data:`~dosing.plan.CALCITE_SI_FAST`, the dose
+    leaves the water above :data:`~dosing.planning.plan.CALCITE_SI_FAST`, the dose
     with calcite precipitating."""
     ca, c = system_index("calcium"), CARBONATE
     idx = np.flatnonzero(np.isfinite(dose) & (dose > 0) & (mix.totals_mol_l[:, c] > 0)

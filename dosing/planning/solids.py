@@ -16,7 +16,7 @@ The wet cake of a filter press typically holds 20-35 % dry solids at a bulk
 density near 1.2 kg/L (common practice); 25 % and 1.2 kg/L are the defaults.
 
 Calcite precipitates inside the charge balance (it releases acid) when
-the plan has it precipitate (see :func:`dosing.plan.plan_dose`); it is
+the plan has it precipitate (see :func:`dosing.planning.plan.plan_dose`); it is
 reported as CaCO3.
 """
 
@@ -28,10 +28,10 @@ from typing import Mapping
 
 import numpy as np
 
-from .equilibrium import METAL_COLUMNS, N_SYSTEMS, Mixture, Speciation, speciate, system_index
+from ..chem.equilibrium import METAL_COLUMNS, N_SYSTEMS, Mixture, Speciation, speciate, system_index
 from .hazards import gypsum_si
-from .metals import HARDNESS, METALS, METAL_IDS
-from .species import MOLAR_MASS
+from ..chem.metals import HARDNESS, METALS, METAL_IDS
+from ..chem.species import MOLAR_MASS
 
 __all__ = ["Solid", "Sludge", "CapWindow", "METAL_PERMIT_KEYS", "CAKE_SOLIDS_FRACTION",
            "CAKE_DENSITY_KG_L", "solids_after", "metals_after_mg_l", "metals_present_mol_l",

@@ -2,10 +2,10 @@
 
 from __future__ import annotations
 
-from .numbers import fmt
-from .metals import label
-from .reagents import GENERAL_CAUTION
-from .shiftlog import Entry, ShiftLog
+from ..numbers import fmt
+from ..chem.metals import label
+from ..planning.reagents import GENERAL_CAUTION
+from ..io.shiftlog import Entry, ShiftLog
 
 __all__ = ["render_list", "render_entry", "unreadable_line"]
 

@@ -1,6 +1,6 @@
 """Reading logged data for a replay: CSV (or Parquet) in chunks.
 
-The one place replay touches files; the chemistry is in :mod:`dosing.replay`.
+The one place replay touches files; the chemistry is in :mod:`dosing.planning.replay`.
 Memory stays constant however long the file: each chunk is planned, added
 into the totals, optionally written out, and dropped.
 """
@@ -18,8 +18,8 @@ from typing import Callable, Iterator, Sequence
 
 import pandas as pd
 
-from .errors import ScenarioError
-from .replay import (ReplayState, ReplayTotals, as_numbers, normalise_columns, plan_rows,
+from ..errors import ScenarioError
+from ..planning.replay import (ReplayState, ReplayTotals, as_numbers, normalise_columns, plan_rows,
                      replay_report)
 from .scenario import Scenario
 
@@ -335,7 +335,7 @@ def run_replay(paths: str | Sequence[str], scenario: Scenario, *,
     if rows_out is not None:
         # The cautions travel with every file that carries doses (read the rows
         # with a comment character, e.g. pandas.read_csv(..., comment="#")).
-        from .reagents import GENERAL_CAUTION
+        from ..planning.reagents import GENERAL_CAUTION
         for line in tuple(scenario.reagent.cautions) + (GENERAL_CAUTION,):
             rows_out.write(f"# {line}\n")
     paths = [paths] if isinstance(paths, str) else list(paths)

@@ -44,7 +44,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from .errors import InputError
+from ..errors import InputError
 
 __all__ = [
     "T_MIN_C", "T_MAX_C", "R_J_MOL_K", "check_temperature", "density",

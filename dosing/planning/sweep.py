@@ -8,10 +8,10 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-from .errors import DosingError
+from ..errors import DosingError
 from .plan import Amounts, Batch, Flow, Plan, amounts_for, plan_dose
 from .reagents import Reagent, at_strength, get_reagent, strengths_of
-from .scenario import Scenario
+from ..io.scenario import Scenario
 
 __all__ = ["SweepCell", "Sweep", "sweep", "strength_grid", "default_alternative",
            "default_sizes"]
@@ -89,7 +89,7 @@ def strength_grid(scenario: Scenario, sizes: tuple[float, ...], *,
                   others: tuple[Reagent | str, ...] = (),
                   known: dict[str, Plan] | None = None) -> Sweep:
     """Sizes against strengths: the scenario's product at each strength (its
-    usual ones by default, see :func:`~dosing.reagents.strengths_of`), then
+    usual ones by default, see :func:`~dosing.planning.reagents.strengths_of`), then
     ``others`` side by side. Each strength is planned on its own (a weaker
     solution adds more water with the same moles)."""
     r = scenario.reagent

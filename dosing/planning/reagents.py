@@ -19,7 +19,7 @@ Densities at 20 °C
 * HCl 32 %: 1.1594 g/cm³, CRC Handbook, same table.
 
 How far lime, quicklime and magnesia can raise the pH follows from the
-solubility of portlandite and brucite in :mod:`dosing.metals` (with
+solubility of portlandite and brucite in :mod:`dosing.chem.metals` (with
 temperature), not from a fixed limit. Limestone stops near pH 6.5 in
 practice (common practice: its surface coats and CO2 builds up). Purities
 of the solid products are typical commercial grades (common practice) and
@@ -34,9 +34,9 @@ from typing import Mapping
 
 import numpy as np
 
-from .equilibrium import N_SYSTEMS, ReagentVector, system_index
-from .errors import InputError
-from .species import MOLAR_MASS
+from ..chem.equilibrium import N_SYSTEMS, ReagentVector, system_index
+from ..errors import InputError
+from ..chem.species import MOLAR_MASS
 
 __all__ = ["Compound", "COMPOUNDS", "Reagent", "CATALOGUE", "REAGENT_IDS", "with_purity",
            "get_reagent", "custom_reagent", "GENERAL_CAUTION", "STRENGTHS",

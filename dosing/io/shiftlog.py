@@ -29,7 +29,7 @@ from datetime import datetime, timezone
 from pathlib import Path
 from typing import Any, Iterator
 
-from .errors import InputError, ShiftLogError
+from ..errors import InputError, ShiftLogError
 
 __all__ = ["ShiftLogError", "Entry", "ShiftLog", "default_log_path", "SCHEMA_VERSION",
            "MIGRATIONS", "ENV_VAR", "parse_since", "Bias", "BIAS_MIN_ENTRIES"]
@@ -343,7 +343,7 @@ class ShiftLog:
 
     # ------------------------------------------------------------ writing --
     def _insert(self, row: dict[str, Any]) -> int:
-        from . import __version__
+        from .. import __version__
         if not self.writable:
             raise ShiftLogError(f"{self.path}: was opened read-only; nothing was written")
         row = dict(row, utc=datetime.now(timezone.utc).isoformat(timespec="microseconds"),

@@ -35,12 +35,12 @@ from scipy.interpolate import PchipInterpolator
 from scipy.optimize import least_squares
 
 from .effluent import Water
-from .equilibrium import (CARBONATE, UNKNOWN, Mixture, ReagentVector, add_dose, dose_to_ph,
+from ..chem.equilibrium import (CARBONATE, UNKNOWN, Mixture, ReagentVector, add_dose, dose_to_ph,
                           solve_ph, speciate)
-from .errors import InputError, UnreachableError
+from ..errors import InputError, UnreachableError
 from .plan import Flow, Plan, Target, amounts_for, plan_dose
 from .reagents import COMPOUNDS, Compound, Reagent, get_reagent
-from .scenario import Scenario
+from ..io.scenario import Scenario
 
 __all__ = ["Titrant", "parse_titrant", "BenchCurve", "check_curve", "DirectScaling",
            "direct_scaling", "WaterFit", "fit_water", "compare", "MISREAD_PH", "model_curve",
@@ -376,7 +376,7 @@ def _least_squares_fit(curve: BenchCurve, base: Water, unknown_acid: str):
     asked or where it halves the pH misfit: (fit, with_unknown, misfit)."""
     # Starting points: the strong balance that matches the first reading
     # for a few carbonate totals.
-    from .equilibrium import strong_balance_at_ph
+    from ..chem.equilibrium import strong_balance_at_ph
     starts = []
     for c in (0.0, 1.0, 5.0, 20.0):
         tot = base.mixture().totals_mol_l.copy()
@@ -544,10 +544,10 @@ def compare(curve: BenchCurve, scenario: Scenario, *, unknown_acid: str = "auto"
 
     The model water is the simple fit (carbonate, strong-ion balance, at most
     one unlisted acid) while it explains the curve to about three times a
-    meter's noise; otherwise the buffer spectrum (:mod:`dosing.buffer_fit`).
+    meter's noise; otherwise the buffer spectrum (:mod:`dosing.planning.buffer_fit`).
     ``fit_mode`` forces either.
     """
-    from .sheet import sheet_dict
+    from ..report.sheet import sheet_dict
     target, reagent, basis = scenario.target, scenario.reagent, scenario.basis
     direct = direct_scaling(curve, reagent, target)
     fit, spec, used = _choose_fit(curve, scenario.water, unknown_acid, fit_mode)

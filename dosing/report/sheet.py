@@ -3,7 +3,7 @@
 The command line, Tankside, the terminal view and the shift log all call these
 functions, so a dose reads the same everywhere, with the same cautions.
 
-* :func:`make_plan` - plan a :class:`~dosing.scenario.Scenario`.
+* :func:`make_plan` - plan a :class:`~dosing.io.scenario.Scenario`.
 * :func:`sheet_dict` - the plan as JSON-ready data with stable keys (SI).
 * :func:`render_sheet` - the operator's dose sheet as text, in metric or US
   customary units.
@@ -16,17 +16,17 @@ import re
 from dataclasses import dataclass, replace
 from typing import Any, Literal
 
-from . import __version__
-from .effluent import CACO3_MG_PER_MEQ
-from .numbers import fmt
-from .plan import METERING_ERROR, Batch, Flow, Plan, permit_breaches, plan_dose
-from .metals import HARDNESS, label as metal_label
-from .solids import Sludge, sludge_of
-from .errors import InputError, ModelError, ScenarioError, UnreachableError
-from .precision import lab_sensitivity, precision_warning
-from .control import control_design
-from .uncertainty import MATERIAL_RISK, dose_uncertainty, staged_dose
-from .scenario import Scenario, scenario_key, water_inputs
+from .. import __version__
+from ..planning.effluent import CACO3_MG_PER_MEQ
+from ..numbers import fmt
+from ..planning.plan import METERING_ERROR, Batch, Flow, Plan, permit_breaches, plan_dose
+from ..chem.metals import HARDNESS, label as metal_label
+from ..planning.solids import Sludge, sludge_of
+from ..errors import InputError, ModelError, ScenarioError, UnreachableError
+from ..planning.precision import lab_sensitivity, precision_warning
+from ..planning.control import control_design
+from ..planning.uncertainty import MATERIAL_RISK, dose_uncertainty, staged_dose
+from ..io.scenario import Scenario, scenario_key, water_inputs
 
 __all__ = ["Units", "UnitSystem", "UNIT_SYSTEMS", "make_plan", "with_uncertainty",
            "sheet_dict", "render_sheet",
@@ -924,9 +924,9 @@ def _plus_minus(value: float, err: float | None, unit: str) -> str:
 
 def render_titration(scenario: Scenario, comparison, units: str = "metric",
                      width: int = 78) -> str:
-    """Both titration methods side by side (a :class:`~dosing.titration.Comparison`),
+    """Both titration methods side by side (a :class:`~dosing.planning.titration.Comparison`),
     then the model plan's sheet."""
-    from .titration import FIT_LABELS
+    from ..planning.titration import FIT_LABELS
     report = comparison.to_dict()
     d, m = report["direct"], report["model"]
     per = "per_h" if "kg_product_per_h" in d else "per_batch"

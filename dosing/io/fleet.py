@@ -9,9 +9,9 @@ A fleet file names each site with its scenario and its data files::
 Paths are relative to the fleet file. Every file is cut into parts (byte
 ranges of a CSV, row groups of a Parquet file); a ``dask.dataframe`` built
 with ``from_map`` reads one part per partition and ``map_partitions`` runs
-the replay kernel on it (:func:`dosing.replay.plan_part`). The parts come
+the replay kernel on it (:func:`dosing.planning.replay.plan_part`). The parts come
 back to this process in record order and are put together by
-:func:`dosing.replay.stitch`, which plans each part's first rows with the
+:func:`dosing.planning.replay.stitch`, which plans each part's first rows with the
 state the parts before it leave: the stuck-sensor run and the time step
 carry across parts and files exactly as in one pass, so a site's figures
 equal a single-site replay of the same files (to rounding of the sums).
@@ -33,10 +33,10 @@ from typing import Any, Callable, Iterator, Mapping, Sequence
 
 import pandas as pd
 
-from .errors import ScenarioError, UsageError
-from .plan import Flow
-from .reagents import GENERAL_CAUTION
-from .replay import ReplayTotals, nominal_step, plan_part, stitch
+from ..errors import ScenarioError, UsageError
+from ..planning.plan import Flow
+from ..planning.reagents import GENERAL_CAUTION
+from ..planning.replay import ReplayTotals, nominal_step, plan_part, stitch
 from .replay_io import (CHUNK_ROWS, PART_BYTES, Part, file_parts, finish_replay,
                         iter_site_chunks, read_part, site_files)
 from .scenario import Scenario, load_scenario, parse_toml, read_text_file
@@ -143,7 +143,7 @@ def dask_client(scheduler: str | None = None, workers: int | None = None) -> Ite
 
 
 def _import_kernel() -> bool:
-    import dosing.replay_io  # noqa: F401  (the reader, the kernel; numpy, pandas, scipy)
+    import dosing.io.replay_io  # noqa: F401  (the reader, the kernel; numpy, pandas, scipy)
     try:
         import pyarrow  # noqa: F401  (the time parser's fast path, when installed)
     except ImportError:

@@ -6,7 +6,7 @@ import csv
 import math
 from pathlib import Path
 
-from .errors import ScenarioError
+from ..errors import ScenarioError
 
 __all__ = ["read_titration_csv", "VOLUME_NAMES"]
 

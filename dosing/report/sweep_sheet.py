@@ -12,11 +12,11 @@ import io
 from dataclasses import dataclass
 from typing import Any
 
-from .numbers import fmt
-from .reagents import GENERAL_CAUTION
-from .scenario import Scenario
+from ..numbers import fmt
+from ..planning.reagents import GENERAL_CAUTION
+from ..io.scenario import Scenario
 from .sheet import UNIT_SYSTEMS, _wrap
-from .sweep import Sweep
+from ..planning.sweep import Sweep
 
 __all__ = ["GridRow", "grid_rows", "size_labels", "size_heading", "render_sweep",
            "sweep_dict", "sweep_csv", "SWEEP_NOTE"]

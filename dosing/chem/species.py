@@ -22,7 +22,7 @@ Sources
         properties. J. Phys. Chem. Ref. Data 11, Suppl. 2. Enthalpies of
         ionisation here are differences of standard enthalpies of formation.
 [PB82]  Plummer, L. N.; Busenberg, E. (1982). Geochim. Cosmochim. Acta 46,
-        1011-1040 (carbonate; the temperature fits live in ``dosing.water``).
+        1011-1040 (carbonate; the temperature fits live in ``dosing.chem.water``).
 [K91]   Kettler, R. M.; Palmer, D. A.; Wesolowski, D. J. (1991). J. Solution
         Chem. 20, 905-927 (oxalic acid).
 [S83]   Sjöberg, S.; Hägglund, Y.; Nordin, A.; Ingri, N. (1983). Mar. Chem.
@@ -33,7 +33,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-from .errors import InputError
+from ..errors import InputError
 
 __all__ = ["AcidSystem", "SYSTEMS", "SYSTEM_IDS", "get_system", "MOLAR_MASS"]
 
@@ -119,7 +119,7 @@ SYSTEMS: tuple[AcidSystem, ...] = (
     AcidSystem("carbonate", "carbonate (CO2/HCO3-/CO3 2-)", "H2CO3*",
                (6.352, 10.329), (9.15, 14.85), 0, "C", _AW["C"],
                "pKa 6.352 and 10.329 at 25 °C from [PB82]; the temperature "
-               "dependence uses the full [PB82] fits in dosing.water, the "
+               "dependence uses the full [PB82] fits in dosing.chem.water, the "
                "enthalpies here are only for reference (NBS, from memory)."),
     AcidSystem("phosphate", "phosphate", "H3PO4",
                (2.148, 7.198, 12.35), (-8.0, 3.6, 16.0), 0, "P", _AW["P"],

@@ -22,7 +22,7 @@ import re
 import tempfile
 from pathlib import Path
 
-from .errors import ScenarioError
+from ..errors import ScenarioError
 
 __all__ = ["write_atomic", "atomic_text_writer"]
 

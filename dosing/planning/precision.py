@@ -7,7 +7,7 @@ the water with each measurement at the edges of its usual precision and
 solves the dose again, so the plan can say how much the number rests on
 each reading, and recommend a bench titration when it rests too much.
 
-Pure: it takes the measurements as :func:`dosing.effluent.infer_water`
+Pure: it takes the measurements as :func:`dosing.planning.effluent.infer_water`
 keyword arguments and returns numbers.
 """
 
@@ -19,7 +19,7 @@ from typing import Any, Mapping
 import numpy as np
 
 from .effluent import LAB_PRECISION, LOW_READING_MG_L, Perturbation, infer_many
-from .equilibrium import dose_to_ph
+from ..chem.equilibrium import dose_to_ph
 from .plan import has_grip
 from .reagents import Reagent
 

@@ -15,7 +15,7 @@ activity coefficients (Davies) and the weights are refined in a few passes.
 What comes back: the sites found, merged into buffer regions (pKa,
 mmol/L, a bootstrap standard deviation over the points, and a catalogue
 system whose pKa lies near, as a question), the misfit, and a
-:class:`~dosing.effluent.Water` whose sites are engine columns, so the
+:class:`~dosing.planning.effluent.Water` whose sites are engine columns, so the
 fitted water plans any reagent to any aim.
 
 Pure: numbers in, numbers out.
@@ -28,11 +28,11 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
-from .activity import davies_log_gamma, debye_huckel_a
+from ..chem.activity import davies_log_gamma, debye_huckel_a
 from .effluent import Water
-from .equilibrium import (CARBONATE, Mixture, add_dose, solve_ph, speciate, system_index)
-from .species import SITE_IDS, SYSTEMS
-from .water import carbonate_pk, pkw, vant_hoff_pk
+from ..chem.equilibrium import (CARBONATE, Mixture, add_dose, solve_ph, speciate, system_index)
+from ..chem.species import SITE_IDS, SYSTEMS
+from ..chem.water import carbonate_pk, pkw, vant_hoff_pk
 
 __all__ = ["PK_GRID", "BufferRegion", "SpectrumFit", "fit_spectrum"]
 

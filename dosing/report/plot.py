@@ -14,12 +14,12 @@ matplotlib.use("Agg")
 import matplotlib.pyplot as plt  # noqa: E402
 import numpy as np  # noqa: E402
 
-from .plan import Plan  # noqa: E402
-from .numbers import fmt  # noqa: E402
+from ..planning.plan import Plan  # noqa: E402
+from ..numbers import fmt  # noqa: E402
 from .sheet import UNIT_SYSTEMS, dose_axis  # noqa: E402
-from .metals import HARDNESS, label as metal_label  # noqa: E402
-from .reagents import GENERAL_CAUTION  # noqa: E402
-from .solids import dissolved_vs_ph  # noqa: E402
+from ..chem.metals import HARDNESS, label as metal_label  # noqa: E402
+from ..planning.reagents import GENERAL_CAUTION  # noqa: E402
+from ..planning.solids import dissolved_vs_ph  # noqa: E402
 
 __all__ = ["plan_figure", "plan_figure_png", "replay_figure_png", "titration_figure_png"]
 
@@ -249,7 +249,7 @@ def replay_figure_png(totals, report: dict, units: str = "metric") -> bytes:
 
 
 def titration_figure_png(curve, comparison, title: str = "") -> bytes:
-    """PNG bytes of a :class:`~dosing.titration.Comparison`: measured points,
+    """PNG bytes of a :class:`~dosing.planning.titration.Comparison`: measured points,
     PCHIP interpolation, model curve, window, dose; with a buffer spectrum
     fitted, its sites as bars over pKa below."""
     direct = comparison.direct
@@ -269,7 +269,7 @@ def titration_figure_png(curve, comparison, title: str = "") -> bytes:
     ph_grid = np.linspace(min(curve.ph), max(curve.ph), 400)
     ml = direct.interpolant(ph_grid)
     ax.plot(ml, ph_grid, color="0.4", lw=1.2, label="interpolation (PCHIP)")
-    from .titration import model_curve
+    from ..planning.titration import model_curve
     v, ph_model = model_curve(curve, water)
     ax.plot(v, ph_model, color="tab:blue", lw=1.8,
             label="fitted water (" + ("buffer spectrum" if comparison.used == "spectrum" else "model")
@@ -294,7 +294,7 @@ def _spectrum_panel(ax, spec) -> None:
     ax.bar(spec.site_pka, spec.site_mol_l * 1000, width=0.16, color="tab:purple",
            label="fitted site")
     if spec.carbonate_mol_l > 0:
-        from .water import carbonate_pk
+        from ..chem.water import carbonate_pk
         pk1, pk2 = (float(x) for x in carbonate_pk(spec.water.temperature_c))
         ax.bar([pk1], [spec.carbonate_mol_l * 1000], width=0.16, color="tab:orange",
                label=f"carbonate (pK {pk1:.2f}, {pk2:.2f})")

@@ -4,7 +4,7 @@
 volume) or a flow, it finds
 
 * the dose that takes the water to the aim pH (a direct solve at fixed pH,
-  see :func:`dosing.equilibrium.dose_to_ph`);
+  see :func:`dosing.chem.equilibrium.dose_to_ph`);
 * the band of doses that keeps the pH inside the window;
 * the slope of pH against dose at the aim, and the pH that a 5 % metering
   error would give, with a warning when that leaves the window;
@@ -27,17 +27,17 @@ from typing import Any, Mapping
 import numpy as np
 
 from .effluent import STILL_WATER_KL_M_H, Water
-from .activity import DAVIES_I_LIMIT
-from .equilibrium import (CARBONATE, Mixture, add_dose, dose_to_ph, solve_ph,
+from ..chem.activity import DAVIES_I_LIMIT
+from ..chem.equilibrium import (CARBONATE, Mixture, add_dose, dose_to_ph, solve_ph,
                           speciate)
-from .errors import InputError, ModelError, UnreachableError
+from ..errors import InputError, ModelError, UnreachableError
 from .hazards import Check, assess
-from .metals import METAL_IDS, label
-from .numbers import fmt
+from ..chem.metals import METAL_IDS, label
+from ..numbers import fmt
 from .reagents import GENERAL_CAUTION, Reagent
 from .solids import (METAL_PERMIT_KEYS, CapWindow, Solid, cap_window, metals_after_mg_l,
                      metals_present_mol_l, solids_after)
-from .water import henry_co2
+from ..chem.water import henry_co2
 
 __all__ = ["has_grip", "GRIP_MIN", "permit_breaches", "AirExchange", "CalciteCase",
            "CALCITE_SI_FAST", "Target", "Batch", "Flow", "Amounts", "TitrationCurve",
@@ -332,7 +332,7 @@ def plan_dose(water: Water, reagent: Reagent, target: Target,
     Parameters
     ----------
     water : Water
-        From :func:`dosing.effluent.infer_water`.
+        From :func:`dosing.planning.effluent.infer_water`.
     reagent : Reagent
         A catalogue or custom product.
     target : Target
@@ -342,7 +342,7 @@ def plan_dose(water: Water, reagent: Reagent, target: Target,
     permit : mapping, optional
         Discharge caps [mg/L]: ions (``sulfate_mg_l``, ``chloride_mg_l``,
         ``sodium_mg_l``, ``calcium_mg_l``, ``tds_increase_mg_l``), checked by
-        :func:`dosing.hazards.assess`, and dissolved metals (``zinc_mg_l``
+        :func:`dosing.planning.hazards.assess`, and dissolved metals (``zinc_mg_l``
         ...), checked at the aim with the pH range that meets them.
     curve_points : int
         Points on the titration curve.
