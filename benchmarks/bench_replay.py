@@ -62,7 +62,8 @@ def best_of(k: int, job) -> float:
 
 
 def dose_solve_rates() -> None:
-    from dosing.chem.equilibrium import (N_SYSTEMS, Mixture, constants_at, dose_to_ph,
+    from dosing.chem.activity import DAVIES, IDEAL
+from dosing.chem import (N_SYSTEMS, Mixture, constants_at, dose_to_ph,
                                     strong_balance_at_ph, system_index)
     from dosing.planning.reagents import get_reagent
     from dosing.io.scenario import load_scenario
@@ -74,13 +75,13 @@ def dose_solve_rates() -> None:
     base = np.zeros((n, N_SYSTEMS))
     for k, v in s.water.totals_mol_l.items():
         base[:, system_index(k)] = v
-    for davies in (False, True):
-        sb, _ = strong_balance_at_ph(base, ph, 32.0, davies=davies)
-        mix = Mixture.build(base, sb, 0.5 * np.abs(sb), 32.0, math.nan, davies)
+    for model in (IDEAL, DAVIES):
+        sb, _ = strong_balance_at_ph(base, ph, 32.0, activity=model)
+        mix = Mixture.build(base, sb, 0.5 * np.abs(sb), 32.0, math.nan, model)
         dt = best_of(5, lambda: dose_to_ph(mix, reagent.vector(), 7.5))
-        label = "Davies" if davies else "ideal "
+        label = f"{model.label:<6}"
         print(f"dose solve, {label}: {n / dt:12,.0f} rows/s ({dt * 1000:.0f} ms for {n:,})")
-        if not davies:
+        if model.ideal:
             ideal_rate = n / dt
     # Plain per-row baseline: nested scalar root finding, ideal model.
     const = constants_at(np.array([32.0]))
@@ -100,7 +101,7 @@ def dose_solve_rates() -> None:
         return r
 
     rows = 200
-    sb, _ = strong_balance_at_ph(base[:rows], ph[:rows], 32.0, davies=False)
+    sb, _ = strong_balance_at_ph(base[:rows], ph[:rows], 32.0, activity=IDEAL)
     t0 = time.perf_counter()
     for i in range(rows):
         def ph_after(d):

@@ -16,12 +16,13 @@ import time
 import numpy as np
 from scipy.optimize import brentq
 
-from dosing.chem.equilibrium import (N_SYSTEMS, Mixture, constants_at, dose_to_ph, solve_ph,
+from dosing.chem.activity import DAVIES, IDEAL, ActivityModel
+from dosing.chem import (N_SYSTEMS, Mixture, constants_at, dose_to_ph, solve_ph,
                                 system_index)
 from dosing.planning.reagents import get_reagent
 
 
-def waters(n: int, davies: bool, seed: int = 7, metals: bool = False) -> Mixture:
+def waters(n: int, activity: ActivityModel, seed: int = 7, metals: bool = False) -> Mixture:
     rng = np.random.default_rng(seed)
     tot = np.zeros((n, N_SYSTEMS))
     if metals:
@@ -36,7 +37,7 @@ def waters(n: int, davies: bool, seed: int = 7, metals: bool = False) -> Mixture
     tot[:, system_index("ammonia")] = rng.uniform(0.0, 0.002, n)
     s = rng.uniform(-0.01, 0.02, n)
     t = rng.uniform(5.0, 45.0, n)
-    return Mixture.build(tot, s, 0.5 * np.abs(s), t, math.nan, davies)
+    return Mixture.build(tot, s, 0.5 * np.abs(s), t, math.nan, activity)
 
 
 def timed(fn, repeat=3):
@@ -81,15 +82,15 @@ def main() -> None:
     per_row_scalar = scalar_baseline(waters(2000, False), 2000)
     print(f"scalar brentq baseline (ideal):  {1 / per_row_scalar:12,.0f} waters/s")
     base = {}
-    for davies, metals in ((False, False), (True, False), (False, True), (True, True)):
-        mix = waters(n, davies, metals=metals)
-        label = ("Davies" if davies else "ideal ") + (" +metals" if metals else "")
+    for model, metals in ((IDEAL, False), (DAVIES, False), (IDEAL, True), (DAVIES, True)):
+        mix = waters(n, model, metals=metals)
+        label = f"{model.label:<6}" + (" +metals" if metals else "")
         t_ph = timed(lambda: solve_ph(mix))
         t_dose = timed(lambda: dose_to_ph(mix, caustic, target))
         if not metals:
-            base[davies] = t_dose
+            base[model.name] = t_dose
         else:
-            print(f"{label}: dose solve keeps {base[davies] / t_dose:.0%} of the "
+            print(f"{label}: dose solve keeps {base[model.name] / t_dose:.0%} of the "
                   "metal-free rate (issue 16 asks for at least 33 %)")
         print(f"{label} forward pH solve:        {n / t_ph:12,.0f} waters/s"
               f"  ({t_ph * 1000:.0f} ms; x{per_row_scalar * n / t_ph:,.0f} vs scalar)")

@@ -15,10 +15,12 @@ import math
 
 import numpy as np
 
+from dosing.chem.activity import DAVIES, IDEAL
+from dosing.planning.measurements import Measurements
 from dosing import infer_water
 from _timing import best_of
 from dosing.planning.buffer_fit import fit_spectrum
-from dosing.chem.equilibrium import N_SYSTEMS, Mixture, add_dose, solve_ph, system_index
+from dosing.chem import N_SYSTEMS, Mixture, add_dose, solve_ph, system_index
 from dosing.planning.titration import check_curve, fit_water, parse_titrant
 
 
@@ -29,11 +31,11 @@ def curve_of(n: int = 40, t_c: float = 15.0):
         tot[system_index(k)] = v
     tit = parse_titrant("0.1 M NaOH")
     v = np.linspace(0, 12, n)
-    mix = Mixture.build(np.repeat(tot[None, :], n, 0), -0.004, 0.002, t_c, math.nan, True)
+    mix = Mixture.build(np.repeat(tot[None, :], n, 0), -0.004, 0.002, t_c, math.nan, DAVIES)
     ph = solve_ph(add_dose(mix, tit.vector(), v * tit.molarity_mol_l / 50.0))
     ph = ph + np.random.default_rng(3).normal(0, 0.01, n)
-    return check_curve(50.0, tit, v, ph), infer_water(float(ph[0]), t_c,
-                                                      solutes_mmol_l={"carbonate": 0})
+    return check_curve(50.0, tit, v, ph), infer_water(Measurements(float(ph[0]), t_c,
+                                                      solutes_mmol_l={"carbonate": 0}))
 
 
 def main() -> None:

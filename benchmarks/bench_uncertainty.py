@@ -11,15 +11,16 @@ a loop; timed on 40 and scaled).
 
 from __future__ import annotations
 
+from dataclasses import replace
 from pathlib import Path
 
 import numpy as np
 
 from _timing import best_of
 from dosing.planning.effluent import infer_water
-from dosing.chem.equilibrium import dose_to_ph
-from dosing.io.scenario import load_scenario, water_inputs
-from dosing.report.sheet import make_plan
+from dosing.chem import dose_to_ph
+from dosing.io.scenario import load_scenario
+from dosing.planning.job import make_plan
 from dosing.planning.uncertainty import Spread, dose_uncertainty, staged_dose, trim_doses
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -34,20 +35,20 @@ def main() -> None:
     for name in DEMOS:
         s = load_scenario(str(ROOT / "scenarios" / f"{name}.toml"))
         plan = make_plan(s)
-        inputs = dict(water_inputs(s.data), calcite=plan.water.calcite)
+        inputs = replace(s.measurements, calcite=plan.water.calcite)
         t_unc, unc = best_of(lambda: dose_uncertainty(inputs, plan, spread))
         t_stage, st = best_of(lambda: staged_dose(plan, unc, spread))
         readings = np.linspace(plan.water.ph, plan.target.ph_aim, 20)
         first = st.first_mol_l if st is not None else 0.8 * plan.dose_mol_l
         t_trim, _ = best_of(lambda: trim_doses(plan, first, readings))
         rng = np.random.default_rng(1)
-        phs = inputs["ph"] + 0.05 * rng.standard_normal(40)
+        phs = inputs.ph + 0.05 * rng.standard_normal(40)
         r = plan.reagent.vector()
 
         def loop():
             for ph in phs:
                 try:
-                    w = infer_water(**dict(inputs, ph=float(ph)))
+                    w = infer_water(replace(inputs, ph=float(ph)))
                 except ValueError:
                     continue          # an impossible variant (the sample skips it too)
                 dose_to_ph(w.mixture(), r, plan.target.ph_aim)

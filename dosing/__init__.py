@@ -18,13 +18,13 @@ The engine is pure: no printing, no files. Every error is a
 """
 
 from .planning.effluent import Water, infer_water
-from .chem.equilibrium import Mixture, dose_to_ph, solve_ph, speciate
+from .chem import Mixture, dose_to_ph, solve_ph, speciate
 from .errors import (DosingError, InputError, ModelError, ScenarioError,
                      UnreachableError)
 from .planning.plan import Batch, Flow, Plan, Target, plan_dose, titration_curve
 from .planning.reagents import CATALOGUE, Reagent, custom_reagent, get_reagent
 
-__version__ = "0.1.0"
+from .version import __version__
 
 __all__ = [
     "Water", "infer_water", "Mixture", "dose_to_ph", "solve_ph", "speciate",

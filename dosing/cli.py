@@ -174,7 +174,8 @@ def _now() -> str:
 
 def _cmd_plan(args) -> int:
     from .io.scenario import load_scenario
-    from .report.sheet import figure_title, make_plan, render_sheet, sheet_dict
+    from .planning.job import make_plan
+    from .report.sheet import figure_title, render_sheet, sheet_dict
     if args.plot and not args.plot.lower().endswith(".png"):
         raise ScenarioError(args.plot, "", "the plot is written as PNG; give a "
                             "file name ending in .png")
@@ -470,7 +471,8 @@ def _cmd_log(args) -> int:
             raise ScenarioError(args.csv, "", "the export is CSV; give a name ending in .csv")
     if args.log_command == "add":
         from .io.scenario import load_scenario
-        from .report.sheet import make_plan, sheet_dict
+        from .planning.job import make_plan
+        from .report.sheet import sheet_dict
         scenario = load_scenario(args.scenario)
         plan = make_plan(scenario)
         from pathlib import Path

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from dosing.chem.equilibrium import N_SYSTEMS, system_index
+from dosing.chem import N_SYSTEMS, system_index
 
 
 def totals(**mol_l) -> np.ndarray:

@@ -12,9 +12,11 @@ import math
 import numpy as np
 import pytest
 
+from dosing.chem.activity import DAVIES, IDEAL
+from dosing.planning.measurements import Measurements
 from dosing import get_reagent, infer_water
 from dosing.planning.buffer_fit import fit_spectrum
-from dosing.chem.equilibrium import Mixture, dose_to_ph
+from dosing.chem import Mixture, dose_to_ph
 from dosing.planning.titration import check_curve, compare, parse_titrant
 from tests.helpers import run_cli, totals
 from tests.test_titration import synthetic
@@ -38,7 +40,7 @@ def _case(water, t_c, titrant, strong, v_end):
     v = np.linspace(0, v_end, 40)
     ph = synthetic(tot, strong, tit, 50.0, v, t_c=t_c, noise=NOISE, seed=11)
     curve = check_curve(50.0, tit, v, ph)
-    base = infer_water(float(ph[0]), t_c, solutes_mmol_l={"carbonate": 0.0})
+    base = infer_water(Measurements(float(ph[0]), t_c, solutes_mmol_l={"carbonate": 0.0}))
     return tot, curve, base
 
 
@@ -50,7 +52,7 @@ def test_spectrum_explains_the_curve_and_plans_the_true_dose(water, t_c, titrant
     assert fit.rms_ph <= 3 * NOISE
     assert fit.ph_range[0] < aim < fit.ph_range[1]
     r = get_reagent(reagent).vector()
-    truth = Mixture.build(tot, strong, 0.5 * abs(strong), t_c, math.nan, True)
+    truth = Mixture.build(tot, strong, 0.5 * abs(strong), t_c, math.nan, DAVIES)
     d_true = dose_to_ph(truth, r, aim)[0][0]
     d_fit = dose_to_ph(fit.water.mixture(), r, aim)[0][0]
     assert d_fit == pytest.approx(d_true, rel=0.03)

@@ -17,19 +17,21 @@ import numpy as np
 import pytest
 from hypothesis import given, settings, strategies as st
 
+from dosing.chem.activity import DAVIES, IDEAL
+from dosing.planning.measurements import Measurements
 from dosing import Batch, Target, get_reagent, infer_water, plan_dose
-from dosing.chem.equilibrium import (Mixture, add_dose, dose_to_ph, solve_ph, speciate,
+from dosing.chem import (Mixture, add_dose, dose_to_ph, solve_ph, speciate,
                                 system_index, N_SYSTEMS)
 from tests.helpers import run_cli
 
 PK1, PK2, PKSP, LOG_KH, LOG_B1_CAOH = 6.352, 10.329, 8.48, -1.468, -12.78
 
 
-def _water(ca, c, strong, t=25.0, davies=False, co2=np.nan, calcite=True):
+def _water(ca, c, strong, t=25.0, activity=IDEAL, co2=np.nan, calcite=True):
     tot = np.zeros(N_SYSTEMS)
     tot[system_index("calcium")] = ca
     tot[system_index("carbonate")] = c
-    return replace(Mixture.build(tot, strong, 0.0, t, co2, davies), calcite=calcite)
+    return replace(Mixture.build(tot, strong, 0.0, t, co2, activity), calcite=calcite)
 
 
 def _alpha2(ph):
@@ -73,8 +75,8 @@ def test_lime_softening_takes_the_stoichiometric_lime():
     # CO2 + Ca(OH)2 -> CaCO3 + H2O, so lime = CO2 + calcium carbonate hardness
     # (Crittenden et al. 2012, MWH Water Treatment 3rd ed., ch. 12; from
     # memory). Ca 2 mmol/L, alkalinity 200 mg/L as CaCO3 at pH 7.8.
-    w = infer_water(7.8, 25.0, alkalinity_mg_l_as_caco3=200, ions_mg_l={"calcium": 80.16},
-                    activity="ideal")
+    w = infer_water(Measurements(7.8, 25.0, alkalinity_mg_l_as_caco3=200, ions_mg_l={"calcium": 80.16},
+                    activity="ideal"))
     plan = plan_dose(w, get_reagent("lime"), Target(9.8, 10.8, 10.3), Batch(100))
     hco3 = 4e-3
     co2 = hco3 * 10.0 ** (PK1 - 7.8)
@@ -86,10 +88,10 @@ def test_lime_softening_takes_the_stoichiometric_lime():
 
 @settings(max_examples=60, deadline=None, database=None)
 @given(ca=st.floats(1e-4, 2e-2), c=st.floats(1e-4, 2e-2), strong=st.floats(-5e-3, 5e-3),
-       ph=st.floats(7.5, 11.0), t=st.floats(5.0, 50.0), davies=st.booleans(),
+       ph=st.floats(7.5, 11.0), t=st.floats(5.0, 50.0), activity=st.sampled_from([IDEAL, DAVIES]),
        reagent=st.sampled_from(["caustic-50", "lime", "soda-ash", "sulfuric-98"]))
-def test_dose_and_forward_solve_agree_with_calcite(ca, c, strong, ph, t, davies, reagent):
-    mix = _water(ca, c, strong, t, davies)
+def test_dose_and_forward_solve_agree_with_calcite(ca, c, strong, ph, t, activity, reagent):
+    mix = _water(ca, c, strong, t, activity)
     r = get_reagent(reagent).vector()
     d, grip = dose_to_ph(mix, r, ph)
     if not (np.isfinite(d[0]) and d[0] >= 0 and abs(grip[0]) > 1e-9):
@@ -99,8 +101,8 @@ def test_dose_and_forward_solve_agree_with_calcite(ca, c, strong, ph, t, davies,
 
 
 def _hard(calcite="auto", ph=7.8):
-    return infer_water(ph, 20.0, alkalinity_mg_l_as_caco3=200,
-                       ions_mg_l={"calcium": 80.16}, calcite=calcite)
+    return infer_water(Measurements(ph, 20.0, alkalinity_mg_l_as_caco3=200,
+                       ions_mg_l={"calcium": 80.16}, calcite=calcite))
 
 
 def test_planner_keeps_calcite_dissolved_at_low_supersaturation():
@@ -135,8 +137,8 @@ def test_replay_follows_the_planner_calcite_rule(tmp_path):
     # balance from each row's pH (README); the planner is given the same.
     carbonate = _hard().carbonate_mol_l * 1000
     for _, row in pd.read_csv(out, comment="#").iterrows():
-        w = infer_water(row.ph, 20.0, solutes_mmol_l={"carbonate": carbonate},
-                        ions_mg_l={"calcium": 80.16})
+        w = infer_water(Measurements(row.ph, 20.0, solutes_mmol_l={"carbonate": carbonate},
+                        ions_mg_l={"calcium": 80.16}))
         plan = plan_dose(w, get_reagent("lime"), Target(9.8, 10.8, 10.3), Batch(1))
         assert plan.calcite is not None
         assert row.dose_mmol_l == pytest.approx(plan.dose_mol_l * 1000, rel=1e-5)

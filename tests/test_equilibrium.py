@@ -10,7 +10,8 @@ import pytest
 from hypothesis import given, settings, strategies as st
 from scipy.optimize import brentq
 
-from dosing.chem.equilibrium import (CARBONATE, Mixture, constants_at, dose_to_ph,
+from dosing.chem.activity import DAVIES, IDEAL
+from dosing.chem import (CARBONATE, Mixture, constants_at, dose_to_ph,
                                 solve_ph, speciate, strong_balance_at_ph,
                                 system_index)
 from dosing.planning.reagents import get_reagent
@@ -20,7 +21,7 @@ from tests.helpers import totals
 
 
 def ideal(tot, strong, t=25.0):
-    return Mixture.build(tot, strong, 0.0, t, math.nan, davies=False)
+    return Mixture.build(tot, strong, 0.0, t, math.nan, activity=IDEAL)
 
 
 # Ideal-solution textbook cases at 25 °C. Expected pH computed from the same
@@ -52,7 +53,7 @@ def test_textbook_ph(name, tot, strong, expected):
 
 def test_textbook_cases_in_one_vectorised_call():
     mix = Mixture.build(np.array([c[1] for c in CASES]), np.array([c[2] for c in CASES]),
-                        0.0, 25.0, math.nan, davies=False)
+                        0.0, 25.0, math.nan, activity=IDEAL)
     ph = solve_ph(mix)
     assert ph == pytest.approx([c[3] for c in CASES], abs=1e-3)
     assert np.all(np.abs(speciate(mix, ph).charge_residual_eq_l) < 1e-12)
@@ -205,8 +206,8 @@ def waters(draw):
         tot[system_index(sid)] = draw(st.floats(1e-6, 0.05))
     strong = draw(st.floats(-0.05, 0.05))
     t = draw(st.floats(0.0, 60.0))
-    davies = draw(st.booleans())
-    return Mixture.build(tot, strong, 0.5 * abs(strong), t, math.nan, davies)
+    activity = draw(st.sampled_from([IDEAL, DAVIES]))
+    return Mixture.build(tot, strong, 0.5 * abs(strong), t, math.nan, activity)
 
 
 @settings(max_examples=150, deadline=None)
@@ -229,7 +230,7 @@ def test_dose_is_monotone_in_target_ph(mix, p1, p2, rid):
         return
     rep = Mixture.build(np.repeat(mix.totals_mol_l, 2, 0), np.repeat(mix.strong_eq_l, 2),
                         np.repeat(mix.strong_ionic_strength, 2),
-                        np.repeat(mix.temperature_c, 2), math.nan, mix.davies)
+                        np.repeat(mix.temperature_c, 2), math.nan, mix.activity)
     d, grip = dose_to_ph(rep, reagent.vector(), np.array([lo, hi]))
     # Only doses that can be given: both non-negative, reagent with grip.
     if not (np.all(d >= 0) and np.all(np.abs(grip) > 1e-9)):
@@ -245,7 +246,7 @@ def test_dose_is_monotone_in_target_ph(mix, p1, p2, rid):
        rid=st.sampled_from(["caustic-50", "caustic-25", "soda-ash", "sulfuric-93",
                             "hydrochloric-32", "co2"]))
 def test_dose_then_forward_solve_returns_the_target_and_conserves_mass(mix, target, rid):
-    from dosing.chem.equilibrium import add_dose
+    from dosing.chem import add_dose
     reagent = get_reagent(rid)
     vec = reagent.vector()
     d, grip = dose_to_ph(mix, vec, target)
@@ -266,18 +267,18 @@ def test_dose_then_forward_solve_returns_the_target_and_conserves_mass(mix, targ
 @given(mix=waters(), ph=st.floats(1.0, 13.0))
 def test_strong_balance_from_ph_round_trips(mix, ph):
     s, ionic = strong_balance_at_ph(mix.totals_mol_l, ph, mix.temperature_c,
-                                    davies=mix.davies)
+                                    activity=mix.activity)
     back = Mixture.build(mix.totals_mol_l, s, 0.5 * np.abs(s), mix.temperature_c,
-                         math.nan, mix.davies)
+                         math.nan, mix.activity)
     assert float(solve_ph(back)[0]) == pytest.approx(ph, abs=1e-8)
 
 
 def test_open_to_air_holds_dissolved_co2():
     # Pure water under 420 µatm CO2 at 25 °C: pH about 5.6 (common knowledge
     # of rain water in today's air).
-    from dosing.chem.equilibrium import co2_in_air_mol_l
+    from dosing.chem import co2_in_air_mol_l
     c0 = float(co2_in_air_mol_l(25.0, 420e-6))
-    mix = Mixture.build(totals(), 0.0, 0.0, 25.0, c0, davies=False)
+    mix = Mixture.build(totals(), 0.0, 0.0, 25.0, c0, activity=IDEAL)
     ph = float(solve_ph(mix)[0])
     assert ph == pytest.approx(5.6, abs=0.05)
     sp = speciate(mix, ph)
@@ -288,12 +289,12 @@ def test_strong_balance_does_not_depend_on_the_starting_ionic_strength():
     # The replay starts the fixed point from the scenario's ionic strength to
     # save steps; the answer must be the one found from the usual start.
     import numpy as np
-    from dosing.chem.equilibrium import strong_balance_at_ph
+    from dosing.chem import strong_balance_at_ph
     tot = totals(carbonate=0.007, silicate=0.0006, borate=0.0002)
     ph = np.linspace(8.5, 11.5, 50)
-    s0, i0 = strong_balance_at_ph(tot, ph, 32.0, davies=True)
+    s0, i0 = strong_balance_at_ph(tot, ph, 32.0, activity=DAVIES)
     for guess in (0.0, 0.012, 0.3):
-        s1, i1 = strong_balance_at_ph(tot, ph, 32.0, davies=True, ionic_guess=guess)
+        s1, i1 = strong_balance_at_ph(tot, ph, 32.0, activity=DAVIES, ionic_guess=guess)
         np.testing.assert_allclose(s1, s0, rtol=1e-8)
         np.testing.assert_allclose(i1, i0, rtol=1e-8)
 
@@ -303,15 +304,15 @@ def test_the_fixed_point_tolerance_costs_the_dose_nothing_measurable(monkeypatch
     # a pass); against a 1e-12 stop the dose moves by under 1e-9 relative,
     # far inside the 1e-4 of the outside-solver checks.
     import numpy as np
-    import dosing.chem.equilibrium as eq
+    import dosing.chem.solvers as eq
     tot = totals(carbonate=0.007, silicate=0.0006, borate=0.0002)
     ph = np.linspace(9.0, 11.0, 200)
     reagent = get_reagent("hydrochloric-32").vector()
 
     def doses():
-        s, _ = eq.strong_balance_at_ph(tot, ph, 32.0, davies=True)
-        mix = Mixture.build(tot, s, 0.5 * np.abs(s), 32.0, math.nan, True)
+        s, _ = eq.strong_balance_at_ph(tot, ph, 32.0, activity=DAVIES)
+        mix = Mixture.build(tot, s, 0.5 * np.abs(s), 32.0, math.nan, DAVIES)
         return dose_to_ph(mix, reagent, 7.5)[0]
     loose = doses()
-    monkeypatch.setattr(eq, "_SETTLE_RTOL", 1e-12)
+    monkeypatch.setattr(eq, "SETTLE_RTOL", 1e-12)
     np.testing.assert_allclose(loose, doses(), rtol=1e-9)

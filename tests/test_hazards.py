@@ -4,8 +4,9 @@ import math
 
 import pytest
 
+from dosing.planning.measurements import Measurements
 from dosing import Batch, Target, get_reagent, infer_water, plan_dose
-from dosing.chem.equilibrium import speciate
+from dosing.chem import speciate
 from dosing.planning.hazards import DH_WATER_KJ_MOL
 from dosing.chem.water import calcite_pksp
 
@@ -25,7 +26,7 @@ def test_strong_acid_strong_base_heat_by_hand():
     # 0.0100 mol/L x 55.8 kJ/mol = 0.558 kJ/L; with c_p 4.18 kJ/(kg K) and
     # rho 0.997 kg/L the water warms 0.134 K. 25 % caustic: its dilution heat
     # is not in the catalogue, so only the reaction counts here.
-    w = infer_water(2.0, 25.0, activity="ideal", alkalinity_mg_l_as_caco3=0)
+    w = infer_water(Measurements(2.0, 25.0, activity="ideal", alkalinity_mg_l_as_caco3=0))
     plan = plan_dose(w, get_reagent("caustic-25"), Target(6, 8, 7), Batch(10))
     heat = checks(plan)["heat"].values
     assert heat["reaction_heat_kj_per_l"] == pytest.approx(0.558, rel=0.01)
@@ -38,7 +39,7 @@ def test_weak_acid_heat_follows_hess():
     # -0.41 - 55.8 = -56.21 kJ/mol (Goldberg et al. 2002 for acetic acid,
     # -0.41 kJ/mol, from memory). 0.1 mol/L acetic acid taken to pH 8.5
     # (>99.9 % as acetate) releases 5.62 kJ/L.
-    w = infer_water(2.88, 25.0, activity="ideal", solutes_mmol_l={"acetate": 100})
+    w = infer_water(Measurements(2.88, 25.0, activity="ideal", solutes_mmol_l={"acetate": 100}))
     plan = plan_dose(w, get_reagent("caustic-25"), Target(8.0, 9.0, 8.5), Batch(1))
     q = checks(plan)["heat"].values["reaction_heat_kj_per_l"]
     assert q == pytest.approx(0.1 * 56.21, rel=0.01)
@@ -47,12 +48,12 @@ def test_weak_acid_heat_follows_hess():
 def test_water_formed_agrees_from_both_proton_balances():
     # Internal bookkeeping check: the extent of water formation from the OH-
     # balance equals the one from the H+ balance (charge balance).
-    w = infer_water(3.5, 30.0, solutes_mmol_l={"phosphate": 2, "acetate": 3},
-                    alkalinity_mg_l_as_caco3=None)
+    w = infer_water(Measurements(3.5, 30.0, solutes_mmol_l={"phosphate": 2, "acetate": 3},
+                    alkalinity_mg_l_as_caco3=None))
     r = get_reagent("caustic-50")
     plan = plan_dose(w, r, Target(6, 9, 7.5), Batch(1))
     from dosing.planning.plan import mix_closed
-    from dosing.chem.equilibrium import add_dose, solve_ph
+    from dosing.chem import add_dose, solve_ph
     before = speciate(mix_closed(w), w.ph)
     dosed = add_dose(mix_closed(w), r.vector(), plan.dose_mol_l)
     after = speciate(dosed, solve_ph(dosed))
@@ -69,7 +70,7 @@ def test_sulfuric_98_dilution_heat_per_kg():
     # Estimate from NBS formation enthalpies (Wagman et al. 1982): -91.7
     # kJ/mol H2SO4 for 98 % acid to infinite dilution, i.e. about -916 kJ per
     # kg of product (9.99 mol/kg).
-    w = infer_water(12.0, 20.0, alkalinity_mg_l_as_caco3=600)
+    w = infer_water(Measurements(12.0, 20.0, alkalinity_mg_l_as_caco3=600))
     plan = plan_dose(w, get_reagent("sulfuric-98"), Target(6.5, 9, 7.5), Batch(5))
     c = checks(plan)["local-boiling"]
     assert c.level == "danger"
@@ -81,7 +82,7 @@ def test_co2_released_from_bicarbonate_by_hand():
     # to pH 4.5: at 4.5 the carbonate is 98.6 % CO2* (pK1 6.352, 25 °C), so
     # 98.6 mol of CO2 minus the 0.14 mol air equilibrium holds; as gas at
     # 25 °C and 1 atm (24.47 L/mol, ideal gas) that is about 2.41 m3.
-    w = infer_water(8.3, 25.0, activity="ideal", solutes_mmol_l={"carbonate": 10.0})
+    w = infer_water(Measurements(8.3, 25.0, activity="ideal", solutes_mmol_l={"carbonate": 10.0}))
     plan = plan_dose(w, get_reagent("hydrochloric-32"), Target(4.0, 5.0, 4.5), Batch(10))
     c = checks(plan)["co2"]
     a0 = 1 / (1 + 10 ** (4.5 - 6.352) + 10 ** (2 * 4.5 - 6.352 - 10.329))
@@ -95,8 +96,8 @@ def test_co2_released_from_bicarbonate_by_hand():
 def test_hydrogen_sulfide_danger_when_acidified():
     # Sulfide at pH 6: fraction H2S = 1/(1 + 10^(6 - 6.99)) = 0.907 (pKa 6.99,
     # a tabulation of thermodynamic pKa values; CRC gives 7.05; ideal, 25 °C).
-    w = infer_water(9.5, 25.0, activity="ideal", alkalinity_mg_l_as_caco3=100,
-                    solutes_mmol_l={"sulfide": 0.5})
+    w = infer_water(Measurements(9.5, 25.0, activity="ideal", alkalinity_mg_l_as_caco3=100,
+                    solutes_mmol_l={"sulfide": 0.5}))
     plan = plan_dose(w, get_reagent("sulfuric-93"), Target(5.5, 6.5, 6.0), Batch(3))
     c = checks(plan)["sulfide"]
     assert c.level == "danger"
@@ -106,14 +107,14 @@ def test_hydrogen_sulfide_danger_when_acidified():
 
 
 def test_no_sulfide_alarm_above_ph_8():
-    w = infer_water(11.0, 25.0, alkalinity_mg_l_as_caco3=300, solutes_mmol_l={"sulfide": 0.5})
+    w = infer_water(Measurements(11.0, 25.0, alkalinity_mg_l_as_caco3=300, solutes_mmol_l={"sulfide": 0.5}))
     plan = plan_dose(w, get_reagent("sulfuric-93"), Target(8.5, 9.5, 9.0), Batch(3))
     assert "sulfide" not in checks(plan)
 
 
 def test_cyanide_danger_when_acidified():
     # HCN pKa 9.21 (CRC, from memory): at pH 7 over 99 % is HCN.
-    w = infer_water(11.5, 20.0, alkalinity_mg_l_as_caco3=500, solutes_mmol_l={"cyanide": 0.2})
+    w = infer_water(Measurements(11.5, 20.0, alkalinity_mg_l_as_caco3=500, solutes_mmol_l={"cyanide": 0.2}))
     plan = plan_dose(w, get_reagent("hydrochloric-32"), Target(6.5, 8.5, 7.0), Batch(2))
     c = checks(plan)["cyanide"]
     assert c.level == "danger" and c.values["fraction_as_gas_former"] > 0.99
@@ -122,8 +123,8 @@ def test_cyanide_danger_when_acidified():
 def test_ammonia_stripping_above_ph_9():
     # NH3 fraction at pH 10 = 1/(1 + 10^(9.245 - 10)) = 0.851 (pKa 9.245,
     # Goldberg et al. 2002, from memory; ideal, 25 °C).
-    w = infer_water(7.0, 25.0, activity="ideal", alkalinity_mg_l_as_caco3=100,
-                    solutes_mg_l={"ammonia": 40})
+    w = infer_water(Measurements(7.0, 25.0, activity="ideal", alkalinity_mg_l_as_caco3=100,
+                    solutes_mg_l={"ammonia": 40}))
     plan = plan_dose(w, get_reagent("caustic-50"), Target(9.5, 10.5, 10.0), Batch(2))
     c = checks(plan)["ammonia"]
     assert c.values["fraction_as_gas_former"] == pytest.approx(1 / (1 + 10 ** (9.245 - 10)),
@@ -132,7 +133,7 @@ def test_ammonia_stripping_above_ph_9():
 
 def test_added_ions_and_permit_caps():
     # Stoichiometry: each mmol of NaOH adds 22.99 mg of sodium.
-    w = infer_water(2.5, 20.0, alkalinity_mg_l_as_caco3=0, ions_mg_l={"sodium": 100})
+    w = infer_water(Measurements(2.5, 20.0, alkalinity_mg_l_as_caco3=0, ions_mg_l={"sodium": 100}))
     plan = plan_dose(w, get_reagent("caustic-50"), Target(6, 9, 7), Batch(5),
                      permit={"sodium_mg_l": 150, "tds_increase_mg_l": 500})
     c = checks(plan)
@@ -150,8 +151,8 @@ def test_calcite_saturation_after_lime():
     # Ca = background + lime dose; CO3 from the carbonate fractions at the
     # end pH (pK1 6.352, pK2 10.329).
     # Calcite kept dissolved (the hand value assumes none precipitates).
-    w = infer_water(5.0, 25.0, activity="ideal", acidity_mg_l_as_caco3=250,
-                    ions_mg_l={"calcium": 80}, calcite="dissolved")
+    w = infer_water(Measurements(5.0, 25.0, activity="ideal", acidity_mg_l_as_caco3=250,
+                    ions_mg_l={"calcium": 80}, calcite="dissolved"))
     plan = plan_dose(w, get_reagent("lime"), Target(8.0, 9.0, 8.5), Batch(10))
     c = checks(plan)["calcite"]
     ca = 80 / 40.078 / 1000 + plan.dose_mol_l
@@ -166,7 +167,7 @@ def test_calcite_saturation_after_lime():
 
 
 def test_every_plan_has_heat_and_discharge_checks():
-    w = infer_water(3.0, alkalinity_mg_l_as_caco3=0)
+    w = infer_water(Measurements(3.0, alkalinity_mg_l_as_caco3=0))
     for rid in ("caustic-50", "lime", "soda-ash", "bicarbonate"):
         plan = plan_dose(w, get_reagent(rid), Target(6, 8), Batch(5))
         ids = {c.id for c in plan.checks}
@@ -178,8 +179,8 @@ def test_gypsum_saturation_after_lime_on_sulfate_water():
     # (Langmuir 1997, from memory). Ideal model for the hand value: Ca =
     # background 400 mg/L + lime dose; SO4 2- = sulfate total x its fraction
     # beyond HSO4- (pKa 1.99, CRC) at the end pH.
-    w = infer_water(2.5, 25.0, activity="ideal", alkalinity_mg_l_as_caco3=0,
-                    solutes_mmol_l={"sulfate": 30.0}, ions_mg_l={"calcium": 400})
+    w = infer_water(Measurements(2.5, 25.0, activity="ideal", alkalinity_mg_l_as_caco3=0,
+                    solutes_mmol_l={"sulfate": 30.0}, ions_mg_l={"calcium": 400}))
     plan = plan_dose(w, get_reagent("lime"), Target(6.5, 8.5, 7.5), Batch(10))
     c = checks(plan)["gypsum"]
     ca = 400 / 40.078 / 1000 + plan.dose_mol_l

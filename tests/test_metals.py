@@ -14,8 +14,10 @@ import numpy as np
 import pytest
 from hypothesis import given, settings, strategies as st
 
+from dosing.chem.activity import DAVIES, IDEAL
+from dosing.planning.measurements import Measurements
 from dosing import Batch, Target, get_reagent, infer_water, plan_dose
-from dosing.chem.equilibrium import (Mixture, add_dose, constants_at, dose_to_ph, solve_ph,
+from dosing.chem import (Mixture, add_dose, constants_at, dose_to_ph, solve_ph,
                                 speciate, system_index)
 from dosing.chem.metals import METALS, get_metal
 from dosing.planning.reagents import COMPOUNDS
@@ -25,7 +27,7 @@ from tests.helpers import run_cli, totals
 
 def _min_ph(metal_id: str) -> float:
     grid = np.arange(4.0, 13.5, 0.01)
-    curve = dissolved_vs_ph({metal_id: 1.0}, 25.0, False, 0.0, grid)[metal_id]
+    curve = dissolved_vs_ph({metal_id: 1.0}, 25.0, IDEAL, 0.0, grid)[metal_id]
     return float(grid[np.argmin(curve)])
 
 
@@ -49,8 +51,8 @@ def test_ferric_iron_takes_three_hydroxide_per_iron():
     # where Fe(OH)3 holds it all, needs M x 2.980 mmol/L more caustic than
     # the same acid without iron (ideal solution).
     args = dict(activity="ideal", alkalinity_mg_l_as_caco3=0)
-    bare = infer_water(0.5, 25.0, **args)
-    iron = infer_water(0.5, 25.0, metals_mg_l={"iron_iii": 55.845}, **args)
+    bare = infer_water(Measurements(0.5, 25.0, **args))
+    iron = infer_water(Measurements(0.5, 25.0, metals_mg_l={"iron_iii": 55.845}, **args))
     r, t = get_reagent("caustic-50"), Target(7.5, 8.5, 8.0)
     extra = plan_dose(iron, r, t, Batch(1)).dose_mol_l - plan_dose(bare, r, t, Batch(1)).dose_mol_l
     k1 = 10 ** -2.19 / 10 ** -0.5
@@ -69,8 +71,8 @@ def test_mine_water_acidity_matches_the_calculated_acidity():
     # the planner's caustic dose to pH 8.3 with ferrous iron aerated first.
     fe2, ph = 50.0, 3.0
     calc = 50 * (2 * fe2 / 55.85 + 1000 * 10 ** -ph)
-    w = infer_water(ph, 25.0, activity="ideal", alkalinity_mg_l_as_caco3=0,
-                    metals_mg_l={"iron_ii": fe2}, oxidise_ferrous=True)
+    w = infer_water(Measurements(ph, 25.0, activity="ideal", alkalinity_mg_l_as_caco3=0,
+                    metals_mg_l={"iron_ii": fe2}, oxidise_ferrous=True))
     plan = plan_dose(w, get_reagent("caustic-50"), Target(8.0, 8.6, 8.3), Batch(1))
     assert plan.dose_mol_l * 1000 * 50.04 == pytest.approx(calc, rel=0.01)
 
@@ -79,8 +81,8 @@ def test_residual_zinc_by_hand():
     # Dissolved zinc with amorphous Zn(OH)2 present, by hand from the
     # catalogue constants (ideal): Zn_T = *Ks0 {H}^2 (1 + sum *beta_j / {H}^j).
     zn = get_metal("zinc")
-    w = infer_water(3.0, 25.0, activity="ideal", alkalinity_mg_l_as_caco3=0,
-                    metals_mg_l={"zinc": 20})
+    w = infer_water(Measurements(3.0, 25.0, activity="ideal", alkalinity_mg_l_as_caco3=0,
+                    metals_mg_l={"zinc": 20}))
     r = get_reagent("caustic-50")
     for ph in (9.0, 9.5, 10.5):
         plan = plan_dose(w, r, Target(ph - 0.3, ph + 0.3, ph), Batch(1))
@@ -100,11 +102,11 @@ def test_brucite_ceiling_of_magnesia_overdose():
     # Brucite-saturated pure water, ideal, by hand: 2 *Ks0 {H}^2 = Kw/{H},
     # so pH = (log *Ks0 + log 2 + pKw)/3 = (16.84 + 0.301 + 13.995)/3 = 10.38
     # (MgOH+ neglected). A huge overdose of magnesia gets no further.
-    mix = Mixture.build(totals(), 0.0, 0.0, 25.0, math.nan, False)
+    mix = Mixture.build(totals(), 0.0, 0.0, 25.0, math.nan, IDEAL)
     ph = float(solve_ph(add_dose(mix, COMPOUNDS["Mg(OH)2"].vector(0.0), 1.0))[0])
     pkw = -math.log10(constants_at(25.0).kw[0])
     assert ph == pytest.approx((16.84 + math.log10(2) + pkw) / 3, abs=0.01)
-    w = infer_water(2.5, 25.0, alkalinity_mg_l_as_caco3=0)
+    w = infer_water(Measurements(2.5, 25.0, alkalinity_mg_l_as_caco3=0))
     plan = plan_dose(w, get_reagent("magnesia"), Target(6.5, 11.0, 8.0), Batch(1))
     assert plan.ph_ceiling < 10.5
     assert plan.band_mol_l[1] is None       # overdosing cannot leave the window
@@ -113,8 +115,8 @@ def test_brucite_ceiling_of_magnesia_overdose():
 def test_gypsum_formed_by_hand():
     # Gypsum log Ksp -4.58 (Langmuir 1997, from memory). Ideal: free Ca a and
     # SO4 b crystallise x until (a - x)(b - x) = Ksp.
-    w = infer_water(2.5, 25.0, activity="ideal", alkalinity_mg_l_as_caco3=0,
-                    solutes_mmol_l={"sulfate": 40.0}, ions_mg_l={"calcium": 400})
+    w = infer_water(Measurements(2.5, 25.0, activity="ideal", alkalinity_mg_l_as_caco3=0,
+                    solutes_mmol_l={"sulfate": 40.0}, ions_mg_l={"calcium": 400}))
     plan = plan_dose(w, get_reagent("lime"), Target(6.5, 8.5, 7.5), Batch(10))
     ca = 400 / 40.078 / 1000 + plan.dose_mol_l
     so4 = 0.040 / (1 + 10 ** (1.99 - 7.5))
@@ -134,7 +136,7 @@ def metal_waters(draw):
     tot[system_index("sulfate")] = draw(st.floats(0.0, 0.02))
     strong = draw(st.floats(-0.03, 0.0))
     return Mixture.build(tot, strong, 0.5 * abs(strong), draw(st.floats(5.0, 45.0)),
-                         math.nan, draw(st.booleans()))
+                         math.nan, draw(st.sampled_from([IDEAL, DAVIES])))
 
 
 @settings(max_examples=60, deadline=None)
@@ -151,7 +153,7 @@ def test_dose_then_forward_ph_round_trip_with_solids(mix, target):
 
 
 def test_supersaturated_sample_is_said():
-    w = infer_water(8.0, 25.0, alkalinity_mg_l_as_caco3=100, metals_mg_l={"iron_iii": 5})
+    w = infer_water(Measurements(8.0, 25.0, alkalinity_mg_l_as_caco3=100, metals_mg_l={"iron_iii": 5}))
     assert any("above its hydroxide's solubility" in n for n in w.notes)
 
 
@@ -161,12 +163,12 @@ def test_acidity_with_metals_leaves_out_the_metal_acidity():
     # room for carbonate; a larger one is carbonate (CO2) acidity.
     fe2, ph = 50.0, 3.0
     calc = 50.04 * (2 * fe2 / 55.845 + 1000 * 10 ** -ph)
-    w = infer_water(ph, 25.0, activity="ideal", acidity_mg_l_as_caco3=calc + 50.04,
-                    metals_mg_l={"iron_ii": fe2})
+    w = infer_water(Measurements(ph, 25.0, activity="ideal", acidity_mg_l_as_caco3=calc + 50.04,
+                    metals_mg_l={"iron_ii": fe2}))
     assert w.carbonate_mol_l * 1000 == pytest.approx(1.0, rel=0.02)
     with pytest.raises(ValueError, match="the metals"):
-        infer_water(ph, 25.0, activity="ideal", acidity_mg_l_as_caco3=0.5 * calc,
-                    metals_mg_l={"iron_ii": fe2})
+        infer_water(Measurements(ph, 25.0, activity="ideal", acidity_mg_l_as_caco3=0.5 * calc,
+                    metals_mg_l={"iron_ii": fe2}))
 
 
 DEMOS = ["lime-acid-batch", "plating-rinse-metals", "pickling-ferrous-rinse",
@@ -191,8 +193,8 @@ def test_ferrous_iron_needs_far_more_base_than_the_ph_suggests():
     # times the caustic the same water without iron needs to reach pH 8.8.
     args = dict(alkalinity_mg_l_as_caco3=0, solutes_mg_l={"sulfate": 480})
     r, t = get_reagent("caustic-50"), Target(8.0, 9.5, 8.8)
-    bare = plan_dose(infer_water(4.5, 20.0, **args), r, t, Batch(12)).dose_mol_l
-    iron = plan_dose(infer_water(4.5, 20.0, metals_mg_l={"iron_ii": 120}, **args),
+    bare = plan_dose(infer_water(Measurements(4.5, 20.0, **args)), r, t, Batch(12)).dose_mol_l
+    iron = plan_dose(infer_water(Measurements(4.5, 20.0, metals_mg_l={"iron_ii": 120}, **args)),
                      r, t, Batch(12)).dose_mol_l
     assert iron / bare > 20
 
@@ -232,7 +234,7 @@ def test_metal_cap_without_the_metal_is_refused(tmp_path):
 def test_caps_that_miss_the_window_are_said():
     # Nickel needs pH above about 9 to fall below 0.1 mg/L: with a 6-8.5
     # window the two ranges do not overlap.
-    w = infer_water(3.0, 25.0, alkalinity_mg_l_as_caco3=0, metals_mg_l={"nickel": 10})
+    w = infer_water(Measurements(3.0, 25.0, alkalinity_mg_l_as_caco3=0, metals_mg_l={"nickel": 10}))
     plan = plan_dose(w, get_reagent("caustic-50"), Target(6.0, 8.5, 7.5), Batch(1),
                      permit={"nickel_mg_l": 0.1})
     assert plan.cap_window.overlap is None

@@ -130,7 +130,7 @@ def test_curve_figure_gives_litres_and_keeps_beta_for_the_engineer():
     import matplotlib.pyplot as plt
     from dosing.report.plot import plan_figure
     from dosing.io.scenario import load_scenario
-    from dosing.report.sheet import make_plan
+    from dosing.planning.job import make_plan
     s = load_scenario(ROOT / "scenarios" / "flow-metering-pump.toml")
     plan = make_plan(s, sampled=False)
     operator = plan_figure(plan, s.title)

@@ -7,6 +7,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
+from dosing.planning.measurements import Measurements
 from tests.helpers import run_cli
 
 from dosing import plan_dose
@@ -42,7 +43,7 @@ def test_each_row_matches_the_single_water_planner(tmp_path):
     assert len(rows) == 5                       # the units row was skipped
     mmol = {k: v * 1000 for k, v in s.water.totals_mol_l.items()}
     for _, row in rows.iterrows():
-        w = infer_water(row.ph, row.temperature_c, solutes_mmol_l=mmol)
+        w = infer_water(Measurements(row.ph, row.temperature_c, solutes_mmol_l=mmol))
         plan = plan_dose(w, s.reagent, s.target, s.basis)
         assert row.dose_mmol_l == pytest.approx(plan.dose_mol_l * 1000, rel=1e-5)
         # kg per hour = mmol/L x flow x kg of product per mol.
@@ -200,11 +201,11 @@ def test_replay_of_a_metal_water_matches_the_single_water_planner(tmp_path):
     s = load_scenario(scen)
     w0 = s.water
     for _, row in pd.read_csv(out, comment="#").iterrows():
-        w = infer_water(row.ph, 20.0, solutes_mmol_l={k: v * 1000 for k, v in
+        w = infer_water(Measurements(row.ph, 20.0, solutes_mmol_l={k: v * 1000 for k, v in
                                                        w0.totals_mol_l.items()},
                         ions_mg_l={"sodium": 300, "chloride": 200},
                         metals_mg_l={"iron_ii": 40, "zinc": 6, "calcium": 80},
-                        oxidise_ferrous=True)
+                        oxidise_ferrous=True))
         plan = plan_dose(w, s.reagent, s.target, s.basis)
         assert row.dose_mmol_l == pytest.approx(plan.dose_mol_l * 1000, rel=1e-5)
 

@@ -6,10 +6,12 @@ from pathlib import Path
 import numpy as np
 import pytest
 
+from dosing.chem.activity import DAVIES, IDEAL
+from dosing.planning.measurements import Measurements
 from tests.helpers import run_cli
 
 from dosing.planning.effluent import infer_water
-from dosing.chem.equilibrium import Mixture, add_dose, solve_ph
+from dosing.chem import Mixture, add_dose, solve_ph
 from dosing.errors import InputError, UnreachableError
 from dosing.planning.plan import Target
 from dosing.planning.reagents import get_reagent
@@ -22,12 +24,12 @@ ROOT = Path(__file__).resolve().parents[1]
 CIP = ROOT / "scenarios" / "cip-sulfuric.toml"
 
 
-def synthetic(tot, strong, titrant, sample_ml, v_ml, t_c=25.0, davies=True, noise=0.0,
+def synthetic(tot, strong, titrant, sample_ml, v_ml, t_c=25.0, activity=DAVIES, noise=0.0,
               pka=None, seed=0):
     """pH readings the engine predicts for a known water, with meter noise."""
     n = len(v_ml)
     mix = Mixture.build(np.repeat(tot[None, :], n, 0), strong, 0.5 * abs(strong), t_c,
-                        math.nan, davies, pka)
+                        math.nan, activity, pka)
     d = np.asarray(v_ml) * titrant.molarity_mol_l / sample_ml
     ph = solve_ph(add_dose(mix, titrant.vector(), d))
     return ph + np.random.default_rng(seed).normal(0.0, noise, n)
@@ -97,7 +99,7 @@ def test_acetic_acid_with_naoh_textbook():
     tit = parse_titrant("0.1 M NaOH")
     v = np.array([0, 5, 10, 15, 20, 24, 25, 26, 30, 35, 40, 45, 48, 49, 49.5, 50, 50.5,
                   51, 52, 55, 60])
-    ph = synthetic(totals(acetate=0.1), 0.0, tit, 50.0, v, davies=False)
+    ph = synthetic(totals(acetate=0.1), 0.0, tit, 50.0, v, activity=IDEAL)
     assert ph[list(v).index(25)] == pytest.approx(4.756, abs=0.01)
     eq_ph = 0.5 * (13.995 + 4.756 + math.log10(0.05))
     assert ph[list(v).index(50)] == pytest.approx(eq_ph, abs=0.01)
@@ -107,7 +109,7 @@ def test_acetic_acid_with_naoh_textbook():
     d = direct_scaling(curve, get_reagent("caustic-50"), Target(4.5, 5.0, 4.756))
     assert d.ml_at_aim == pytest.approx(25.0, abs=0.3)
     # With no acetate listed, the fit finds an unlisted acid of 0.1 M, pKa 4.76.
-    base = infer_water(7.0, 25.0, activity="ideal", alkalinity_mg_l_as_caco3=0)
+    base = infer_water(Measurements(7.0, 25.0, activity="ideal", alkalinity_mg_l_as_caco3=0))
     fit = fit_water(curve, base, unknown_acid="auto")
     assert fit.unknown_acid
     assert fit.params["unknown_acid_mmol_l"] == pytest.approx(100.0, rel=0.02)

@@ -9,6 +9,7 @@ import pickle
 
 import pytest
 
+from dosing.planning.measurements import Measurements
 from dosing import Batch, Target, get_reagent, infer_water, plan_dose
 from dosing.errors import InputError, ScenarioError, ShiftLogError, UsageError
 from tests.helpers import run_cli
@@ -82,26 +83,26 @@ def test_issue_11_open_to_air_without_alkalinity_is_refused():
     # pH 12 open to air would imply ~0.3 mol/L of carbonate from air: no
     # tank takes that up while it is dosed.
     with pytest.raises(InputError, match="measure the alkalinity"):
-        infer_water(12.0, 25.0, open_to_air=True)
+        infer_water(Measurements(12.0, 25.0, open_to_air=True))
 
 
 def test_issue_11_rounded_lab_acidity_is_accepted():
     # pH 3.0 alone implies 50.1 mg/L as CaCO3 of acidity; a lab reporting 50
     # is within its precision (carbonate zero, with a note).
-    w = infer_water(3.0, 25.0, acidity_mg_l_as_caco3=50)
+    w = infer_water(Measurements(3.0, 25.0, acidity_mg_l_as_caco3=50))
     assert w.carbonate_mol_l == 0.0
     assert any("precision" in n for n in w.notes)
     with pytest.raises(InputError, match="smaller than"):
-        infer_water(3.0, 25.0, acidity_mg_l_as_caco3=30)
+        infer_water(Measurements(3.0, 25.0, acidity_mg_l_as_caco3=30))
 
 
 def test_issue_11_background_salt_counts_in_the_ionic_strength():
     # 0.5 mol/L NaCl given as ions (29.2 g/L Cl, 11.5 g/L Na) raises the
     # ionic strength like the same salt given as extra ionic strength.
     ions = {"sodium": 0.5 * 22.990e3, "chloride": 0.5 * 35.45e3}
-    a = infer_water(4.0, 25.0, acidity_mg_l_as_caco3=100, ions_mg_l=ions)
-    b = infer_water(4.0, 25.0, acidity_mg_l_as_caco3=100, extra_ionic_strength_mol_l=0.5)
-    bare = infer_water(4.0, 25.0, acidity_mg_l_as_caco3=100)
+    a = infer_water(Measurements(4.0, 25.0, acidity_mg_l_as_caco3=100, ions_mg_l=ions))
+    b = infer_water(Measurements(4.0, 25.0, acidity_mg_l_as_caco3=100, extra_ionic_strength_mol_l=0.5))
+    bare = infer_water(Measurements(4.0, 25.0, acidity_mg_l_as_caco3=100))
     assert a.ionic_strength == pytest.approx(b.ionic_strength, rel=0.01)
     assert a.ionic_strength > 0.4 > bare.ionic_strength
     r, t = get_reagent("caustic-50"), Target(6, 9, 7.5)
@@ -112,8 +113,8 @@ def test_issue_11_background_salt_counts_in_the_ionic_strength():
 
 def test_issue_11_calcium_counts_as_divalent():
     # 10 mmol/L of calcium chloride: I = 0.5 (0.01 x 4 + 0.02 x 1) = 0.03.
-    w = infer_water(7.0, 25.0, alkalinity_mg_l_as_caco3=0, activity="ideal",
-                    ions_mg_l={"calcium": 400.78, "chloride": 709.0})
+    w = infer_water(Measurements(7.0, 25.0, alkalinity_mg_l_as_caco3=0, activity="ideal",
+                    ions_mg_l={"calcium": 400.78, "chloride": 709.0}))
     assert w.ionic_strength == pytest.approx(0.030, rel=0.01)
 
 
@@ -121,8 +122,8 @@ def test_issue_11_calcium_counts_as_divalent():
 # The reproducing case: pH 4, acidity 10 mg/L as CaCO3, caustic to pH 9.
 def _open_plan(hours: float, depth_m: float = 2.0):
     from dosing import Batch, Target, get_reagent, infer_water, plan_dose
-    w = infer_water(4.0, 25.0, acidity_mg_l_as_caco3=10, activity="ideal", open_to_air=True,
-                    hours_in_air=hours, depth_m=depth_m)
+    w = infer_water(Measurements(4.0, 25.0, acidity_mg_l_as_caco3=10, activity="ideal", open_to_air=True,
+                    hours_in_air=hours, depth_m=depth_m))
     return plan_dose(w, get_reagent("caustic-50"), Target(6.5, 9.5, 9.0), Batch(10.0))
 
 
@@ -185,7 +186,8 @@ def _ill_scenario(tmp_path, alk, ph=4.6, aim=7.0):
 
 
 def test_issue_11_ill_conditioned_carbonate_is_said_with_its_figure(tmp_path):
-    from dosing.report.sheet import make_plan, sheet_dict
+    from dosing.planning.job import make_plan
+    from dosing.report.sheet import sheet_dict
     s = _ill_scenario(tmp_path, 2.5)
     plan = make_plan(s)
     # The issue's figure: 9.9 mmol/L of caustic to pH 7 at pH 4.6, 2.5 mg/L.
@@ -200,7 +202,7 @@ def test_issue_11_ill_conditioned_carbonate_is_said_with_its_figure(tmp_path):
 
 
 def test_issue_11_well_conditioned_water_gets_no_precision_warning(tmp_path):
-    from dosing.report.sheet import make_plan
+    from dosing.planning.job import make_plan
     plan = make_plan(_ill_scenario(tmp_path, 150, ph=6.8, aim=8.5))
     assert not [w for w in plan.warnings if "rests on" in w]
     assert all(p.largest_change(plan.dose_mol_l) < 0.25 for p in plan.precision)
@@ -211,7 +213,7 @@ def test_issue_11_precision_step_agrees_with_a_fine_finite_difference(tmp_path):
     # match the derivative from a central difference 200 times finer, taken
     # through the public plan_dose (a separate path through the engine).
     from dosing import Batch, Target, get_reagent, infer_water, plan_dose
-    from dosing.report.sheet import make_plan
+    from dosing.planning.job import make_plan
     plan = make_plan(_ill_scenario(tmp_path, 150, ph=6.8, aim=8.5))
     alk = plan.precision[0]
     secant = ((alk.dose_high_reading_mol_l - alk.dose_low_reading_mol_l)
@@ -219,7 +221,7 @@ def test_issue_11_precision_step_agrees_with_a_fine_finite_difference(tmp_path):
     h = alk.plus_minus / 200
 
     def dose(a):
-        w = infer_water(6.8, 25.0, alkalinity_mg_l_as_caco3=a)
+        w = infer_water(Measurements(6.8, 25.0, alkalinity_mg_l_as_caco3=a))
         return plan_dose(w, get_reagent("caustic-50"), Target(6, 9, 8.5), Batch(10)).dose_mol_l
     fine = (dose(150 + h) - dose(150 - h)) / (2 * h)
     assert secant == pytest.approx(fine, rel=0.01)
@@ -293,7 +295,7 @@ def test_issue_11_accepted_scenarios_stay_within_physical_bounds(
         ph, t, lab, lab_value, solutes, metals, reagent, aim, activity, open_air):
     from dosing.errors import DosingError
     from dosing.io.scenario import build_scenario
-    from dosing.report.sheet import make_plan
+    from dosing.planning.job import make_plan
     eff = {"ph": ph, "temperature_c": t, "solutes_mmol_l": solutes, "metals_mg_l": metals}
     if lab:
         eff[lab] = lab_value

@@ -6,7 +6,7 @@ from pathlib import Path
 import pytest
 
 from dosing.io.scenario import load_scenario, parse_scenario
-from dosing.report.sheet import make_plan
+from dosing.planning.job import make_plan
 from tui.app import make_app
 from tui.form import field_id
 from tui.screens.ask import TitrationAnswer

@@ -15,8 +15,9 @@ from dataclasses import replace
 import numpy as np
 import pytest
 
-from dosing.io.scenario import load_scenario, water_inputs
-from dosing.report.sheet import make_plan, sheet_dict
+from dosing.io.scenario import load_scenario
+from dosing.planning.job import make_plan
+from dosing.report.sheet import sheet_dict
 from dosing.planning.uncertainty import (Spread, _sample, dose_uncertainty, follow_table,
                                 spread_from)
 from dosing.errors import InputError
@@ -30,7 +31,7 @@ def _plan(name):
     from pathlib import Path
     s = load_scenario(str(Path(__file__).resolve().parents[1] / "scenarios" / f"{name}.toml"))
     plan = make_plan(s)
-    return s, plan, dict(water_inputs(s.data), calcite=plan.water.calcite)
+    return s, plan, replace(s.measurements, calcite=plan.water.calcite)
 
 
 @pytest.mark.parametrize("name", ["plating-rinse-metals", "food-acetate-stream",
@@ -83,7 +84,7 @@ def test_trim_table_lands_in_the_window_as_often_as_stated(name):
     inside = np.mean((final >= t.ph_min) & (final <= t.ph_max))
     assert inside == pytest.approx(st.p_inside, abs=0.05)
     # The first dose alone stays short of the aim at the stated confidence.
-    from dosing.chem.equilibrium import add_dose, solve_ph
+    from dosing.chem import add_dose, solve_ph
     ph1 = solve_ph(add_dose(other.mix.take(idx), plan.reagent.vector(),
                             st.first_mol_l * delivered), ph_guess=np.full(idx.size, t.ph_aim))
     past = ph1 > t.ph_aim if plan.reagent.raises_ph else ph1 < t.ph_aim
@@ -98,7 +99,7 @@ def test_trim_rows_come_from_reinference_not_proportion():
     assert np.all(np.diff(extra) < 0) and extra.max() < plan.dose_mol_l
     # At a reading on the titration curve of the first dose, the extra is what
     # that curve needs from there (the same water, re-inferred from its pH).
-    from dosing.chem.equilibrium import add_dose, solve_ph
+    from dosing.chem import add_dose, solve_ph
     r = plan.reagent.vector()
     ph1 = float(solve_ph(add_dose(plan.water.mixture(), r, plan.staging.first_mol_l))[0])
     from dosing.planning.uncertainty import trim_doses

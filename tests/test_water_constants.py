@@ -8,7 +8,7 @@ import math
 
 import pytest
 
-from dosing.chem.activity import davies_log_gamma, debye_huckel_a
+from dosing.chem.activity import DAVIES, IDEAL, debye_huckel_a
 from dosing.errors import InputError
 from dosing.chem.water import (_pkw_iapws, calcite_pksp, carbonate_pk, check_temperature,
                           density, henry_co2, pkw, vant_hoff_pk)
@@ -94,7 +94,8 @@ def test_davies_uses_the_0_3_coefficient():
     # by hand at I = 0.1, A = 0.51, z = 2.
     s = math.sqrt(0.1)
     expected = -0.51 * 4 * (s / (1 + s) - 0.3 * 0.1)
-    assert float(davies_log_gamma(2, 0.1, 0.51)) == pytest.approx(expected, rel=1e-12)
+    assert float(DAVIES.log_gamma(2, 0.1, 0.51)) == pytest.approx(expected, rel=1e-12)
+    assert float(IDEAL.log_gamma(2, 0.1, 0.51)) == 0.0
 
 
 def test_vant_hoff_ammonium_slope():

@@ -25,9 +25,9 @@ from dosing.errors import DosingError, ScenarioError
 from dosing.io.files import write_atomic
 from dosing.planning.plan import Flow, Plan
 from dosing.planning.reagents import CATALOGUE, GENERAL_CAUTION
-from dosing.io.scenario import Scenario, build_scenario, load_scenario, scenario_to_toml
-from dosing.report.sheet import (UnitSystem, make_plan, render_sheet, render_titration, sheet_dict,
-                          with_uncertainty)
+from dosing.io.scenario import build_scenario, load_scenario, scenario_to_toml
+from dosing.planning.job import Scenario, make_plan, with_uncertainty
+from dosing.report.sheet import UnitSystem, render_sheet, render_titration, sheet_dict
 from dosing.planning.titration import check_curve, compare, parse_titrant
 from dosing.io.titration_io import read_titration_csv
 from dosing.io.shiftlog import ShiftLog

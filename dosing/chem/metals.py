@@ -14,7 +14,7 @@ protonated form is the free ion (charge +z) and whose stepwise constants are
 the totals array. At a given pH the dissolved total a hydroxide allows is
 [Me(z+)] / alpha_0 with [Me(z+)] = *Ks0 {H+}^z / gamma_z, so the dissolved
 part of a metal is the lesser of its total and that solubility, which
-depends on the pH alone (see :mod:`dosing.chem.equilibrium`).
+depends on the pH alone (see :mod:`dosing.chem.speciation`).
 
 Choice of solid
 ---------------

@@ -39,7 +39,8 @@ from ..planning.reagents import GENERAL_CAUTION
 from ..planning.replay import ReplayTotals, nominal_step, plan_part, stitch
 from .replay_io import (CHUNK_ROWS, PART_BYTES, Part, file_parts, finish_replay,
                         iter_site_chunks, read_part, site_files)
-from .scenario import Scenario, load_scenario, parse_toml, read_text_file
+from ..planning.job import Scenario
+from .scenario import load_scenario, parse_toml, read_text_file
 
 __all__ = ["Site", "load_fleet", "replay_sites", "fleet_report", "dask_client"]
 

@@ -21,7 +21,7 @@ import pandas as pd
 from ..errors import ScenarioError
 from ..planning.replay import (ReplayState, ReplayTotals, as_numbers, normalise_columns, plan_rows,
                      replay_report)
-from .scenario import Scenario
+from ..planning.job import Scenario
 
 __all__ = ["iter_chunks", "iter_site_chunks", "run_replay", "site_files", "Part",
            "file_parts", "read_part", "CHUNK_ROWS", "PART_BYTES"]

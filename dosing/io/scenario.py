@@ -17,12 +17,15 @@ from __future__ import annotations
 
 import math
 import tomllib
-from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Mapping
 
-from ..planning.effluent import (ACIDITY_ENDPOINT_PH, ALKALINITY_ENDPOINT_PH, BACKGROUND_IONS,
-                       DEFAULT_DEPTH_M, DEFAULT_PCO2_UATM, Water, infer_water)
+from ..chem.activity import DEFAULT_MODEL
+from ..planning.effluent import infer_water
+from ..planning.job import Scenario, scenario_key
+from ..planning.measurements import (ACIDITY_ENDPOINT_PH, ALKALINITY_ENDPOINT_PH,
+                                     BACKGROUND_IONS, DEFAULT_DEPTH_M, DEFAULT_PCO2_UATM,
+                                     Measurements)
 from ..errors import InputError, ScenarioError
 from ..planning.plan import Batch, Flow, Target
 from ..planning.reagents import Reagent, custom_reagent, get_reagent, with_purity
@@ -30,10 +33,10 @@ from ..planning.hazards import ION_PERMIT_KEYS
 from ..chem.metals import METAL_IDS
 from ..planning.solids import CAKE_DENSITY_KG_L, CAKE_SOLIDS_FRACTION, METAL_PERMIT_KEYS
 from ..chem.species import SYSTEM_IDS
-from ..planning.uncertainty import SPREAD_KEYS, Spread, spread_from
+from ..planning.uncertainty import SPREAD_KEYS, spread_from
 
 __all__ = ["Scenario", "PERMIT_KEYS", "parse_scenario", "load_scenario",
-           "scenario_to_toml", "build_scenario", "scenario_key", "water_inputs"]
+           "scenario_to_toml", "build_scenario", "scenario_key", "measurements_of"]
 
 #: Keys of the optional [permit] table: caps on the discharge [mg/L]
 #: (ions and dissolved solids, then dissolved metals as the element).
@@ -89,77 +92,6 @@ _REAGENT_EXTRAS = (("price_per_kg", 1e6, "per kg"), ("storage_m3", 1e6, "m3"),
                    ("storage_kg", 1e9, "kg"))
 _TOP = {"title": (str,), "site": (str,), "tank": (str,)}
 _SECTIONS_REQUIRED = ("effluent", "target", "reagent")
-
-
-@dataclass(frozen=True)
-class Scenario:
-    """A validated scenario.
-
-    Attributes
-    ----------
-    title, site, tank : str
-        Labels for the sheet and the shift log.
-    water : Water
-        The effluent inferred from the measurements.
-    basis : Batch or Flow
-        The amount of water.
-    target : Target
-        The window and aim.
-    reagent : Reagent
-        The product.
-    price_per_kg : float or None
-        Product price per kg, any currency.
-    storage_m3, storage_kg : float or None
-        Reagent storage available, for days of supply.
-    hours_per_day : float
-        Hours a flow runs each day [h].
-    permit : Mapping[str, float]
-        Caps from the [permit] table [mg/L].
-    sludge : (float, float)
-        Dry-solids fraction [-] and density [kg/L] of the wet sludge cake.
-    spread : Spread
-        Uncertainty of each input, from the [uncertainty] table.
-    flow_range_m3_h : (float, float) or None
-        Lowest and highest flow of a stream, for the control design.
-    source : str
-        The file it came from, for messages.
-    data : Mapping
-        The scenario as plain data (what :func:`scenario_to_toml` writes).
-    """
-
-    title: str
-    site: str
-    tank: str
-    water: Water
-    basis: Batch | Flow
-    target: Target
-    reagent: Reagent
-    price_per_kg: float | None
-    storage_m3: float | None
-    storage_kg: float | None
-    hours_per_day: float
-    permit: Mapping[str, float] = field(default_factory=dict)
-    data: Mapping[str, Any] = field(default_factory=dict)
-    sludge: tuple[float, float] = (CAKE_SOLIDS_FRACTION, CAKE_DENSITY_KG_L)
-    source: str = "<scenario>"
-    spread: Spread = field(default_factory=Spread)
-    flow_range_m3_h: tuple[float, float] | None = None
-
-    def storage_lasts(self, litres_used: float | None, kg_used: float | None) -> float | None:
-        """How many periods the storage lasts at the given use per period.
-
-        Storage by volume is divided by the litres used, storage by mass by
-        the kilograms. None when no storage is given, nothing is used, or the
-        use is so small that the ratio is no finite number (a flow of 1e-311
-        m3/h would otherwise last "infinity" periods).
-        """
-        if self.storage_m3 and litres_used:
-            periods = self.storage_m3 * 1000.0 / litres_used
-        elif self.storage_kg and kg_used:
-            periods = self.storage_kg / kg_used
-        else:
-            return None
-        return periods if math.isfinite(periods) else None
 
 
 def _is_number(v) -> bool:
@@ -232,21 +164,6 @@ def _short(v) -> str:
     return text if len(text) <= 40 else text[:20] + "..." + text[-8:]
 
 
-def scenario_key(field_name: str) -> str:
-    """The scenario key an engine field name came from (``ph`` -> ``effluent.ph``)."""
-    return _where(field_name)
-
-
-def _where(field_name: str) -> str:
-    """Map an engine field name to the scenario key it came from."""
-    head = field_name.split(".")[0]
-    if head in _SCHEMA:
-        return field_name
-    if head in ("activity", "pco2_uatm", "open_to_air", "hours_in_air", "depth_m", "calcite"):
-        return f"model.{field_name}"
-    return f"effluent.{field_name}"
-
-
 def _reagent(r: Mapping[str, Any]) -> Reagent:
     if "id" in r:
         extra = set(r) & {"compound", "mass_fraction", "density_kg_l", "molarity_mol_l",
@@ -269,15 +186,15 @@ def _reagent(r: Mapping[str, Any]) -> Reagent:
                           form=r.get("form"), name=r.get("name"))
 
 
-def water_inputs(data: Mapping[str, Any]) -> dict[str, Any]:
-    """The measurements of a scenario as keyword arguments of :func:`infer_water`."""
+def measurements_of(data: Mapping[str, Any]) -> Measurements:
+    """The measurements of a scenario (its [effluent] and [model] tables)."""
     eff, model = data["effluent"], data.get("model", {})
-    return dict(
+    return Measurements(
         ph=eff["ph"], temperature_c=eff.get("temperature_c", 25.0),
         alkalinity_mg_l_as_caco3=eff.get("alkalinity_mg_l_as_caco3"),
         acidity_mg_l_as_caco3=eff.get("acidity_mg_l_as_caco3"),
         solutes_mmol_l=eff.get("solutes_mmol_l"), solutes_mg_l=eff.get("solutes_mg_l"),
-        activity=model.get("activity", "davies"),
+        activity=model.get("activity", DEFAULT_MODEL.name),
         open_to_air=model.get("open_to_air", False),
         pco2_uatm=model.get("pco2_uatm", DEFAULT_PCO2_UATM),
         hours_in_air=model.get("hours_in_air", 0.0),
@@ -302,7 +219,8 @@ def build_scenario(data: Mapping[str, Any], path: str = "<scenario>") -> Scenari
     _check_types(path, data)
     r = data["reagent"]
     try:
-        water = infer_water(**water_inputs(data))
+        measurements = measurements_of(data)
+        water = infer_water(measurements)
         t = data["target"]
         target = Target(float(t["ph_min"]), float(t["ph_max"]),
                         None if "ph_aim" not in t else float(t["ph_aim"]))
@@ -332,10 +250,10 @@ def build_scenario(data: Mapping[str, Any], path: str = "<scenario>") -> Scenari
         spread = spread_from(data.get("uncertainty"))
         flow_range = _flow_range(data.get("flow"))
     except InputError as err:
-        raise ScenarioError(path, _where(err.field), err.reason) from None
+        raise ScenarioError(path, scenario_key(err.field), err.reason) from None
     return Scenario(title=data.get("title", Path(path).stem),
                     site=data.get("site", ""), tank=data.get("tank", ""),
-                    water=water, basis=basis, target=target, reagent=reagent,
+                    measurements=measurements, water=water, basis=basis, target=target, reagent=reagent,
                     price_per_kg=r.get("price_per_kg"), storage_m3=r.get("storage_m3"),
                     storage_kg=r.get("storage_kg"), hours_per_day=float(hours),
                     permit=permit, data=data, sludge=sludge, source=path, spread=spread,

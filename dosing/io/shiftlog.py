@@ -343,7 +343,7 @@ class ShiftLog:
 
     # ------------------------------------------------------------ writing --
     def _insert(self, row: dict[str, Any]) -> int:
-        from .. import __version__
+        from ..version import __version__
         if not self.writable:
             raise ShiftLogError(f"{self.path}: was opened read-only; nothing was written")
         row = dict(row, utc=datetime.now(timezone.utc).isoformat(timespec="microseconds"),

@@ -28,9 +28,9 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
-from ..chem.activity import davies_log_gamma, debye_huckel_a
+from ..chem.activity import debye_huckel_a
 from .effluent import Water
-from ..chem.equilibrium import (CARBONATE, Mixture, add_dose, solve_ph, speciate, system_index)
+from ..chem import (CARBONATE, Mixture, add_dose, solve_ph, speciate, system_index)
 from ..chem.species import SITE_IDS, SYSTEMS
 from ..chem.water import carbonate_pk, pkw, vant_hoff_pk
 
@@ -107,7 +107,7 @@ def _design(curve, base: Water, grid, ionic, weights, with_carbonate: bool) -> _
     titrant = curve.titrant.molarity_mol_l * v / (curve.sample_ml + v)
     ah = 10.0 ** -ph
     a = float(debye_huckel_a(t))
-    g1 = 10.0 ** davies_log_gamma(1, ionic, a) if base.davies else np.ones_like(ph)
+    g1 = 10.0 ** base.activity.log_gamma(1, ionic, a) + 0.0 * ph
     kw = 10.0 ** -float(pkw(t))
     h, oh = ah / g1, kw / (ah * g1)
     # Known parts: the base water's named solutes and metals (carbonate
@@ -116,7 +116,7 @@ def _design(curve, base: Water, grid, ionic, weights, with_carbonate: bool) -> _
     known[CARBONATE] = 0.0
     r = curve.titrant.vector()
     tot = f[:, None] * known[None, :] + titrant[:, None] * r.totals_mol[None, :]
-    mix = Mixture.build(tot, 0.0, ionic, t, math.nan, base.davies, base.unknown_pka)
+    mix = Mixture.build(tot, 0.0, ionic, t, math.nan, base.activity, base.unknown_pka)
     sp = speciate(mix, ph, max_iter=1)
     known_charge = (sp.totals_mol_l * sp.mean_charge).sum(-1)
     rhs = -(h - oh + titrant * r.strong_eq + known_charge)
@@ -124,7 +124,7 @@ def _design(curve, base: Water, grid, ionic, weights, with_carbonate: bool) -> _
     if with_carbonate:
         unit = np.zeros((ph.size, base.mixture().totals_mol_l.shape[1]))
         unit[:, CARBONATE] = f
-        spc = speciate(Mixture.build(unit * 1e-12, 0.0, ionic, t, math.nan, base.davies),
+        spc = speciate(Mixture.build(unit * 1e-12, 0.0, ionic, t, math.nan, base.activity),
                        ph, max_iter=1)
         cols.append(f * spc.mean_charge[:, CARBONATE])
     q_sites = _site_charge(ah, 10.0 ** -grid, g1) * f[:, None]

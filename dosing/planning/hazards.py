@@ -41,10 +41,11 @@ from typing import Mapping
 
 import numpy as np
 
-from ..chem.activity import davies_log_gamma, debye_huckel_a
-from .effluent import BACKGROUND_IONS, Water
+from ..chem.activity import ActivityModel
+from .effluent import Water
+from .measurements import BACKGROUND_IONS
 from ..numbers import fmt
-from ..chem.equilibrium import CARBONATE, Speciation, co2_in_air_mol_l, system_index
+from ..chem import CARBONATE, Speciation, co2_in_air_mol_l, system_index
 from ..chem.metals import label
 from .reagents import Reagent
 from ..chem.species import MOLAR_MASS, SYSTEMS
@@ -311,7 +312,7 @@ def _scale_checks(water: Water, after: Speciation) -> tuple[Check, ...]:
     ca_free = _free_calcium_mol_l(after)
     ca_mg = ca_free * MOLAR_MASS["Ca"] * 1000.0
     if ca_free > 0 and float(after.totals_mol_l[0, CARBONATE]) > 0:
-        si = float(calcite_si(after, t, water.davies)[0])
+        si = float(calcite_si(after, t, water.activity)[0])
         formed = float(after.calcite_mol_l[0]) > 0
         level = "warning" if si > CALCITE_SI_WARN else "info"
         checks.append(Check(
@@ -326,7 +327,7 @@ def _scale_checks(water: Water, after: Speciation) -> tuple[Check, ...]:
             {"calcite_si": si, "calcium_mg_l": ca_mg}))
     so4_total = float(after.totals_mol_l[0, system_index("sulfate")])
     if ca_free > 0 and so4_total > 0:
-        si = gypsum_si(after, t, water.davies)
+        si = gypsum_si(after, t, water.activity)
         level = "warning" if si > 0 else "info"
         checks.append(Check(
             "gypsum", level,
@@ -344,13 +345,13 @@ def _free_calcium_mol_l(sp: Speciation) -> float:
     return float(sp.totals_mol_l[0, j] * sp.alpha[0, j, 0])
 
 
-def gypsum_si(sp: Speciation, temperature_c: float, davies: bool) -> float:
+def gypsum_si(sp: Speciation, temperature_c: float, activity: ActivityModel) -> float:
     """Gypsum saturation index log10(a_Ca a_SO4 / Ksp) of the first water [-]."""
     ca = _free_calcium_mol_l(sp)
     so4 = sp.concentration(system_index("sulfate"), 1)[0]
     if ca <= 0 or so4 <= 0:
         return -math.inf
-    return (math.log10(ca * float(so4)) + 2 * _log_gamma2(sp, temperature_c, davies)
+    return (math.log10(ca * float(so4)) + 2 * _log_gamma2(sp, temperature_c, activity)
             - GYPSUM_LOG_KSP)
 
 
@@ -374,25 +375,22 @@ def _after_mg_l(water: Water, added: Mapping[str, float], after: Speciation,
     return out
 
 
-def calcite_si(sp: Speciation, temperature_c, davies: bool) -> np.ndarray:
+def calcite_si(sp: Speciation, temperature_c, activity: ActivityModel) -> np.ndarray:
     """Calcite saturation index of every water of ``sp`` [-] (-inf without Ca or CO3).
 
-    log10({Ca2+}{CO3 2-}) + pKsp, Ksp of Plummer & Busenberg (1982), Davies
-    activities unless ideal.
+    log10({Ca2+}{CO3 2-}) + pKsp, Ksp of Plummer & Busenberg (1982), with
+    the activities of the water's model.
     """
     t = np.broadcast_to(np.asarray(temperature_c, dtype=float), sp.ph.shape)
     j = system_index("calcium")
     ca = sp.totals_mol_l[:, j] * sp.alpha[:, j, 0]
     co3 = sp.concentration(CARBONATE, 2)
-    lg = (davies_log_gamma(2, sp.ionic_strength, debye_huckel_a(t)) if davies
-          else np.zeros(t.shape))
+    lg = activity.log_gamma_at(2, sp.ionic_strength, t)
     with np.errstate(divide="ignore", invalid="ignore"):
         out = np.log10(ca * co3) + 2 * lg + calcite_pksp(t)
     return np.where((ca > 0) & (co3 > 0), out, -np.inf)
 
 
-def _log_gamma2(after: Speciation, t: float, davies: bool) -> float:
+def _log_gamma2(after: Speciation, t: float, activity: ActivityModel) -> float:
     """log10 γ of a divalent ion in the dosed water (0 for the ideal model)."""
-    if not davies:
-        return 0.0
-    return float(davies_log_gamma(2, float(after.ionic_strength[0]), float(debye_huckel_a(t))))
+    return float(activity.log_gamma_at(2, float(after.ionic_strength[0]), t))

@@ -28,7 +28,7 @@ import numpy as np
 
 from .effluent import STILL_WATER_KL_M_H, Water
 from ..chem.activity import DAVIES_I_LIMIT
-from ..chem.equilibrium import (CARBONATE, Mixture, add_dose, dose_to_ph, solve_ph,
+from ..chem import (CARBONATE, Mixture, add_dose, dose_to_ph, solve_ph,
                           speciate)
 from ..errors import InputError, ModelError, UnreachableError
 from .hazards import Check, assess
@@ -387,11 +387,11 @@ def _plan_once(water: Water, reagent: Reagent, target: Target, basis: Batch | Fl
                          f"pH {target.ph_aim:g}; the model is not trustworthy here")
     end_state = speciate(dosed, ph_end)
     slope, ph_lo, ph_hi = _sensitivity(mix, reagent, target.ph_aim, dose, ph_end)
-    solids = solids_after(end_state, water.temperature_c, water.davies)
+    solids = solids_after(end_state, water.temperature_c, water.activity)
     metals_after = metals_after_mg_l(end_state)
     caps = _metal_caps(permit, metals_after)
     window = (None if not caps else cap_window(
-        metals_present_mol_l(end_state), caps, water.temperature_c, water.davies,
+        metals_present_mol_l(end_state), caps, water.temperature_c, water.activity,
         float(end_state.ionic_strength[0]), (target.ph_min, target.ph_max), target.ph_aim))
     hi_curve = edges.far if edges.far is not None else dose
     top = max(hi_curve, dose, edges.near) * 1.5 or 1e-4

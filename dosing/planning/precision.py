@@ -7,19 +7,19 @@ the water with each measurement at the edges of its usual precision and
 solves the dose again, so the plan can say how much the number rests on
 each reading, and recommend a bench titration when it rests too much.
 
-Pure: it takes the measurements as :func:`dosing.planning.effluent.infer_water`
+Pure: it takes the :class:`~dosing.planning.measurements.Measurements`
 keyword arguments and returns numbers.
 """
 
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import Any, Mapping
 
 import numpy as np
 
-from .effluent import LAB_PRECISION, LOW_READING_MG_L, Perturbation, infer_many
-from ..chem.equilibrium import dose_to_ph
+from .measurements import LAB_PRECISION, LOW_READING_MG_L, Measurements
+from .variants import Perturbation, infer_many
+from ..chem import dose_to_ph
 from .plan import has_grip
 from .reagents import Reagent
 
@@ -59,16 +59,15 @@ class Sensitivity:
         return max((abs(r) for r in self.relative(dose_mol_l) if r is not None), default=0.0)
 
 
-def lab_field(inputs: Mapping[str, Any]) -> tuple[str, str] | None:
-    """The lab measurement the inputs give (scenario key, plain name), if any."""
-    for field, label in (("alkalinity_mg_l_as_caco3", "alkalinity"),
-                         ("acidity_mg_l_as_caco3", "acidity")):
-        if inputs.get(field) is not None:
-            return field, label
-    return None
+def lab_field(m: Measurements) -> tuple[str, str] | None:
+    """The lab measurement given (scenario key, plain name), if any."""
+    given = m.lab_value
+    if given is None:
+        return None
+    return given[0], given[0].split("_")[0]
 
 
-def lab_sensitivity(inputs: Mapping[str, Any], reagent: Reagent, aim: float
+def lab_sensitivity(m: Measurements, reagent: Reagent, aim: float
                     ) -> tuple[Sensitivity, ...]:
     """The dose to ``aim`` with the lab value and the pH each at the edges of
     their precision (one at a time, the other held).
@@ -78,16 +77,16 @@ def lab_sensitivity(inputs: Mapping[str, Any], reagent: Reagent, aim: float
     variants are inferred and solved at once (:func:`infer_many`); a
     reading no real water can give has no dose (None).
     """
-    ph = float(inputs["ph"])
-    lab = lab_field(inputs)
-    v = float(inputs[lab[0]]) if lab else 0.0
+    ph = float(m.ph)
+    lab = lab_field(m)
+    v = float(m.lab_value[1]) if lab else 0.0
     pm = max(LAB_PRECISION * v, LOW_READING_MG_L)
     phs = [ph, ph, max(ph - PH_PRECISION, 0.0), min(ph + PH_PRECISION, 14.0)]
     labs = [max(v - pm, 0.0), v + pm, v, v]
     n = len(phs)
     ones = np.ones(n)
-    mix, ok = infer_many(inputs, Perturbation(
-        np.array(phs), np.full(n, float(inputs.get("temperature_c", 25.0))),
+    mix, ok = infer_many(m, Perturbation(
+        np.array(phs), np.full(n, float(m.temperature_c)),
         np.array(labs), ones, ones))
     d, grip = dose_to_ph(mix, reagent.vector(), np.full(n, aim))
     good = ok & has_grip(reagent, d, grip)

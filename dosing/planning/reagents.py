@@ -34,7 +34,7 @@ from typing import Mapping
 
 import numpy as np
 
-from ..chem.equilibrium import N_SYSTEMS, ReagentVector, system_index
+from ..chem import N_SYSTEMS, ReagentVector, system_index
 from ..errors import InputError
 from ..chem.species import MOLAR_MASS
 

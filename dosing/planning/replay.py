@@ -25,15 +25,15 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from .effluent import (ALKALINITY_ENDPOINT_PH, CACO3_MG_PER_MEQ, MEASURED_MAX_MG_L, aerate,
-                       totals_vector)
-from ..chem.equilibrium import (CARBONATE, N_SYSTEMS, Mixture, add_dose, carbonate_for_alkalinity,
-                          co2_in_air_mol_l, dose_to_ph, speciate, strong_balance_at_ph,
-                          system_index)
+from ..chem import (CARBONATE, N_SYSTEMS, Mixture, add_dose, carbonate_for_alkalinity,
+                    co2_in_air_mol_l, dose_to_ph, speciate, strong_balance_at_ph, system_index)
+from .effluent import aerate
+from .measurements import (ALKALINITY_ENDPOINT_PH, CACO3_MG_PER_MEQ, MEASURED_MAX_MG_L,
+                           totals_vector)
 from .hazards import calcite_si
 from .plan import CALCITE_SI_FAST, has_grip
 from ..errors import ScenarioError
-from ..io.scenario import Scenario
+from .job import Scenario
 from ..chem.water import T_MAX_C, T_MIN_C
 
 __all__ = ["COLUMN_NAMES", "normalise_columns", "ReplayState", "plan_rows",
@@ -318,12 +318,12 @@ def _dose_distinct(scenario: Scenario, ph, temp, a) -> tuple[np.ndarray, np.ndar
         bad |= ~(a >= 0) | ~(a <= MEASURED_MAX_MG_L)
         a_eq = np.where(bad, 0.0, a) / CACO3_MG_PER_MEQ / 1000.0
         carb, coef, _ = carbonate_for_alkalinity(base, ph, temp, a_eq, ALKALINITY_ENDPOINT_PH,
-                                                 davies=w.davies, extra_ionic_strength=extra,
+                                                 activity=w.activity, extra_ionic_strength=extra,
                                                  unknown_pka=pka)
         carb = np.where((a_eq == 0) & (ph <= ALKALINITY_ENDPOINT_PH), 0.0, carb)
         bad |= ~np.isfinite(carb) | (carb < 0)
         base[:, CARBONATE] = np.where(bad, 0.0, carb)
-    s, _ = strong_balance_at_ph(base, ph, temp, davies=w.davies, extra_ionic_strength=extra,
+    s, _ = strong_balance_at_ph(base, ph, temp, activity=w.activity, extra_ionic_strength=extra,
                                 unknown_pka=pka, known_strong_eq_l=w.known_strong_eq_l,
                                 ionic_guess=w.ionic_strength)
     co2 = (co2_in_air_mol_l(temp, w.pco2_atm) if w.dosed_at_air_equilibrium
@@ -331,7 +331,7 @@ def _dose_distinct(scenario: Scenario, ph, temp, a) -> tuple[np.ndarray, np.ndar
     unsettled = ~np.isfinite(s) & ~bad
     s = np.where(np.isfinite(s), s, 0.0)
     tank = aerate(base) if w.ferrous_oxidised else base
-    mix = replace(Mixture.build(tank, s, w.strong_ionic_strength_for(s), temp, co2, w.davies,
+    mix = replace(Mixture.build(tank, s, w.strong_ionic_strength_for(s), temp, co2, w.activity,
                                 pka), calcite=w.calcite == "precipitates")
     dose, grip = dose_to_ph(mix, reagent.vector(), target.ph_aim)
     if w.calcite == "auto":
@@ -361,7 +361,7 @@ def _calcite_where_fast(mix: Mixture, reagent, aim: float, dose: np.ndarray) -> 
         return dose
     sub = mix.take(idx)
     sp = speciate(add_dose(sub, reagent.vector(), dose[idx]), aim)
-    fast = idx[calcite_si(sp, sub.temperature_c, mix.davies) > CALCITE_SI_FAST]
+    fast = idx[calcite_si(sp, sub.temperature_c, mix.activity) > CALCITE_SI_FAST]
     if fast.size:
         dose = dose.copy()
         dose[fast] = dose_to_ph(replace(mix.take(fast), calcite=True), reagent.vector(),

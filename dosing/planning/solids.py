@@ -28,7 +28,8 @@ from typing import Mapping
 
 import numpy as np
 
-from ..chem.equilibrium import METAL_COLUMNS, N_SYSTEMS, Mixture, Speciation, speciate, system_index
+from ..chem.activity import ActivityModel
+from ..chem import METAL_COLUMNS, N_SYSTEMS, Mixture, Speciation, speciate, system_index
 from .hazards import gypsum_si
 from ..chem.metals import HARDNESS, METALS, METAL_IDS
 from ..chem.species import MOLAR_MASS
@@ -80,7 +81,8 @@ class CapWindow:
     met_at_aim: bool                      #: every cap met at the aim
 
 
-def solids_after(sp: Speciation, temperature_c: float, davies: bool) -> tuple[Solid, ...]:
+def solids_after(sp: Speciation, temperature_c: float, activity: ActivityModel
+                 ) -> tuple[Solid, ...]:
     """Solids in the first water of ``sp`` (the dosed water) [per L of water]."""
     out: list[Solid] = []
     for j, metal in zip(METAL_COLUMNS, METALS):
@@ -94,21 +96,21 @@ def solids_after(sp: Speciation, temperature_c: float, davies: bool) -> tuple[So
     if calcite > _SOLID_FLOOR_MOL_L:
         out.append(Solid("calcite", "calcite", "CaCO3", calcite * 1000,
                          calcite * MOLAR_MASS["CaCO3"] * 1000))
-    gyp = _gypsum_mol_l(sp, temperature_c, davies)
+    gyp = _gypsum_mol_l(sp, temperature_c, activity)
     if gyp > _SOLID_FLOOR_MOL_L:
         out.append(Solid("gypsum", "gypsum", "CaSO4·2H2O", gyp * 1000,
                          gyp * MOLAR_MASS["CaSO4·2H2O"] * 1000))
     return tuple(out)
 
 
-def _gypsum_mol_l(sp: Speciation, temperature_c: float, davies: bool) -> float:
+def _gypsum_mol_l(sp: Speciation, temperature_c: float, activity: ActivityModel) -> float:
     """Gypsum that crystallises until saturation [mol/L]; 0 when undersaturated.
 
     Solves (a - x)(b - x) = Ksp / gamma2^2 for the free Ca2+ (a) and SO4 2-
     (b) of the dosed water, activity coefficients held at their value
     before crystallisation.
     """
-    si = gypsum_si(sp, temperature_c, davies)
+    si = gypsum_si(sp, temperature_c, activity)
     if not si > 0:
         return 0.0
     ca = float(sp.concentration(system_index("calcium"), 0)[0])
@@ -140,7 +142,8 @@ def sludge_of(solids: tuple[Solid, ...], litres: float, *,
                   cake_density_kg_l)
 
 
-def dissolved_vs_ph(metals_mol_l: Mapping[str, float], temperature_c: float, davies: bool,
+def dissolved_vs_ph(metals_mol_l: Mapping[str, float], temperature_c: float,
+                    activity: ActivityModel,
                     ionic_strength: float, ph: np.ndarray) -> dict[str, np.ndarray]:
     """Dissolved total of each metal against pH [mg/L], hydroxide present.
 
@@ -152,7 +155,7 @@ def dissolved_vs_ph(metals_mol_l: Mapping[str, float], temperature_c: float, dav
     tot = np.zeros((ph.size, N_SYSTEMS))
     for mid, mol in metals_mol_l.items():
         tot[:, system_index(mid)] = mol
-    mix = Mixture.build(tot, np.zeros(ph.size), ionic_strength, temperature_c, np.nan, davies)
+    mix = Mixture.build(tot, np.zeros(ph.size), ionic_strength, temperature_c, np.nan, activity)
     sp = speciate(mix, ph, max_iter=1)
     return {m.id: sp.totals_mol_l[:, system_index(m.id)] * m.molar_mass_g_mol * 1000
             for m in METALS if m.id in metals_mol_l}
@@ -163,7 +166,7 @@ _CAP_GRID = np.round(np.arange(0.0, 14.0 + 1e-9, 0.01), 2)
 
 
 def cap_window(metals_mol_l: Mapping[str, float], caps_mg_l: Mapping[str, float],
-               temperature_c: float, davies: bool, ionic_strength: float,
+               temperature_c: float, activity: ActivityModel, ionic_strength: float,
                window: tuple[float, float], aim: float) -> CapWindow:
     """The pH range over which every capped metal meets its cap.
 
@@ -171,7 +174,7 @@ def cap_window(metals_mol_l: Mapping[str, float], caps_mg_l: Mapping[str, float]
     one nearest the window, is given.
     """
     # The grid and the aim in one solve: the aim is the last point.
-    curves = dissolved_vs_ph(metals_mol_l, temperature_c, davies, ionic_strength,
+    curves = dissolved_vs_ph(metals_mol_l, temperature_c, activity, ionic_strength,
                              np.append(_CAP_GRID, aim))
     meets = np.ones(_CAP_GRID.size + 1, dtype=bool)
     for mid, cap in caps_mg_l.items():

@@ -11,7 +11,7 @@ from dataclasses import dataclass
 from ..errors import DosingError
 from .plan import Amounts, Batch, Flow, Plan, amounts_for, plan_dose
 from .reagents import Reagent, at_strength, get_reagent, strengths_of
-from ..io.scenario import Scenario
+from .job import Scenario
 
 __all__ = ["SweepCell", "Sweep", "sweep", "strength_grid", "default_alternative",
            "default_sizes"]

@@ -35,12 +35,12 @@ from scipy.interpolate import PchipInterpolator
 from scipy.optimize import least_squares
 
 from .effluent import Water
-from ..chem.equilibrium import (CARBONATE, UNKNOWN, Mixture, ReagentVector, add_dose, dose_to_ph,
+from ..chem import (CARBONATE, UNKNOWN, Mixture, ReagentVector, add_dose, dose_to_ph,
                           solve_ph, speciate)
 from ..errors import InputError, UnreachableError
 from .plan import Flow, Plan, Target, amounts_for, plan_dose
 from .reagents import COMPOUNDS, Compound, Reagent, get_reagent
-from ..io.scenario import Scenario
+from .job import Scenario
 
 __all__ = ["Titrant", "parse_titrant", "BenchCurve", "check_curve", "DirectScaling",
            "direct_scaling", "WaterFit", "fit_water", "compare", "MISREAD_PH", "model_curve",
@@ -325,7 +325,7 @@ def _model_ml(params, curve: BenchCurve, base: Water, with_unknown: bool):
         pka = params[3]
     n = curve.ph.size
     mix = Mixture.build(np.repeat(tot, n, 0), s_meq / 1000.0, 0.5 * abs(s_meq) / 1000.0,
-                        base.temperature_c, math.nan, base.davies, pka)
+                        base.temperature_c, math.nan, base.activity, pka)
     d, _ = dose_to_ph(mix, curve.titrant.vector(), curve.ph)
     return d * curve.sample_ml / curve.titrant.molarity_mol_l, mix
 
@@ -376,12 +376,12 @@ def _least_squares_fit(curve: BenchCurve, base: Water, unknown_acid: str):
     asked or where it halves the pH misfit: (fit, with_unknown, misfit)."""
     # Starting points: the strong balance that matches the first reading
     # for a few carbonate totals.
-    from ..chem.equilibrium import strong_balance_at_ph
+    from ..chem import strong_balance_at_ph
     starts = []
     for c in (0.0, 1.0, 5.0, 20.0):
         tot = base.mixture().totals_mol_l.copy()
         tot[0, CARBONATE] = c / 1000.0
-        s, _ = strong_balance_at_ph(tot, curve.ph[0], base.temperature_c, davies=base.davies)
+        s, _ = strong_balance_at_ph(tot, curve.ph[0], base.temperature_c, activity=base.activity)
         starts.append([c, float(s[0]) * 1000.0])
     plain, _ = _fit(curve, base, False, starts)
     if plain is None:
@@ -432,7 +432,7 @@ def _fitted_water(base: Water, x, mix: Mixture, with_u: bool) -> Water:
     if with_u:
         totals["unknown"] = x[2] / 1000.0
     start = Mixture.build(mix.totals_mol_l[:1], x[1] / 1000.0, 0.5 * abs(x[1]) / 1000.0,
-                          base.temperature_c, math.nan, base.davies,
+                          base.temperature_c, math.nan, base.activity,
                           x[3] if with_u else None)
     ph0 = float(solve_ph(start)[0])
     sp = speciate(start, ph0)

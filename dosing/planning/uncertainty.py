@@ -32,11 +32,11 @@ from typing import Any, Mapping
 
 import numpy as np
 
-from .effluent import Perturbation, infer_many
-from ..chem.equilibrium import Mixture, add_dose, dose_to_ph, solve_ph, strong_balance_at_ph
+from .measurements import ACIDITY_ENDPOINT_PH, ALKALINITY_ENDPOINT_PH, Measurements
+from .variants import Perturbation, infer_many
+from ..chem import Mixture, add_dose, dose_to_ph, solve_ph, strong_balance_at_ph
 from ..errors import InputError
 from .plan import has_grip
-from .precision import lab_field
 
 __all__ = ["Spread", "SPREAD_KEYS", "DoseUncertainty", "Staging", "TrimRow",
            "dose_uncertainty", "staged_dose", "follow_table", "spread_from", "MATERIAL_RISK",
@@ -145,18 +145,18 @@ class _Sample:
     strength: np.ndarray      # true product strength over the nominal [-]
 
 
-def _sample(inputs: Mapping[str, Any], spread: Spread) -> _Sample:
-    """Latin-hypercube sample of the inputs, and the waters they imply."""
+def _sample(m: Measurements, spread: Spread) -> _Sample:
+    """Latin-hypercube sample of the measurements, and the waters they imply."""
     keys = ["ph", "temperature", "amount", "strength"]
-    lab = lab_field(inputs)
+    lab = m.lab_value
     lab_key = lab[0] if lab else None
-    if lab_key and _nothing_to_titrate(inputs, lab_key):
+    if lab_key and _nothing_to_titrate(m):
         lab_key = None          # a 0 the method must give is exact, not a reading
     if lab_key:
         keys.append("lab")
-    if inputs.get("solutes_mmol_l") or inputs.get("solutes_mg_l"):
+    if m.solutes_mmol_l or m.solutes_mg_l:
         keys.append("solutes")
-    if inputs.get("metals_mg_l"):
+    if m.metals_mg_l:
         keys.append("metals")
     n = spread.samples
     z = np.clip(_normal_scores(_latin_hypercube(n, len(keys), spread.seed)), -4.0, 4.0)
@@ -166,16 +166,16 @@ def _sample(inputs: Mapping[str, Any], spread: Spread) -> _Sample:
     def rel(key, pct):
         return np.maximum(1.0 + pct / 100.0 * col.get(key, zero), 0.0)
 
-    lab0 = float(inputs[lab_key]) if lab_key else 0.0
+    lab0 = float(lab[1]) if lab_key else 0.0
     lab_sd = max(spread.lab_percent / 100.0 * lab0, LAB_FLOOR_MG_L) if spread.lab_percent else 0.0
     variants = Perturbation(
-        ph=np.clip(float(inputs["ph"]) + spread.ph * col["ph"], 0.0, 14.0),
-        temperature_c=np.clip(float(inputs.get("temperature_c", 25.0))
+        ph=np.clip(float(m.ph) + spread.ph * col["ph"], 0.0, 14.0),
+        temperature_c=np.clip(float(m.temperature_c)
                               + spread.temperature_c * col["temperature"], 0.0, 60.0),
         lab_mg_l=np.maximum(lab0 + lab_sd * col.get("lab", zero), 0.0),
         solute_factor=rel("solutes", spread.solutes_percent),
         metal_factor=rel("metals", spread.metals_percent))
-    mix, ok = infer_many(inputs, variants)
+    mix, ok = infer_many(m, variants)
     return _Sample(mix, ok, z, tuple(keys),
                    np.maximum(rel("amount", spread.amount_percent), 0.05),
                    np.maximum(rel("strength", spread.strength_percent), 0.05))
@@ -201,28 +201,27 @@ def _normal_scores(u: np.ndarray) -> np.ndarray:
     return np.fromiter((inv(x) for x in flat), float, flat.size).reshape(u.shape)
 
 
-def _nothing_to_titrate(inputs: Mapping[str, Any], lab_key: str) -> bool:
+def _nothing_to_titrate(m: Measurements) -> bool:
     """A lab value of 0 on a water at or past its titration end point."""
-    from .effluent import ACIDITY_ENDPOINT_PH, ALKALINITY_ENDPOINT_PH
-    if float(inputs[lab_key]) != 0.0:
+    key, value = m.lab_value
+    if float(value) != 0.0:
         return False
-    ph = float(inputs["ph"])
-    if lab_key.startswith("alkalinity"):
-        return ph <= float(inputs.get("alkalinity_endpoint_ph") or ALKALINITY_ENDPOINT_PH)
-    return ph >= float(inputs.get("acidity_endpoint_ph") or ACIDITY_ENDPOINT_PH)
+    ph = float(m.ph)
+    if key.startswith("alkalinity"):
+        return ph <= float(m.alkalinity_endpoint_ph or ALKALINITY_ENDPOINT_PH)
+    return ph >= float(m.acidity_endpoint_ph or ACIDITY_ENDPOINT_PH)
 
 
-def dose_uncertainty(inputs: Mapping[str, Any], plan, spread: Spread = Spread()
+def dose_uncertainty(m: Measurements, plan, spread: Spread = Spread()
                      ) -> DoseUncertainty | None:
     """Sample the plausible waters behind ``plan`` and see how its dose fares.
 
-    ``inputs`` are the :func:`~dosing.planning.effluent.infer_water` keyword arguments
-    of the plan's water. The dose a sampled water needs is expressed as
+    ``m`` are the measurements of the plan's water. The dose a sampled water needs is expressed as
     nominal product per stated litre (what the operator would have had to
     meter): the true need times the true volume over the stated, over the
     true strength. None when no sampled water is a real one.
     """
-    s = _sample(inputs, spread)
+    s = _sample(m, spread)
     r = plan.reagent.vector()
     aim, target = plan.target.ph_aim, plan.target
     need, grip = dose_to_ph(s.mix, r, aim)
@@ -367,14 +366,14 @@ def trim_doses(plan, first_mol_l: float, readings: np.ndarray) -> np.ndarray:
     n = readings.size
     tot = np.repeat(dosed.totals_mol_l, n, axis=0)
     co2 = np.repeat(dosed.co2_air_mol_l, n)
-    s, _ = strong_balance_at_ph(tot, readings, w.temperature_c, davies=w.davies,
+    s, _ = strong_balance_at_ph(tot, readings, w.temperature_c, activity=w.activity,
                                 extra_ionic_strength=w.known_ionic_strength,
                                 co2_air_mol_l=co2, unknown_pka=w.unknown_pka,
                                 known_strong_eq_l=w.known_strong_eq_l, solids=True,
                                 calcite=dosed.calcite)
     mix = Mixture.build(tot, np.where(np.isfinite(s), s, 0.0),
                         w.strong_ionic_strength_for(np.where(np.isfinite(s), s, 0.0)),
-                        w.temperature_c, co2, w.davies, w.unknown_pka)
+                        w.temperature_c, co2, w.activity, w.unknown_pka)
     mix = replace(mix, calcite=dosed.calcite)
     extra, _ = dose_to_ph(mix, r, plan.target.ph_aim)
     f = 1.0 + first_mol_l * r.volume_l           # per litre of the water as first dosed

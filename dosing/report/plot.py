@@ -164,7 +164,7 @@ def _uncertainty_panel(ax, plan: Plan, scale: float, unit: str, per: str) -> Non
 def _metals_panel(ax3, plan: Plan, metals) -> None:
     """Dissolved metal against pH (log scale), with caps, window and aim."""
     grid = np.linspace(4.0, 13.0, 451)
-    curves = dissolved_vs_ph(metals, plan.water.temperature_c, plan.water.davies,
+    curves = dissolved_vs_ph(metals, plan.water.temperature_c, plan.water.activity,
                              plan.ionic_strength_end, grid)
     ax3.axvspan(plan.target.ph_min, plan.target.ph_max, color="tab:green", alpha=0.13,
                 label="permit pH window")

@@ -3,7 +3,6 @@
 The command line, Tankside, the terminal view and the shift log all call these
 functions, so a dose reads the same everywhere, with the same cautions.
 
-* :func:`make_plan` - plan a :class:`~dosing.io.scenario.Scenario`.
 * :func:`sheet_dict` - the plan as JSON-ready data with stable keys (SI).
 * :func:`render_sheet` - the operator's dose sheet as text, in metric or US
   customary units.
@@ -16,20 +15,15 @@ import re
 from dataclasses import dataclass, replace
 from typing import Any, Literal
 
-from .. import __version__
-from ..planning.effluent import CACO3_MG_PER_MEQ
-from ..numbers import fmt
-from ..planning.plan import METERING_ERROR, Batch, Flow, Plan, permit_breaches, plan_dose
 from ..chem.metals import HARDNESS, label as metal_label
+from ..numbers import fmt
+from ..planning.job import Scenario
+from ..planning.measurements import CACO3_MG_PER_MEQ
+from ..planning.plan import METERING_ERROR, Batch, Flow, Plan, permit_breaches
 from ..planning.solids import Sludge, sludge_of
-from ..errors import InputError, ModelError, ScenarioError, UnreachableError
-from ..planning.precision import lab_sensitivity, precision_warning
-from ..planning.control import control_design
-from ..planning.uncertainty import MATERIAL_RISK, dose_uncertainty, staged_dose
-from ..io.scenario import Scenario, scenario_key, water_inputs
+from ..version import __version__
 
-__all__ = ["Units", "UnitSystem", "UNIT_SYSTEMS", "make_plan", "with_uncertainty",
-           "sheet_dict", "render_sheet",
+__all__ = ["Units", "UnitSystem", "UNIT_SYSTEMS", "sheet_dict", "render_sheet",
            "render_fleet", "figure_title", "dose_axis",
            "metals_dict", "metal_lines",
            "fmt", "product_text", "dose_lines", "check_lines", "caution_lines", "in_units",
@@ -84,64 +78,6 @@ def plan_amount(plan: Plan, mol_l: float, units: str = "metric", digits: int = 3
     a = plan.amounts(mol_l)
     return product_text(a.kg_product, a.litres_product, units, digits,
                         per_hour=isinstance(plan.basis, Flow))
-
-
-def make_plan(scenario: Scenario, *, sampled: bool = True) -> Plan:
-    """Plan the dose a scenario asks for (with its permit caps).
-
-    With ``sampled`` (the default) the plan carries its sampled uncertainty
-    and, for a batch at risk, a staged dose (:func:`with_uncertainty`); the
-    interactive view plans without and adds them in the background.
-
-    Raises
-    ------
-    ScenarioError
-        Naming the scenario file and the key at fault when the aim cannot
-        be reached, an input is refused, or the model cannot give a number.
-    """
-    try:
-        plan = plan_dose(scenario.water, scenario.reagent, scenario.target, scenario.basis,
-                         permit=scenario.permit)
-    except UnreachableError as err:
-        raise ScenarioError(scenario.source, "target.ph_aim", str(err)) from None
-    except InputError as err:
-        raise ScenarioError(scenario.source, scenario_key(err.field), err.reason) from None
-    except ModelError as err:
-        raise ScenarioError(scenario.source, "[effluent]", str(err)) from None
-    if not plan.dose_needed or "effluent" not in scenario.data:
-        return plan
-    sens = lab_sensitivity(_inputs(scenario, plan), scenario.reagent, scenario.target.ph_aim)
-    words = precision_warning(sens, plan.dose_mol_l)
-    plan = replace(plan, precision=sens,
-                   warnings=plan.warnings + ((words,) if words else ()))
-    if sampled:
-        return with_uncertainty(scenario, plan)
-    return replace(plan, control=control_design(plan, scenario.flow_range_m3_h))
-
-
-def with_uncertainty(scenario: Scenario, plan: Plan) -> Plan:
-    """The plan with its sampled uncertainty and, for a batch at risk, a staged dose."""
-    if not plan.dose_needed or "effluent" not in scenario.data:
-        return plan
-    plan = _sampled(scenario, plan)
-    return replace(plan, control=control_design(plan, scenario.flow_range_m3_h))
-
-
-def _inputs(scenario: Scenario, plan: Plan) -> dict[str, Any]:
-    """The scenario's measurements, with the plan's calcite case (its "auto" may
-    have chosen precipitation), for re-inferring its water."""
-    return dict(water_inputs(scenario.data), calcite=plan.water.calcite)
-
-
-def _sampled(scenario: Scenario, plan: Plan) -> Plan:
-    spread = scenario.spread
-    unc = dose_uncertainty(_inputs(scenario, plan), plan, spread)
-    if unc is None:
-        return plan
-    staging = None
-    if isinstance(plan.basis, Batch) and unc.p_outside > MATERIAL_RISK:
-        staging = staged_dose(plan, unc, spread)
-    return replace(plan, uncertainty=unc, staging=staging)
 
 
 def _key_suffix(plan: Plan) -> str:
@@ -270,7 +206,7 @@ def _water_dict(plan: Plan) -> dict[str, Any]:
     w, air = plan.water, plan.air
     return {
         "temperature_c": w.temperature_c,
-        "activity_model": "davies" if w.davies else "ideal",
+        "activity_model": w.activity.name,
         "open_to_air": w.open_to_air,
         "air_exchange": None if air is None else {
             "hours_in_air": air.hours, "depth_m": air.depth_m,
@@ -499,7 +435,7 @@ def water_lines(scenario: Scenario, plan: Plan, units: str = "metric",
         out.extend(_wrap(f"modelled totals, mmol/L: {solutes}", width, "         "))
     out.extend(_wrap(f"strong-ion balance {fmt(w.strong_eq_l * 1000)} meq/L, ionic strength "
                      f"{fmt(w.ionic_strength, floor=1e-4)} mol/L, "
-                     f"{'Davies' if w.davies else 'ideal'} activity", width, "         "))
+                     f"{w.activity.label} activity", width, "         "))
     if plan.air is not None:
         out.extend(_wrap(_air_line(plan.air), width, "         "))
     rho = plan.reagent.density_kg_l

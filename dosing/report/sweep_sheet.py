@@ -14,7 +14,7 @@ from typing import Any
 
 from ..numbers import fmt
 from ..planning.reagents import GENERAL_CAUTION
-from ..io.scenario import Scenario
+from ..planning.job import Scenario
 from .sheet import UNIT_SYSTEMS, _wrap
 from ..planning.sweep import Sweep
 

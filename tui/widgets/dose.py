@@ -8,7 +8,7 @@ from rich.text import Text
 from textual.widgets import Static
 
 from dosing.planning.plan import Plan, permit_breaches
-from dosing.io.scenario import Scenario
+from dosing.planning.job import Scenario
 from dosing.report.sheet import (UnitSystem, caution_lines, check_lines, dose_lines, in_units, metal_lines,
                           staging_lines)
 

@@ -1,0 +1,128 @@
+"""The carbonate total that explains a laboratory alkalinity or acidity (a direct solve).
+
+At a fixed pH every fraction is fixed, so the strong acid a titration takes
+from the sample pH to its end point is linear in the carbonate total; only
+the ionic strengths at the two ends need a fixed point.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from .activity import ActivityModel
+from .columns import CARBONATE, N_SYSTEMS, system_index
+from .mixture import Mixture
+from .solvers import settle
+from .speciation import Rows, capped_mask, restrict, species_at
+
+__all__ = ["carbonate_for_alkalinity"]
+
+def carbonate_for_alkalinity(totals_mol_l, ph, temperature_c, alk_eq_l,
+                             endpoint_ph, *, activity: ActivityModel,
+                             extra_ionic_strength=0.0, max_iter: int = 60,
+                             unknown_pka=None, ferrous_oxidised: bool = False):
+    """Carbonate total [mol/L] that explains a titration to ``endpoint_ph``.
+
+    ``alk_eq_l`` is the strong acid [eq/L] taken to titrate the water from
+    ``ph`` down to ``endpoint_ph`` (alkalinity, positive) or, when negative,
+    minus the strong base taken to titrate it up (acidity). With
+    A = S(pH) - S(endpoint):
+
+    A = sum_j T_j (z̄_j(pH_e) - z̄_j(pH)) + w(pH_e) - w(pH),  w = [H+] - [OH-]
+
+    which is linear in the carbonate total. The ionic strength at the end
+    point includes the titrant's ions (a monovalent strong acid or base);
+    dilution by the titrant is neglected, as in the method's own
+    calculation. Metals are dissolved at ``ph`` (a filtered sample) and, at
+    the end point, capped at their hydroxide's solubility: the base they
+    take to precipitate is part of an acidity. With ``ferrous_oxidised``
+    (the hot-peroxide acidity of Standard Methods 2310) ferrous iron ends
+    as Fe(OH)3 and counts 2 eq/mol.
+
+    Returns
+    -------
+    (carbonate_mol_l, coefficient, ionic_strength) : tuple of ndarray
+        ``coefficient`` is z̄_c(pH_e) - z̄_c(pH) [-]; where it is not
+        positive for alkalinity (negative for acidity) the carbonate cannot
+        explain the measurement and the caller should refuse the input.
+    """
+    job = _AlkalinityJob.build(totals_mol_l, ph, temperature_c, alk_eq_l, endpoint_ph,
+                               activity, extra_ionic_strength, unknown_pka, ferrous_oxidised)
+    ionic, ionic_e = job.extra.copy(), job.extra.copy()
+    c, coef, new_i, new_ie = job.solve(ionic, ionic_e)
+    if activity.ideal:
+        return c, coef, new_i
+    n = job.ph.shape[0]
+
+    # Settle both strengths at once: stack them as one fixed point.
+    def fn(x):
+        _, _, a_, b_ = job.solve(x[:n], x[n:])
+        return np.concatenate([a_, b_])
+    both = settle(fn, np.concatenate([ionic, ionic_e]), np.concatenate([new_i, new_ie]),
+                   max_iter)
+    ok = np.isfinite(both[:n]) & np.isfinite(both[n:])
+    c, coef, new_i, _ = job.solve(np.where(ok, both[:n], 0.0), np.where(ok, both[n:], 0.0))
+    return np.where(ok, c, np.nan), coef, np.where(ok, new_i, np.nan)
+
+
+@dataclass(frozen=True)
+class _AlkalinityJob:
+    """The fixed parts of :func:`carbonate_for_alkalinity`: the water without
+    carbonate, at the sample pH and at the end point."""
+
+    rows: Rows
+    ph: np.ndarray          # (n,) sample pH
+    ep: np.ndarray          # (n,) end-point pH
+    alk: np.ndarray         # (n,) alkalinity (+) or minus acidity [eq/L]
+    extra: np.ndarray       # (n,) known strong-ion ionic strength [mol/L]
+    fe2: np.ndarray         # column of ferrous iron in the view (empty if none)
+    ferrous_oxidised: bool
+
+    @classmethod
+    def build(cls, totals_mol_l, ph, temperature_c, alk_eq_l, endpoint_ph, activity,
+              extra_ionic_strength, unknown_pka, ferrous_oxidised) -> "_AlkalinityJob":
+        ph = np.atleast_1d(np.asarray(ph, dtype=float))
+        tot = np.broadcast_to(np.atleast_2d(np.asarray(totals_mol_l, dtype=float)),
+                              (ph.shape[0], N_SYSTEMS)).copy()
+        tot[:, CARBONATE] = 0.0
+        t = np.broadcast_to(np.asarray(temperature_c, dtype=float), ph.shape)
+        bare = Mixture.build(tot, 0.0, 0.0, t, np.nan, activity, unknown_pka)
+        rows = restrict(bare, extra_cols=[CARBONATE])
+        return cls(rows, ph, np.broadcast_to(np.asarray(endpoint_ph, float), ph.shape),
+                   np.broadcast_to(np.asarray(alk_eq_l, dtype=float), ph.shape),
+                   np.broadcast_to(np.asarray(extra_ionic_strength, float), ph.shape),
+                   np.flatnonzero(rows.cols == system_index("iron_ii")), ferrous_oxidised)
+
+    def end_totals(self, sol_e):
+        """Totals at the end point: metals capped at their hydroxide's
+        solubility, ferrous iron gone when it is counted as oxidised."""
+        t_e = self.rows.totals.copy()
+        if self.ferrous_oxidised and self.fe2.size:
+            t_e[:, self.fe2] = 0.0
+        capped = capped_mask(self.rows, sol_e, t_e)
+        if capped is not None:
+            t_e[capped] = sol_e[capped]
+        return t_e
+
+    def solve(self, ionic, ionic_e):
+        """(carbonate, its coefficient, new ionic strength at the sample and
+        at the end point) at the given ionic strengths."""
+        rows, car, alk, extra = self.rows, self.rows.carb, self.alk, self.extra
+        s0 = species_at(rows, 10.0 ** -self.ph, ionic)
+        se = species_at(rows, 10.0 ** -self.ep, ionic_e)
+        t_e = self.end_totals(se.solubility)
+        known = (t_e * se.q - rows.totals * s0.q).sum(-1) + (se.h - se.oh) - (s0.h - s0.oh)
+        coef = se.q[:, car] - s0.q[:, car]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            c = (alk - known) / coef
+        full = rows.totals.copy()
+        full[:, car] = np.where(np.isfinite(c), c, 0.0)
+        t_e[:, car] = full[:, car]
+        s = -(s0.h - s0.oh + (full * s0.q).sum(-1))
+        # Strong ions as monovalent; the titrant (HCl or NaOH) adds |A|/2.
+        new_i = 0.5 * (s0.h + s0.oh + (full * s0.m2).sum(-1)) + 0.5 * np.abs(s) + extra
+        new_ie = (0.5 * (se.h + se.oh + (t_e * se.m2).sum(-1)) + 0.5 * np.abs(s)
+                  + 0.5 * np.abs(alk) + extra)
+        return c, coef, new_i, new_ie
