@@ -21,7 +21,8 @@ from dosing import infer_water
 from _timing import best_of
 from dosing.planning.buffer_fit import fit_spectrum
 from dosing.chem import N_SYSTEMS, Mixture, add_dose, solve_ph, system_index
-from dosing.planning.titration import check_curve, fit_water, parse_titrant
+from dosing.planning.bench import check_curve, parse_titrant
+from dosing.planning.water_fit import fit_water
 
 
 def curve_of(n: int = 40, t_c: float = 15.0):

@@ -12,12 +12,15 @@ import math
 import numpy as np
 import pytest
 
+from dosing.report.words import texts
+from dosing.report.titration import titration_dict
 from dosing.chem.activity import DAVIES, IDEAL
 from dosing.planning.measurements import Measurements
 from dosing import get_reagent, infer_water
 from dosing.planning.buffer_fit import fit_spectrum
 from dosing.chem import Mixture, dose_to_ph
-from dosing.planning.titration import check_curve, compare, parse_titrant
+from dosing.planning.bench import check_curve, parse_titrant
+from dosing.planning.titration import compare
 from tests.helpers import run_cli, totals
 from tests.test_titration import synthetic
 
@@ -76,10 +79,10 @@ def test_compare_uses_the_spectrum_when_the_simple_fit_misses(tmp_path):
                            "batch": {"volume_m3": 10.0},
                            "target": {"ph_min": 6.0, "ph_max": 9.0, "ph_aim": 7.0},
                            "reagent": {"id": "caustic-50"}}, "jar.toml")
-    report = compare(curve, scen).to_dict()
+    report = titration_dict(compare(curve, scen))
     assert report["model"]["used"] == "spectrum"
     assert report["spectrum"]["rms_ph"] <= 3 * NOISE < report["model"]["rms_ph"]
-    simple = compare(curve, scen, fit_mode="simple").to_dict()
+    simple = titration_dict(compare(curve, scen, fit_mode="simple"))
     assert simple["model"]["used"] == "simple" and simple["spectrum"] is None
 
 
@@ -93,12 +96,12 @@ def test_aim_outside_the_titrated_range_is_said(tmp_path):
                            "target": {"ph_min": 3.0, "ph_max": hi + 1.0, "ph_aim": hi - 0.3},
                            "reagent": {"id": "caustic-50"}}, "jar.toml")
     result = compare(curve, scen, fit_mode="spectrum")
-    ok = result.to_dict()
+    ok = titration_dict(result)
     assert not [w for w in ok["warnings"] if "outside the titrated range" in w]
     from dosing.planning.titration import _extrapolation_words
-    from dosing.planning.plan import Target
+    from dosing.planning.basis import Target
     words = _extrapolation_words(curve, Target(3.0, hi + 2.0, hi + 1.0), result.spectrum)
-    assert words and "extrapolates the fitted buffer sites" in words[0]
+    assert words and "extrapolates the fitted buffer sites" in texts(words)[0]
 
 
 def test_cli_fit_option_and_spectrum_in_json(tmp_path):

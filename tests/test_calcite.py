@@ -17,6 +17,7 @@ import numpy as np
 import pytest
 from hypothesis import given, settings, strategies as st
 
+from dosing.report.words import texts
 from dosing.chem.activity import DAVIES, IDEAL
 from dosing.planning.measurements import Measurements
 from dosing import Batch, Target, get_reagent, infer_water, plan_dose
@@ -83,7 +84,7 @@ def test_lime_softening_takes_the_stoichiometric_lime():
     assert plan.dose_mol_l == pytest.approx(co2 + 2e-3, rel=0.05)
     assert plan.calcite is not None and plan.calcite.ph_if_dissolved > 10.8
     assert any(s.id == "calcite" for s in plan.solids)
-    assert any("calcite precipitates" in x for x in plan.warnings)
+    assert any("calcite precipitates" in x for x in texts(plan.warnings))
 
 
 @settings(max_examples=60, deadline=None, database=None)

@@ -9,7 +9,8 @@ from tests.helpers import run_cli
 
 from dosing.io.scenario import load_scenario, parse_scenario, scenario_to_toml
 from dosing.planning.job import make_plan
-from dosing.report.sheet import render_sheet, sheet_dict
+from dosing.report.sheet import render_sheet
+from dosing.report.plan_json import sheet_dict
 
 ROOT = Path(__file__).resolve().parents[1]
 SCENARIOS = sorted((ROOT / "scenarios").glob("*.toml"))

@@ -10,7 +10,7 @@ import pytest
 
 from dosing.io.scenario import build_scenario
 from dosing.planning.job import make_plan
-from dosing.report.sheet import sheet_dict
+from dosing.report.plan_json import sheet_dict
 from dosing.planning.control import PUMP_ACCURACY
 
 NO_SPREAD = {"ph": 0, "lab_percent": 0, "solutes_percent": 0, "metals_percent": 0,

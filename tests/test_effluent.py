@@ -6,7 +6,8 @@ import pytest
 from scipy.optimize import brentq
 
 from dosing.planning.measurements import Measurements
-from dosing.planning.effluent import CACO3_MG_PER_MEQ, infer_water
+from dosing.planning.measurements import CACO3_MG_PER_MEQ
+from dosing.planning.effluent import infer_water
 from dosing.chem import Mixture, add_dose, solve_ph
 from dosing.errors import InputError
 from dosing.planning.reagents import COMPOUNDS

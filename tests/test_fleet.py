@@ -20,7 +20,8 @@ import pytest
 from hypothesis import given, settings, strategies as st
 
 from dosing.io.fleet import dask_client, fleet_report, load_fleet, replay_sites
-from dosing.planning.replay import ReplayState, ReplayTotals, plan_part, plan_rows, stitch, nominal_step
+from dosing.planning.replay import ReplayState, plan_part, plan_rows, stitch, nominal_step
+from dosing.planning.replay_totals import ReplayTotals
 from dosing.io.replay_io import file_parts, iter_chunks, read_part, run_replay
 from dosing.io.scenario import load_scenario
 from tests.test_robustness import _one_line, _strict_json, run
@@ -172,16 +173,17 @@ def test_fleet_equals_each_site_alone(client, fleet):
     sites = load_fleet(str(fleet))
     assert [len(s.files) for s in sites] == [2, 2, 2, 2]
     results = replay_sites(sites, client, part_bytes=20_000, chunk_rows=1000)
+    as_data = {name: (r.to_dict(), totals) for name, (r, totals) in results.items()}
     for site in sites:
-        alone, _ = run_replay(list(site.files), site.scenario, chunk_rows=1000)
-        _assert_same_report(alone, results[site.name][0])
+        alone = run_replay(list(site.files), site.scenario, chunk_rows=1000)[0].to_dict()
+        _assert_same_report(alone, as_data[site.name][0])
     # the run of 40 + 30 stuck rows across the file boundary: 11 flagged
-    assert results["plant-0"][0]["not_planned"]["ph_flatline"]["rows"] == 11
-    report = fleet_report(str(fleet), results, 2)
+    assert as_data["plant-0"][0]["not_planned"]["ph_flatline"]["rows"] == 11
+    report = fleet_report(str(fleet), results, 2).to_dict()
     acid = report["products"]["hydrochloric-32"]
     assert acid["sites"] == ["plant-0", "plant-1", "plant-3"]
     assert acid["kg_product"] == pytest.approx(
-        sum(results[s][0]["total"]["kg_product"] for s in acid["sites"]), rel=1e-12)
+        sum(as_data[s][0]["total"]["kg_product"] for s in acid["sites"]), rel=1e-12)
     assert set(report["products"]) == {"hydrochloric-32", "caustic-25"}
 
 
@@ -282,7 +284,7 @@ def test_fleet_runs_on_an_existing_cluster_named_by_its_scheduler(client, fleet)
     assert code == 0, err
     d = _strict_json(out)
     for site in load_fleet(str(fleet)):
-        alone, _ = run_replay(list(site.files), site.scenario)
+        alone = run_replay(list(site.files), site.scenario)[0].to_dict()
         _assert_same_report(alone, d["sites"][site.name])
 
 

@@ -4,6 +4,7 @@ import math
 
 import pytest
 
+from dosing.report.words import words
 from dosing.planning.measurements import Measurements
 from dosing import Batch, Target, get_reagent, infer_water, plan_dose
 from dosing.chem import speciate
@@ -103,7 +104,7 @@ def test_hydrogen_sulfide_danger_when_acidified():
     assert c.level == "danger"
     assert c.values["fraction_as_gas_former"] == pytest.approx(1 / (1 + 10 ** (6 - 6.99)),
                                                                 abs=1e-3)
-    assert "hydrogen sulfide" in c.message
+    assert "hydrogen sulfide" in words(c)
 
 
 def test_no_sulfide_alarm_above_ph_8():

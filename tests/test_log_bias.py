@@ -10,6 +10,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
+from dosing.report.words import bias_words
 from dosing.io.shiftlog import ShiftLog
 from tests.helpers import run_cli
 
@@ -53,7 +54,7 @@ def test_bias_of_a_synthetic_log_is_found(tmp_path):
     assert b.sd_ratio == pytest.approx(np.std(last, ddof=1), rel=1e-9)
     # The known bias, 1.12, within the estimate's standard error (twice over).
     assert abs(b.mean_ratio - 1.12) < 2 * b.sd_ratio / np.sqrt(b.entries)
-    assert b.due and f"{b.mean_ratio - 1:.0%}" in b.words() and "more" in b.words()
+    assert b.due and f"{b.mean_ratio - 1:.0%}" in bias_words(b) and "more" in bias_words(b)
 
 
 def test_too_few_entries_give_no_estimate(tmp_path):

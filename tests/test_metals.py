@@ -14,6 +14,7 @@ import numpy as np
 import pytest
 from hypothesis import given, settings, strategies as st
 
+from dosing.report.words import texts
 from dosing.chem.activity import DAVIES, IDEAL
 from dosing.planning.measurements import Measurements
 from dosing import Batch, Target, get_reagent, infer_water, plan_dose
@@ -154,7 +155,7 @@ def test_dose_then_forward_ph_round_trip_with_solids(mix, target):
 
 def test_supersaturated_sample_is_said():
     w = infer_water(Measurements(8.0, 25.0, alkalinity_mg_l_as_caco3=100, metals_mg_l={"iron_iii": 5}))
-    assert any("above its hydroxide's solubility" in n for n in w.notes)
+    assert any("above its hydroxide's solubility" in n for n in texts(w.notes))
 
 
 def test_acidity_with_metals_leaves_out_the_metal_acidity():
@@ -238,7 +239,7 @@ def test_caps_that_miss_the_window_are_said():
     plan = plan_dose(w, get_reagent("caustic-50"), Target(6.0, 8.5, 7.5), Batch(1),
                      permit={"nickel_mg_l": 0.1})
     assert plan.cap_window.overlap is None
-    assert any("does not overlap" in m for m in plan.warnings)
+    assert any("does not overlap" in m for m in texts(plan.warnings))
     assert any(c.id == "permit-nickel_mg_l" and c.level == "danger" for c in plan.checks)
 
 

@@ -3,6 +3,7 @@
 import numpy as np
 import pytest
 
+from dosing.report.words import texts
 from dosing.planning.measurements import Measurements
 from dosing import (Batch, Flow, Target, UnreachableError, get_reagent, infer_water,
                     plan_dose)
@@ -94,19 +95,19 @@ def test_already_inside_the_window_needs_no_dose():
     assert not plan.dose_needed
     assert plan.dose_mol_l == 0.0
     assert plan.ph_end == pytest.approx(7.8, abs=1e-6)
-    assert any("no dose needed" in m for m in plan.warnings)
+    assert any("no dose needed" in m for m in texts(plan.warnings))
 
 
 def test_narrow_window_warning_in_operator_terms():
     # Unbuffered acid: the classic case where 5 % error overshoots.
     w = infer_water(Measurements(2.5, alkalinity_mg_l_as_caco3=0))
     plan = plan_dose(w, get_reagent("caustic-50"), Target(6.5, 8.5, 7.5), Batch(10))
-    assert any("a 5% dosing error moves the pH" in m for m in plan.warnings)
+    assert any("a 5% dosing error moves the pH" in m for m in texts(plan.warnings))
     assert plan.ph_high_dose > 8.5
     # A well-buffered water gets no such warning.
     w = infer_water(Measurements(5.0, acidity_mg_l_as_caco3=400))
     plan = plan_dose(w, get_reagent("caustic-50"), Target(6.0, 9.0, 7.0), Batch(10))
-    assert not any("dosing error" in m for m in plan.warnings)
+    assert not any("dosing error" in m for m in texts(plan.warnings))
 
 
 def test_lime_undissolved_is_judged_after_neutralising_issue_16():
@@ -116,7 +117,7 @@ def test_lime_undissolved_is_judged_after_neutralising_issue_16():
     w = infer_water(Measurements(1.5, 20.0, solutes_mmol_l={"sulfate": 40}))
     plan = plan_dose(w, get_reagent("lime"), Target(6, 9), Batch(50))
     assert plan.dose_mol_l * 74.09 > 1.7
-    assert not any("undissolved" in m for m in plan.warnings)
+    assert not any("undissolved" in m for m in texts(plan.warnings))
     assert any("dissolves slowly" in c for c in plan.cautions)
     assert not any(s.id == "calcium_hydroxide" for s in plan.solids)
 

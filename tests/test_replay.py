@@ -7,6 +7,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
+from dosing.planning import replay_totals as totals_mod  # noqa: E402
 from dosing.planning.measurements import Measurements
 from tests.helpers import run_cli
 
@@ -80,8 +81,8 @@ def test_chunked_and_in_memory_give_the_same_totals(tmp_path):
     data.loc[502, "timestamp"] = "not a time"
     data.to_csv(f, index=False)
     s = load_scenario(SCEN)
-    whole, _ = run_replay(str(f), s, chunk_rows=100_000)
-    parts, _ = run_replay(str(f), s, chunk_rows=3_000)
+    whole = run_replay(str(f), s, chunk_rows=100_000)[0].to_dict()
+    parts = run_replay(str(f), s, chunk_rows=3_000)[0].to_dict()
     for key in ("rows", "rows_planned", "not_planned"):
         assert parts[key] == whole[key]
     assert parts["hours_outside_window"] == pytest.approx(whole["hours_outside_window"])
@@ -109,7 +110,7 @@ def test_bad_rows_are_counted_not_dropped(tmp_path):
                  "garbage,10,10.1\n"                 # bad timestamp
                  "2026-01-01 00:05,10,14.5\n"        # pH out of range
                  "2026-01-01 00:06,10,10.0\n")
-    report, _ = run_replay(str(f), load_scenario(SCEN))
+    report = run_replay(str(f), load_scenario(SCEN))[0].to_dict()
     assert report["rows"] == 8 and report["rows_planned"] == 2
     counts = {k: v["rows"] for k, v in report["not_planned"].items()}
     assert counts == {"flow_missing": 1, "ph_missing": 1, "time_not_increasing": 1,
@@ -119,7 +120,7 @@ def test_bad_rows_are_counted_not_dropped(tmp_path):
 def test_wrong_direction_rows_are_flagged(tmp_path):
     f = tmp_path / "low.csv"
     f.write_text("timestamp,flow_m3_h,ph\n2026-01-01 00:00,10,4.0\n2026-01-01 00:01,10,10.0\n")
-    report, _ = run_replay(str(f), load_scenario(SCEN))
+    report = run_replay(str(f), load_scenario(SCEN))[0].to_dict()
     assert report["not_planned"]["wrong_direction"]["rows"] == 1
 
 
@@ -156,8 +157,8 @@ def test_parquet_gives_the_same_totals_as_csv(tmp_path):
     data.to_csv(csv_file, index=False)
     data.to_parquet(pq_file, index=False)
     s = load_scenario(SCEN)
-    a, _ = run_replay(str(csv_file), s, chunk_rows=2_000)
-    b, _ = run_replay(str(pq_file), s, chunk_rows=2_000)
+    a = run_replay(str(csv_file), s, chunk_rows=2_000)[0].to_dict()
+    b = run_replay(str(pq_file), s, chunk_rows=2_000)[0].to_dict()
     assert b["rows_planned"] == a["rows_planned"] == 5_000
     assert b["total"]["kg_product"] == pytest.approx(a["total"]["kg_product"], rel=1e-12)
 
@@ -263,18 +264,18 @@ def test_distinct_rows_finds_each_distinct_row_once(col, seed):
 @given(arrays(np.float64, st.integers(1, 50),
               elements=st.floats(-1.0, 1e9, allow_nan=False, allow_infinity=False)))
 def test_histogram_bins_match_a_search_of_the_edges(rate):
-    edges = replay_mod._EDGES
+    edges = totals_mod._EDGES
     rate = np.concatenate([rate, edges, np.nextafter(edges, -1.0)])
     expect = np.clip(np.searchsorted(edges, rate, side="right") - 1, 0, edges.size - 1)
     expect[rate <= 0] = 0
-    assert (replay_mod._bin_of(rate) == expect).all()
+    assert (totals_mod._bin_of(rate) == expect).all()
 
 
 @settings(max_examples=60, deadline=None, derandomize=True)
 @given(st.lists(st.integers(0, 10 ** 11), min_size=1, max_size=40), st.sampled_from(["D", "h"]))
 def test_calendar_groups_match_a_sort(seconds, unit):
     ts = np.datetime64("2020-01-01T00:00:00", "ns") + np.array(seconds).astype("timedelta64[s]")
-    keys, which = replay_mod._calendar_groups(ts, unit)
+    keys, which = totals_mod._calendar_groups(ts, unit)
     expect_keys, expect_which = np.unique(ts.astype(f"datetime64[{unit}]"), return_inverse=True)
     assert (keys == expect_keys).all() and (which == expect_which).all()
 

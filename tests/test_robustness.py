@@ -26,7 +26,8 @@ import pytest
 from hypothesis import HealthCheck, given, settings, strategies as st
 
 from dosing.cli import main
-from dosing.planning.titration import _standard_errors, check_curve, parse_titrant
+from dosing.planning.water_fit import _standard_errors
+from dosing.planning.bench import check_curve, parse_titrant
 from dosing.errors import InputError
 from tests.helpers import run_cli
 

@@ -6,6 +6,8 @@ from pathlib import Path
 import numpy as np
 import pytest
 
+from dosing.report.titration import titration_dict
+from dosing.report.words import texts
 from dosing.chem.activity import DAVIES, IDEAL
 from dosing.planning.measurements import Measurements
 from tests.helpers import run_cli
@@ -13,11 +15,12 @@ from tests.helpers import run_cli
 from dosing.planning.effluent import infer_water
 from dosing.chem import Mixture, add_dose, solve_ph
 from dosing.errors import InputError, UnreachableError
-from dosing.planning.plan import Target
+from dosing.planning.basis import Target
 from dosing.planning.reagents import get_reagent
 from dosing.io.scenario import load_scenario
-from dosing.planning.titration import (check_curve, compare, direct_scaling, fit_water,
-                              parse_titrant)
+from dosing.planning.bench import check_curve, direct_scaling, parse_titrant
+from dosing.planning.titration import compare
+from dosing.planning.water_fit import fit_water
 from tests.helpers import totals
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -66,7 +69,7 @@ def test_the_two_methods_agree_on_a_clean_curve():
     tit = parse_titrant("0.1 N H2SO4")
     v = np.linspace(0, 12, 41)
     ph = synthetic(totals(carbonate=0.004), 0.008, tit, 50.0, v, t_c=s.water.temperature_c)
-    report = compare(check_curve(50.0, tit, v, ph), s).to_dict()
+    report = titration_dict(compare(check_curve(50.0, tit, v, ph), s))
     assert abs(report["gap_model_vs_direct"]) < 0.03
     assert not any("differ by" in w for w in report["warnings"])
     assert report["cautions"][-1].endswith("final word on any dose.")
@@ -81,7 +84,7 @@ def test_a_sample_not_at_the_scenarios_ph_is_questioned():
     v = np.linspace(0, 12, 41)
     ph = synthetic(totals(carbonate=0.004), 0.008, tit, 50.0, v, t_c=s.water.temperature_c)
     shifted = compare(check_curve(50.0, tit, v, ph - 0.8), s)
-    said = [w for w in shifted.warnings if "another sample" in w]
+    said = [w for w in texts(shifted.warnings) if "another sample" in w]
     assert said and f"pH {ph[0] - 0.8:.2f}" in said[0] and f"pH {s.water.ph:.2f}" in said[0]
     # within the meters' agreement, or a first reading with titrant in: nothing said
     from dosing.planning.titration import _sample_words
@@ -114,7 +117,7 @@ def test_acetic_acid_with_naoh_textbook():
     assert fit.unknown_acid
     assert fit.params["unknown_acid_mmol_l"] == pytest.approx(100.0, rel=0.02)
     assert fit.params["unknown_acid_pka"] == pytest.approx(4.756, abs=0.03)
-    assert any("unlisted buffer" in w for w in fit.warnings)
+    assert any("unlisted buffer" in w for w in texts(fit.warnings))
 
 
 def test_unreachable_aim_is_refused_with_the_last_ph():
@@ -131,7 +134,7 @@ def test_small_noise_is_flagged_large_misreads_refused():
     tit = parse_titrant("0.1 M NaOH")
     v = [0, 1, 2, 3, 4, 5]
     c = check_curve(50, tit, v, [3.0, 3.5, 3.48, 4.0, 4.5, 5.0])
-    assert any("meter noise" in n for n in c.notes)
+    assert any("meter noise" in n for n in texts(c.notes))
     with pytest.raises(InputError, match="row 3"):
         check_curve(50, tit, v, [3.0, 3.5, 3.2, 4.0, 4.5, 5.0])
 

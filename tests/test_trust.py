@@ -9,6 +9,7 @@ import pickle
 
 import pytest
 
+from dosing.report.words import texts
 from dosing.planning.measurements import Measurements
 from dosing import Batch, Target, get_reagent, infer_water, plan_dose
 from dosing.errors import InputError, ScenarioError, ShiftLogError, UsageError
@@ -91,7 +92,7 @@ def test_issue_11_rounded_lab_acidity_is_accepted():
     # is within its precision (carbonate zero, with a note).
     w = infer_water(Measurements(3.0, 25.0, acidity_mg_l_as_caco3=50))
     assert w.carbonate_mol_l == 0.0
-    assert any("precision" in n for n in w.notes)
+    assert any("precision" in n for n in texts(w.notes))
     with pytest.raises(InputError, match="smaller than"):
         infer_water(Measurements(3.0, 25.0, acidity_mg_l_as_caco3=30))
 
@@ -151,7 +152,7 @@ def test_issue_11_open_to_air_dosing_is_planned_for_the_time_scale():
     assert quick.air.other_dose_mol_l == pytest.approx(
         _air_equilibrium_alkalinity_ph9() + deficit, rel=0.03)
     assert quick.air.other_dose_mol_l > 20 * quick.dose_mol_l
-    assert any("never dose the long-term figure at once" in w for w in quick.warnings)
+    assert any("never dose the long-term figure at once" in w for w in texts(quick.warnings))
 
 
 def replace_open(w):
@@ -166,7 +167,7 @@ def test_issue_11_a_pond_that_stands_for_weeks_is_planned_at_air_equilibrium():
     assert pond.dose_mol_l == pytest.approx(_air_equilibrium_alkalinity_ph9() - pond.water.strong_eq_l, rel=0.03)
     # Right after dosing the full figure, before CO2 is taken up, the pH overshoots.
     assert pond.air.ph_other > pond.target.ph_max
-    assert any("Right after dosing" in w for w in pond.warnings)
+    assert any("Right after dosing" in w for w in texts(pond.warnings))
 
 
 def test_issue_11_hours_in_air_is_checked(tmp_path):
@@ -187,12 +188,12 @@ def _ill_scenario(tmp_path, alk, ph=4.6, aim=7.0):
 
 def test_issue_11_ill_conditioned_carbonate_is_said_with_its_figure(tmp_path):
     from dosing.planning.job import make_plan
-    from dosing.report.sheet import sheet_dict
+    from dosing.report.plan_json import sheet_dict
     s = _ill_scenario(tmp_path, 2.5)
     plan = make_plan(s)
     # The issue's figure: 9.9 mmol/L of caustic to pH 7 at pH 4.6, 2.5 mg/L.
     assert plan.dose_mol_l * 1000 == pytest.approx(9.9, abs=0.1)
-    warning = [w for w in plan.warnings if "rests on the alkalinity" in w]
+    warning = [w for w in texts(plan.warnings) if "rests on the alkalinity" in w]
     assert warning and "bench titration" in warning[0]
     alk = plan.precision[0]
     assert alk.field == "alkalinity_mg_l_as_caco3" and alk.plus_minus == 2.0
@@ -204,7 +205,7 @@ def test_issue_11_ill_conditioned_carbonate_is_said_with_its_figure(tmp_path):
 def test_issue_11_well_conditioned_water_gets_no_precision_warning(tmp_path):
     from dosing.planning.job import make_plan
     plan = make_plan(_ill_scenario(tmp_path, 150, ph=6.8, aim=8.5))
-    assert not [w for w in plan.warnings if "rests on" in w]
+    assert not [w for w in texts(plan.warnings) if "rests on" in w]
     assert all(p.largest_change(plan.dose_mol_l) < 0.25 for p in plan.precision)
 
 
@@ -251,7 +252,7 @@ def test_issue_11_no_dose_needed_prints_no_temperature_noise(tmp_path):
 
 def test_issue_11_titration_fit_prints_no_noise(tmp_path):
     import numpy as np
-    from dosing.planning.titration import parse_titrant
+    from dosing.planning.bench import parse_titrant
     from tests.helpers import totals
     from tests.test_titration import synthetic
     tit = parse_titrant("0.1 M NaOH")

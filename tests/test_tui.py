@@ -162,7 +162,7 @@ def _toml(data):
 def test_loads_a_bench_titration(tmp_path):
     from tests.test_titration import synthetic
     from tests.helpers import totals
-    from dosing.planning.titration import parse_titrant
+    from dosing.planning.bench import parse_titrant
     import numpy as np
     tit = parse_titrant("0.1 N H2SO4")
     v = np.linspace(0, 12, 30)

@@ -15,9 +15,10 @@ from dataclasses import replace
 import numpy as np
 import pytest
 
+from dosing.report.words import words
 from dosing.io.scenario import load_scenario
 from dosing.planning.job import make_plan
-from dosing.report.sheet import sheet_dict
+from dosing.report.plan_json import sheet_dict
 from dosing.planning.uncertainty import (Spread, _sample, dose_uncertainty, follow_table,
                                 spread_from)
 from dosing.errors import InputError
@@ -66,7 +67,7 @@ def test_the_largest_input_is_named_first():
     spread = replace(ZERO, samples=600, strength_percent=10.0, ph=0.01)
     unc = dose_uncertainty(inputs, plan, spread)
     assert unc.shares[0][0] == "strength" and unc.shares[0][1] > 0.8
-    assert "product strength" in unc.words()
+    assert "product strength" in words(unc.spread_finding())
 
 
 @pytest.mark.parametrize("name", ["plating-rinse-metals", "magnesia-acid-rinse",

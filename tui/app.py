@@ -23,12 +23,17 @@ from textual.widgets import (Footer, Header, Label, Select, Static, TabbedConten
 
 from dosing.errors import DosingError, ScenarioError
 from dosing.io.files import write_atomic
-from dosing.planning.plan import Flow, Plan
+from dosing.planning.basis import Flow
+from dosing.planning.plan import Plan
 from dosing.planning.reagents import CATALOGUE, GENERAL_CAUTION
 from dosing.io.scenario import build_scenario, load_scenario, scenario_to_toml
 from dosing.planning.job import Scenario, make_plan, with_uncertainty
-from dosing.report.sheet import UnitSystem, render_sheet, render_titration, sheet_dict
-from dosing.planning.titration import check_curve, compare, parse_titrant
+from dosing.report.plan_json import sheet_dict
+from dosing.report.sheet import render_sheet
+from dosing.report.titration import render_titration
+from dosing.report.units import UnitSystem
+from dosing.planning.bench import check_curve, parse_titrant
+from dosing.planning.titration import compare
 from dosing.io.titration_io import read_titration_csv
 from dosing.io.shiftlog import ShiftLog
 from dosing.planning.sweep import default_alternative, default_sizes, strength_grid

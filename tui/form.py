@@ -18,7 +18,7 @@ from textual.message import Message
 from textual.widgets import Input, Label, Select, Static, Switch
 
 from dosing.planning.reagents import CATALOGUE, COMPOUNDS
-from dosing.report.sheet import KG_PER_LB, L_PER_US_GAL, UnitSystem
+from dosing.report.units import KG_PER_LB, L_PER_US_GAL, UnitSystem
 
 __all__ = ["Field", "FIELDS", "ScenarioForm", "field_id", "parse_pairs", "US_FIELDS"]
 

@@ -113,6 +113,10 @@ class Mixture:
                        unknown_pka=None if self.unknown_pka is None else self.unknown_pka[idx],
                        site_pka=None if self.site_pka is None else self.site_pka[idx])
 
+    def repeat(self, n: int) -> "Mixture":
+        """The first water, n times (a curve or a set of targets for one water)."""
+        return self.take(np.zeros(n, dtype=int))
+
     @property
     def n(self) -> int:
         """Number of waters."""

@@ -34,15 +34,17 @@ from typing import Any, Callable, Iterator, Mapping, Sequence
 import pandas as pd
 
 from ..errors import ScenarioError, UsageError
-from ..planning.plan import Flow
+from ..planning.basis import Flow
 from ..planning.reagents import GENERAL_CAUTION
-from ..planning.replay import ReplayTotals, nominal_step, plan_part, stitch
+from ..planning.replay import nominal_step, plan_part, stitch
+from ..planning.replay_totals import ReplayReport, ReplayTotals
 from .replay_io import (CHUNK_ROWS, PART_BYTES, Part, file_parts, finish_replay,
                         iter_site_chunks, read_part, site_files)
 from ..planning.job import Scenario
 from .scenario import load_scenario, parse_toml, read_text_file
 
-__all__ = ["Site", "load_fleet", "replay_sites", "fleet_report", "dask_client"]
+__all__ = ["Site", "load_fleet", "replay_sites", "fleet_report", "FleetReport", "ProductTotal",
+           "dask_client"]
 
 _SITE_KEYS = {"scenario": "the site's flow scenario file",
               "data": "a list of its data files or globs"}
@@ -168,7 +170,7 @@ def _ready(client, option: str) -> None:
 def replay_sites(sites: Sequence[Site], client, *, part_bytes: int = PART_BYTES,
                  chunk_rows: int = CHUNK_ROWS, keep_hourly: bool = False,
                  progress: Callable[[int, int], None] | None = None
-                 ) -> dict[str, tuple[dict, ReplayTotals]]:
+                 ) -> dict[str, tuple[ReplayReport, ReplayTotals]]:
     """Replay every site on the client's cluster: {name: (report, totals)}.
 
     ``progress(done, total)`` is called as parts finish. ``chunk_rows`` is
@@ -239,27 +241,64 @@ def _gather(client, futures, progress) -> list:
 
 
 # -------------------------------------------------------------- report --
-def fleet_report(fleet: str, results: Mapping[str, tuple[dict, ReplayTotals]],
-                 workers: int) -> dict[str, Any]:
+@dataclass(frozen=True)
+class ProductTotal:
+    """One product over the fleet (amounts of different products are never added)."""
+
+    reagent_name: str
+    sites: tuple[str, ...]
+    kg_product: float
+    litres_product: float
+    cost: float                          #: over the sites that give a price
+    sites_without_price: tuple[str, ...]
+
+
+@dataclass(frozen=True)
+class FleetReport:
+    """A fleet replay: each site's report, and totals per product."""
+
+    fleet: str
+    workers: int
+    sites: Mapping[str, ReplayReport]
+    products: Mapping[str, ProductTotal]
+    cautions: tuple[str, ...]
+
+    @property
+    def rows(self) -> int:
+        return sum(r.rows for r in self.sites.values())
+
+    @property
+    def rows_planned(self) -> int:
+        return sum(r.rows_planned for r in self.sites.values())
+
+    def to_dict(self) -> dict[str, Any]:
+        """The fleet as plain data (SI units, JSON-ready, stable keys)."""
+        return {"fleet": self.fleet, "workers": self.workers, "rows": self.rows,
+                "rows_planned": self.rows_planned,
+                "products": {k: {"reagent_name": p.reagent_name, "sites": list(p.sites),
+                                 "kg_product": p.kg_product, "litres_product": p.litres_product,
+                                 "cost": p.cost,
+                                 "sites_without_price": list(p.sites_without_price)}
+                             for k, p in self.products.items()},
+                "sites": {name: r.to_dict() for name, r in self.sites.items()},
+                "cautions": list(self.cautions)}
+
+
+def fleet_report(fleet: str, results: Mapping[str, tuple[ReplayReport, ReplayTotals]],
+                 workers: int) -> FleetReport:
     """The fleet summary: each site's report, and totals per product (a kg of
     caustic and a kg of acid are never added together)."""
-    products: dict[str, dict[str, Any]] = {}
+    by_product: dict[str, list[tuple[str, ReplayReport]]] = {}
     cautions: list[str] = []
     for name, (r, _) in results.items():
-        p = products.setdefault(r["reagent"], {
-            "reagent_name": r["reagent_name"], "sites": [], "kg_product": 0.0,
-            "litres_product": 0.0, "cost": 0.0, "sites_without_price": []})
-        p["sites"].append(name)
-        p["kg_product"] += r["total"]["kg_product"]
-        p["litres_product"] += r["total"]["litres_product"] or 0.0
-        if r["total"]["cost"] is None:
-            p["sites_without_price"].append(name)
-        else:
-            p["cost"] += r["total"]["cost"]
-        cautions.extend(c for c in r["cautions"] if c not in cautions and c != GENERAL_CAUTION)
-    return {"fleet": fleet, "workers": workers,
-            "rows": sum(r["rows"] for r, _ in results.values()),
-            "rows_planned": sum(r["rows_planned"] for r, _ in results.values()),
-            "products": products,
-            "sites": {name: r for name, (r, _) in results.items()},
-            "cautions": cautions + [GENERAL_CAUTION]}
+        by_product.setdefault(r.reagent, []).append((name, r))
+        cautions.extend(c for c in r.cautions if c not in cautions and c != GENERAL_CAUTION)
+    products = {pid: ProductTotal(
+        reagent_name=rs[0][1].reagent_name, sites=tuple(n for n, _ in rs),
+        kg_product=sum(r.kg_product for _, r in rs),
+        litres_product=sum(r.litres_product or 0.0 for _, r in rs),
+        cost=sum(r.cost for _, r in rs if r.cost is not None),
+        sites_without_price=tuple(n for n, r in rs if r.cost is None))
+        for pid, rs in by_product.items()}
+    return FleetReport(fleet, workers, {name: r for name, (r, _) in results.items()},
+                       products, tuple(cautions) + (GENERAL_CAUTION,))

@@ -19,8 +19,8 @@ from typing import Callable, Iterator, Sequence
 import pandas as pd
 
 from ..errors import ScenarioError
-from ..planning.replay import (ReplayState, ReplayTotals, as_numbers, normalise_columns, plan_rows,
-                     replay_report)
+from ..planning.replay import ReplayState, as_numbers, normalise_columns, plan_rows
+from ..planning.replay_totals import ReplayReport, ReplayTotals, replay_report
 from ..planning.job import Scenario
 
 __all__ = ["iter_chunks", "iter_site_chunks", "run_replay", "site_files", "Part",
@@ -322,7 +322,7 @@ def run_replay(paths: str | Sequence[str], scenario: Scenario, *,
                rows_out: io.TextIOBase | None = None,
                progress: Callable[[int], None] | None = None, keep_hourly: bool = True):
     """Replay the whole record (one file, or several read as one in the
-    order given); returns (report dict, totals).
+    order given); returns (report, totals).
 
     ``rows_out``, if given, receives the per-row results as CSV. Hourly
     means (for the plot) are the only state that grows with the length of
@@ -350,12 +350,11 @@ def run_replay(paths: str | Sequence[str], scenario: Scenario, *,
     return finish_replay(totals, scenario, paths), totals
 
 
-def finish_replay(totals: ReplayTotals, scenario: Scenario, paths: Sequence[str]) -> dict:
+def finish_replay(totals: ReplayTotals, scenario: Scenario,
+                  paths: Sequence[str]) -> ReplayReport:
     """The report of a whole record; a record with no usable row is refused."""
     source = ", ".join(paths)
     if totals.planned == 0:
         why = ", ".join(f"{k} ({v})" for k, v in totals.flags.most_common(3)) or "no rows"
         raise ScenarioError(source, "", f"no usable rows: {why}")
-    report = replay_report(totals, scenario, source)
-    report["files"] = list(paths)
-    return report
+    return replay_report(totals, scenario, source, tuple(paths))

@@ -27,7 +27,7 @@ from ..planning.measurements import (ACIDITY_ENDPOINT_PH, ALKALINITY_ENDPOINT_PH
                                      BACKGROUND_IONS, DEFAULT_DEPTH_M, DEFAULT_PCO2_UATM,
                                      Measurements)
 from ..errors import InputError, ScenarioError
-from ..planning.plan import Batch, Flow, Target
+from ..planning.basis import Batch, Flow, Target
 from ..planning.reagents import Reagent, custom_reagent, get_reagent, with_purity
 from ..planning.hazards import ION_PERMIT_KEYS
 from ..chem.metals import METAL_IDS

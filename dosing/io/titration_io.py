@@ -7,6 +7,7 @@ import math
 from pathlib import Path
 
 from ..errors import ScenarioError
+from ..planning.findings import Finding, Q, note
 
 __all__ = ["read_titration_csv", "VOLUME_NAMES"]
 
@@ -23,7 +24,8 @@ def _num(text: str) -> float:
         return math.nan
 
 
-def read_titration_csv(path: str, drop_rows=()) -> tuple[list[float], list[float], list[int], list[str]]:
+def read_titration_csv(path: str, drop_rows=()
+                       ) -> tuple[list[float], list[float], list[int], list[Finding]]:
     """(volumes mL, pH, file line numbers, notes) from a titration CSV."""
     p = Path(path)
     if not p.is_file():
@@ -63,18 +65,19 @@ def read_titration_csv(path: str, drop_rows=()) -> tuple[list[float], list[float
                                 f"{body[0][vol]!r}; give the titrant volume in mL")
         body = body[1:]
         start = 3
-        notes.append("a units row under the header was skipped")
-    dropped = set(drop_rows)
+        notes.append(note("units-row", "a units row under the header was skipped", "info"))
+    dropped, done = set(drop_rows), set()
     for n, row in enumerate(body, start=start):
         if not any(c.strip() for c in row):
             continue
         if n in dropped:
-            notes.append(f"row {n} dropped as asked")
+            notes.append(note("dropped-row", "row {row:d} dropped as asked", "info", row=Q(n)))
+            done.add(n)
             continue
         vols.append(_num(row[vol]) if len(row) > vol else math.nan)
         phs.append(_num(row[ph]) if len(row) > ph else math.nan)
         lines.append(n)
-    missing = dropped - set(lines) - {n for n in dropped if f"row {n} dropped as asked" in notes}
+    missing = dropped - set(lines) - done
     if missing:
         raise ScenarioError(path, "--drop", f"no row {sorted(missing)[0]} in the file")
     return vols, phs, lines, notes

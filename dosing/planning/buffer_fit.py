@@ -30,6 +30,7 @@ import numpy as np
 
 from ..chem.activity import debye_huckel_a
 from .effluent import Water
+from .findings import Finding, Q, note
 from ..chem import (CARBONATE, Mixture, add_dose, solve_ph, speciate, system_index)
 from ..chem.species import SITE_IDS, SYSTEMS
 from ..chem.water import carbonate_pk, pkw, vant_hoff_pk
@@ -60,13 +61,16 @@ class BufferRegion:
 
     edge: bool = False      #: at or beyond the titrated range: strong acid or base alike
 
-    def words(self) -> str:
-        """'about 1.2 mmol/L near pKa 7.2: phosphate?'"""
+    def finding(self) -> Finding:
+        """'about 1.2 mmol/L (± 0.1) near pKa 7.2: phosphate?'"""
+        q = {"total": Q(self.mmol_l, "mmol/L"), "sd": Q(self.sd_mmol_l, "mmol/L"),
+             "pka": Q(self.pka, "pH")}
         if self.edge:
-            return (f"about {self.mmol_l:.3g} mmol/L near pKa {self.pka:.1f}, at the edge "
-                    "of the titrated range: not told apart from strong acid or base")
-        return (f"about {self.mmol_l:.3g} mmol/L (± {self.sd_mmol_l:.2g}) near pKa "
-                f"{self.pka:.1f}" + (f": {self.guess}?" if self.guess else ""))
+            return Finding("region-at-edge", "info", "about {total:.3g} near pKa {pka:.1f}, "
+                           "at the edge of the titrated range: not told apart from strong "
+                           "acid or base", q)
+        return Finding("region", "info", "about {total:.3g} (± {sd:.2gnum}) near pKa {pka:.1f}"
+                       + (": {guess}?" if self.guess else ""), q, {"guess": self.guess})
 
 
 @dataclass(frozen=True)
@@ -221,7 +225,8 @@ def _water(base: Water, x, grid, with_carbonate) -> Water:
     w = replace(base, totals_mol_l=totals, strong_eq_l=s,
                 strong_ionic_strength=base.strong_ionic_strength_for(s),
                 site_pka=tuple(p for p, _ in cols), open_to_air=False,
-                notes=("water fitted to the bench titration (buffer spectrum)",))
+                notes=(note("fitted", "water fitted to the bench titration (buffer spectrum)",
+                            "info"),))
     ph0 = float(solve_ph(w.mixture())[0])
     sp = speciate(w.mixture(), ph0)
     return replace(w, ph=ph0, ionic_strength=float(sp.ionic_strength[0]))

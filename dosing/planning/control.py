@@ -38,6 +38,8 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
+from .findings import Finding, Q
+
 __all__ = ["Stage", "ControlDesign", "control_design", "PUMP_ACCURACY", "MAX_STAGES"]
 
 #: Rate accuracy of a calibrated metering pump or control valve [-] (common practice).
@@ -71,7 +73,7 @@ class ControlDesign:
     flow_range_m3_h: tuple[float, float]
     flow_range_given: bool              #: False: the stated flow only
     stages: tuple[Stage, ...]
-    note: str                           #: plain words on the staging
+    note: Finding                       #: plain words on the staging
 
     @property
     def turndown(self) -> float:
@@ -101,12 +103,12 @@ def control_design(plan, flow_range_m3_h: tuple[float, float] | None = None
                          (lo_q, hi_q), flow_range_m3_h is not None, stages, note)
 
 
-def _stages(accuracy: float, flow_m3_h: float, kind: str) -> tuple[tuple[Stage, ...], str]:
+def _stages(accuracy: float, flow_m3_h: float, kind: str) -> tuple[tuple[Stage, ...], Finding]:
     """Stages and their reagent split for the accuracy needed."""
     if accuracy >= PUMP_ACCURACY:
         shares = [1.0]
-        note = (f"one stage: the window allows a {accuracy:.1%} error in the reagent rate, "
-                f"within what a calibrated pump delivers ({PUMP_ACCURACY:.0%})")
+        words = ("one stage: the window allows a {accuracy:.1%} error in the reagent rate, "
+                 "within what a calibrated pump delivers ({pump})")
     else:
         # The last stage doses a fraction f whose own error f * 2 % must stay
         # inside the window (with a factor of two in hand); each stage before
@@ -115,13 +117,15 @@ def _stages(accuracy: float, flow_m3_h: float, kind: str) -> tuple[tuple[Stage, 
         n = 2 if f >= 0.05 else 3
         f = max(f, 0.05 if n == 2 else 0.01)
         shares = [1.0 - f, f] if n == 2 else [1.0 - f - 0.1, 0.1, f]
-        note = (f"{n} stages: the window allows only a {accuracy:.2%} error in the reagent "
-                f"rate, finer than a calibrated pump's {PUMP_ACCURACY:.0%}; the last stage "
-                f"doses {f:.0%} of the reagent so its own error stays inside the window")
+        words = (f"{n} stages: the window allows only a {{accuracy:.2%}} error in the reagent "
+                 "rate, finer than a calibrated pump's {pump}; the last stage doses "
+                 "{last} of the reagent so its own error stays inside the window")
         if accuracy / PUMP_ACCURACY < 0.01:
-            note += ("; even three stages hardly hold it: widen the window with the "
-                     "engineer or use a weaker reagent for the last stage")
+            words += ("; even three stages hardly hold it: widen the window with the "
+                      "engineer or use a weaker reagent for the last stage")
     res = _RESIDENCE_MIN[kind]
     stages = tuple(Stage(s, res, flow_m3_h * res / 60.0, res * _TURNOVER_FRACTION)
                    for s in shares)
-    return stages, note
+    return stages, Finding("stages", "info", words,
+                           {"accuracy": Q(accuracy, "%"), "pump": Q(PUMP_ACCURACY, "%"),
+                            "last": Q(shares[-1], "%")})

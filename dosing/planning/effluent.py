@@ -42,6 +42,7 @@ from ..chem import (CARBONATE, METAL_COLUMNS, Mixture, carbonate_for_alkalinity,
 from ..chem.activity import ActivityModel
 from ..chem.metals import METAL_IDS
 from ..errors import InputError, ModelError
+from .findings import Finding, Q, note
 from .measurements import (ALKALINITY_ENDPOINT_PH, CACO3_MG_PER_MEQ, DEFAULT_DEPTH_M,
                            LAB_PRECISION, LOW_READING_MG_L, Checked, LabValue, Measurements,
                            check, totals_vector)
@@ -122,7 +123,7 @@ class Water:
     alkalinity_eq_l : float
         Total alkalinity to pH 4.5 of the water as modelled [eq/L]; equal to
         the measured value when one was given.
-    notes : tuple of str
+    notes : tuple of Finding
         What the inference assumed or found worth saying.
     ions_mg_l : Mapping[str, float]
         Measured background strong ions (sodium, chloride ...) [mg/L]; used
@@ -165,7 +166,7 @@ class Water:
     open_to_air: bool
     pco2_atm: float
     alkalinity_eq_l: float
-    notes: tuple[str, ...] = field(default=())
+    notes: tuple[Finding, ...] = field(default=())
     ions_mg_l: Mapping[str, float] = field(default_factory=dict)
     unknown_pka: float | None = None
     metals_mol_l: Mapping[str, float] = field(default_factory=dict)
@@ -246,7 +247,7 @@ def aerate(vec: np.ndarray) -> np.ndarray:
     return out
 
 
-def _carbonate_from_lab(job: Checked, m: LabValue, notes: list[str]) -> float:
+def _carbonate_from_lab(job: Checked, m: LabValue, notes: list[Finding]) -> float:
     """Carbonate total that explains a lab alkalinity or acidity [mol/L]."""
     if m.eq_l == 0.0 and m.at_or_past_end(job.ph):
         return 0.0
@@ -265,14 +266,18 @@ def _carbonate_from_lab(job: Checked, m: LabValue, notes: list[str]) -> float:
     slack = max(LOW_READING_MG_L, LAB_PRECISION * floor_mg)
     others = "the listed solutes" + (", the metals" if metals else "") + " and the pH"
     if m.mg_l <= LOW_READING_MG_L:
-        notes.append(f"the {m.kind} of {m.mg_l:g} mg/L as CaCO3 is at the reporting "
-                     f"limit and below what {others} alone imply; the water is taken "
-                     "to hold no inorganic carbon")
+        notes.append(note("lab-at-limit", "the {kind} of {lab:gnum} mg/L as CaCO3 is at the "
+                          "reporting limit and below what {others} alone imply; the water is "
+                          "taken to hold no inorganic carbon", "info",
+                          {"kind": m.kind, "others": others},
+                          lab=Q(m.mg_l, "mg/L as CaCO3")))
         return 0.0
     if floor_mg - m.mg_l <= slack:
-        notes.append(f"the {m.kind} of {m.mg_l:g} mg/L as CaCO3 is within the lab's "
-                     f"precision of the {_lab_fmt(floor_mg)} mg/L that {others} alone "
-                     "imply; the water is taken to hold no inorganic carbon")
+        notes.append(note("lab-within-precision", "the {kind} of {lab:gnum} mg/L as CaCO3 is "
+                          "within the lab's precision of the {floor:.4gnum} mg/L that {others} "
+                          "alone imply; the water is taken to hold no inorganic carbon", "info",
+                          {"kind": m.kind, "others": others}, lab=Q(m.mg_l, "mg/L as CaCO3"),
+                          floor=Q(floor_mg, "mg/L as CaCO3")))
         return 0.0
     raise InputError(m.field, f"the {m.kind} of {m.mg_l:g} mg/L as CaCO3 is smaller "
                      f"than the {_lab_fmt(floor_mg)} mg/L that {others} alone account "
@@ -285,7 +290,7 @@ def _lab_fmt(x: float) -> str:
     return f"{x:.4g}"
 
 
-def _carbonate_from_air(job: Checked, notes: list[str]) -> float:
+def _carbonate_from_air(job: Checked, notes: list[Finding]) -> float:
     """Carbonate of a water at equilibrium with air at its pH [mol/L]."""
     a0_c = float(co2_in_air_mol_l(job.temperature_c, job.pco2_uatm * 1e-6))
     probe = speciate(Mixture.build(job.vec, 0.0, job.known_i, job.temperature_c,
@@ -297,8 +302,9 @@ def _carbonate_from_air(job: Checked, notes: list[str]) -> float:
                          f"{carb * 1000:.3g} mmol/L of carbonate, more than a tank or "
                          "pond takes up from air in days: measure the alkalinity "
                          "(Standard Methods 2320 B) and give it")
-    notes.append("no alkalinity given: carbonate taken at equilibrium with "
-                 f"air at the measured pH ({carb * 1000:.3g} mmol/L)")
+    notes.append(note("carbonate-from-air", "no alkalinity given: carbonate taken at "
+                      "equilibrium with air at the measured pH ({carbonate:.3g})", "info",
+                      carbonate=Q(carb * 1000, "mmol/L")))
     return carb
 
 
@@ -318,7 +324,7 @@ def _strong_balance(job: Checked) -> tuple[float, float]:
     return s, ionic
 
 
-def _supersaturation_note(job: Checked, s: float, strong_i: float) -> str | None:
+def _supersaturation_note(job: Checked, s: float, strong_i: float) -> Finding | None:
     """A note when a metal is above its hydroxide's solubility as sampled."""
     mix = Mixture.build(job.vec, s, strong_i, job.temperature_c, math.nan, job.activity,
                         job.unknown_pka)
@@ -327,16 +333,16 @@ def _supersaturation_note(job: Checked, s: float, strong_i: float) -> str | None
             if sp.solids_mol_l[0, col] > 1e-3 * job.vec[col]]
     if not over:
         return None
-    return (f"{', '.join(over)} above its hydroxide's solubility at the measured pH "
-            f"{job.ph:g}: the sample may still be precipitating (or was not filtered). "
-            "The plan takes it as dissolved until dosed; the dose covers its "
-            "precipitation")
+    return note("supersaturated-sample", "{metals} above its hydroxide's solubility at the "
+                "measured pH {ph:g}: the sample may still be precipitating (or was not "
+                "filtered). The plan takes it as dissolved until dosed; the dose covers its "
+                "precipitation", "info", {"metals": ", ".join(over)}, ph=Q(job.ph, "pH"))
 
 
 def _solved_water(job: Checked, m: Measurements) -> Water:
     """The water from checked inputs: its carbonate (from the lab value), its
     strong-ion balance (from the pH) and the notes that go with them."""
-    notes: list[str] = []
+    notes: list[Finding] = []
     totals = dict(job.totals)
     carb = _carbonate(job, "carbonate" in totals, m.open_to_air, notes)
     if carb is not None:
@@ -344,19 +350,21 @@ def _solved_water(job: Checked, m: Measurements) -> Water:
         job.vec[CARBONATE] = carb
     s, ionic = _strong_balance(job)
     strong_i = job.known_i + 0.5 * abs(s - job.known_eq)
-    note = _supersaturation_note(job, s, strong_i) if job.metals else None
-    if note:
-        notes.append(note)
+    over = _supersaturation_note(job, s, strong_i) if job.metals else None
+    if over:
+        notes.append(over)
     if m.oxidise_ferrous:
-        notes.append(_AERATION_NOTE.format(fe2=job.metals["iron_ii"] * 1000))
+        notes.append(note("aeration", _AERATION_NOTE, "info",
+                          fe2=Q(job.metals["iron_ii"] * 1000, "mmol/L")))
     start = Mixture.build(job.vec, s, strong_i, job.temperature_c, math.nan, job.activity,
                           job.unknown_pka)
     alk_model = _alkalinity_of(start, job.ph)
     if ionic > job.activity.limit_mol_l:
-        notes.append(f"ionic strength {ionic:.2f} mol/L is above the range where "
-                     f"the {job.activity.label} equation is trusted (about "
-                     f"{job.activity.limit_mol_l:g} mol/L); confirm the dose with a bench "
-                     "titration")
+        notes.append(note("activity-range", "ionic strength {ionic:.2fnum} mol/L is above the "
+                          "range where the {model} equation is trusted (about "
+                          "{limit:gnum} mol/L); confirm the dose with a bench titration",
+                          "warning", {"model": job.activity.label},
+                          ionic=Q(ionic, "mol/L"), limit=Q(job.activity.limit_mol_l, "mol/L")))
     return Water(ph=job.ph, temperature_c=job.temperature_c, totals_mol_l=totals,
                  strong_eq_l=s, strong_ionic_strength=strong_i, ionic_strength=ionic,
                  activity=job.activity, open_to_air=bool(m.open_to_air),
@@ -368,7 +376,7 @@ def _solved_water(job: Checked, m: Measurements) -> Water:
 
 
 def _carbonate(job: Checked, given: bool, open_to_air: bool,
-               notes: list[str]) -> float | None:
+               notes: list[Finding]) -> float | None:
     """The carbonate total to use, or None when it was given as a solute."""
     measured = job.lab
     if measured is not None:
@@ -378,10 +386,10 @@ def _carbonate(job: Checked, given: bool, open_to_air: bool,
     elif open_to_air:
         carb = _carbonate_from_air(job, notes)
     else:
-        notes.append("no alkalinity, acidity or carbonate given: the water "
-                     "is taken to hold no inorganic carbon, which is rare in "
-                     "practice; a laboratory alkalinity makes the dose more "
-                     "reliable")
+        notes.append(note("no-carbonate", "no alkalinity, acidity or carbonate given: the "
+                          "water is taken to hold no inorganic carbon, which is rare in "
+                          "practice; a laboratory alkalinity makes the dose more reliable",
+                          "info"))
         return 0.0
     if carb > MAX_CARBONATE_MOL_L:
         raise InputError(measured.field if measured else "alkalinity_mg_l_as_caco3",
@@ -391,7 +399,7 @@ def _carbonate(job: Checked, given: bool, open_to_air: bool,
     return carb
 
 
-_AERATION_NOTE = ("ferrous iron ({fe2:.3g} mmol/L) planned as oxidised to ferric by "
+_AERATION_NOTE = ("ferrous iron ({fe2:.3g}) planned as oxidised to ferric by "
                   "aeration before dosing (4 Fe2+ + O2 + 10 H2O -> 4 Fe(OH)3 + 8 H+): "
                   "aerate fully first, or the dose overshoots as the iron oxidises later")
 

@@ -2,9 +2,10 @@
 what the dose adds to the discharge, and scale.
 
 :func:`assess` is called by :func:`dosing.planning.plan.plan_dose` for every plan, so
-every front end shows the same checks. Each :class:`Check` carries its
-numbers (with units in the key names) and a plain message; its level is
-``info``, ``warning`` or ``danger``. Thresholds that are common practice,
+every front end shows the same checks. Each check is a
+:class:`~dosing.planning.findings.Finding`: its numbers (with units in the
+key names), the words that go with them, and a level, ``info``, ``warning``
+or ``danger``. Thresholds that are common practice,
 not published limits, say so beside them.
 
 Heat
@@ -36,22 +37,21 @@ References
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
 from typing import Mapping
 
 import numpy as np
 
 from ..chem.activity import ActivityModel
 from .effluent import Water
+from .findings import Finding, Q
 from .measurements import BACKGROUND_IONS
-from ..numbers import fmt
 from ..chem import CARBONATE, Speciation, co2_in_air_mol_l, system_index
 from ..chem.metals import label
 from .reagents import Reagent
 from ..chem.species import MOLAR_MASS, SYSTEMS
 from ..chem.water import R_J_MOL_K, calcite_pksp, density
 
-__all__ = ["Check", "assess", "reaction_heat_kj_l", "DH_WATER_KJ_MOL", "gypsum_si", "calcite_si",
+__all__ = ["assess", "reaction_heat_kj_l", "DH_WATER_KJ_MOL", "gypsum_si", "calcite_si",
            "ION_PERMIT_KEYS", "GYPSUM_LOG_KSP"]
 
 #: Enthalpy of water ionisation at 25 °C [kJ/mol] (Olofsson & Hepler 1975).
@@ -99,16 +99,6 @@ _GASES = {"sulfide": ("H2S", 0.10, 2100.0, 100.0),
           "cyanide": ("HCN", 9.0, 5000.0, 50.0)}
 
 
-@dataclass(frozen=True)
-class Check:
-    """One chemistry-driven check on a plan."""
-
-    id: str
-    level: str                       #: "info", "warning" or "danger"
-    message: str
-    values: Mapping[str, float] = field(default_factory=dict)
-
-
 def _henry(gas_system: str, temperature_c: float) -> float:
     _, kh25, slope, _ = _GASES[gas_system]
     T = temperature_c + 273.15
@@ -152,7 +142,7 @@ def reaction_heat_kj_l(before: Speciation, after: Speciation, reagent: Reagent,
 
 def assess(water: Water, reagent: Reagent, dose_mol_l: float, before: Speciation,
            after: Speciation, *, batch_litres: float,
-           permit: Mapping[str, float] | None = None) -> tuple[Check, ...]:
+           permit: Mapping[str, float] | None = None) -> tuple[Finding, ...]:
     """All checks for a dose; see the module notes.
 
     ``before`` and ``after`` are the speciation of the water before and after
@@ -170,48 +160,51 @@ def assess(water: Water, reagent: Reagent, dose_mol_l: float, before: Speciation
 
 
 def _heat_checks(water: Water, reagent: Reagent, d: float, before: Speciation,
-                 after: Speciation) -> tuple[Check, ...]:
+                 after: Speciation) -> tuple[Finding, ...]:
     """Temperature rise of the batch, and local boiling of strong product."""
     t = water.temperature_c
     q_rx, water_formed = reaction_heat_kj_l(before, after, reagent, d, t)
     q_dil = 0.0 if reagent.dilution_heat_kj_mol is None else -reagent.dilution_heat_kj_mol * d
     rho = float(density(t)) / 1000.0
     rise = (q_rx + q_dil) / (rho * CP_WATER)
-    values = {"reaction_heat_kj_per_l": q_rx, "dilution_heat_kj_per_l": q_dil,
-              "temperature_rise_k": rise, "temperature_after_c": t + rise,
-              "water_formed_mmol_l": water_formed * 1000}
     # Resolution: 0.5 mK and 0.002 J/L (far below any thermometer); below it, 0.
-    def k(x):
-        return fmt(x, 2, zero_below=5e-4)
-
     def kj(x):
-        return fmt(x, zero_below=2e-6)
-    msg = (f"temperature rise of the water about {k(rise)} K ({kj(q_rx + q_dil)} kJ/L:"
-           f" {kj(q_rx)} from neutralisation, {kj(q_dil)} from diluting the product)")
+        return Q(x, "kJ/L", zero_below=2e-6)
+    q = {"reaction_heat_kj_per_l": kj(q_rx), "dilution_heat_kj_per_l": kj(q_dil),
+         "temperature_rise_k": Q(rise, "K", digits=2, zero_below=5e-4),
+         "temperature_after_c": Q(t + rise, "°C"),
+         "water_formed_mmol_l": Q(water_formed * 1000, "mmol/L"),
+         "heat_kj_per_l": kj(q_rx + q_dil),
+         "discharge_limit_c": Q(DISCHARGE_TEMP_WARN_C, "°C")}
+    msg = ("temperature rise of the water about {temperature_rise_k} ({heat_kj_per_l}:"
+           " {reaction_heat_kj_per_l:num} from neutralisation, {dilution_heat_kj_per_l:num} "
+           "from diluting the product)")
     if reagent.dilution_heat_kj_mol is None and reagent.form == "liquid":
         msg += "; the product's heat of dilution is not included (no value at hand)"
     level = "info"
     if rise > HEAT_RISE_WARN_K:
         level = "warning"
-        msg += (f"; the water ends near {t + rise:.0f} °C: dose slowly, watch the tank "
+        msg += ("; the water ends near {temperature_after_c:.0f}: dose slowly, watch the tank "
                 "temperature and the permit's temperature limit")
     elif t + rise > DISCHARGE_TEMP_WARN_C:
-        msg += (f"; the water is near {t + rise:.0f} °C already: permits often cap the "
-                f"discharge temperature near {DISCHARGE_TEMP_WARN_C:g} °C")
-    checks = [Check("heat", level, msg, values)]
+        msg += ("; the water is near {temperature_after_c:.0f} already: permits often cap the "
+                "discharge temperature near {discharge_limit_c:g}")
+    checks = [Finding("heat", level, msg, q)]
     if reagent.dilution_heat_kj_mol is not None and reagent.kg_product_per_mol:
         per_kg = -reagent.dilution_heat_kj_mol / reagent.kg_product_per_mol
         if per_kg > LOCAL_BOIL_KJ_KG:
-            checks.append(Check(
+            checks.append(Finding(
                 "local-boiling", "danger",
-                f"{reagent.name} releases about {per_kg:.0f} kJ per kg on dilution: where "
-                "it meets a little water (a dry dosing point, a splash, a wet drum) it "
-                "can boil and spit. Dose below the surface into strong mixing; never add "
-                "water to the product.", {"dilution_heat_kj_per_kg_product": per_kg}))
+                "{reagent} releases about {dilution_heat_kj_per_kg_product:.0fnum} kJ per kg "
+                "on dilution: where it meets a little water (a dry dosing point, a splash, a "
+                "wet drum) it can boil and spit. Dose below the surface into strong mixing; "
+                "never add water to the product.",
+                {"dilution_heat_kj_per_kg_product": Q(per_kg, "kJ/kg")},
+                {"reagent": reagent.name}))
     return tuple(checks)
 
 
-def _gas_checks(water: Water, after: Speciation, batch_litres: float) -> tuple[Check, ...]:
+def _gas_checks(water: Water, after: Speciation, batch_litres: float) -> tuple[Finding, ...]:
     """CO2 off-gas, and toxic gases formed at the final pH."""
     checks = []
     t = water.temperature_c
@@ -222,14 +215,14 @@ def _gas_checks(water: Water, after: Speciation, batch_litres: float) -> tuple[C
         mol = excess * batch_litres
         gas_l = mol * R_L_ATM * (t + 273.15)
         level = "warning" if excess * 1000 > CO2_FOAM_MMOL_L else "info"
-        checks.append(Check(
+        checks.append(Finding(
             "co2", level,
-            f"the dosed water holds {fmt(excess * 1000)} mmol/L of CO2 above air "
-            f"equilibrium: up to {gas_l:,.0f} L of CO2 gas can come off"
+            "the dosed water holds {co2_excess_mmol_l} of CO2 above air "
+            "equilibrium: up to {co2_gas_litres:,.0f} of CO2 gas can come off"
             + (" (strong fizzing and foam: dose slowly, leave headroom, ventilate)"
                if level == "warning" else " as it stands open"),
-            {"co2_excess_mmol_l": excess * 1000, "co2_gas_litres": gas_l,
-             "co2_mol": mol}))
+            {"co2_excess_mmol_l": Q(excess * 1000, "mmol/L"),
+             "co2_gas_litres": Q(gas_l, "L gas"), "co2_mol": Q(mol, "mol")}))
     for sid in _GASES:
         check = _toxic_gas_check(sid, after, t)
         if check is not None:
@@ -237,7 +230,7 @@ def _gas_checks(water: Water, after: Speciation, batch_litres: float) -> tuple[C
     return tuple(checks)
 
 
-def _toxic_gas_check(sid: str, after: Speciation, t: float) -> Check | None:
+def _toxic_gas_check(sid: str, after: Speciation, t: float) -> Finding | None:
     """H2S, HCN or NH3 from the dosed water, or None when not a concern."""
     gas, _, _, idlh = _GASES[sid]
     ph_after = float(after.ph[0])
@@ -256,20 +249,22 @@ def _toxic_gas_check(sid: str, after: Speciation, t: float) -> Check | None:
     level = "danger" if (sid != "ammonia" or ppm > idlh) else "warning"
     what = {"sulfide": "toxic hydrogen sulfide", "cyanide": "deadly hydrogen cyanide",
             "ammonia": "ammonia (odour, irritant)"}[sid]
-    return Check(
+    return Finding(
         sid, level,
-        f"at pH {ph_after:.2f} {frac:.0%} of the {sid} is {gas} ({fmt(mg)} mg/L): "
-        f"{what} gas; air in contact with the water could reach about {ppm:,.0f} ppm "
-        f"(IDLH {idlh:g} ppm). "
+        "at pH {ph:.2f} {fraction_as_gas_former:.0%} of the {solute} is {gas} ({mg_per_l}): "
+        "{what} gas; air in contact with the water could reach about "
+        "{headspace_ppm:,.0fnum} ppm (IDLH {idlh_ppm:gnum} ppm). "
         + ("Do not acidify this waste in the open: closed tank, gas detection, "
            "scrubbed vent, or oxidise first." if sid != "ammonia" else
            "Keep covered and ventilated, or strip under control."),
-        {"fraction_as_gas_former": frac, "mg_per_l": mg, "headspace_ppm": ppm})
+        {"fraction_as_gas_former": Q(frac, "%"), "mg_per_l": Q(mg, "mg/L"),
+         "headspace_ppm": Q(ppm, "ppm"), "ph": Q(ph_after, "pH"), "idlh_ppm": Q(idlh, "ppm")},
+        {"solute": sid, "gas": gas, "what": what})
 
 
 def _discharge_checks(water: Water, reagent: Reagent, d: float, f: float,
                       added: Mapping[str, float], after: Speciation,
-                      permit) -> tuple[Check, ...]:
+                      permit) -> tuple[Finding, ...]:
     """Ions and dissolved solids the dose adds, and the permit's ion caps."""
     names = _ION_NAMES
     tds = sum(added.values())
@@ -278,12 +273,12 @@ def _discharge_checks(water: Water, reagent: Reagent, d: float, f: float,
         # the share that is CO2 at the final pH; counted as HCO3- (61 g/mol).
         kept = 1.0 - float(after.alpha[0, CARBONATE, 0])
         tds += d * f * kept * (MOLAR_MASS["CO2"] + MOLAR_MASS["H2O"] - 1.008) * 1000.0
-    values = {f"{names[k]}_added_mg_l": v for k, v in added.items()}
-    values["tds_increase_mg_l"] = tds
-    parts = [f"{names[k]} +{fmt(v)} mg/L" for k, v in added.items()]
-    checks = [Check("discharge", "info",
-                    "the dose adds " + (", ".join(parts) if parts else "no strong ions")
-                    + f"; dissolved solids rise by about {fmt(tds)} mg/L", values)]
+    q = {f"{names[k]}_added_mg_l": Q(v, "mg/L") for k, v in added.items()}
+    q["tds_increase_mg_l"] = Q(tds, "mg/L")
+    parts = [f"{names[k]} +{{{names[k]}_added_mg_l}}" for k in added]
+    checks = [Finding("discharge", "info",
+                      "the dose adds " + (", ".join(parts) if parts else "no strong ions")
+                      + "; dissolved solids rise by about {tds_increase_mg_l}", q)]
     after_mg = _after_mg_l(water, added, after, f)
     for key, cap in (permit or {}).items():
         if key not in ION_PERMIT_KEYS:
@@ -296,16 +291,16 @@ def _discharge_checks(water: Water, reagent: Reagent, d: float, f: float,
             if value is None:
                 value, basis = 0.0, "added by the dose; background not given"
         level = "danger" if value > cap else "info"
-        checks.append(Check(
+        checks.append(Finding(
             f"permit-{key}", level,
-            f"permit cap {label(key.removesuffix('_mg_l'))} {cap:g} mg/L: "
-            f"{fmt(value)} mg/L ({basis})" + (" - EXCEEDS THE CAP" if value > cap else
-                                            " - within the cap"),
-            {"value_mg_l": value, "cap_mg_l": cap}))
+            "permit cap {what} {cap_mg_l:g}: {value_mg_l} ({basis})"
+            + (" - EXCEEDS THE CAP" if value > cap else " - within the cap"),
+            {"value_mg_l": Q(value, "mg/L"), "cap_mg_l": Q(cap, "mg/L")},
+            {"what": label(key.removesuffix("_mg_l")), "basis": basis}))
     return tuple(checks)
 
 
-def _scale_checks(water: Water, after: Speciation) -> tuple[Check, ...]:
+def _scale_checks(water: Water, after: Speciation) -> tuple[Finding, ...]:
     """Calcite and gypsum saturation of the dosed water."""
     checks = []
     t = water.temperature_c
@@ -315,27 +310,27 @@ def _scale_checks(water: Water, after: Speciation) -> tuple[Check, ...]:
         si = float(calcite_si(after, t, water.activity)[0])
         formed = float(after.calcite_mol_l[0]) > 0
         level = "warning" if si > CALCITE_SI_WARN else "info"
-        checks.append(Check(
+        checks.append(Finding(
             "calcite", level,
-            f"calcite saturation index after dosing {si:+.2f}"
+            "calcite saturation index after dosing {calcite_si:+.2f}"
             + (": calcite precipitates to saturation (in the solids below); the water "
                "leaves saturated and can still scale pipes and probes" if formed
                else ": the treated water will deposit CaCO3 scale in pipes, probes and "
                "pumps; consider a lower aim or an acid rinse schedule" if level == "warning"
                else (": at or under saturation, no calcite scale expected" if si <= 0
                      else ": slightly over saturation")),
-            {"calcite_si": si, "calcium_mg_l": ca_mg}))
+            {"calcite_si": Q(si), "calcium_mg_l": Q(ca_mg, "mg/L")}))
     so4_total = float(after.totals_mol_l[0, system_index("sulfate")])
     if ca_free > 0 and so4_total > 0:
         si = gypsum_si(after, t, water.activity)
         level = "warning" if si > 0 else "info"
-        checks.append(Check(
+        checks.append(Finding(
             "gypsum", level,
-            f"gypsum saturation index after dosing {si:+.2f}"
+            "gypsum saturation index after dosing {gypsum_si:+.2f}"
             + (": calcium sulfate will crystallise as scale and sludge (lime on sulfate "
                "water); expect deposits in the tank and lines" if level == "warning"
                else ": under saturation, no gypsum scale expected"),
-            {"gypsum_si": si}))
+            {"gypsum_si": Q(si)}))
     return tuple(checks)
 
 

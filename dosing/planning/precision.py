@@ -17,6 +17,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from .findings import Finding, Q
 from .measurements import LAB_PRECISION, LOW_READING_MG_L, Measurements
 from .variants import Perturbation, infer_many
 from ..chem import dose_to_ph
@@ -98,23 +99,25 @@ def lab_sensitivity(m: Measurements, reagent: Reagent, aim: float
     return tuple(out)
 
 
-def precision_warning(sens: tuple[Sensitivity, ...], dose_mol_l: float) -> str | None:
+def precision_warning(sens: tuple[Sensitivity, ...], dose_mol_l: float) -> Finding | None:
     """A warning naming each reading the dose rests on, or None."""
     if dose_mol_l <= 0:
         return None
     heavy = [x for x in sens if x.largest_change(dose_mol_l) > SENSITIVE]
     if not heavy:
         return None
-    parts = []
-    for x in heavy:
+    parts, q = [], {"planned": Q(dose_mol_l * 1000, "mmol/L", digits=3)}
+    for i, x in enumerate(heavy):
         doses = [d * 1000 for d in (x.dose_low_reading_mol_l, x.dose_high_reading_mol_l)
                  if d is not None]
-        unit = f" {x.unit}" if x.unit else ""
-        span = (f"{min(doses):.3g} to {max(doses):.3g}" if len(doses) > 1
-                else f"{doses[0]:.3g}")
-        parts.append(f"{x.label} ±{x.plus_minus:.2g}{unit} gives {span} mmol/L")
+        q[f"pm{i}"] = Q(x.plus_minus, x.unit.split()[0] if x.unit else "")
+        q[f"lo{i}"], q[f"hi{i}"] = Q(min(doses), "mmol/L"), Q(max(doses), "mmol/L")
+        span = (f"{{lo{i}:.3gnum}} to {{hi{i}:.3g}}" if len(doses) > 1 else f"{{lo{i}:.3g}}")
+        unit = " as CaCO3" if "CaCO3" in x.unit else ""
+        parts.append(f"{x.label} ±{{pm{i}:.2g}}{unit} gives {span}")
     names = " and ".join(x.label for x in heavy)
-    return (f"the dose rests on the {names} reading{'s' if len(heavy) > 1 else ''}: within "
-            f"the usual precision, {'; '.join(parts)}, against "
-            f"{dose_mol_l * 1000:.3g} mmol/L planned. A bench titration of this water "
-            "(dosing titration) gives the dose directly; dose in stages meanwhile")
+    return Finding("dose-rests-on", "warning", "the dose rests on the {names} reading"
+                   + ("s" if len(heavy) > 1 else "") + ": within the usual precision, "
+                   + "; ".join(parts) + ", against {planned:.3g} planned. A bench titration of "
+                   "this water (dosing titration) gives the dose directly; dose in stages "
+                   "meanwhile", q, {"names": names})

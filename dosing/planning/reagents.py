@@ -36,6 +36,7 @@ import numpy as np
 
 from ..chem import N_SYSTEMS, ReagentVector, system_index
 from ..errors import InputError
+from .findings import Finding, Q, note
 from ..chem.species import MOLAR_MASS
 
 __all__ = ["Compound", "COMPOUNDS", "Reagent", "CATALOGUE", "REAGENT_IDS", "with_purity",
@@ -212,14 +213,14 @@ class Reagent:
             return 1.0 / self.molarity_mol_l
         return self.kg_product_per_mol / self.density_kg_l
 
-    def practical_limit(self, ph: float) -> str | None:
+    def practical_limit(self, ph: float) -> Finding | None:
         """Why the product cannot take a water to ``ph`` in practice, or None."""
-        if self.min_practical_ph is not None and ph < self.min_practical_ph:
-            return (f"{self.name} cannot take a water below about pH "
-                    f"{self.min_practical_ph:g} in practice")
-        if self.max_practical_ph is not None and ph > self.max_practical_ph:
-            return (f"{self.name} cannot take a water above about pH "
-                    f"{self.max_practical_ph:g} in practice")
+        for limit, side, below in ((self.min_practical_ph, "below", True),
+                                   (self.max_practical_ph, "above", False)):
+            if limit is not None and (ph < limit if below else ph > limit):
+                return note("practical-limit", "{reagent} cannot take a water " + side
+                            + " about pH {limit:g} in practice", "warning",
+                            {"reagent": self.name}, limit=Q(limit, "pH"))
         return None
 
     def vector(self) -> ReagentVector:

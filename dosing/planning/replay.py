@@ -18,7 +18,6 @@ and summaries. Reading files in chunks lives with the command line.
 from __future__ import annotations
 
 import math
-from collections import Counter
 from dataclasses import dataclass, field, replace
 from typing import Any
 
@@ -34,11 +33,11 @@ from .hazards import calcite_si
 from .plan import CALCITE_SI_FAST, has_grip
 from ..errors import ScenarioError
 from .job import Scenario
+from .replay_totals import _FLAG_CODE, _FLAG_NAMES, FLATLINE_ROWS, ReplayTotals
 from ..chem.water import T_MAX_C, T_MIN_C
 
-__all__ = ["COLUMN_NAMES", "normalise_columns", "ReplayState", "plan_rows",
-           "ReplayTotals", "replay_report", "FLAGS", "FLATLINE_ROWS", "GAP_LIMIT_S",
-           "PartResult", "plan_part", "as_numbers", "stitch", "head_length", "nominal_step", "HourSums"]
+__all__ = ["COLUMN_NAMES", "normalise_columns", "ReplayState", "plan_rows", "GAP_LIMIT_S",
+           "PartResult", "plan_part", "as_numbers", "stitch", "head_length", "nominal_step"]
 
 #: Accepted spellings of each column (lower case, units in brackets ignored).
 COLUMN_NAMES = {
@@ -50,33 +49,11 @@ COLUMN_NAMES = {
                                  "alkalinity_mg_l"),
 }
 REQUIRED = ("timestamp", "flow_m3_h", "ph")
-#: A pH reading unchanged for this many rows in a row is a stuck sensor
-#: (common practice: an hour of one-minute data).
-FLATLINE_ROWS = 60
 #: A gap between rows longer than this is not bridged [s] (common practice).
 GAP_LIMIT_S = 900.0
 #: No single effluent stream carries more [m3/h]: the largest treatment works
 #: take a few 10^4 m3/h (common practice); above it a row is a logger fault.
 FLOW_MAX_M3_H = 1e5
-FLAGS = {
-    "bad_timestamp": "timestamp missing or unreadable",
-    "time_not_increasing": "timestamp not after the previous row",
-    "flow_missing": "flow missing",
-    "flow_negative": "flow negative",
-    "flow_implausible": "flow above 100,000 m3/h or not a finite number",
-    "ph_missing": "pH missing",
-    "ph_out_of_range": "pH outside 0-14",
-    "temperature_out_of_range": "temperature outside 0-60 °C or missing",
-    "alkalinity_bad": "alkalinity missing, negative, above 100,000 mg/L or inconsistent "
-                      "with the pH",
-    "ph_flatline": f"pH unchanged for {FLATLINE_ROWS} rows or more (stuck sensor?)",
-    "wrong_direction": "the reagent moves the pH away from the aim for this water",
-    "cannot_reach": "the aim cannot be reached with this reagent",
-    "model_failed": "the ionic strength of this water did not settle (a brine?)",
-}
-#: Row flags are kept as small codes while planning (0: planned).
-_FLAG_NAMES = ("",) + tuple(FLAGS)
-_FLAG_CODE = {name: k for k, name in enumerate(_FLAG_NAMES)}
 
 
 def _key(name: str) -> str:
@@ -369,177 +346,6 @@ def _calcite_where_fast(mix: Mixture, reagent, aim: float, dose: np.ndarray) -> 
     return dose
 
 
-# Histogram of dose rates for percentiles with constant memory: a zero bin
-# and 100 bins per decade from 1e-6 to 1e6 (2.3 % wide).
-_EDGES = np.concatenate([[0.0], np.logspace(-6, 6, 1201)])
-
-
-def _calendar_groups(ts: np.ndarray, unit: str) -> tuple[np.ndarray, np.ndarray]:
-    """The days or hours (``unit`` "D" or "h") the valid times fall in, in
-    order, and which of them each time is in; without sorting when they
-    span a short stretch, as a chunk of a log does."""
-    k = ts.astype(f"datetime64[{unit}]").astype(np.int64)
-    lo, hi = int(k.min()), int(k.max())
-    if hi - lo >= 4 * k.size + 1024:
-        keys, which = np.unique(k, return_inverse=True)
-    else:
-        present = np.bincount(k - lo, minlength=hi - lo + 1) > 0
-        keys = np.flatnonzero(present) + lo
-        which = (np.cumsum(present) - 1)[k - lo]
-    return keys.astype(f"datetime64[{unit}]"), which
-
-
-def _bin_of(rate: np.ndarray) -> np.ndarray:
-    """Histogram bin of each finite rate: as ``searchsorted(_EDGES, rate,
-    side="right") - 1`` (0 for rates at or below zero), found from the
-    logarithm and then put right against the edges themselves."""
-    with np.errstate(divide="ignore", invalid="ignore"):
-        guess = np.floor((np.log10(rate) + 6.0) * 100.0)
-    idx = np.clip(np.nan_to_num(guess, nan=-1.0, neginf=-1.0), -1, _EDGES.size - 2)
-    idx = idx.astype(np.int64) + 1
-    idx -= rate < _EDGES[idx]
-    idx += (idx < _EDGES.size - 1) & (rate >= _EDGES[np.minimum(idx + 1, _EDGES.size - 1)])
-    idx[rate <= 0] = 0
-    return idx
-
-
-@dataclass(frozen=True)
-class HourSums:
-    """One hour of a replay, for the plot: sums and counts of the raw pH
-    and of the dose rate (means are sum / count)."""
-
-    ph_sum: float = 0.0
-    ph_n: int = 0
-    rate_sum: float = 0.0
-    rate_n: int = 0
-
-    def __add__(self, other: "HourSums") -> "HourSums":
-        return HourSums(self.ph_sum + other.ph_sum, self.ph_n + other.ph_n,
-                        self.rate_sum + other.rate_sum, self.rate_n + other.rate_n)
-
-    @property
-    def ph_mean(self) -> float:
-        return self.ph_sum / self.ph_n if self.ph_n else math.nan
-
-    @property
-    def rate_mean(self) -> float:
-        return self.rate_sum / self.rate_n if self.rate_n else math.nan
-
-
-@dataclass
-class ReplayTotals:
-    """Sums that chunks add into; the report is made from these alone."""
-
-    rows: int = 0
-    planned: int = 0
-    flags: Counter = field(default_factory=Counter)
-    kg: float = 0.0
-    litres: float = 0.0
-    seconds: float = 0.0
-    seconds_outside: float = 0.0
-    seconds_planned: float = 0.0
-    rate_sum: float = 0.0
-    rate_max: float = 0.0
-    hist: np.ndarray = field(default_factory=lambda: np.zeros(_EDGES.size, dtype=np.int64))
-    daily_kg: dict = field(default_factory=dict)
-    daily_l: dict = field(default_factory=dict)
-    hourly: dict = field(default_factory=dict)      #: hour -> HourSums
-    first: Any = None
-    last: Any = None
-    rate_unit: str = "kg/h"
-    keep_hourly: bool = True     #: hourly means for the plot (grows with hours covered)
-
-    def add(self, rows: pd.DataFrame) -> None:
-        """Add one chunk of :func:`plan_rows` output."""
-        self.rows += len(rows)
-        codes = rows["flag"].cat.codes.to_numpy()
-        ok = codes == 0
-        self.planned += int(ok.sum())
-        counts = np.bincount(codes[~ok], minlength=len(_FLAG_NAMES))
-        self.flags.update({_FLAG_NAMES[k]: int(c) for k, c in enumerate(counts) if k and c})
-        dt = rows["dt_s"].to_numpy()
-        self.seconds += float(dt.sum())
-        self.seconds_outside += float(dt[rows["outside"].to_numpy()].sum())
-        rate_col = "dose_kg_h" if self.rate_unit == "kg/h" else "dose_l_h"
-        rate_all = rows[rate_col].to_numpy()
-        self.seconds_planned += float(dt[ok].sum())
-        self.kg += float(np.nansum(rows["kg"].to_numpy()[ok]))
-        self.litres += float(np.nansum(rows["litres"].to_numpy()[ok]))
-        self._add_rates(rate_all[ok])
-        ts = rows["timestamp"].to_numpy(dtype="datetime64[ns]")
-        valid = ~np.isnat(ts)
-        if valid.any():
-            tv = ts[valid]
-            # Earliest and latest, whatever the order of the rows.
-            lo, hi = pd.Timestamp(tv.min()), pd.Timestamp(tv.max())
-            self.first = lo if self.first is None else min(self.first, lo)
-            self.last = hi if self.last is None else max(self.last, hi)
-        day_rows = ok & valid
-        self._add_days(ts[day_rows], rows["kg"].to_numpy()[day_rows],
-                       rows["litres"].to_numpy()[day_rows])
-        if self.keep_hourly and valid.any():
-            self._add_hours(ts[valid], rows["ph"].to_numpy()[valid], rate_all[valid])
-
-    def _add_rates(self, rate: np.ndarray) -> None:
-        """Sum, maximum and histogram of the planned rows' dose rates."""
-        rate = rate[np.isfinite(rate)]
-        if rate.size:
-            self.rate_sum += float(rate.sum())
-            self.rate_max = max(self.rate_max, float(rate.max()))
-            self.hist += np.bincount(_bin_of(rate), minlength=_EDGES.size)
-
-    def _add_hours(self, ts: np.ndarray, ph: np.ndarray, rate: np.ndarray) -> None:
-        """Sums and counts per clock hour of the raw pH and the dose rate
-        (readings that are not numbers left out)."""
-        hours, which = _calendar_groups(ts, "h")
-
-        def sum_count(x):
-            have = ~np.isnan(x)
-            return (np.bincount(which[have], weights=x[have], minlength=hours.size).tolist(),
-                    np.bincount(which[have], minlength=hours.size).tolist())
-        (ph_s, ph_n), (r_s, r_n) = sum_count(ph), sum_count(rate)
-        for k, h in enumerate(pd.DatetimeIndex(hours.astype("datetime64[ns]"))):
-            self.hourly[h] = self.hourly.get(h, HourSums()) + HourSums(
-                ph_s[k], ph_n[k], r_s[k], r_n[k])
-
-    def _add_days(self, ts: np.ndarray, kg: np.ndarray, litres: np.ndarray) -> None:
-        """Product per calendar day (``YYYY-MM-DD``) of planned rows."""
-        if not ts.size:
-            return
-        days, which = _calendar_groups(ts, "D")
-        for book, vals in ((self.daily_kg, kg), (self.daily_l, litres)):
-            sums = np.bincount(which, weights=np.nan_to_num(vals), minlength=days.size)
-            for d, v in zip(np.datetime_as_string(days), sums.tolist()):
-                book[d] = book.get(d, 0.0) + v
-
-    def merge(self, other: "ReplayTotals") -> None:
-        """Add another part's totals (parts of one site, in any order)."""
-        for name in ("rows", "planned", "kg", "litres", "seconds", "seconds_outside",
-                     "seconds_planned", "rate_sum"):
-            setattr(self, name, getattr(self, name) + getattr(other, name))
-        self.flags.update(other.flags)
-        self.rate_max = max(self.rate_max, other.rate_max)
-        self.hist += other.hist
-        for mine, theirs in ((self.daily_kg, other.daily_kg), (self.daily_l, other.daily_l)):
-            for d, v in theirs.items():
-                mine[d] = mine.get(d, 0.0) + v
-        for h, b in other.hourly.items():
-            self.hourly[h] = self.hourly.get(h, HourSums()) + b
-        if other.first is not None:
-            self.first = other.first if self.first is None else min(self.first, other.first)
-            self.last = other.last if self.last is None else max(self.last, other.last)
-
-    def percentile(self, q: float) -> float:
-        """Dose-rate percentile from the histogram (upper bin edge) [rate unit]."""
-        total = int(self.hist.sum())
-        if total == 0:
-            return math.nan
-        k = int(np.searchsorted(np.cumsum(self.hist), math.ceil(q / 100.0 * total)))
-        if k == 0:
-            return 0.0
-        return float(_EDGES[min(k + 1, _EDGES.size - 1)])
-
-
 # ------------------------------------------------------------ parts --
 # A long record cut into parts (blocks of a file, files of a site) is planned
 # part by part in any order, on any worker, and gives the same totals as one
@@ -631,54 +437,3 @@ def stitch(parts, scenario: Scenario, nominal_s: float, totals: ReplayTotals) ->
             state.last_ts = part.last_ts
 
 
-def replay_report(totals: ReplayTotals, scenario: Scenario, source: str) -> dict[str, Any]:
-    """The replay summary as plain data (SI units, JSON-ready)."""
-    from .reagents import GENERAL_CAUTION
-    unit = totals.rate_unit
-    days = sorted(totals.daily_kg)
-    daily_kg = [totals.daily_kg[d] for d in days]
-    daily_l = [totals.daily_l.get(d, 0.0) for d in days]
-    hours = totals.seconds / 3600.0
-    mean_daily_kg = float(np.mean(daily_kg)) if daily_kg else 0.0
-    mean_daily_l = float(np.mean(daily_l)) if daily_l else 0.0
-    nonzero = totals.hist[1:].sum()
-    low = None
-    if nonzero:
-        # Smallest rate the pump must hold: 5th percentile of non-zero rates.
-        cum = np.cumsum(totals.hist[1:])
-        k = int(np.searchsorted(cum, math.ceil(0.05 * cum[-1])))
-        low = float(_EDGES[k + 1])
-    supply = scenario.storage_lasts(mean_daily_l, mean_daily_kg)
-    cost = totals.kg * scenario.price_per_kg if scenario.price_per_kg else None
-    reasons = {k: {"rows": v, "why": FLAGS[k]} for k, v in sorted(totals.flags.items())}
-    return {
-        "source": source,
-        "scenario": scenario.title,
-        "site": scenario.site,
-        "tank": scenario.tank,
-        "reagent": scenario.reagent.id,
-        "rows": totals.rows,
-        "rows_planned": totals.planned,
-        "rows_not_planned": totals.rows - totals.planned,
-        "not_planned": reasons,
-        "first": None if totals.first is None else str(totals.first),
-        "last": None if totals.last is None else str(totals.last),
-        "hours_covered": hours,
-        "total": {"kg_product": totals.kg, "litres_product": totals.litres, "cost": cost},
-        "daily": {"days": len(days), "mean_kg_product": mean_daily_kg,
-                  "max_kg_product": max(daily_kg) if daily_kg else 0.0,
-                  "mean_litres_product": mean_daily_l},
-        "dose_rate": {"unit": unit,
-                      "mean": totals.rate_sum / totals.planned if totals.planned else math.nan,
-                      "p95": totals.percentile(95), "max": totals.rate_max,
-                      "p5_nonzero": low,
-                      "turndown": (totals.rate_max / low) if low else None,
-                      "percentile_resolution": "2.3 % bins"},
-        "days_of_supply": supply,
-        "hours_outside_window": totals.seconds_outside / 3600.0,
-        "fraction_outside_window": (totals.seconds_outside / totals.seconds
-                                    if totals.seconds else None),
-        "daily_kg_product": dict(zip(days, daily_kg)),
-        "reagent_name": scenario.reagent.name,
-        "cautions": list(scenario.reagent.cautions) + [GENERAL_CAUTION],
-    }

@@ -32,6 +32,7 @@ from typing import Any, Mapping
 
 import numpy as np
 
+from .findings import Finding, Q, note
 from .measurements import ACIDITY_ENDPOINT_PH, ALKALINITY_ENDPOINT_PH, Measurements
 from .variants import Perturbation, infer_many
 from ..chem import Mixture, add_dose, dose_to_ph, solve_ph, strong_balance_at_ph
@@ -122,15 +123,18 @@ class DoseUncertainty:
         """Probability the planned dose lands outside the window [-]."""
         return self.p_below + self.p_above
 
-    def words(self) -> str:
+    def spread_finding(self) -> Finding:
         """Which input makes most of the spread, in plain words."""
         if not self.shares or self.shares[0][1] <= 0:
-            return "the inputs hardly move the dose"
+            return note("spread", "the inputs hardly move the dose", "info")
         key, share = self.shares[0]
         name, advice = INPUT_WORDS[key]
-        rest = ", ".join(f"{INPUT_WORDS[k][0]} {s:.0%}" for k, s in self.shares[1:3] if s >= 0.01)
-        return (f"most of the spread comes from the {name} ({share:.0%}): {advice} would "
-                "narrow it most" + (f"; then {rest}" if rest else ""))
+        rest = [(k, s) for k, s in self.shares[1:3] if s >= 0.01]
+        q = {"share": Q(share, "%")} | {f"share_{k}": Q(s, "%") for k, s in rest}
+        then = ", ".join(f"{INPUT_WORDS[k][0]} {{share_{k}}}" for k, _ in rest)
+        return Finding("spread", "info", "most of the spread comes from the {input} ({share}): "
+                       "{advice} would narrow it most" + (f"; then {then}" if then else ""), q,
+                       {"input": name, "advice": advice})
 
 
 @dataclass(frozen=True)

@@ -2,10 +2,11 @@
 
 from __future__ import annotations
 
-from ..numbers import fmt
+from .numbers import fmt
 from ..chem.metals import label
 from ..planning.reagents import GENERAL_CAUTION
 from ..io.shiftlog import Entry, ShiftLog
+from .words import bias_words
 
 __all__ = ["render_list", "render_entry", "unreadable_line"]
 
@@ -47,7 +48,7 @@ def render_list(log: ShiftLog, *, since_utc: str | None = None, tank: str | None
     for name in ([tank] if tank else log.tanks()):
         b = log.bias(name)
         if b is not None:
-            lines.append(("!! " if b.due else "") + b.words())
+            lines.append(("!! " if b.due else "") + bias_words(b))
     lines.append("")
     lines.append(GENERAL_CAUTION)
     return "\n".join(lines) + "\n"

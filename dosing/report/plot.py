@@ -15,8 +15,10 @@ import matplotlib.pyplot as plt  # noqa: E402
 import numpy as np  # noqa: E402
 
 from ..planning.plan import Plan  # noqa: E402
-from ..numbers import fmt  # noqa: E402
-from .sheet import UNIT_SYSTEMS, dose_axis  # noqa: E402
+from .numbers import fmt  # noqa: E402
+from .sheet import dose_axis  # noqa: E402
+from .units import UNIT_SYSTEMS  # noqa: E402
+from .words import words  # noqa: E402
 from ..chem.metals import HARDNESS, label as metal_label  # noqa: E402
 from ..planning.reagents import GENERAL_CAUTION  # noqa: E402
 from ..planning.solids import dissolved_vs_ph  # noqa: E402
@@ -158,7 +160,8 @@ def _uncertainty_panel(ax, plan: Plan, scale: float, unit: str, per: str) -> Non
     ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.13), ncol=2, fontsize=8,
               frameon=False)
     import textwrap
-    ax.set_title("\n".join(textwrap.wrap("How sure: " + unc.words(), 100)), fontsize=9)
+    ax.set_title("\n".join(textwrap.wrap("How sure: " + words(unc.spread_finding()), 100)),
+                 fontsize=9)
 
 
 def _metals_panel(ax3, plan: Plan, metals) -> None:
@@ -190,7 +193,7 @@ def _metals_panel(ax3, plan: Plan, metals) -> None:
                   "a jar test is the check)", fontsize=9)
 
 
-def replay_figure_png(totals, report: dict, units: str = "metric") -> bytes:
+def replay_figure_png(totals, report, units: str = "metric") -> bytes:
     """PNG bytes: hourly raw pH and dose rate over time, and daily reagent use."""
     import pandas as pd
     u = UNIT_SYSTEMS[units]
@@ -231,10 +234,9 @@ def replay_figure_png(totals, report: dict, units: str = "metric") -> bytes:
                   ncol=2, fontsize=8, frameon=False)
         lo_ph, hi_ph = np.nanmin(ph), np.nanmax(ph)
         a1.set_ylim(lo_ph - 0.5, hi_ph + 0.25 * (hi_ph - lo_ph) + 0.8)
-    name = report.get("reagent_name", report["reagent"])
-    where = " / ".join(x for x in (report.get("site"), report.get("tank")) if x)
-    a1.set_title(f"{report['scenario']}: {name}, {report['first'][:10]} to "
-                 f"{report['last'][:10]}" + (f"\n{where}" if where else ""), fontsize=11)
+    where = " / ".join(x for x in (report.site, report.tank) if x)
+    a1.set_title(f"{report.title}: {report.reagent_name}, {report.first[:10]} to "
+                 f"{report.last[:10]}" + (f"\n{where}" if where else ""), fontsize=11)
     a1.grid(True, alpha=0.3)
     days = sorted(totals.daily_kg)
     if days:
@@ -245,7 +247,7 @@ def replay_figure_png(totals, report: dict, units: str = "metric") -> bytes:
     a3.set_ylabel(f"{u.mass} product per day")
     a3.grid(True, axis="y", alpha=0.3)
     fig.autofmt_xdate()
-    return _png(fig, report.get("cautions", ()))
+    return _png(fig, report.cautions)
 
 
 def titration_figure_png(curve, comparison, title: str = "") -> bytes:
@@ -269,7 +271,7 @@ def titration_figure_png(curve, comparison, title: str = "") -> bytes:
     ph_grid = np.linspace(min(curve.ph), max(curve.ph), 400)
     ml = direct.interpolant(ph_grid)
     ax.plot(ml, ph_grid, color="0.4", lw=1.2, label="interpolation (PCHIP)")
-    from ..planning.titration import model_curve
+    from ..planning.water_fit import model_curve
     v, ph_model = model_curve(curve, water)
     ax.plot(v, ph_model, color="tab:blue", lw=1.8,
             label="fitted water (" + ("buffer spectrum" if comparison.used == "spectrum" else "model")

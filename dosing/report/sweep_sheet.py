@@ -12,10 +12,11 @@ import io
 from dataclasses import dataclass
 from typing import Any
 
-from ..numbers import fmt
+from .numbers import fmt
 from ..planning.reagents import GENERAL_CAUTION
 from ..planning.job import Scenario
-from .sheet import UNIT_SYSTEMS, _wrap
+from .text import wrap
+from .units import UNIT_SYSTEMS
 from ..planning.sweep import Sweep
 
 __all__ = ["GridRow", "grid_rows", "size_labels", "size_heading", "render_sweep",
@@ -92,13 +93,13 @@ def render_sweep(result: Sweep, scenario: Scenario, units: str = "metric",
         label = row.label if len(row.label) <= label_w else row.label[:label_w - 1] + "…"
         if row.cells and row.cells[0].startswith("cannot"):
             out.append(f"{label:<{label_w}}")
-            out.extend(_wrap(row.cells[0], width, "    "))
+            out.extend(wrap(row.cells[0], width, "    "))
             continue
         out.append(f"{label:<{label_w}} {row.unit:>5}" + "".join(f"{c:>{col}}"
                                                             for c in row.cells))
-    out += [""] + _wrap(SWEEP_NOTE, width, "") + ["", "CAUTIONS"]
+    out += [""] + wrap(SWEEP_NOTE, width, "") + ["", "CAUTIONS"]
     for c in _cautions(result):
-        out.extend(_wrap(c, width, "  - "))
+        out.extend(wrap(c, width, "  - "))
     return "\n".join(out) + "\n"
 
 

@@ -5,7 +5,8 @@ from __future__ import annotations
 from textual_plotext import PlotextPlot
 
 from dosing.planning.plan import Plan
-from dosing.report.sheet import UnitSystem, dose_axis
+from dosing.report.sheet import dose_axis
+from dosing.report.units import UnitSystem
 
 __all__ = ["CurvePlot", "TitrationPlot", "curve_axes"]
 
@@ -43,7 +44,7 @@ class TitrationPlot(PlotextPlot):
     """A bench titration: the readings, and the fitted water's curve through them."""
 
     def show(self, curve, water, target) -> None:
-        from dosing.planning.titration import model_curve
+        from dosing.planning.water_fit import model_curve
         v, ph = model_curve(curve, water, points=120)
         p = self.plt
         p.clear_data()

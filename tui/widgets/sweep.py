@@ -6,7 +6,7 @@ from __future__ import annotations
 from rich.text import Text
 from textual.widgets import DataTable
 
-from dosing.report.sheet import UnitSystem
+from dosing.report.units import UnitSystem
 from dosing.planning.sweep import Sweep
 from dosing.report.sweep_sheet import grid_rows, size_heading, size_labels
 

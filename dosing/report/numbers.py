@@ -53,7 +53,7 @@ def require_finite(data, where: str = "output"):
     ModelError
         Naming the first key that holds a non-finite number.
     """
-    from .errors import ModelError
+    from ..errors import ModelError
     bad = _first_non_finite(data, where)
     if bad is not None:
         raise ModelError(f"{bad} could not be computed (the result is not a finite "
