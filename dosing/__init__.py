@@ -25,7 +25,8 @@ from .chem import Mixture, dose_to_ph, solve_ph, speciate
 from .errors import (DosingError, InputError, ModelError, ScenarioError,
                      UnreachableError)
 from .planning.plan import Plan, plan_dose
-from .planning.reagents import CATALOGUE, Reagent, custom_reagent, get_reagent
+from .planning.reagents import CATALOGUE, Reagent, get_reagent
+from .planning.strengths import custom_reagent
 
 from .version import __version__
 

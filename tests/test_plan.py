@@ -8,7 +8,8 @@ from dosing.planning.measurements import Measurements
 from dosing import (Batch, Flow, Target, UnreachableError, get_reagent, infer_water,
                     plan_dose)
 from dosing.chem import add_dose, solve_ph
-from dosing.planning.reagents import GENERAL_CAUTION, custom_reagent
+from dosing.planning.reagents import GENERAL_CAUTION
+from dosing.planning.strengths import custom_reagent
 
 
 def test_strong_acid_batch_to_ph7_with_50_percent_caustic_by_hand():

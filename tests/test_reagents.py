@@ -3,7 +3,8 @@
 import pytest
 
 from dosing.errors import InputError
-from dosing.planning.reagents import CATALOGUE, COMPOUNDS, custom_reagent, get_reagent, with_purity
+from dosing.planning.reagents import CATALOGUE, COMPOUNDS, get_reagent
+from dosing.planning.strengths import custom_reagent, with_purity
 
 thermo_electrochem = pytest.importorskip("thermo.electrochem")
 chemicals_elements = pytest.importorskip("chemicals.elements")

@@ -10,7 +10,8 @@ from pathlib import Path
 
 import pytest
 
-from dosing.planning.reagents import STRENGTHS, at_strength, get_reagent, strengths_of
+from dosing.planning.reagents import get_reagent
+from dosing.planning.strengths import STRENGTHS, at_strength, strengths_of
 from dosing.io.scenario import load_scenario
 from dosing.planning.sweep import default_sizes, strength_grid
 from tests.test_robustness import _one_line, _strict_json, run

@@ -28,7 +28,8 @@ from ..planning.measurements import (ACIDITY_ENDPOINT_PH, ALKALINITY_ENDPOINT_PH
                                      Measurements)
 from ..errors import InputError, ScenarioError
 from ..planning.basis import Batch, Flow, Target
-from ..planning.reagents import Reagent, custom_reagent, get_reagent, with_purity
+from ..planning.reagents import Reagent, get_reagent
+from ..planning.strengths import custom_reagent, with_purity
 from ..planning.hazards import ION_PERMIT_KEYS
 from ..chem.metals import METAL_IDS
 from ..planning.solids import CAKE_DENSITY_KG_L, CAKE_SOLIDS_FRACTION, METAL_PERMIT_KEYS

@@ -28,8 +28,7 @@ can be set.
 
 from __future__ import annotations
 
-import math
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, field
 from typing import Mapping
 
 import numpy as np
@@ -39,9 +38,8 @@ from ..errors import InputError
 from .findings import Finding, Q, note
 from ..chem.species import MOLAR_MASS
 
-__all__ = ["Compound", "COMPOUNDS", "Reagent", "CATALOGUE", "REAGENT_IDS", "with_purity",
-           "get_reagent", "custom_reagent", "GENERAL_CAUTION", "STRENGTHS",
-           "strengths_of", "at_strength"]
+__all__ = ["Compound", "COMPOUNDS", "Reagent", "CATALOGUE", "REAGENT_IDS", "get_reagent",
+           "GENERAL_CAUTION", "SOLUTION_DENSITIES"]
 
 #: Shown with every dose, by every front end.
 GENERAL_CAUTION = ("This plan is an aid to judgement, not an approval: local "
@@ -234,18 +232,50 @@ _LIME = ("Lime dust burns eyes and airways: goggles and dust mask when loading."
 _NAOH = COMPOUNDS["NaOH"]
 _H2SO4 = COMPOUNDS["H2SO4"]
 
+#: Densities of the solutions the planner knows, at 20 °C: compound -> mass
+#: fraction -> (density [kg/L], source). The one home of these numbers: the
+#: catalogue and the sizes-against-strengths grid (:data:`STRENGTHS`) read
+#: them here; tests/test_reagents.py checks each row against Laliberté 2009
+#: inside that model's fit range. 25 % sulfuric is a day-tank dilution
+#: (common practice: diluted acid is easier to meter into a small stream;
+#: diluting it is hot).
+_CRC = "CRC Handbook, concentrative properties of aqueous solutions"
+SOLUTION_DENSITIES: dict[str, dict[float, tuple[float, str]]] = {
+    "NaOH": {0.20: (1.2191, f"{_CRC}, 20 °C (from memory)"),
+             0.25: (1.2740, f"{_CRC} (24 % and 26 % interpolated)"),
+             0.32: (1.3490, f"{_CRC}, 20 °C (from memory)"),
+             0.50: (1.5253, "Perry's Chemical Engineers' Handbook, aqueous NaOH at 20 °C "
+                            "(from memory)")},
+    "H2SO4": {0.25: (1.1783, f"{_CRC}, 20 °C (from memory)"),
+              0.93: (1.8276, f"{_CRC} (92 % and 94 % interpolated)"),
+              0.98: (1.8361, _CRC)},
+    "HCl": {0.10: (1.0474, f"{_CRC}, 20 °C (from memory)"),
+            0.20: (1.0980, f"{_CRC}, 20 °C (from memory)"),
+            0.32: (1.1594, _CRC)},
+}
+
+
+def _rho(formula: str, fraction: float) -> tuple[float, str]:
+    """Density [kg/L] and its source, from :data:`SOLUTION_DENSITIES`."""
+    return SOLUTION_DENSITIES[formula][fraction]
+
+
+def _solution(rid: str, name: str, compound: Compound, fraction: float,
+              cautions: tuple[str, ...], **kw) -> Reagent:
+    """A catalogue solution, its density read from :data:`SOLUTION_DENSITIES`."""
+    rho, source = _rho(compound.formula, fraction)
+    return Reagent(rid, name, compound, fraction, rho, "liquid", source, cautions, **kw)
+
+
 #: Catalogue of stock products.
 CATALOGUE: dict[str, Reagent] = {r.id: r for r in (
-    Reagent("caustic-50", "caustic soda 50 %", _NAOH, 0.50, 1.5253, "liquid",
-            "Perry's Chemical Engineers' Handbook, aqueous NaOH at 20 °C (from memory)",
-            _CAUSTIC + ("50 % caustic starts to crystallise below about 12 °C: "
+    _solution("caustic-50", "caustic soda 50 %", _NAOH, 0.50,
+              _CAUSTIC + ("50 % caustic starts to crystallise below about 12 °C: "
                         "keep the line and the store warm.",),
             dilution_heat_kj_mol=-22.0,
             dilution_heat_source="50 % NaOH to infinite dilution, about -21 to -23 kJ/mol "
             "(from memory, low confidence; no published table at hand)"),
-    Reagent("caustic-25", "caustic soda 25 %", _NAOH, 0.25, 1.2740, "liquid",
-            "CRC Handbook, concentrative properties of aqueous solutions "
-            "(24 % and 26 % interpolated)", _CAUSTIC),
+    _solution("caustic-25", "caustic soda 25 %", _NAOH, 0.25, _CAUSTIC),
     Reagent("lime", "hydrated lime, 93 % Ca(OH)2", COMPOUNDS["Ca(OH)2"], 0.93,
             None, "solid", "",
             _LIME),
@@ -281,29 +311,24 @@ CATALOGUE: dict[str, Reagent] = {r.id: r for r in (
             None, "solid", "",
             ("On an acid water bicarbonate fizzes as CO2 escapes: add slowly, "
              "watch for foaming.",), max_practical_ph=8.3),
-    Reagent("sulfuric-98", "sulfuric acid 98 %", _H2SO4, 0.98, 1.8361, "liquid",
-            "CRC Handbook, concentrative properties of aqueous solutions",
-            _ACID_BURN + ("Concentrated sulfuric acid boils water it meets: "
+    _solution("sulfuric-98", "sulfuric acid 98 %", _H2SO4, 0.98,
+              _ACID_BURN + ("Concentrated sulfuric acid boils water it meets: "
                           "always add acid to water, slowly, with mixing; never "
                           "water to acid.",) + _ACIDIFY,
             dilution_heat_kj_mol=-91.7,
             dilution_heat_source="estimate from NBS tables (Wagman et al. 1982): H2SO4(l) "
             "-814.0 and H2SO4(aq, inf.) -909.3 kJ/mol give -95.3; less about 3.4 for "
             "forming the 98 % mixture"),
-    Reagent("sulfuric-93", "sulfuric acid 93 %", _H2SO4, 0.93, 1.8276, "liquid",
-            "CRC Handbook, concentrative properties of aqueous solutions "
-            "(92 % and 94 % interpolated)",
-            _ACID_BURN + ("Concentrated sulfuric acid boils water it meets: "
+    _solution("sulfuric-93", "sulfuric acid 93 %", _H2SO4, 0.93,
+              _ACID_BURN + ("Concentrated sulfuric acid boils water it meets: "
                           "always add acid to water, slowly, with mixing; never "
                           "water to acid.",) + _ACIDIFY,
             dilution_heat_kj_mol=-82.0,
             dilution_heat_source="estimate from NBS tables (Wagman et al. 1982): -95.3 "
             "kJ/mol for H2SO4(l) to infinite dilution, less about 13 for forming the "
             "93 % mixture (0.41 H2O per H2SO4; H2SO4 in 1 H2O is -841.8), +-3"),
-    Reagent("hydrochloric-32", "hydrochloric acid 32 %", COMPOUNDS["HCl"], 0.32,
-            1.1594, "liquid",
-            "CRC Handbook, concentrative properties of aqueous solutions",
-            _ACID_BURN + ("Hydrochloric acid gives off corrosive HCl fumes: "
+    _solution("hydrochloric-32", "hydrochloric acid 32 %", COMPOUNDS["HCl"], 0.32,
+              _ACID_BURN + ("Hydrochloric acid gives off corrosive HCl fumes: "
                           "ventilate the dosing point and store.",) + _ACIDIFY,
             dilution_heat_kj_mol=-13.2,
             dilution_heat_source="CRC Handbook, enthalpy of dilution of HCl (after Parker "
@@ -335,158 +360,3 @@ def get_reagent(reagent_id: str) -> Reagent:
                          + ", or give a custom reagent") from None
 
 
-#: Strengths a solution is sold or made up at, for the sizes-against-strengths
-#: grid: compound -> (mass fraction, density at 20 °C [kg/L]) rows. Source:
-#: CRC Handbook of Chemistry and Physics, "Concentrative properties of aqueous
-#: solutions" (20 °C), from memory where not already in the catalogue;
-#: tests/test_reagents.py checks each row against Laliberté 2009 inside that
-#: model's fit range. 25 % sulfuric is a day-tank dilution (common practice:
-#: diluted acid is easier to meter into a small stream; diluting it is hot).
-STRENGTHS: dict[str, tuple[tuple[float, float], ...]] = {
-    "NaOH": ((0.20, 1.2191), (0.25, 1.2740), (0.32, 1.3490), (0.50, 1.5253)),
-    "H2SO4": ((0.25, 1.1783), (0.93, 1.8276), (0.98, 1.8361)),
-    "HCl": ((0.10, 1.0474), (0.20, 1.0980), (0.32, 1.1594)),
-}
-#: Purities a solid product is compared at (common practice: commercial grades).
-SOLID_PURITIES = (0.85, 0.90, 0.95)
-_FAMILY = {"NaOH": ("caustic", "caustic soda"), "H2SO4": ("sulfuric", "sulfuric acid"),
-           "HCl": ("hydrochloric", "hydrochloric acid")}
-
-
-def strengths_of(reagent: Reagent) -> tuple[float, ...]:
-    """The strengths (mass fractions) ``reagent`` is compared at: a listed
-    solution's table, a solid's usual purities, else only its own."""
-    table = STRENGTHS.get(reagent.compound.formula)
-    if reagent.form == "liquid" and table and reagent.molarity_mol_l is None:
-        return tuple(w for w, _ in table)
-    if reagent.form == "solid" and reagent.id != "custom":
-        return tuple(sorted({*SOLID_PURITIES, reagent.mass_fraction}))
-    return (reagent.mass_fraction,)
-
-
-def at_strength(reagent: Reagent, fraction: float) -> Reagent:
-    """The same product at another strength: a solution at a row of
-    :data:`STRENGTHS` (the catalogue entry where there is one), a solid at
-    any purity.
-
-    Raises
-    ------
-    InputError
-        A strength with no density at hand, or a product that has no
-        strengths to choose from (a gas, a solution given by molarity).
-    """
-    if abs(fraction - reagent.mass_fraction) < 1e-9:
-        return reagent
-    if reagent.form == "solid":
-        return replace(with_purity(reagent, fraction), id=f"{reagent.id}-{fraction * 100:g}")
-    formula = reagent.compound.formula
-    table = dict(STRENGTHS.get(formula, ()))
-    if reagent.form != "liquid" or reagent.molarity_mol_l is not None or not table:
-        raise InputError("strengths", f"{reagent.name} has no other strengths here; "
-                         "compare it with other products instead")
-    rho = next((d for w, d in table.items() if abs(w - fraction) < 1e-9), None)
-    if rho is None:
-        listed = ", ".join(f"{w * 100:g}" for w in table)
-        raise InputError("strengths", f"{formula} at {fraction * 100:g} %: no density at "
-                         f"hand; allowed: {listed} % (or a custom reagent with its "
-                         "density)")
-    family, name = _FAMILY[formula]
-    rid = f"{family}-{fraction * 100:g}"
-    if rid in CATALOGUE:
-        return CATALOGUE[rid]
-    model = CATALOGUE[{"NaOH": "caustic-25", "H2SO4": "sulfuric-93",
-                       "HCl": "hydrochloric-32"}[formula]]
-    return replace(model, id=rid, name=f"{name} {fraction * 100:g} %", mass_fraction=fraction,
-                   density_kg_l=rho, density_source="CRC Handbook, concentrative properties "
-                   "of aqueous solutions, 20 °C (from memory)", dilution_heat_kj_mol=None,
-                   dilution_heat_source="")
-
-
-def with_purity(reagent: Reagent, purity: float) -> Reagent:
-    """The same solid product at another purity (mass fraction) [-]."""
-    if reagent.form == "liquid":
-        raise InputError("reagent.purity", f"{reagent.id} is a solution; give a "
-                         "custom reagent with its own strength and density instead")
-    if not (0.0 < purity <= 1.0):
-        raise InputError("reagent.purity", f"{purity:g} is not a mass fraction; "
-                         "allowed: above 0 and up to 1")
-    name = reagent.name.split(",")[0] + f", {purity * 100:g} % {reagent.compound.formula}"
-    return replace(reagent, mass_fraction=purity, name=name)
-
-
-def custom_reagent(compound: str, *, mass_fraction: float | None = None,
-                   density_kg_l: float | None = None,
-                   molarity_mol_l: float | None = None,
-                   form: str | None = None, name: str | None = None) -> Reagent:
-    """A product made up by the user.
-
-    Give either a ``mass_fraction`` (with ``density_kg_l`` for a solution,
-    without for a solid) or a ``molarity_mol_l`` (a solution; density
-    optional, needed to report kilograms).
-
-    Parameters
-    ----------
-    compound : str
-        Key of :data:`COMPOUNDS` (``NaOH``, ``KOH``, ``Ca(OH)2``, ``CaO``,
-        ``Mg(OH)2``, ``CaCO3``, ``Na2CO3``, ``NaHCO3``, ``H2SO4``, ``HCl``,
-        ``HNO3``, ``CO2``); a slurry is a mass fraction with its density.
-    mass_fraction : float, optional
-        [-], 0 < w <= 1.
-    density_kg_l : float, optional
-        Density of the product [kg/L], 0.5-2.5.
-    molarity_mol_l : float, optional
-        [mol/L], above 0 and up to 30.
-    """
-    if compound not in COMPOUNDS:
-        raise InputError("reagent.compound", f"unknown compound {compound!r}; "
-                         "allowed: " + ", ".join(COMPOUNDS))
-    comp = COMPOUNDS[compound]
-    if (mass_fraction is None) == (molarity_mol_l is None):
-        raise InputError("reagent.mass_fraction", "give exactly one of "
-                         "mass_fraction or molarity_mol_l")
-    if density_kg_l is not None and not (0.5 <= density_kg_l <= 2.5):
-        raise InputError("reagent.density_kg_l", f"{density_kg_l:g} kg/L is not "
-                         "a plausible product density; allowed: 0.5 to 2.5")
-    frac, form, label = _custom_strength(compound, comp, mass_fraction, density_kg_l,
-                                         molarity_mol_l, form)
-    if form not in ("liquid", "solid", "gas"):
-        raise InputError("reagent.form", f"{form!r}; allowed: liquid, solid, gas")
-    like = {"NaOH": "caustic-25", "KOH": "caustic-25", "Ca(OH)2": "lime",
-            "Na2CO3": "soda-ash", "NaHCO3": "bicarbonate", "H2SO4": "sulfuric-93",
-            "HCl": "hydrochloric-32", "HNO3": "hydrochloric-32", "CO2": "co2",
-            "CaO": "quicklime", "Mg(OH)2": "magnesia", "CaCO3": "limestone"}[compound]
-    model = CATALOGUE[like]
-    return Reagent("custom", name or f"custom {label}", comp, frac,
-                   density_kg_l if form == "liquid" else None, form,
-                   "given by the user" if density_kg_l else "",
-                   model.cautions, model.min_practical_ph, model.max_practical_ph,
-                   model.solubility_g_l, molarity_mol_l)
-
-
-def _custom_strength(compound: str, comp: Compound, mass_fraction, density_kg_l,
-                     molarity_mol_l, form):
-    """A custom product's mass fraction, form and label, from its molarity
-    or its mass fraction; raises InputError naming the field."""
-    if molarity_mol_l is not None:
-        if not (0.0 < molarity_mol_l <= 30.0) or not math.isfinite(molarity_mol_l):
-            raise InputError("reagent.molarity_mol_l", f"{molarity_mol_l:g} is out "
-                             "of range; allowed: above 0 and up to 30 mol/L")
-        frac = (molarity_mol_l * comp.molar_mass_g_mol / 1000.0 / density_kg_l
-                if density_kg_l else float("nan"))
-        if density_kg_l and frac > 1.0:
-            raise InputError("reagent.molarity_mol_l", "this molarity and density "
-                             "give more active compound than product mass")
-        form = "liquid"
-        label = f"{compound} {molarity_mol_l:g} mol/L"
-    else:
-        if not (0.0 < mass_fraction <= 1.0) or not math.isfinite(mass_fraction):
-            raise InputError("reagent.mass_fraction", f"{mass_fraction:g} is not a "
-                             "mass fraction; allowed: above 0 and up to 1")
-        frac = mass_fraction
-        if form is None:
-            form = "gas" if compound == "CO2" else ("liquid" if density_kg_l else "solid")
-        if form == "liquid" and density_kg_l is None:
-            raise InputError("reagent.density_kg_l", "a solution needs its density "
-                             "to turn kilograms into litres")
-        label = f"{compound} {mass_fraction * 100:g} %"
-    return frac, form, label

@@ -10,22 +10,17 @@ from dataclasses import dataclass
 
 from ..errors import DosingError
 from .plan import Amounts, Batch, Flow, Plan, amounts_for, plan_dose
-from .reagents import Reagent, at_strength, get_reagent, strengths_of
+from .reagents import Reagent, get_reagent
+from .strengths import ALTERNATIVE, at_strength, strengths_of
 from .job import Scenario
 
 __all__ = ["SweepCell", "Sweep", "sweep", "strength_grid", "default_alternative",
            "default_sizes"]
 
-_SIBLING = {"caustic-50": "caustic-25", "caustic-25": "caustic-50",
-            "sulfuric-98": "sulfuric-93", "sulfuric-93": "sulfuric-98",
-            "hydrochloric-32": "sulfuric-93", "co2": "sulfuric-98",
-            "lime": "caustic-50", "soda-ash": "caustic-50", "bicarbonate": "soda-ash"}
-
-
 def default_alternative(reagent: Reagent) -> str:
     """The catalogue product most worth comparing with ``reagent``."""
-    if reagent.id in _SIBLING:
-        return _SIBLING[reagent.id]
+    if reagent.id in ALTERNATIVE:
+        return ALTERNATIVE[reagent.id]
     return "caustic-50" if reagent.raises_ph else "sulfuric-98"
 
 
