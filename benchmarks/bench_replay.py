@@ -62,9 +62,9 @@ def best_of(k: int, job) -> float:
 
 
 def dose_solve_rates() -> None:
+    from dosing.chem import (N_SYSTEMS, Mixture, constants_at, dose_to_ph,
+                             strong_balance_at_ph, system_index)
     from dosing.chem.activity import DAVIES, IDEAL
-from dosing.chem import (N_SYSTEMS, Mixture, constants_at, dose_to_ph,
-                                    strong_balance_at_ph, system_index)
     from dosing.planning.reagents import get_reagent
     from dosing.io.scenario import load_scenario
     s = load_scenario(SCEN)

@@ -79,7 +79,7 @@ def main() -> None:
     caustic = get_reagent("caustic-50").vector()
     target = np.full(n, 7.5)
     print(f"waters: {n:,}")
-    per_row_scalar = scalar_baseline(waters(2000, False), 2000)
+    per_row_scalar = scalar_baseline(waters(2000, IDEAL), 2000)
     print(f"scalar brentq baseline (ideal):  {1 / per_row_scalar:12,.0f} waters/s")
     base = {}
     for model, metals in ((IDEAL, False), (DAVIES, False), (IDEAL, True), (DAVIES, True)):
