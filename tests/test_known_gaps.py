@@ -1,10 +1,11 @@
-"""What the model leaves out today, recorded as strict expected failures.
+"""The model's known gaps: closed ones as tests, open ones as strict expected failures.
 
-Each test states what a fuller model gives (with its source) and fails on
-the engine as it stands; ``strict=True`` makes it an error once the engine
-gets it right, so the mark is removed in the same change (as ``pint`` keeps
-its known bugs as xfail, never deleted). The gaps are those of DEVELOPERS.md
-"Known gaps" and of the speciation issue.
+Each test states what a fuller model gives (with its source). An open gap
+fails on the engine as it stands; ``strict=True`` makes it an error once the
+engine gets it right, so the mark is removed in the same change (as ``pint``
+keeps its known bugs as xfail, never deleted). The first four gaps (ammonia
+complexes, gypsum inside the equilibrium, the CaSO4° pair, siderite) were
+closed by the speciation core (dosing.chem.coupled).
 """
 
 from __future__ import annotations
@@ -16,14 +17,9 @@ import pytest
 from dosing import Batch, Measurements, Target, get_reagent, infer_water, plan_dose
 from dosing.chem.activity import DAVIES
 
-NO_COMPLEXES = "no metal-ligand complexes in the model yet (ammonia, chelants)"
-NO_ION_PAIRS = "no ion pairs (CaSO4°) in the model yet"
-NO_CARBONATE_SOLIDS = "no carbonate solids but calcite (siderite, rhodochrosite ...) yet"
-GYPSUM_AFTER = "gypsum is precipitated after the charge balance; the ions shown ignore it"
 DAVIES_ONLY = "activity stops at the Davies equation (no specific ion interaction yet)"
 
 
-@pytest.mark.xfail(strict=True, reason=NO_COMPLEXES)
 def test_copper_held_by_ammonia_at_ph_9():
     # A copper etch rinse: 50 mg/L copper, 200 mg/L ammonia as N, caustic to
     # pH 9. With the Cu(II)-NH3 cumulative constants (log beta1..4 about 4.1,
@@ -37,7 +33,6 @@ def test_copper_held_by_ammonia_at_ph_9():
     assert plan.metals_after_mg_l["copper"] > 0.1
 
 
-@pytest.mark.xfail(strict=True, reason=GYPSUM_AFTER)
 def test_calcium_left_after_lime_on_sulfate_water_counts_the_gypsum():
     # pH 1.9, 60 mmol/L sulfate, lime to pH 7 (the speciation issue's case):
     # about 13 mmol/L of gypsum forms, so the calcium left is near gypsum's
@@ -52,19 +47,22 @@ def test_calcium_left_after_lime_on_sulfate_water_counts_the_gypsum():
     assert calcium.values["value_mg_l"] < 400.0
 
 
-@pytest.mark.xfail(strict=True, reason=NO_ION_PAIRS)
 def test_gypsum_solubility_in_pure_water():
-    # Gypsum in pure water at 25 °C: about 15 mmol/L dissolved (CRC Handbook,
-    # aqueous solubility of inorganic compounds, 2.0-2.1 g/L CaSO4·2H2O; from
-    # memory). Ion pairing (CaSO4°, log K about 2.3, Nordstrom et al. 1990)
-    # is a third of it; free ions with Davies alone give about 10 mmol/L.
-    from dosing.planning.hazards import GYPSUM_LOG_KSP
-    lg = float(DAVIES.log_gamma_at(2, 0.04, 25.0))
-    free = math.sqrt(10 ** GYPSUM_LOG_KSP) / 10 ** lg
-    assert free == pytest.approx(0.015, rel=0.1)
+    # Gypsum in pure water at 25 °C: 15.2 mmol/kg dissolved (Marshall &
+    # Slusher 1966, J. Phys. Chem. 70, 4015; from memory; the CRC Handbook's
+    # aqueous solubility table gives about 2.0-2.1 g/L as CaSO4). Ion pairing
+    # (CaSO4°, log K 2.30, Nordstrom et al. 1990) is about a third of it; free
+    # ions with Davies alone would give about 10.6 mmol/L.
+    import numpy as np
+    from dosing.chem import Mixture, speciate, system_index
+    from tests.helpers import totals
+    mix = Mixture.build(totals(calcium=0.05, sulfate=0.05), 0.0, 0.0, 25.0, math.nan, DAVIES)
+    sp = speciate(mix, np.array([7.0]))
+    dissolved = float(sp.totals_mol_l[0, system_index("calcium")])
+    assert dissolved * 1000 == pytest.approx(15.2, rel=0.10)
+    assert "gypsum" in sp.phase_ids
 
 
-@pytest.mark.xfail(strict=True, reason=NO_CARBONATE_SOLIDS)
 def test_ferrous_iron_with_carbonate_forms_siderite():
     # 50 mg/L ferrous iron with 2.5 mmol/L carbonate raised from pH 6.2 to
     # 8.5: siderite (FeCO3, log Ksp -10.45 to -10.89; Bruno et al. 1992, from

@@ -7,7 +7,7 @@ the ionic strengths at the two ends need a fixed point.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -15,6 +15,7 @@ from .activity import ActivityModel
 from .columns import CARBONATE, N_SYSTEMS, system_index
 from .mixture import Mixture
 from .solvers import settle
+from .coupled import coupled_balance
 from .speciation import Rows, capped_mask, restrict, species_at
 
 __all__ = ["carbonate_for_alkalinity"]
@@ -53,6 +54,8 @@ def carbonate_for_alkalinity(totals_mol_l, ph, temperature_c, alk_eq_l,
     ionic, ionic_e = job.extra.copy(), job.extra.copy()
     c, coef, new_i, new_ie = job.solve(ionic, ionic_e)
     if activity.ideal:
+        if job.rows.tab is not None:
+            c, new_i = _coupled_carbonate(job, c, coef, new_i, new_ie)
         return c, coef, new_i
     n = job.ph.shape[0]
 
@@ -64,7 +67,65 @@ def carbonate_for_alkalinity(totals_mol_l, ph, temperature_c, alk_eq_l,
                    max_iter)
     ok = np.isfinite(both[:n]) & np.isfinite(both[n:])
     c, coef, new_i, _ = job.solve(np.where(ok, both[:n], 0.0), np.where(ok, both[n:], 0.0))
-    return np.where(ok, c, np.nan), coef, np.where(ok, new_i, np.nan)
+    c, new_i = np.where(ok, c, np.nan), np.where(ok, new_i, np.nan)
+    if job.rows.tab is not None:
+        c, new_i = _coupled_carbonate(job, c, coef, new_i, both[n:])
+    return c, coef, new_i
+
+
+def _coupled_carbonate(job: "_AlkalinityJob", c, coef, ionic, ionic_e, passes: int = 40):
+    """The carbonate where carbonate couples (CaCO3°, CaHCO3+ ...): the
+    titration balance A(C) = R(end point) - R(sample) is no longer linear in
+    C, so the direct answer starts a secant on it, the two ionic strengths
+    moved along."""
+    sample = restrict(job.bare, extra_cols=[CARBONATE], cap=False)
+    end = job.rows
+    car = end.carb
+    fe2 = job.fe2 if job.ferrous_oxidised else np.zeros(0, dtype=int)
+    # A negative answer (the rest of the water already explains more than the
+    # measurement) is kept as the direct solve gives it: the caller refuses it.
+    good = np.isfinite(c) & (c > 0)
+    x, ion_s, ion_e = np.where(good, np.maximum(c, 0.0), 0.0), np.where(good, ionic, job.extra), \
+        np.where(np.isfinite(ionic_e), ionic_e, job.extra)
+    prev_x, prev_a = None, None
+    slope = np.where(np.abs(coef) > 1e-12, coef, 1.0)
+    for _ in range(passes):
+        a, ion_s, ion_e = _titration_balance(job, sample, end, car, fe2, x, ion_s, ion_e)
+        miss = job.alk - a
+        if prev_x is not None:
+            with np.errstate(divide="ignore", invalid="ignore"):
+                sec = (a - prev_a) / (x - prev_x)
+            slope = np.where(np.isfinite(sec) & (np.abs(sec) > 1e-9), sec, slope)
+        done = np.abs(miss) <= 1e-12 + 1e-10 * np.abs(job.alk)
+        if done.all():
+            break
+        prev_x, prev_a = x, a
+        x = np.where(done, x, x + miss / slope)
+    settled = np.abs(miss) <= 1e-9 + 1e-7 * np.abs(job.alk)
+    return (np.where(good, np.where(settled, x, np.nan), c),
+            np.where(good, np.where(settled, ion_s, np.nan), ionic))
+
+
+def _titration_balance(job, sample, end, car, fe2, x, ion_s, ion_e):
+    """(alkalinity the carbonate ``x`` gives [eq/L], the two ionic strengths it implies)."""
+    tot = sample.totals.copy()
+    tot[:, car] = x
+    v_s = replace(sample, totals=tot)
+    ah = 10.0 ** -job.ph
+    b_s = coupled_balance(v_s.tab, v_s, species_at(v_s, ah, ion_s), ah, ion_s)
+    tot_e = end.totals.copy()
+    tot_e[:, car] = x
+    if fe2.size:
+        tot_e[:, fe2] = 0.0
+    v_e = replace(end, totals=tot_e)
+    ae = 10.0 ** -job.ep
+    b_e = coupled_balance(v_e.tab, v_e, species_at(v_e, ae, ion_e), ae, ion_e)
+    s = -b_s.residual
+    new_s = b_s.ionic + 0.5 * np.abs(s) + job.extra
+    new_e = b_e.ionic + 0.5 * np.abs(s) + 0.5 * np.abs(job.alk) + job.extra
+    if job.rows.activity.ideal:
+        new_s, new_e = ion_s, ion_e
+    return b_e.residual - b_s.residual, new_s, new_e
 
 
 @dataclass(frozen=True)
@@ -79,6 +140,7 @@ class _AlkalinityJob:
     extra: np.ndarray       # (n,) known strong-ion ionic strength [mol/L]
     fe2: np.ndarray         # column of ferrous iron in the view (empty if none)
     ferrous_oxidised: bool
+    bare: Mixture           # the water without carbonate (for a view without solids)
 
     @classmethod
     def build(cls, totals_mol_l, ph, temperature_c, alk_eq_l, endpoint_ph, activity,
@@ -93,7 +155,8 @@ class _AlkalinityJob:
         return cls(rows, ph, np.broadcast_to(np.asarray(endpoint_ph, float), ph.shape),
                    np.broadcast_to(np.asarray(alk_eq_l, dtype=float), ph.shape),
                    np.broadcast_to(np.asarray(extra_ionic_strength, float), ph.shape),
-                   np.flatnonzero(rows.cols == system_index("iron_ii")), ferrous_oxidised)
+                   np.flatnonzero(rows.cols == system_index("iron_ii")), ferrous_oxidised,
+                   bare)
 
     def end_totals(self, sol_e):
         """Totals at the end point: metals capped at their hydroxide's

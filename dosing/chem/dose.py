@@ -14,6 +14,7 @@ from typing import NamedTuple
 
 import numpy as np
 
+from .dose_coupled import dose_coupled
 from .mixture import Mixture, ReagentVector
 from .solvers import settle
 from .speciation import Rows, capped_mask, restrict, species_at
@@ -64,6 +65,9 @@ def dose_to_ph(mix: Mixture, reagent: ReagentVector, target_ph,
         capped[redo] = now[redo]
         again = job.take(redo).solve(capped[redo], max_iter)
         dose[redo], den[redo], sol[redo] = again.dose, again.slope, again.solubility
+    if rows.tab is not None:
+        # Complexes or coupled solids: the direct dose is the first trial.
+        return dose_coupled(rows, n_full[rows.cols], reagent, 10.0 ** -tp, dose, den)
     return dose, den
 
 

@@ -42,6 +42,11 @@ class Mixture:
     site_pka : ndarray (n, 8) or None
         pKa of each fitted buffer site (columns :data:`SITE_COLUMNS`), NaN
         for a site not used [-].
+    complexes : bool
+        Complexes, ion pairs and the solids that couple components (gypsum,
+        carbonates, sulfides; :mod:`dosing.chem.coupled`) are in the model
+        (the default); False keeps the one-component model (hydrolysis and
+        hydroxides only), the textbook case.
     calcite : bool
         Calcite (CaCO3) precipitates where the water is supersaturated with
         it (equilibrium); False (the default) keeps it dissolved, as a water
@@ -57,6 +62,7 @@ class Mixture:
     unknown_pka: np.ndarray | None = None
     calcite: bool = False
     site_pka: np.ndarray | None = None
+    complexes: bool = True
 
     @classmethod
     def build(cls, totals_mol_l, strong_eq_l, strong_ionic_strength,

@@ -51,6 +51,7 @@ from typing import NamedTuple
 import numpy as np
 
 from .activity import ActivityModel
+from .coupled import Tableau, coupled_balance, tableau_for
 from .columns import CALCIUM, CARBONATE, LN10, MAXSTEP, METAL_COLUMNS, N_SYSTEMS, SOLID_Z, Z
 from .mixture import Mixture
 from .water import calcite_pksp
@@ -77,10 +78,20 @@ class Speciation:
     buffer_intensity_eq_l: np.ndarray  #: (n,) β = dC_base/dpH [eq/(L pH)]
     solids_mol_l: np.ndarray        #: (n, m) hydroxide precipitated [mol/L]
     calcite_mol_l: np.ndarray       #: (n,) calcite precipitated [mol/L]
+    free_mol_l: np.ndarray | None = None    #: (n, m) uncomplexed totals; None: = totals
+    phase_ids: tuple[str, ...] = ()         #: solids of the coupled core, in order
+    phase_mol_l: np.ndarray | None = None   #: (n, np) amount of each [mol/L]
+    complex_ids: tuple[str, ...] = ()       #: complexes and ion pairs, in order
+    complex_mol_l: np.ndarray | None = None  #: (n, ns) [mol/L]
+
+    @property
+    def free(self) -> np.ndarray:
+        """(n, m) uncomplexed totals of each column (the fractions apply to these)."""
+        return self.totals_mol_l if self.free_mol_l is None else self.free_mol_l
 
     def concentration(self, system: int, form: int) -> np.ndarray:
-        """(n,) concentration of one form of one system [mol/L]."""
-        return self.totals_mol_l[:, system] * self.alpha[:, system, form]
+        """(n,) concentration of one form of one system [mol/L] (uncomplexed)."""
+        return self.free[:, system] * self.alpha[:, system, form]
 
 
 def _alpha(ah, kp):
@@ -119,6 +130,8 @@ def speciate(mix: Mixture, ph, *, max_iter: int = 60, solids: bool = True) -> Sp
     """
     ph = np.broadcast_to(np.asarray(ph, dtype=float), (mix.n,)).copy()
     r = restrict(mix, cap=solids)
+    if r.tab is not None:
+        return _speciate_coupled(mix, r, ph, max_iter)
     ionic = mix.strong_ionic_strength.copy()
     for _ in range(max_iter):
         new_i = _state(r, ph, ionic)[1].ionic
@@ -143,6 +156,36 @@ def speciate(mix: Mixture, ph, *, max_iter: int = 60, solids: bool = True) -> Sp
     precipitated[:, CALCIUM] = np.maximum(precipitated[:, CALCIUM] - calcite, 0.0)
     return Speciation(ph, h, oh, full_alpha, full_q, full_totals, ionic, resid, beta,
                       precipitated, calcite)
+
+
+def _speciate_coupled(mix: Mixture, r: Rows, ph, max_iter: int) -> Speciation:
+    """:func:`speciate` of waters whose components couple (:mod:`.coupled`)."""
+    ionic, core = mix.strong_ionic_strength.copy(), None
+    for _ in range(max_iter):
+        ah = 10.0 ** -ph
+        b = coupled_balance(r.tab, r, species_at(r, ah, ionic), ah, ionic, core)
+        done = np.all(np.abs(b.ionic - ionic) <= 1e-13 + 1e-10 * b.ionic)
+        ionic, core = b.ionic, b.core
+        if done or mix.activity.ideal:
+            break
+    b, beta = _coupled_state(r, ph, ionic, core)
+    sp = species_at(r, 10.0 ** -ph, ionic)
+    tab, n = r.tab, mix.n
+    full = lambda fill: np.full((n, N_SYSTEMS), fill)      # noqa: E731
+    alpha = np.zeros((n, N_SYSTEMS, MAXSTEP + 1))
+    alpha[:, :, 0] = 1.0
+    alpha[:, r.cols] = sp.alpha
+    q = np.repeat(Z[None, :, 0], n, axis=0)
+    q[:, r.cols] = sp.q
+    dissolved, free, solid = full(0.0), full(0.0), full(0.0)
+    dissolved[:, r.cols], free[:, r.cols] = b.dissolved, b.free
+    x = b.core.x.copy()
+    if tab.air >= 0:
+        x[:, tab.air] = 0.0                 # carbonate exchanged with air is not a solid
+    solid[:, r.cols[tab.cols]] = x @ tab.pnu
+    calcite = x[:, tab.calcite] if tab.calcite >= 0 else np.zeros(n)
+    return Speciation(ph, sp.h, sp.oh, alpha, q, dissolved, ionic, b.residual, beta, solid,
+                      calcite, free, tab.phase_ids, x, tab.ids, b.core.c)
 
 
 def charge_residual(mix: Mixture, ph) -> np.ndarray:
@@ -170,6 +213,8 @@ class Rows:
     cap: bool               # cap metals at their hydroxide's solubility
     ca: int = -1            # column of calcium in the view when calcite can form, or -1
     log_kc: np.ndarray | None = None   # (n,) log Ksp of calcite, with ``ca``
+    tab: Tableau | None = None         # the coupled part (complexes, solids), if any
+    core_log_k: tuple | None = None    # (n or 1, ns), (n or 1, np) log K of the tableau
 
     @property
     def has_solids(self) -> bool:
@@ -179,7 +224,9 @@ class Rows:
         return replace(self, totals=self.totals[idx], strong=self.strong[idx],
                        strong_i=self.strong_i[idx], co2=self.co2[idx], kw=self.kw[idx],
                        k=self.k[idx], a=self.a[idx], log_ks0=self.log_ks0[idx],
-                       log_kc=None if self.log_kc is None else self.log_kc[idx])
+                       log_kc=None if self.log_kc is None else self.log_kc[idx],
+                       core_log_k=None if self.core_log_k is None else tuple(
+                           x if x.shape[0] == 1 else x[idx] for x in self.core_log_k))
 
 
 def _used(mix: Mixture, extra_cols=()) -> np.ndarray:
@@ -200,9 +247,16 @@ def restrict(mix: Mixture, extra_cols=(), *, cap: bool = True) -> Rows:
     if cap and mix.calcite and carb >= 0 and CALCIUM in cols:
         ca = int(np.searchsorted(cols, CALCIUM))
         log_kc = -calcite_pksp(mix.temperature_c)
+    tab = tableau_for(cols, solids=cap, calcite=mix.calcite) if mix.complexes else None
+    core_k = None
+    if tab is not None:
+        t = mix.temperature_c
+        one = t.size > 1 and bool(np.all(t == t[0]))
+        core_k = tab.log_k(t[:1] if one else t)
     return Rows(mix.totals_mol_l[:, cols], mix.strong_eq_l, mix.strong_ionic_strength,
-                 mix.co2_air_mol_l, const.kw, const.k, const.a, Z[cols], carb,
-                 mix.activity, cols, const.log_ks0, SOLID_Z[cols], cap, ca, log_kc)
+                mix.co2_air_mol_l, const.kw, const.k, const.a, Z[cols], carb,
+                mix.activity, cols, const.log_ks0, SOLID_Z[cols], cap, ca, log_kc,
+                tab, core_k)
 
 
 class SpeciesAt(NamedTuple):
@@ -358,7 +412,26 @@ def _calcite(r: Rows, q, totals, kcal, rows, calcite):
     return extra
 
 
+#: pH step of the numerical buffer intensity of a coupled water [pH].
+_DPH = 1e-5
+
+
 def rows_state(r: Rows, ph, ionic):
     """Residual [eq/L], β [eq/(L pH)] and ionic strength [mol/L] at ``ph``."""
+    if r.tab is not None:
+        b, beta = _coupled_state(r, ph, ionic)
+        return b.residual, beta, b.ionic
     b = balance(r, species_at(r, 10.0 ** -ph, ionic))
     return b.residual, b.beta, b.ionic
+
+
+def _coupled_state(r: Rows, ph, ionic, start=None):
+    """The coupled balance at ``ph`` and its buffer intensity, β = -dR/dpH at
+    fixed totals (a central difference, the second solve started from the first)."""
+    ah = 10.0 ** -ph
+    b = coupled_balance(r.tab, r, species_at(r, ah, ionic), ah, ionic, start)
+    up = coupled_balance(r.tab, r, species_at(r, ah * 10.0 ** -_DPH, ionic),
+                         ah * 10.0 ** -_DPH, ionic, b.core)
+    down = coupled_balance(r.tab, r, species_at(r, ah * 10.0 ** _DPH, ionic),
+                           ah * 10.0 ** _DPH, ionic, b.core)
+    return b, -(up.residual - down.residual) / (2.0 * _DPH)

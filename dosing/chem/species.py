@@ -27,6 +27,8 @@ Sources
         Chem. 20, 905-927 (oxalic acid).
 [S83]   Sjöberg, S.; Hägglund, Y.; Nordin, A.; Ingri, N. (1983). Mar. Chem.
         13, 35-44 (silicic acid).
+[SM]    Smith, R. M.; Martell, A. E. Critical Stability Constants (Plenum,
+        1974-1989) and NIST SRD 46 (chelants; from memory).
 """
 
 from __future__ import annotations
@@ -35,7 +37,7 @@ from dataclasses import dataclass
 
 from ..errors import InputError
 
-__all__ = ["AcidSystem", "SYSTEMS", "SYSTEM_IDS", "get_system", "MOLAR_MASS"]
+__all__ = ["AcidSystem", "SYSTEMS", "SYSTEM_IDS", "get_system", "MOLAR_MASS", "CHELANTS"]
 
 # Standard atomic weights, IUPAC 2021 abridged values [g/mol].
 _AW = {"H": 1.008, "C": 12.011, "N": 14.007, "O": 15.999, "F": 18.998,
@@ -175,6 +177,21 @@ SYSTEMS: tuple[AcidSystem, ...] = (
                (9.21,), (43.6,), 0, "CN", _mm(C=1, N=1),
                "pKa 9.21 [CRC]; enthalpy +43.6 kJ/mol [NBS] (both from "
                "memory)."),
+    AcidSystem("edta", "EDTA (chelant)", "H4Y",
+               (2.00, 2.69, 6.13, 10.37), (0.0, 0.0, 0.0, 0.0), 0, "EDTA",
+               _mm(C=10, H=16, N=2, O=8),
+               "pKa 2.00, 2.69, 6.13, 10.37 at I = 0.1 [SM] (from memory), used as the "
+               "I = 0 values (the fourth step is about 0.6 higher at I = 0); enthalpies "
+               "not at hand, so not moved with temperature. Reported as the acid H4Y "
+               "(292.24 g/mol)."),
+    AcidSystem("tartrate", "tartrate (chelant)", "H2Tart",
+               (3.04, 4.37), (3.2, 0.9), 0, "C4H6O6", _mm(C=4, H=6, O=6),
+               "pKa 3.04 and 4.37 [CRC]; enthalpies 3.2 and 0.9 kJ/mol (from memory). "
+               "Reported as tartaric acid."),
+    AcidSystem("gluconate", "gluconate (chelant)", "HGlu",
+               (3.86,), (4.0,), 0, "C6H12O7", _mm(C=6, H=12, O=7),
+               "pKa 3.86 [SM] (from memory); enthalpy about 4 kJ/mol (from memory, low "
+               "confidence). Reported as gluconic acid."),
     AcidSystem("unknown", "unidentified weak acid (fitted)", "HX",
                (7.0,), (0.0,), 0, "mmol", 1000.0,
                "Not a published constant: a monoprotic acid whose total and pKa "
@@ -189,6 +206,9 @@ SYSTEMS: tuple[AcidSystem, ...] = (
                "moved with temperature. Internal: not accepted in a scenario.")
     for k in range(1, 9))
 
+#: Solutes that are chelants: added to hold metals in solution (a scenario that
+#: gives one gives the metals it holds, see dosing.planning.measurements).
+CHELANTS: tuple[str, ...] = ("edta", "tartrate", "gluconate")
 #: Ids of the fitted buffer sites (internal columns, never named in a scenario).
 SITE_IDS: tuple[str, ...] = tuple(f"site_{k}" for k in range(1, 9))
 

@@ -122,7 +122,9 @@ def _design(curve, base: Water, grid, ionic, weights, with_carbonate: bool) -> _
     tot = f[:, None] * known[None, :] + titrant[:, None] * r.totals_mol[None, :]
     mix = Mixture.build(tot, 0.0, ionic, t, math.nan, base.activity, base.unknown_pka)
     sp = speciate(mix, ph, max_iter=1)
-    known_charge = (sp.totals_mol_l * sp.mean_charge).sum(-1)
+    # The charge of everything dissolved but H+ and OH- (complexes included):
+    # the residual of a water without strong ions, less its own H+ and OH-.
+    known_charge = sp.charge_residual_eq_l - sp.h_mol_l + sp.oh_mol_l
     rhs = -(h - oh + titrant * r.strong_eq + known_charge)
     cols = [f, -f]
     if with_carbonate:

@@ -408,10 +408,9 @@ def _alkalinity_of(mix: Mixture, ph: float) -> float:
     """Total alkalinity to pH 4.5 of a closed one-row mixture [eq/L]."""
     here = speciate(mix, ph, solids=False)
     end = speciate(mix, ALKALINITY_ENDPOINT_PH)
-    w = here.h_mol_l - here.oh_mol_l
-    we = end.h_mol_l - end.oh_mol_l
-    return float((end.totals_mol_l * end.mean_charge).sum(-1)[0]
-                 - (here.totals_mol_l * here.mean_charge).sum(-1)[0] + we[0] - w[0])
+    # Strong acid from pH to 4.5: the charge balance at the end point less the
+    # one at the sample (the strong ions cancel; complexes are in both).
+    return float(end.charge_residual_eq_l[0] - here.charge_residual_eq_l[0])
 
 
 def infer_water(measurements: Measurements) -> Water:

@@ -108,7 +108,7 @@ def _henry(gas_system: str, temperature_c: float) -> float:
 def _stepwise(sp: Speciation) -> np.ndarray:
     """(n, m, 3): concentration of each system in forms beyond step i [mol/L]."""
     beyond = np.flip(np.cumsum(np.flip(sp.alpha, -1), -1), -1)[:, :, 1:]
-    return sp.totals_mol_l[:, :, None] * beyond
+    return sp.free[:, :, None] * beyond
 
 
 def reaction_heat_kj_l(before: Speciation, after: Speciation, reagent: Reagent,
@@ -235,7 +235,7 @@ def _toxic_gas_check(sid: str, after: Speciation, t: float) -> Finding | None:
     gas, _, _, idlh = _GASES[sid]
     ph_after = float(after.ph[0])
     j = system_index(sid)
-    total = float(after.totals_mol_l[0, j])
+    total = float(after.free[0, j])          # a complexed ligand does not escape
     if total <= 0.0:
         return None
     form = 1 if sid == "ammonia" else 0
@@ -323,21 +323,32 @@ def _scale_checks(water: Water, after: Speciation) -> tuple[Finding, ...]:
     so4_total = float(after.totals_mol_l[0, system_index("sulfate")])
     if ca_free > 0 and so4_total > 0:
         si = gypsum_si(after, t, water.activity)
-        level = "warning" if si > 0 else "info"
+        formed = _phase_mol_l(after, "gypsum")
+        level = "warning" if si > 0 or formed > 0 else "info"
         checks.append(Finding(
             "gypsum", level,
             "gypsum saturation index after dosing {gypsum_si:+.2f}"
-            + (": calcium sulfate will crystallise as scale and sludge (lime on sulfate "
+            + (": gypsum precipitates to saturation ({gypsum_mmol_l} in the solids below); "
+               "the water leaves saturated and deposits calcium sulfate in the tank and lines"
+               if formed > 0 else
+               ": calcium sulfate will crystallise as scale and sludge (lime on sulfate "
                "water); expect deposits in the tank and lines" if level == "warning"
                else ": under saturation, no gypsum scale expected"),
-            {"gypsum_si": Q(si)}))
+            {"gypsum_si": Q(si), "gypsum_mmol_l": Q(formed * 1000, "mmol/L")}))
     return tuple(checks)
+
+
+def _phase_mol_l(sp: Speciation, phase_id: str) -> float:
+    """Amount of one solid of the coupled equilibrium in the first water [mol/L]."""
+    if phase_id not in sp.phase_ids:
+        return 0.0
+    return float(sp.phase_mol_l[0, sp.phase_ids.index(phase_id)])
 
 
 def _free_calcium_mol_l(sp: Speciation) -> float:
     """Free Ca2+ of the first water of ``sp`` [mol/L]."""
     j = system_index("calcium")
-    return float(sp.totals_mol_l[0, j] * sp.alpha[0, j, 0])
+    return float(sp.free[0, j] * sp.alpha[0, j, 0])
 
 
 def gypsum_si(sp: Speciation, temperature_c: float, activity: ActivityModel) -> float:
@@ -378,7 +389,7 @@ def calcite_si(sp: Speciation, temperature_c, activity: ActivityModel) -> np.nda
     """
     t = np.broadcast_to(np.asarray(temperature_c, dtype=float), sp.ph.shape)
     j = system_index("calcium")
-    ca = sp.totals_mol_l[:, j] * sp.alpha[:, j, 0]
+    ca = sp.free[:, j] * sp.alpha[:, j, 0]
     co3 = sp.concentration(CARBONATE, 2)
     lg = activity.log_gamma_at(2, sp.ionic_strength, t)
     with np.errstate(divide="ignore", invalid="ignore"):

@@ -32,6 +32,7 @@ from ..chem.activity import ActivityModel
 from ..chem import METAL_COLUMNS, N_SYSTEMS, Mixture, Speciation, speciate, system_index
 from .hazards import gypsum_si
 from ..chem.metals import HARDNESS, METALS, METAL_IDS
+from ..chem.phases import PHASES
 from ..chem.species import MOLAR_MASS
 
 __all__ = ["Solid", "Sludge", "CapWindow", "METAL_PERMIT_KEYS", "CAKE_SOLIDS_FRACTION",
@@ -45,6 +46,8 @@ CAKE_SOLIDS_FRACTION = 0.25
 CAKE_DENSITY_KG_L = 1.2
 #: Permit keys on dissolved metals [mg/L as the element].
 METAL_PERMIT_KEYS = tuple(f"{m}_mg_l" for m in METAL_IDS if m not in HARDNESS)
+#: The solid phases by id (CO2 from air is not one: it is no sludge).
+_PHASES = {p.id: p for p in PHASES}
 #: A solid below this is not reported [mol/L] (far below what a balance weighs).
 _SOLID_FLOOR_MOL_L = 1e-9
 
@@ -84,6 +87,8 @@ class CapWindow:
 def solids_after(sp: Speciation, temperature_c: float, activity: ActivityModel
                  ) -> tuple[Solid, ...]:
     """Solids in the first water of ``sp`` (the dosed water) [per L of water]."""
+    if sp.phase_ids:
+        return _phases_of(sp)
     out: list[Solid] = []
     for j, metal in zip(METAL_COLUMNS, METALS):
         mol = float(sp.solids_mol_l[0, j])
@@ -100,6 +105,17 @@ def solids_after(sp: Speciation, temperature_c: float, activity: ActivityModel
     if gyp > _SOLID_FLOOR_MOL_L:
         out.append(Solid("gypsum", "gypsum", "CaSO4·2H2O", gyp * 1000,
                          gyp * MOLAR_MASS["CaSO4·2H2O"] * 1000))
+    return tuple(out)
+
+
+def _phases_of(sp: Speciation) -> tuple[Solid, ...]:
+    """The solids of the coupled core's equilibrium, in catalogue order."""
+    out = []
+    for pid, mol in zip(sp.phase_ids, sp.phase_mol_l[0]):
+        if pid in _PHASES and mol > _SOLID_FLOOR_MOL_L:
+            p = _PHASES[pid]
+            out.append(Solid(p.id, p.name, p.formula, float(mol) * 1000,
+                             float(mol) * p.molar_mass_g_mol * 1000))
     return tuple(out)
 
 
