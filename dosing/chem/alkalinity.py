@@ -87,45 +87,50 @@ def _coupled_carbonate(job: "_AlkalinityJob", c, coef, ionic, ionic_e, passes: i
     good = np.isfinite(c) & (c > 0)
     x, ion_s, ion_e = np.where(good, np.maximum(c, 0.0), 0.0), np.where(good, ionic, job.extra), \
         np.where(np.isfinite(ionic_e), ionic_e, job.extra)
-    prev_x, prev_a = None, None
+    prev_x, prev_a, cores = None, None, (None, None)
     slope = np.where(np.abs(coef) > 1e-12, coef, 1.0)
+    # The inner solves hold each mass balance to 1e-11 of its total: the
+    # alkalinity is resolved to about that of the totals.
+    tol = 1e-15 + 1e-10 * (np.abs(job.alk) + end.totals.sum(axis=1) + x)
     for _ in range(passes):
-        a, ion_s, ion_e = _titration_balance(job, sample, end, car, fe2, x, ion_s, ion_e)
+        a, ion_s, ion_e, cores = _titration_balance(job, sample, end, car, fe2, x, ion_s,
+                                                    ion_e, cores)
         miss = job.alk - a
         if prev_x is not None:
             with np.errstate(divide="ignore", invalid="ignore"):
                 sec = (a - prev_a) / (x - prev_x)
             slope = np.where(np.isfinite(sec) & (np.abs(sec) > 1e-9), sec, slope)
-        done = np.abs(miss) <= 1e-12 + 1e-10 * np.abs(job.alk)
+        done = np.abs(miss) <= tol
         if done.all():
             break
         prev_x, prev_a = x, a
         x = np.where(done, x, x + miss / slope)
-    settled = np.abs(miss) <= 1e-9 + 1e-7 * np.abs(job.alk)
+    settled = np.abs(miss) <= 100 * tol
     return (np.where(good, np.where(settled, x, np.nan), c),
             np.where(good, np.where(settled, ion_s, np.nan), ionic))
 
 
-def _titration_balance(job, sample, end, car, fe2, x, ion_s, ion_e):
-    """(alkalinity the carbonate ``x`` gives [eq/L], the two ionic strengths it implies)."""
+def _titration_balance(job, sample, end, car, fe2, x, ion_s, ion_e, cores):
+    """(alkalinity the carbonate ``x`` gives [eq/L], the two ionic strengths it
+    implies, the two equilibria to start the next trial from)."""
     tot = sample.totals.copy()
     tot[:, car] = x
     v_s = replace(sample, totals=tot)
     ah = 10.0 ** -job.ph
-    b_s = coupled_balance(v_s.tab, v_s, species_at(v_s, ah, ion_s), ah, ion_s)
+    b_s = coupled_balance(v_s.tab, v_s, species_at(v_s, ah, ion_s), ah, ion_s, cores[0])
     tot_e = end.totals.copy()
     tot_e[:, car] = x
     if fe2.size:
         tot_e[:, fe2] = 0.0
     v_e = replace(end, totals=tot_e)
     ae = 10.0 ** -job.ep
-    b_e = coupled_balance(v_e.tab, v_e, species_at(v_e, ae, ion_e), ae, ion_e)
+    b_e = coupled_balance(v_e.tab, v_e, species_at(v_e, ae, ion_e), ae, ion_e, cores[1])
     s = -b_s.residual
     new_s = b_s.ionic + 0.5 * np.abs(s) + job.extra
     new_e = b_e.ionic + 0.5 * np.abs(s) + 0.5 * np.abs(job.alk) + job.extra
     if job.rows.activity.ideal:
         new_s, new_e = ion_s, ion_e
-    return b_e.residual - b_s.residual, new_s, new_e
+    return b_e.residual - b_s.residual, new_s, new_e, (b_s.core, b_e.core)
 
 
 @dataclass(frozen=True)

@@ -16,6 +16,7 @@ import numpy as np
 from ..errors import ModelError
 from .activity import ActivityModel
 from .mixture import Mixture
+from .solve_coupled import ph_coupled
 from .speciation import I_CEILING, Rows, restrict, rows_state
 
 __all__ = ["solve_ph", "strong_balance_at_ph", "settle", "SETTLE_RTOL"]
@@ -40,6 +41,8 @@ def solve_ph(mix: Mixture, *, ph_guess=None, tol_ph: float = 1e-12,
     ionic = mix.strong_ionic_strength.copy()
     ph = np.full(mix.n, 7.0) if ph_guess is None else np.broadcast_to(
         np.asarray(ph_guess, dtype=float), (mix.n,)).copy()
+    if rows.tab is not None:
+        return ph_coupled(rows, ph, ionic, min(tol_ph * 100, 1e-10), max_iter)
     ph, ionic = _newton(rows, ph, ionic, tol_ph, max_iter, not mix.activity.ideal)
     if mix.activity.ideal:
         return ph
