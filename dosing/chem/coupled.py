@@ -51,8 +51,13 @@ from .phases import CALCITE, PHASES, Phase
 from .species import SYSTEMS
 from .water import R_J_MOL_K, calcite_pksp
 
-__all__ = ["Tableau", "tableau_for", "Core", "equilibrate", "ref_forms", "CoupledBalance",
-           "coupled_balance", "CO2_AIR"]
+try:                                    # the compiled per-water loop, if numba is here
+    from . import coupled_kernel as _kernel
+except ImportError:                     # pragma: no cover - numba is a dependency
+    _kernel = None
+
+__all__ = ["Tableau", "tableau_for", "Core", "equilibrate", "equilibrate_reference", "KERNEL",
+           "ref_forms", "CoupledBalance", "coupled_balance", "CO2_AIR"]
 
 #: Forms carried per column (most protonated first).
 _FORMS = 5
@@ -99,6 +104,7 @@ class Tableau:
     phase_ids: tuple[str, ...]
     calcite: int              #: index of calcite among the solids, or -1
     air: int                  #: index of the CO2-from-air phase, or -1
+    sparse: tuple             #: (columns, counts) of the complexes, then of the solids (:func:`sparse`)
 
     @property
     def kc(self) -> int:
@@ -170,7 +176,20 @@ def _assemble(view_cols, coupled, pos, cx, phases) -> Tableau:
         pdh=np.array([p.enthalpy_kj_mol or 0.0 for p in phases]),
         phase_ids=tuple(p.id for p in phases),
         calcite=next((i for i, p in enumerate(phases) if p is CALCITE), -1),
-        air=next((i for i, p in enumerate(phases) if p is CO2_AIR), -1))
+        air=next((i for i, p in enumerate(phases) if p is CO2_AIR), -1),
+        sparse=sparse(nu) + sparse(pnu))
+
+
+def sparse(m: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """(columns, counts) of each row of a stoichiometry matrix, -1 padded:
+    the compiled kernel's form of the complexes and solids."""
+    width = max(1, int((m != 0).sum(axis=1).max(initial=0)))
+    cols = np.full((m.shape[0], width), -1, dtype=np.int64)
+    counts = np.zeros((m.shape[0], width))
+    for r in range(m.shape[0]):
+        nz = np.flatnonzero(m[r])
+        cols[r, :nz.size], counts[r, :nz.size] = nz, m[r, nz]
+    return cols, counts
 
 
 @dataclass
@@ -220,7 +239,41 @@ def equilibrate(tab: Tableau, totals: np.ndarray, lk: np.ndarray, lp: np.ndarray
     ionic strength. ``core`` starts the iteration (a previous answer); by
     default it starts uncomplexed, with no solid. ``held`` (n, np) marks
     solids that are always present whatever their amount (CO2 from air).
+
+    The waters run one by one in compiled code (:mod:`.coupled_kernel`)
+    where numba is installed, else through :func:`equilibrate_reference`;
+    the two solve the same equations to the same tolerances (tested).
     """
+    if _kernel is None or not KERNEL.on:
+        return equilibrate_reference(tab, totals, lk, lp, core, max_iter=max_iter, held=held)
+    n, npx = totals.shape[0], tab.pnu.shape[0]
+    held = np.zeros((n, npx), dtype=bool) if held is None else np.ascontiguousarray(held)
+    if core is None:
+        y, x = np.zeros((n, tab.kc)), np.zeros((n, npx))
+        active = held.copy()
+    else:
+        y, x, active = core.y.copy(), core.x.copy(), core.active | held
+    c = np.zeros((n, tab.nu.shape[0]))
+    steps = _kernel.solve_rows(*tab.sparse, np.ascontiguousarray(totals),
+                               np.ascontiguousarray(lk), np.ascontiguousarray(lp), held,
+                               y, x, active, c, core is None, max_iter)
+    return Core(y, x, active, c, int(steps.max(initial=0)))
+
+
+class _Switch:
+    """Whether :func:`equilibrate` uses the compiled kernel (tests turn it off
+    to run the reference)."""
+
+    on: bool = True
+
+
+KERNEL = _Switch()
+
+
+def equilibrate_reference(tab: Tableau, totals: np.ndarray, lk: np.ndarray, lp: np.ndarray,
+                          core: Core | None = None, *, max_iter: int = 80,
+                          held: np.ndarray | None = None) -> Core:
+    """:func:`equilibrate` in numpy, every water at once: the reference."""
     n = totals.shape[0]
     live = totals > 0
     npx = tab.pnu.shape[0]

@@ -67,7 +67,8 @@ def dose_to_ph(mix: Mixture, reagent: ReagentVector, target_ph,
         dose[redo], den[redo], sol[redo] = again.dose, again.slope, again.solubility
     if rows.tab is not None:
         # Complexes or coupled solids: the direct dose is the first trial.
-        return dose_coupled(rows, n_full[rows.cols], reagent, 10.0 ** -tp, dose, den)
+        return dose_coupled(rows, n_full[rows.cols], reagent, 10.0 ** -tp, dose, den,
+                            s.ionic)
     return dose, den
 
 

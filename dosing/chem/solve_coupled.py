@@ -32,7 +32,7 @@ from ..errors import ModelError
 from .coupled import Core, coupled_balance
 from .speciation import Rows, balance, species_at
 
-__all__ = ["ph_coupled"]
+__all__ = ["ph_coupled", "FixedPointSecant"]
 
 _LO, _HI = -1.5, 15.5
 #: Largest Newton step before the root is bracketed [pH units].
@@ -133,7 +133,7 @@ def ph_coupled(rows: Rows, ph0: np.ndarray, ionic0: np.ndarray, tol_ph: float = 
         ionic = new_i
     beta = balance(replace(rows, tab=None), species_at(rows, 10.0 ** -x, ionic)).beta
     search = _Search.start(n, -np.maximum(beta, 1e-300))
-    fixed = _FixedPoint.start(n)
+    fixed = FixedPointSecant.start(n)
     nxt = x.copy()
     live = np.arange(n)
     for _ in range(max_iter):
@@ -166,14 +166,14 @@ def ph_coupled(rows: Rows, ph0: np.ndarray, ionic0: np.ndarray, tol_ph: float = 
 
 
 @dataclass
-class _FixedPoint:
+class FixedPointSecant:
     """Secant acceleration of the ionic strength's fixed point I = g(I)."""
 
     i_in: np.ndarray
     i_out: np.ndarray
 
     @classmethod
-    def start(cls, n: int) -> "_FixedPoint":
+    def start(cls, n: int) -> "FixedPointSecant":
         return cls(np.full(n, np.nan), np.full(n, np.nan))
 
     def next(self, w, used: np.ndarray, implied: np.ndarray) -> np.ndarray:
