@@ -5,7 +5,8 @@ fails on the engine as it stands; ``strict=True`` makes it an error once the
 engine gets it right, so the mark is removed in the same change (as ``pint``
 keeps its known bugs as xfail, never deleted). The first four gaps (ammonia
 complexes, gypsum inside the equilibrium, the CaSO4° pair, siderite) were
-closed by the speciation core (dosing.chem.coupled).
+closed by the speciation core (dosing.chem.coupled); the fifth (activity
+past the Davies range) by the specific ion interaction model.
 """
 
 from __future__ import annotations
@@ -16,8 +17,6 @@ import pytest
 
 from dosing import Batch, Measurements, Target, get_reagent, infer_water, plan_dose
 from dosing.chem.activity import DAVIES
-
-DAVIES_ONLY = "activity stops at the Davies equation (no specific ion interaction yet)"
 
 
 def test_copper_held_by_ammonia_at_ph_9():
@@ -73,10 +72,14 @@ def test_ferrous_iron_with_carbonate_forms_siderite():
     assert any("FeCO3" in s.formula for s in plan.solids)
 
 
-@pytest.mark.xfail(strict=True, reason=DAVIES_ONLY)
 def test_sodium_chloride_activity_at_three_molal():
     # Mean activity coefficient of NaCl at 3 mol/kg, 25 °C: 0.714 (Robinson &
     # Stokes 1959, appendix 8.10; read-quality in many textbooks, here from
-    # memory). Davies gives about 1.37 there, twice too high.
-    g = 10 ** float(DAVIES.log_gamma_at(1, 3.0, 25.0))
-    assert g == pytest.approx(0.714, rel=0.05)
+    # memory). Davies gives about 1.37 there, twice too high; the specific
+    # ion interaction model (closed this gap) gives 0.70.
+    from dosing.chem import sit
+    from dosing.chem.activity import SIT, kg_water_per_l
+    assert 10 ** float(DAVIES.log_gamma_at(1, 3.0, 25.0)) > 1.3
+    c = 3.0 / (1 + 0.019 * 3.0)                  # mol/L by the model's conversion
+    y = 10 ** float(SIT.log_gamma_ion(1, sit.EPS_NA_CL, SIT.state(c, 0.5108)))
+    assert y * float(kg_water_per_l(c)) == pytest.approx(0.714, rel=0.05)

@@ -21,7 +21,7 @@ from textual.reactive import reactive
 from textual.widgets import (Footer, Header, Label, Select, Static, TabbedContent,
                              TabPane)
 
-from dosing.chem.activity import DEFAULT_MODEL
+from dosing.chem.activity import DEFAULT_CHOICE
 from dosing.errors import DosingError, ScenarioError
 from dosing.io.files import write_atomic
 from dosing.planning.basis import Flow
@@ -56,7 +56,7 @@ DEFAULT_DATA: dict[str, Any] = {
     "batch": {"volume_m3": 20.0},
     "target": {"ph_min": 6.0, "ph_max": 9.0, "ph_aim": 7.5},
     "reagent": {"id": "caustic-50"},
-    "model": {"activity": DEFAULT_MODEL.name, "open_to_air": False},
+    "model": {"activity": DEFAULT_CHOICE, "open_to_air": False},
 }
 
 CAUTION = ("Reagents are corrosive and mixing is hot. " + GENERAL_CAUTION)

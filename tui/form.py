@@ -17,7 +17,7 @@ from textual.containers import Horizontal, VerticalScroll
 from textual.message import Message
 from textual.widgets import Input, Label, Select, Static, Switch
 
-from dosing.chem.activity import DEFAULT_MODEL, MODELS
+from dosing.chem.activity import AUTO, DEFAULT_CHOICE, MODELS
 from dosing.planning.reagents import CATALOGUE, COMPOUNDS
 from dosing.report.units import KG_PER_LB, L_PER_US_GAL, UnitSystem
 
@@ -157,7 +157,8 @@ class ScenarioForm(VerticalScroll):
         yield Static("Model", classes="section")
         with Horizontal(classes="row"):
             yield Label("activity", classes="label")
-            yield Select([(m.label, m.name) for m in MODELS.values()], value=DEFAULT_MODEL.name,
+            yield Select([("auto (Davies; SIT past 0.5 mol/L)", AUTO)]
+                         + [(m.label, m.name) for m in MODELS.values()], value=DEFAULT_CHOICE,
                          allow_blank=False, id="f-model--activity", classes="value", compact=True)
         with Horizontal(classes="row"):
             yield Label("open to air", classes="label")
@@ -201,7 +202,7 @@ class ScenarioForm(VerticalScroll):
         if r.get("compound") in COMPOUNDS:
             self.query_one("#f-reagent--compound", Select).value = r["compound"]
         m = data.get("model", {})
-        self.query_one("#f-model--activity", Select).value = m.get("activity", DEFAULT_MODEL.name)
+        self.query_one("#f-model--activity", Select).value = m.get("activity", DEFAULT_CHOICE)
         self.query_one("#f-model--open-to-air", Switch).value = bool(
             m.get("open_to_air", False))
         self._show_custom(rid not in CATALOGUE)
@@ -283,7 +284,7 @@ class ScenarioForm(VerticalScroll):
         m = data["model"]
         base_model = self._base.get("model", {})
         for key, value, default in (
-                ("activity", self.query_one("#f-model--activity", Select).value, DEFAULT_MODEL.name),
+                ("activity", self.query_one("#f-model--activity", Select).value, DEFAULT_CHOICE),
                 ("open_to_air", self.query_one("#f-model--open-to-air", Switch).value, False)):
             if value == default and key not in base_model:
                 m.pop(key, None)

@@ -126,8 +126,10 @@ def _titration_balance(job, sample, end, car, fe2, x, ion_s, ion_e, cores):
     ae = 10.0 ** -job.ep
     b_e = coupled_balance(v_e.tab, v_e, species_at(v_e, ae, ion_e), ae, ion_e, cores[1])
     s = -b_s.residual
-    new_s = b_s.ionic + 0.5 * np.abs(s) + job.extra
-    new_e = b_e.ionic + 0.5 * np.abs(s) + 0.5 * np.abs(job.alk) + job.extra
+    # The views' own strong ions (the medium of a species-wise model) are the
+    # known ones, counted in ``job.extra`` below.
+    new_s = b_s.ionic - v_s.strong_i + 0.5 * np.abs(s) + job.extra
+    new_e = b_e.ionic - v_e.strong_i + 0.5 * np.abs(s) + 0.5 * np.abs(job.alk) + job.extra
     if job.rows.activity.ideal:
         new_s, new_e = ion_s, ion_e
     return b_e.residual - b_s.residual, new_s, new_e, (b_s.core, b_e.core)
@@ -155,7 +157,9 @@ class _AlkalinityJob:
                               (ph.shape[0], N_SYSTEMS)).copy()
         tot[:, CARBONATE] = 0.0
         t = np.broadcast_to(np.asarray(temperature_c, dtype=float), ph.shape)
-        bare = Mixture.build(tot, 0.0, 0.0, t, np.nan, activity, unknown_pka)
+        # A species-wise model (SIT) takes the known strong ions as the medium.
+        medium = 0.0 if activity.charge_only else extra_ionic_strength
+        bare = Mixture.build(tot, 0.0, medium, t, np.nan, activity, unknown_pka)
         rows = restrict(bare, extra_cols=[CARBONATE])
         return cls(rows, ph, np.broadcast_to(np.asarray(endpoint_ph, float), ph.shape),
                    np.broadcast_to(np.asarray(alk_eq_l, dtype=float), ph.shape),

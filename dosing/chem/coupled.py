@@ -44,6 +44,7 @@ from typing import NamedTuple
 
 import numpy as np
 
+from . import sit
 from .columns import COLUMN_IDS, LN10, N_ACIDS, Z
 from .complexes import COMPLEXES
 from .metals import METALS
@@ -105,6 +106,7 @@ class Tableau:
     calcite: int              #: index of calcite among the solids, or -1
     air: int                  #: index of the CO2-from-air phase, or -1
     sparse: tuple             #: (columns, counts) of the complexes, then of the solids (:func:`sparse`)
+    eps: np.ndarray           #: (ns,) interaction coefficient of each complex (SIT; by charge)
 
     @property
     def kc(self) -> int:
@@ -177,7 +179,8 @@ def _assemble(view_cols, coupled, pos, cx, phases) -> Tableau:
         phase_ids=tuple(p.id for p in phases),
         calcite=next((i for i, p in enumerate(phases) if p is CALCITE), -1),
         air=next((i for i, p in enumerate(phases) if p is CO2_AIR), -1),
-        sparse=sparse(nu) + sparse(pnu))
+        sparse=sparse(nu) + sparse(pnu),
+        eps=np.array([sit.estimate(int(round(z))) for z in nu @ zref + h]))
 
 
 def sparse(m: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -379,16 +382,25 @@ class CoupledBalance(NamedTuple):
 def _log_terms(tab: Tableau, view, sp, ah, ionic):
     """L_s (n, ns) and L_p (n, np) in natural logs at this pH and ionic strength,
     and the mask of solids held whatever their amount (CO2 from air)."""
-    f = view.activity.charge_term(np.minimum(ionic, 20.0), view.a)
-    t = np.zeros(ah.shape) if f is None else f
     lah = np.log10(ah)
     aref = sp.alpha[:, tab.cols, tab.ref]
     ln_a = np.log(np.maximum(aref, 1e-300))
     lk10, lp10 = view.core_log_k
-    lk = LN10 * (lk10 + tab.h * lah[:, None]
-                 + t[:, None] * (tab.z * tab.z - tab.nu @ tab.zref2)) + ln_a @ tab.nu.T
-    lp = LN10 * (tab.ph * lah[:, None] - t[:, None] * (tab.pnu @ tab.zref2) - lp10) \
-        + ln_a @ tab.pnu.T
+    if sp.act is None:
+        # Charge-only: log γ_z = -z² t, so a complex gains t (z_s² - Σ n zref²).
+        f = view.activity.charge_term(np.minimum(ionic, 20.0), view.a)
+        t = np.zeros(ah.shape) if f is None else f
+        g_cx = t[:, None] * (tab.z * tab.z - tab.nu @ tab.zref2)
+        g_p = -t[:, None] * (tab.pnu @ tab.zref2)
+    else:
+        st = sp.act.state
+        lg_ref = sp.act.lg[:, tab.cols, tab.ref]
+        lg_cx = view.activity.log_gamma_ion(tab.z[None], tab.eps[None],
+                                            type(st)(*(x[:, None] for x in st)))
+        g_cx = lg_ref @ tab.nu.T - lg_cx
+        g_p = lg_ref @ tab.pnu.T
+    lk = LN10 * (lk10 + tab.h * lah[:, None] + g_cx) + ln_a @ tab.nu.T
+    lp = LN10 * (tab.ph * lah[:, None] + g_p - lp10) + ln_a @ tab.pnu.T
     held = np.zeros(lp.shape, dtype=bool)
     if tab.air >= 0:
         opened = np.isfinite(view.co2)

@@ -65,8 +65,9 @@ def dose_to_ph(mix: Mixture, reagent: ReagentVector, target_ph,
         capped[redo] = now[redo]
         again = job.take(redo).solve(capped[redo], max_iter)
         dose[redo], den[redo], sol[redo] = again.dose, again.slope, again.solubility
-    if rows.tab is not None:
-        # Complexes or coupled solids: the direct dose is the first trial.
+    if rows.tab is not None or not mix.activity.charge_only:
+        # Complexes or coupled solids, or a species-wise activity model: the
+        # direct dose is the first trial.
         return dose_coupled(rows, n_full[rows.cols], reagent, 10.0 ** -tp, dose, den,
                             s.ionic)
     return dose, den

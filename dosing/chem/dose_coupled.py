@@ -1,4 +1,4 @@
-"""The dose to a target pH for waters whose components couple.
+"""The dose to a target pH for waters whose components couple, or whose activity model is species-wise.
 
 Where complexes, ion pairs or coupled solids are in play (:mod:`.coupled`),
 the charge balance of the dosed water is no longer linear in the dose: the
@@ -17,6 +17,11 @@ balance times the dilution factor is linear in the dose with the coupled
 part held, as in the direct solve, and each pass solves it exactly
 (:func:`_dose_direct`); passes repeat only for the dilution and the ionic
 strength, whose fixed point is stepped by a secant.
+
+Under a species-wise activity model (SIT) every ion's γ depends on the
+whole water, the dose's own ions included, so the direct solve's
+constants taken at the undosed water's medium do not hold: such waters
+take the secant too, each trial a dosed water.
 """
 
 from __future__ import annotations
@@ -28,7 +33,7 @@ import numpy as np
 from .coupled import Core, coupled_balance
 from .mixture import ReagentVector
 from .solve_coupled import FixedPointSecant
-from .speciation import Rows, species_at
+from .speciation import Rows, balance, species_at
 
 __all__ = ["dose_coupled"]
 
@@ -60,7 +65,11 @@ def _dosed(rows: Rows, n_r: np.ndarray, reagent: ReagentVector, d: np.ndarray) -
 def _residual(rows, n_r, reagent, ah, d, ionic, core):
     """(charge residual [eq/L], ionic strength [mol/L], core) of the dosed waters."""
     view = _dosed(rows, n_r, reagent, d)
-    b = coupled_balance(view.tab, view, species_at(view, ah, ionic), ah, ionic, core)
+    sp = species_at(view, ah, ionic)
+    if view.tab is None:                    # nothing couples: a species-wise model only
+        b = balance(view, sp)
+        return b.residual, b.ionic, None
+    b = coupled_balance(view.tab, view, sp, ah, ionic, core)
     return b.residual, b.ionic, b.core
 
 
@@ -71,7 +80,7 @@ def dose_coupled(rows: Rows, n_r: np.ndarray, reagent: ReagentVector, ah: np.nda
     activity ``ah``; ``first``, ``slope0`` and ``ionic0`` are the direct
     solve's dose, slope and ionic strength of the dosed water (None: ideal),
     the start. NaN where a water does not settle."""
-    if not np.any(n_r[rows.tab.cols]):
+    if rows.tab is not None and not np.any(n_r[rows.tab.cols]):
         start = rows.strong_i if ionic0 is None else np.where(np.isfinite(ionic0), ionic0,
                                                                rows.strong_i)
         return _dose_direct(rows, n_r, reagent, ah, first, start)
@@ -112,8 +121,10 @@ def dose_coupled(rows: Rows, n_r: np.ndarray, reagent: ReagentVector, ah: np.nda
     return dose, out_slope
 
 
-def _merge(core: Core, part: Core, idx, n: int) -> Core:
-    """``core`` with the rows ``idx`` replaced by ``part``."""
+def _merge(core: Core | None, part: Core | None, idx, n: int) -> Core | None:
+    """``core`` with the rows ``idx`` replaced by ``part`` (None: nothing couples)."""
+    if core is None or part is None:
+        return core
     y, x, a, c = core.y.copy(), core.x.copy(), core.active.copy(), core.c.copy()
     y[idx], x[idx], a[idx], c[idx] = part.y, part.x, part.active, part.c
     return Core(y, x, a, c, max(core.iterations, part.iterations))

@@ -154,10 +154,20 @@ def strong_balance_at_ph(totals_mol_l, ph, temperature_c, *, activity: ActivityM
     bare = replace(mix, strong_eq_l=np.zeros(mix.n), strong_ionic_strength=np.zeros(mix.n),
                    calcite=calcite)
     rows = restrict(bare, cap=solids)
+    # A species-wise model (SIT) needs the strong ions in the water's medium:
+    # the view carries the balance found at the last step (the residual is
+    # linear in it, so the new balance is the old one minus the residual).
+    wise = not activity.charge_only
+    last = np.zeros(ph.shape)
 
     def at(ionic):
-        resid, _, i_weak = rows_state(rows, ph, ionic)
-        s = -resid
+        view = replace(rows, strong=last, strong_i=extra + 0.5 * np.abs(last - known)) \
+            if wise else rows
+        resid, _, i_weak = rows_state(view, ph, ionic)
+        s = view.strong - resid
+        if wise:
+            last[:] = np.where(np.isfinite(s), s, 0.0)
+            i_weak = i_weak - view.strong_i
         return s, i_weak + extra + 0.5 * np.abs(s - known)
 
     # A guess near the answer (a replay's rows are close to the scenario's

@@ -52,15 +52,17 @@ import numpy as np
 
 from .activity import ActivityModel
 from .coupled import Tableau, coupled_balance, tableau_for
-from .columns import CALCIUM, CARBONATE, LN10, MAXSTEP, METAL_COLUMNS, N_SYSTEMS, SOLID_Z, Z
+from .columns import (CALCIUM, CARBONATE, LN10, MAXSTEP, METAL_COLUMNS, N_SYSTEMS,
+                      SOLID_Z, Z)
+from .fractions import fractions
+from .medium import I_CEILING, ActivityAt, eps_forms, per_water, species_wise
 from .mixture import Mixture
 from .water import calcite_pksp
 
 __all__ = ["Speciation", "speciate", "charge_residual", "Rows", "restrict", "SpeciesAt",
-           "species_at", "capped_mask", "Balance", "balance", "rows_state", "I_CEILING"]
+           "ActivityAt", "species_at", "capped_mask", "Balance", "balance", "rows_state",
+           "I_CEILING", "eps_forms"]
 
-#: Ionic strength above which a trial is capped, and a fixed point abandoned [mol/L].
-I_CEILING = 20.0
 
 
 @dataclass(frozen=True)
@@ -83,6 +85,12 @@ class Speciation:
     phase_mol_l: np.ndarray | None = None   #: (n, np) amount of each [mol/L]
     complex_ids: tuple[str, ...] = ()       #: complexes and ion pairs, in order
     complex_mol_l: np.ndarray | None = None  #: (n, ns) [mol/L]
+    log_gamma: np.ndarray | None = None     #: (n, m, 5) log10 γ of each form (mol/L scale)
+    log_gamma_h: np.ndarray | None = None   #: (n,) log10 γ of H+
+
+    def activity_of(self, system: int, form: int) -> np.ndarray:
+        """(n,) activity of one form of one system (uncomplexed) [-]."""
+        return self.concentration(system, form) * 10.0 ** self.log_gamma[:, system, form]
 
     @property
     def free(self) -> np.ndarray:
@@ -92,24 +100,6 @@ class Speciation:
     def concentration(self, system: int, form: int) -> np.ndarray:
         """(n,) concentration of one form of one system [mol/L] (uncomplexed)."""
         return self.free[:, system] * self.alpha[:, system, form]
-
-
-def _alpha(ah, kp):
-    """Fractions (n, m, s+1) from a_H (n,) and mixed constants as planes
-    (s, n, m), one per step (or (s, 1, m): the same constants for every water).
-
-    Built form by form in contiguous (n, m) planes (a stride-4 last axis is
-    slow in numpy); the result is a view with the form as its last axis.
-    """
-    steps = kp.shape[0]
-    inv = (1.0 / ah)[:, None]
-    planes = np.empty((steps + 1, ah.size, kp.shape[2]))
-    planes[0] = 1.0
-    for i in range(steps):
-        np.multiply(planes[i], kp[i], out=planes[i + 1])
-        planes[i + 1] *= inv
-    planes /= planes.sum(axis=0)
-    return np.moveaxis(planes, 0, -1)
 
 
 def _state(r: "Rows", ph, ionic_strength) -> tuple[SpeciesAt, Balance]:
@@ -154,8 +144,9 @@ def speciate(mix: Mixture, ph, *, max_iter: int = 60, solids: bool = True) -> Sp
         mix.totals_mol_l[:, METAL_COLUMNS] - full_totals[:, METAL_COLUMNS], 0.0)
     # Calcium in calcite is not lime left undissolved.
     precipitated[:, CALCIUM] = np.maximum(precipitated[:, CALCIUM] - calcite, 0.0)
+    lg, lg_h = _full_log_gamma(r, sp, ionic, mix.n)
     return Speciation(ph, h, oh, full_alpha, full_q, full_totals, ionic, resid, beta,
-                      precipitated, calcite)
+                      precipitated, calcite, log_gamma=lg, log_gamma_h=lg_h)
 
 
 def _speciate_coupled(mix: Mixture, r: Rows, ph, max_iter: int) -> Speciation:
@@ -184,8 +175,23 @@ def _speciate_coupled(mix: Mixture, r: Rows, ph, max_iter: int) -> Speciation:
         x[:, tab.air] = 0.0                 # carbonate exchanged with air is not a solid
     solid[:, r.cols[tab.cols]] = x @ tab.pnu
     calcite = x[:, tab.calcite] if tab.calcite >= 0 else np.zeros(n)
+    lg, lg_h = _full_log_gamma(r, sp, ionic, n)
     return Speciation(ph, sp.h, sp.oh, alpha, q, dissolved, ionic, b.residual, beta, solid,
-                      calcite, free, tab.phase_ids, x, tab.ids, b.core.c)
+                      calcite, free, tab.phase_ids, x, tab.ids, b.core.c, lg, lg_h)
+
+
+def _full_log_gamma(r: "Rows", sp: "SpeciesAt", ionic, n: int):
+    """(n, m, 5) log10 γ of every form of every column, and (n,) of H+, at
+    the speciation's ionic strength (columns outside the view by charge)."""
+    if sp.act is not None:
+        st = sp.act.state
+        full = r.activity.log_gamma_ion(Z[None], eps_forms(tuple(range(N_SYSTEMS)))[None],
+                                        per_water(st, 2))
+        full[:, r.cols] = sp.act.lg
+        return full, sp.act.lg_h
+    f = r.activity.charge_term(np.minimum(ionic, I_CEILING), r.a)
+    t = np.zeros(n) if f is None else np.broadcast_to(f, (n,))
+    return -(Z * Z)[None] * t[:, None, None], -t
 
 
 def charge_residual(mix: Mixture, ph) -> np.ndarray:
@@ -269,6 +275,7 @@ class SpeciesAt(NamedTuple):
     oh: np.ndarray                    #: (n,) [OH-] [mol/L]
     solubility: np.ndarray | None     #: (n, mc) dissolved total a solid allows, or None
     calcite_product: np.ndarray | None  #: (n,) largest Ca x CO3 totals product, or None
+    act: "ActivityAt | None" = None   #: log γ of every form (a species-wise model only)
 
 
 def species_at(r: Rows, ah, ionic, *, m2: bool = True) -> SpeciesAt:
@@ -284,6 +291,8 @@ def species_at(r: Rows, ah, ionic, *, m2: bool = True) -> SpeciesAt:
     Ksp / (gamma_Ca gamma_CO3 alpha_Ca alpha_CO3); for a water open to air
     (carbonate held) it enters calcium's solubility instead.
     """
+    if not r.activity.charge_only:
+        return _species_at_wise(r, ah, ionic, m2)
     z2 = r.z * r.z
     if not r.activity.ideal:
         # Trial pH values far from the root can imply absurd ionic strengths;
@@ -301,7 +310,7 @@ def species_at(r: Rows, ah, ionic, *, m2: bool = True) -> SpeciesAt:
         # One row of constants viewed n times (one temperature) stays one row.
         k = r.k[:1] if r.k.shape[0] and r.k.strides[0] == 0 else r.k
         kp = np.ascontiguousarray(np.moveaxis(k, -1, 0))
-    alpha = _alpha(ah, kp)
+    alpha = fractions(ah, kp)
     q = np.einsum("nmk,mk->nm", alpha, r.z)
     m2 = np.einsum("nmk,mk->nm", alpha, z2) if m2 else None
     sol = None
@@ -324,6 +333,32 @@ def species_at(r: Rows, ah, ionic, *, m2: bool = True) -> SpeciesAt:
             sol = sol.copy()
             sol[opened, r.ca] = np.minimum(sol[opened, r.ca], kcal[opened] / held)
     return SpeciesAt(alpha, q, m2, ah / g1, r.kw / (ah * g1), sol, kcal)
+
+
+def _species_at_wise(r: Rows, ah, ionic, want_m2: bool) -> SpeciesAt:
+    """:func:`species_at` for a species-wise model: each form's γ its own."""
+    alpha, act = species_wise(r, ah, ionic)
+    lg = act.lg
+    q = np.einsum("nmk,mk->nm", alpha, r.z)
+    m2 = np.einsum("nmk,mk->nm", alpha, r.z * r.z) if want_m2 else None
+    sol = None
+    if r.has_solids:
+        log_free = r.log_ks0 + r.zs[None, :] * np.log10(ah)[:, None] - lg[:, :, 0]
+        with np.errstate(divide="ignore", over="ignore"):
+            sol = 10.0 ** np.minimum(log_free, 300.0) / alpha[:, :, 0]
+    kcal = None
+    if r.ca >= 0:
+        log_g = lg[:, r.ca, 0] + lg[:, r.carb, 2]
+        with np.errstate(divide="ignore", over="ignore"):
+            kcal = 10.0 ** np.minimum(r.log_kc - log_g, 300.0) / (
+                alpha[:, r.ca, 0] * alpha[:, r.carb, 2])
+        opened = np.isfinite(r.co2)
+        if opened.any():
+            held = r.co2[opened] / alpha[opened, r.carb, 0]
+            sol = sol.copy()
+            sol[opened, r.ca] = np.minimum(sol[opened, r.ca], kcal[opened] / held)
+    return SpeciesAt(alpha, q, m2, ah / 10.0 ** act.lg_h, r.kw / (ah * 10.0 ** act.lg_oh),
+                     sol, kcal, act)
 
 
 def capped_mask(r: Rows, sol, totals) -> np.ndarray | None:
@@ -354,7 +389,7 @@ def balance(r: Rows, sp: SpeciesAt) -> Balance:
     Calcite in a closed water removes calcium and carbonate together (see
     :func:`calcite_in_closed`).
     """
-    alpha, q, m2, h, oh, sol, kcal = sp
+    alpha, q, m2, h, oh, sol, kcal = sp[:7]
     var = m2 - q * q
     totals = r.totals
     opened = np.isfinite(r.co2)

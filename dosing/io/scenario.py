@@ -20,7 +20,7 @@ import tomllib
 from pathlib import Path
 from typing import Any, Mapping
 
-from ..chem.activity import DEFAULT_MODEL
+from ..chem.activity import DEFAULT_CHOICE
 from ..planning.effluent import infer_water
 from ..planning.job import Scenario, scenario_key
 from ..planning.measurements import (ACIDITY_ENDPOINT_PH, ALKALINITY_ENDPOINT_PH,
@@ -195,7 +195,7 @@ def measurements_of(data: Mapping[str, Any]) -> Measurements:
         alkalinity_mg_l_as_caco3=eff.get("alkalinity_mg_l_as_caco3"),
         acidity_mg_l_as_caco3=eff.get("acidity_mg_l_as_caco3"),
         solutes_mmol_l=eff.get("solutes_mmol_l"), solutes_mg_l=eff.get("solutes_mg_l"),
-        activity=model.get("activity", DEFAULT_MODEL.name),
+        activity=model.get("activity", DEFAULT_CHOICE),
         open_to_air=model.get("open_to_air", False),
         pco2_uatm=model.get("pco2_uatm", DEFAULT_PCO2_UATM),
         hours_in_air=model.get("hours_in_air", 0.0),

@@ -39,7 +39,7 @@ import numpy as np
 
 from ..chem import (CARBONATE, METAL_COLUMNS, Mixture, carbonate_for_alkalinity,
                     co2_in_air_mol_l, speciate, strong_balance_at_ph, system_index)
-from ..chem.activity import ActivityModel
+from ..chem.activity import DAVIES_I_LIMIT, SIT, ActivityModel, kg_water_per_l
 from ..chem.metals import METAL_IDS
 from ..errors import InputError, ModelError
 from .findings import Finding, Q, note
@@ -47,9 +47,15 @@ from .measurements import (ALKALINITY_ENDPOINT_PH, CACO3_MG_PER_MEQ, DEFAULT_DEP
                            LAB_PRECISION, LOW_READING_MG_L, Checked, LabValue, Measurements,
                            check, totals_vector)
 
-__all__ = ["Water", "infer_water", "aerate", "air_exchange_fraction", "FULL_EXCHANGE",
+__all__ = ["Water", "infer_water", "with_sit", "aerate", "air_exchange_fraction", "FULL_EXCHANGE",
            "STILL_WATER_KL_M_H", "MAX_CARBONATE_MOL_L", "MAX_AIR_CARBONATE_MOL_L",
            "MAX_IONIC_STRENGTH"]
+
+#: Molal ionic strength up to which the specific ion interaction model is
+#: checked in sulfate media (the Pitzer model of Clegg, Rard & Pitzer 1994
+#: via pytzer: sulfuric acid's mean activity coefficient within 8 % to 1
+#: mol/kg, 18 % at 2, 29 % at 3; tests/test_activity_sit.py) [mol/kg].
+SIT_SULFATE_MOL_KG = 1.0
 
 #: Largest inorganic carbon a water may be inferred to hold [mol/L]: a
 #: saturated sodium carbonate/bicarbonate brine holds about 2 mol/L (CRC
@@ -359,12 +365,7 @@ def _solved_water(job: Checked, m: Measurements) -> Water:
     start = Mixture.build(job.vec, s, strong_i, job.temperature_c, math.nan, job.activity,
                           job.unknown_pka)
     alk_model = _alkalinity_of(start, job.ph)
-    if ionic > job.activity.limit_mol_l:
-        notes.append(note("activity-range", "ionic strength {ionic:.2fnum} mol/L is above the "
-                          "range where the {model} equation is trusted (about "
-                          "{limit:gnum} mol/L); confirm the dose with a bench titration",
-                          "warning", {"model": job.activity.label},
-                          ionic=Q(ionic, "mol/L"), limit=Q(job.activity.limit_mol_l, "mol/L")))
+    notes.extend(_activity_notes(job, ionic))
     return Water(ph=job.ph, temperature_c=job.temperature_c, totals_mol_l=totals,
                  strong_eq_l=s, strong_ionic_strength=strong_i, ionic_strength=ionic,
                  activity=job.activity, open_to_air=bool(m.open_to_air),
@@ -426,6 +427,52 @@ def infer_water(measurements: Measurements) -> Water:
     >>> round(w.carbonate_mol_l * 1000, 3)
     2.029
     """
-    return _solved_water(check(measurements), measurements)
+    job = check(measurements)
+    water = _solved_water(job, measurements)
+    if job.auto and water.ionic_strength > DAVIES_I_LIMIT:
+        water = with_sit(measurements, water.ionic_strength)
+    return water
+
+
+def with_sit(measurements: Measurements, ionic_mol_l: float) -> Water:
+    """The water inferred with the specific ion interaction model, with a
+    note saying why ("auto" found an ionic strength past the Davies range)."""
+    water = _solved_water(replace(check(measurements), activity=SIT), measurements)
+    why = note("activity-model", "ionic strength {ionic:.2fnum} mol/L is past the range of "
+               "the Davies equation (about {limit:gnum} mol/L): activities come from the "
+               "specific ion interaction model (SIT)", "info",
+               ionic=Q(ionic_mol_l, "mol/L"), limit=Q(DAVIES_I_LIMIT, "mol/L"))
+    return replace(water, notes=(why,) + water.notes)
+
+
+def _activity_notes(job: Checked, ionic: float) -> list[Finding]:
+    """What the activity model says of this water; a water past what it
+    covers is refused (SIT) or warned about (Davies, ideal)."""
+    model = job.activity
+    if model is SIT:
+        molal = ionic / float(kg_water_per_l(ionic))
+        if molal > model.limit_mol_l:
+            raise InputError("activity", f"the water's ionic strength, {molal:.2g} mol/kg, "
+                             "is beyond what the specific ion interaction coefficients "
+                             f"cover ({model.limit_mol_l:g} mol/kg): no activity model "
+                             "here gives a trustworthy dose; plan from a bench titration "
+                             "of a sample")
+        sulfate = job.vec[system_index("sulfate")]
+        if molal > SIT_SULFATE_MOL_KG and 2.0 * sulfate > 0.5 * ionic:
+            return [note("activity-sulfate", "a sulfate-rich water at {ionic:.2fnum} mol/L: "
+                         "the specific ion interaction model is checked to about "
+                         "{within:gnum} mol/kg in sulfate media (against the Pitzer model "
+                         "of Clegg, Rard & Pitzer 1994), and the activities here may be "
+                         "off by 20-30 %: confirm the dose with a bench titration",
+                         "warning", ionic=Q(ionic, "mol/L"),
+                         within=Q(SIT_SULFATE_MOL_KG, "mol/kg"))]
+        return []
+    if ionic > model.limit_mol_l:
+        return [note("activity-range", "ionic strength {ionic:.2fnum} mol/L is above the "
+                     "range where the {model} equation is trusted (about {limit:gnum} "
+                     "mol/L); confirm the dose with a bench titration", "warning",
+                     {"model": model.label}, ionic=Q(ionic, "mol/L"),
+                     limit=Q(model.limit_mol_l, "mol/L"))]
+    return []
 
 

@@ -18,9 +18,10 @@ import math
 from dataclasses import dataclass, field, replace
 from typing import Any, Mapping
 
+from ..chem.activity import AUTO, DAVIES, DAVIES_I_LIMIT, SIT, kg_water_per_l
 from ..errors import InputError, ModelError, ScenarioError, UnreachableError
 from .control import control_design
-from .effluent import Water
+from .effluent import Water, with_sit
 from .measurements import Measurements
 from .plan import Batch, Flow, Plan, Target, plan_dose
 from .precision import lab_sensitivity, precision_warning
@@ -138,8 +139,7 @@ def make_plan(scenario: Scenario, *, sampled: bool = True) -> Plan:
         be reached, an input is refused, or the model cannot give a number.
     """
     try:
-        plan = plan_dose(scenario.water, scenario.reagent, scenario.target, scenario.basis,
-                         permit=scenario.permit)
+        plan = _planned(scenario)
     except UnreachableError as err:
         raise ScenarioError(scenario.source, "target.ph_aim", str(err)) from None
     except InputError as err:
@@ -158,6 +158,29 @@ def make_plan(scenario: Scenario, *, sampled: bool = True) -> Plan:
     return replace(plan, control=control_design(plan, scenario.flow_range_m3_h))
 
 
+def _planned(scenario: Scenario) -> Plan:
+    """The plan with the activity model the dosed water needs: a water that
+    "auto" left with Davies but whose dose takes it past Davies' range is
+    planned again with the specific ion interaction model; a dosed water
+    past that model's range is refused."""
+    plan = plan_dose(scenario.water, scenario.reagent, scenario.target, scenario.basis,
+                     permit=scenario.permit)
+    m = scenario.measurements
+    if (m is not None and m.activity == AUTO and plan.water.activity is DAVIES
+            and plan.ionic_strength_end > DAVIES_I_LIMIT):
+        water = with_sit(m, plan.ionic_strength_end)
+        plan = plan_dose(water, scenario.reagent, scenario.target, scenario.basis,
+                         permit=scenario.permit)
+    model, end = plan.water.activity, plan.ionic_strength_end
+    if model is SIT and end / float(kg_water_per_l(end)) > model.limit_mol_l:
+        raise InputError("activity", f"the dosed water's ionic strength, "
+                         f"{end / float(kg_water_per_l(end)):.2g} mol/kg, is beyond what the "
+                         "specific ion interaction coefficients cover "
+                         f"({model.limit_mol_l:g} mol/kg): plan from a bench titration, or "
+                         "a weaker reagent")
+    return plan
+
+
 def with_uncertainty(scenario: Scenario, plan: Plan) -> Plan:
     """The plan with its sampled uncertainty and, for a batch at risk, a staged dose."""
     if not plan.dose_needed or scenario.measurements is None:
@@ -167,9 +190,10 @@ def with_uncertainty(scenario: Scenario, plan: Plan) -> Plan:
 
 
 def _measured(scenario: Scenario, plan: Plan) -> Measurements:
-    """The scenario's measurements, with the plan's calcite case (its "auto" may
-    have chosen precipitation), for re-inferring its water."""
-    return replace(scenario.measurements, calcite=plan.water.calcite)
+    """The scenario's measurements, with the plan's calcite case and activity
+    model (each "auto" may have chosen), for re-inferring its water."""
+    return replace(scenario.measurements, calcite=plan.water.calcite,
+                   activity=plan.water.activity)
 
 
 def _sampled(scenario: Scenario, plan: Plan) -> Plan:
