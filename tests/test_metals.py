@@ -28,7 +28,8 @@ from tests.helpers import run_cli, totals
 
 def _min_ph(metal_id: str) -> float:
     grid = np.arange(4.0, 13.5, 0.01)
-    curve = dissolved_vs_ph({metal_id: 1.0}, 25.0, IDEAL, 0.0, grid)[metal_id]
+    water = Mixture.build(totals(**{metal_id: 1.0}), 0.0, 0.0, 25.0, math.nan, IDEAL)
+    curve = dissolved_vs_ph(water, 0.0, grid).mg_l[metal_id]
     return float(grid[np.argmin(curve)])
 
 

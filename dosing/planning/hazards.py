@@ -41,7 +41,6 @@ from typing import Mapping
 
 import numpy as np
 
-from ..chem.activity import ActivityModel
 from .effluent import Water
 from .findings import Finding, Q
 from .measurements import BACKGROUND_IONS
@@ -154,6 +153,7 @@ def assess(water: Water, reagent: Reagent, dose_mol_l: float, before: Speciation
     added = {ion: n * dose_mol_l * f * MOLAR_MASS[ion] * 1000.0
              for ion, n in reagent.compound.ions.items()}
     return (_heat_checks(water, reagent, dose_mol_l, before, after)
+            + _sulfide_dose_checks(water, reagent, after)
             + _gas_checks(water, after, batch_litres)
             + _discharge_checks(water, reagent, dose_mol_l, f, added, after, permit)
             + _scale_checks(water, after))
@@ -202,6 +202,23 @@ def _heat_checks(water: Water, reagent: Reagent, d: float, before: Speciation,
                 {"dilution_heat_kj_per_kg_product": Q(per_kg, "kJ/kg")},
                 {"reagent": reagent.name}))
     return tuple(checks)
+
+
+def _sulfide_dose_checks(water: Water, reagent: Reagent, after: Speciation
+                         ) -> tuple[Finding, ...]:
+    """A sulfide product dosed where it meets water below H2S's safe pH."""
+    if "sulfide" not in reagent.compound.adds:
+        return ()
+    low = min(water.ph, float(after.ph[0]))
+    if low >= H2S_PH:
+        return ()
+    return (Finding(
+        "sulfide-dose", "danger",
+        "{reagent} dosed into water at pH {ph_low:.2f}: where it enters, hydrogen sulfide "
+        "forms at once (half the sulfide is H2S at pH 7, nine tenths at pH 6). Raise the pH "
+        "above {h2s_ph:g} with caustic or lime first and dose the sulfide after it, in a "
+        "closed, ventilated tank with H2S monitors",
+        {"ph_low": Q(low, "pH"), "h2s_ph": Q(H2S_PH, "pH")}, {"reagent": reagent.name}),)
 
 
 def _gas_checks(water: Water, after: Speciation, batch_litres: float) -> tuple[Finding, ...]:
@@ -307,7 +324,7 @@ def _scale_checks(water: Water, after: Speciation) -> tuple[Finding, ...]:
     ca_free = _free_calcium_mol_l(after)
     ca_mg = ca_free * MOLAR_MASS["Ca"] * 1000.0
     if ca_free > 0 and float(after.totals_mol_l[0, CARBONATE]) > 0:
-        si = float(calcite_si(after, t, water.activity)[0])
+        si = float(calcite_si(after, t)[0])
         formed = float(after.calcite_mol_l[0]) > 0
         level = "warning" if si > CALCITE_SI_WARN else "info"
         checks.append(Finding(
@@ -322,7 +339,7 @@ def _scale_checks(water: Water, after: Speciation) -> tuple[Finding, ...]:
             {"calcite_si": Q(si), "calcium_mg_l": Q(ca_mg, "mg/L")}))
     so4_total = float(after.totals_mol_l[0, system_index("sulfate")])
     if ca_free > 0 and so4_total > 0:
-        si = gypsum_si(after, t, water.activity)
+        si = gypsum_si(after)
         formed = _phase_mol_l(after, "gypsum")
         level = "warning" if si > 0 or formed > 0 else "info"
         checks.append(Finding(
@@ -351,14 +368,16 @@ def _free_calcium_mol_l(sp: Speciation) -> float:
     return float(sp.free[0, j] * sp.alpha[0, j, 0])
 
 
-def gypsum_si(sp: Speciation, temperature_c: float, activity: ActivityModel) -> float:
-    """Gypsum saturation index log10(a_Ca a_SO4 / Ksp) of the first water [-]."""
+def gypsum_si(sp: Speciation) -> float:
+    """Gypsum saturation index log10(a_Ca a_SO4 / Ksp) of the first water [-],
+    with the activities of the speciation itself."""
     ca = _free_calcium_mol_l(sp)
-    so4 = sp.concentration(system_index("sulfate"), 1)[0]
+    j = system_index("sulfate")
+    so4 = sp.concentration(j, 1)[0]
     if ca <= 0 or so4 <= 0:
         return -math.inf
-    return (math.log10(ca * float(so4)) + 2 * _log_gamma2(sp, temperature_c, activity)
-            - GYPSUM_LOG_KSP)
+    lg = sp.log_gamma[0, system_index("calcium"), 0] + sp.log_gamma[0, j, 1]
+    return math.log10(ca * float(so4)) + float(lg) - GYPSUM_LOG_KSP
 
 
 def _after_mg_l(water: Water, added: Mapping[str, float], after: Speciation,
@@ -381,22 +400,17 @@ def _after_mg_l(water: Water, added: Mapping[str, float], after: Speciation,
     return out
 
 
-def calcite_si(sp: Speciation, temperature_c, activity: ActivityModel) -> np.ndarray:
+def calcite_si(sp: Speciation, temperature_c) -> np.ndarray:
     """Calcite saturation index of every water of ``sp`` [-] (-inf without Ca or CO3).
 
     log10({Ca2+}{CO3 2-}) + pKsp, Ksp of Plummer & Busenberg (1982), with
-    the activities of the water's model.
+    the activities of the speciation itself.
     """
     t = np.broadcast_to(np.asarray(temperature_c, dtype=float), sp.ph.shape)
     j = system_index("calcium")
     ca = sp.free[:, j] * sp.alpha[:, j, 0]
     co3 = sp.concentration(CARBONATE, 2)
-    lg = activity.log_gamma_at(2, sp.ionic_strength, t)
+    lg = sp.log_gamma[:, j, 0] + sp.log_gamma[:, CARBONATE, 2]
     with np.errstate(divide="ignore", invalid="ignore"):
-        out = np.log10(ca * co3) + 2 * lg + calcite_pksp(t)
+        out = np.log10(ca * co3) + lg + calcite_pksp(t)
     return np.where((ca > 0) & (co3 > 0), out, -np.inf)
-
-
-def _log_gamma2(after: Speciation, t: float, activity: ActivityModel) -> float:
-    """log10 γ of a divalent ion in the dosed water (0 for the ideal model)."""
-    return float(activity.log_gamma_at(2, float(after.ionic_strength[0]), t))

@@ -25,10 +25,10 @@ from typing import Mapping
 
 import numpy as np
 
-from ..chem.activity import DEFAULT_MODEL, ActivityModel, activity_model
+from ..chem.activity import AUTO, DAVIES, DEFAULT_CHOICE, ActivityModel, activity_model
 from ..chem.columns import N_SYSTEMS, system_index
 from ..chem.metals import METAL_IDS, get_metal
-from ..chem.species import MOLAR_MASS, SOLUTE_IDS, SYSTEM_IDS, get_system
+from ..chem.species import CHELANTS, MOLAR_MASS, SOLUTE_IDS, SYSTEM_IDS, get_system
 from ..chem.water import check_temperature
 from ..errors import InputError
 
@@ -126,6 +126,24 @@ def _collect_ions(ions_mg_l, metals_mg_l):
     return ions, {k: v for k, v in metals.items() if v > 0}
 
 
+def _check_chelants(totals: Mapping[str, float], m: "Measurements") -> None:
+    """A chelant needs the water's metals: its hold on them is the point.
+
+    Raises
+    ------
+    InputError
+        A chelant is given and no metal is (not even calcium or magnesium).
+    """
+    named = set(m.metals_mg_l or {}) | (set(m.ions_mg_l or {}) - set(STRONG_IONS))
+    for chelant in CHELANTS:
+        if totals.get(chelant) and not named:
+            where = ("solutes_mmol_l" if chelant in (m.solutes_mmol_l or {})
+                     else "solutes_mg_l") + f".{chelant}"
+            raise InputError(where, f"{chelant} is given without any metal for it to hold: "
+                             "give the water's metals in metals_mg_l, calcium and magnesium "
+                             "too (calcium = 0 if it truly holds none)")
+
+
 def _known_strong(ions_mg_l: Mapping[str, float], extra_i: float) -> tuple[float, float]:
     """Net charge [eq/L] and ionic strength [mol/L] of the measured strong ions."""
     eq = ionic = 0.0
@@ -216,7 +234,9 @@ class Measurements:
     unknown_pka : pKa of the ``unknown`` solute (an unlisted acid, e.g. fitted).
     oxidise_ferrous : plan with ferrous iron oxidised by aeration first
         (4 Fe2+ + O2 + 10 H2O -> 4 Fe(OH)3 + 8 H+).
-    activity : an activity model or its name ("davies", "ideal").
+    activity : an activity model or its name ("davies", "ideal", "sit"), or
+        "auto" (the default): Davies where it is trusted, the specific ion
+        interaction model past about 0.5 mol/L (:func:`infer_water` decides).
     open_to_air, pco2_uatm, hours_in_air, depth_m : an open tank, the CO2 of
         its air, how long the dosed water stands and how deep it is.
     calcite : "auto", "precipitates" or "dissolved".
@@ -235,7 +255,7 @@ class Measurements:
     extra_ionic_strength_mol_l: float = 0.0
     unknown_pka: float | None = None
     oxidise_ferrous: bool = False
-    activity: str | ActivityModel = DEFAULT_MODEL.name
+    activity: str | ActivityModel = DEFAULT_CHOICE
     open_to_air: bool = False
     pco2_uatm: float = DEFAULT_PCO2_UATM
     hours_in_air: float = 0.0
@@ -270,6 +290,7 @@ class Checked:
     lab: LabValue | None = None
     hours_in_air: float = 0.0
     depth_m: float = DEFAULT_DEPTH_M
+    auto: bool = False              #: the model was "auto": Davies, SIT if past its range
 
 
 def totals_vector(totals_mol_l: Mapping[str, float],
@@ -293,7 +314,8 @@ def check(m: Measurements) -> Checked:
     """
     ph = check_number("ph", m.ph, 0.0, 14.0)
     check_temperature(m.temperature_c)
-    model = activity_model(m.activity)
+    auto = isinstance(m.activity, str) and m.activity == AUTO
+    model = DAVIES if auto else activity_model(m.activity)
     pco2_uatm = check_number("pco2_uatm", m.pco2_uatm, 0.0, 1e6, lo_open=True)
     extra_i = check_number("extra_ionic_strength_mol_l", m.extra_ionic_strength_mol_l, 0.0, 5.0)
     totals = _collect_totals(m.solutes_mmol_l, m.solutes_mg_l)
@@ -305,6 +327,7 @@ def check(m: Measurements) -> Checked:
                          "acid as unknown_pka")
     pka = None if m.unknown_pka is None else check_number("unknown_pka", m.unknown_pka, 1.0, 13.0)
     ions, metals = _collect_ions(m.ions_mg_l, m.metals_mg_l)
+    _check_chelants(totals, m)
     if m.oxidise_ferrous and not metals.get("iron_ii"):
         raise InputError("oxidise_ferrous", "there is no ferrous iron to oxidise; give "
                          "metals_mg_l.iron_ii or leave oxidise_ferrous out")
@@ -319,4 +342,4 @@ def check(m: Measurements) -> Checked:
     depth = check_number("depth_m", m.depth_m, 0.05, 100.0)
     known_eq, known_i = _known_strong(ions, extra_i)
     return Checked(ph, float(m.temperature_c), model, pco2_uatm, known_eq, known_i, pka,
-                   totals_vector(totals, metals), totals, metals, ions, lab, hours, depth)
+                   totals_vector(totals, metals), totals, metals, ions, lab, hours, depth, auto)

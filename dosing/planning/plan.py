@@ -36,9 +36,10 @@ from ..chem import (CARBONATE, Mixture, add_dose, dose_to_ph, solve_ph,
 from ..errors import InputError, ModelError, UnreachableError
 from .hazards import assess
 from ..chem.metals import METAL_IDS
+from .ligand_findings import speciation_findings
 from .reagents import GENERAL_CAUTION, Reagent
-from .solids import (METAL_PERMIT_KEYS, CapWindow, Solid, cap_window, metals_after_mg_l,
-                     metals_present_mol_l, solids_after)
+from .solids import (METAL_PERMIT_KEYS, CapWindow, DissolvedCurves, Solid, cap_window,
+                     dissolved_vs_ph, metals_after_mg_l, solids_after)
 from ..chem.water import henry_co2
 
 __all__ = ["has_grip", "GRIP_MIN", "AirExchange", "CalciteCase", "CALCITE_SI_FAST", "Plan",
@@ -76,6 +77,7 @@ class Plan:
     solids: tuple[Solid, ...] = field(default=())        #: solids at the aim
     metals_after_mg_l: Mapping[str, float] = field(default_factory=dict)
     cap_window: CapWindow | None = None   #: pH range meeting the metal caps
+    dissolved: DissolvedCurves | None = None  #: dissolved metals against pH (dosed water)
     ph_ceiling: float | None = None       #: highest pH an overdose reaches [-]
     air: AirExchange | None = None        #: CO2 exchange with air, for an open tank
     calcite: CalciteCase | None = None    #: calcite planned to precipitate, and the other case
@@ -282,9 +284,10 @@ def _plan_once(water: Water, reagent: Reagent, target: Target, basis: Batch | Fl
     solids = solids_after(end_state, water.temperature_c, water.activity)
     metals_after = metals_after_mg_l(end_state)
     caps = _metal_caps(permit, metals_after)
-    window = (None if not caps else cap_window(
-        metals_present_mol_l(end_state), caps, water.temperature_c, water.activity,
-        float(end_state.ionic_strength[0]), (target.ph_min, target.ph_max), target.ph_aim))
+    curves = (dissolved_vs_ph(dosed, float(end_state.ionic_strength[0]))
+              if metals_after else None)
+    window = (None if not caps else cap_window(curves, caps, (target.ph_min, target.ph_max),
+                                               target.ph_aim))
     hi_curve = edges.far if edges.far is not None else dose
     top = max(hi_curve, dose, edges.near) * 1.5 or 1e-4
     before = speciate(mix_closed(water), water.ph, solids=False)
@@ -299,10 +302,11 @@ def _plan_once(water: Water, reagent: Reagent, target: Target, basis: Batch | Fl
                 curve=titration_curve(water, reagent, top, points=curve_points),
                 dose_needed=edges.needed, cautions=tuple(reagent.cautions) + (GENERAL_CAUTION,),
                 checks=checks, solids=solids, metals_after_mg_l=metals_after,
-                cap_window=window, ph_ceiling=ceiling,
+                cap_window=window, dissolved=curves, ph_ceiling=ceiling,
                 air=_air_exchange(water, reagent, target.ph_aim, dose),
                 calcite=_calcite_case(water, reagent, dose, end_state, si_without_calcite))
-    return replace(plan, warnings=plan_warnings(plan, edges.notes))
+    notes = edges.notes + speciation_findings(end_state, metals_after, caps)
+    return replace(plan, warnings=plan_warnings(plan, notes))
 
 
 @dataclass(frozen=True)

@@ -123,6 +123,12 @@ COMPOUNDS: dict[str, Compound] = {c.formula: c for c in (
     _c("HCl", -1.0, {"Cl": 1.0}, 0.5, False, h=1.0),
     _c("HNO3", -1.0, {"NO3": 1.0}, 0.5, False, h=1.0),
     _c("CO2", 0.0, {}, 0.0, False, adds={"carbonate": 1.0}, enters_as={"carbonate": 0}),
+    # Sulfide enters as HS- (S2- is not modelled: its pKa is above 17);
+    # Na2S is NaHS and NaOH together.
+    _c("NaHS", 1.0, {"Na": 1.0}, 0.5, True, adds={"sulfide": 1.0},
+       enters_as={"sulfide": 1}),
+    _c("Na2S", 2.0, {"Na": 2.0}, 1.0, True, adds={"sulfide": 1.0},
+       enters_as={"sulfide": 1}, oh=1.0),
 )}
 
 _CAUSTIC = ("Caustic burns skin and eyes on contact: face shield, "
@@ -226,6 +232,17 @@ class Reagent:
         return self.compound.vector(self.litres_product_per_mol or 0.0)
 
 
+_SULFIDE = ("Sulfide releases hydrogen sulfide, a toxic gas that kills at a few hundred "
+            "ppm and soon deadens the sense of smell, wherever it meets water below "
+            "about pH 9: dose only into water held alkaline, in a covered, ventilated "
+            "tank, with H2S monitors worn and escape respirators at hand.",
+            "Dose only the sulfide the metals need (a bench test with lead acetate "
+            "paper or a sulfide electrode); excess sulfide leaves in the discharge, "
+            "which permits cap.",
+            "Sulfide sludge gives off hydrogen sulfide if it later meets acid: keep it "
+            "apart from acid wastes and say so on the sludge manifest.",
+            "The product is strongly alkaline and corrosive: face shield, gloves and "
+            "apron; eyewash and shower at hand.")
 _LIME = ("Lime dust burns eyes and airways: goggles and dust mask when loading.",
          "Lime dissolves slowly: feed it as a slurry, mix well and allow "
          "reaction time before reading the pH.")
@@ -333,6 +350,12 @@ CATALOGUE: dict[str, Reagent] = {r.id: r for r in (
             dilution_heat_kj_mol=-13.2,
             dilution_heat_source="CRC Handbook, enthalpy of dilution of HCl (after Parker "
             "1965, NSRDS-NBS 2), 10 m -10.24 and 15 m -15.40 kJ/mol, interpolated to 12.9 m"),
+    Reagent("hydrosulfide-45", "sodium hydrosulfide 45 %", COMPOUNDS["NaHS"], 0.45, 1.30,
+            "liquid", "45 % NaHS solution about 1.30 kg/L at 20 °C (suppliers' sheets, from "
+            "memory, low confidence)", _SULFIDE),
+    Reagent("sulfide-60", "sodium sulfide flake, 60 % Na2S", COMPOUNDS["Na2S"], 0.60, None,
+            "solid", "", _SULFIDE + ("Flake dissolves hot and strongly alkaline: dissolve "
+                                     "it in a day tank, slowly, with mixing.",)),
     Reagent("co2", "carbon dioxide gas", COMPOUNDS["CO2"], 1.0, None, "gas", "",
             ("CO2 displaces air: in a pit, a closed room or a covered tank it "
              "suffocates without warning; ventilate and use a gas monitor.",

@@ -338,7 +338,7 @@ def _calcite_where_fast(mix: Mixture, reagent, aim: float, dose: np.ndarray) -> 
         return dose
     sub = mix.take(idx)
     sp = speciate(add_dose(sub, reagent.vector(), dose[idx]), aim)
-    fast = idx[calcite_si(sp, sub.temperature_c, mix.activity) > CALCITE_SI_FAST]
+    fast = idx[calcite_si(sp, sub.temperature_c) > CALCITE_SI_FAST]
     if fast.size:
         dose = dose.copy()
         dose[fast] = dose_to_ph(replace(mix.take(fast), calcite=True), reagent.vector(),

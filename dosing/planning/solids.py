@@ -8,7 +8,8 @@ Pure functions over the engine's speciation of the dosed water:
 * :func:`metals_after_mg_l` - dissolved metals after the dose [mg/L].
 * :func:`sludge_of` - dry solids and the wet cake they make.
 * :func:`dissolved_vs_ph` and :func:`cap_window` - dissolved metal against
-  pH, and the pH range over which every capped metal meets its permit cap.
+  pH (the dosed water's own totals, ligands and ion pairs included), and
+  the pH range over which every capped metal meets its permit cap.
 
 Sludge conventions (common practice for sludge estimates): metal solids are
 reported as Me(OH)z, gypsum as CaSO4·2H2O, undissolved lime as Ca(OH)2.
@@ -23,13 +24,13 @@ reported as CaCO3.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Mapping
 
 import numpy as np
 
 from ..chem.activity import ActivityModel
-from ..chem import METAL_COLUMNS, N_SYSTEMS, Mixture, Speciation, speciate, system_index
+from ..chem import METAL_COLUMNS, Mixture, Speciation, speciate, system_index
 from .hazards import gypsum_si
 from ..chem.metals import HARDNESS, METALS, METAL_IDS
 from ..chem.phases import PHASES
@@ -37,8 +38,7 @@ from ..chem.species import MOLAR_MASS
 
 __all__ = ["Solid", "Sludge", "CapWindow", "METAL_PERMIT_KEYS", "CAKE_SOLIDS_FRACTION",
            "CAKE_DENSITY_KG_L", "solids_after", "metals_after_mg_l", "metals_present_mol_l",
-           "sludge_of",
-           "dissolved_vs_ph", "cap_window"]
+           "sludge_of", "DissolvedCurves", "dissolved_vs_ph", "cap_window"]
 
 #: Dry-solids fraction of a typical filter-press cake [-] (common practice).
 CAKE_SOLIDS_FRACTION = 0.25
@@ -126,7 +126,7 @@ def _gypsum_mol_l(sp: Speciation, temperature_c: float, activity: ActivityModel)
     (b) of the dosed water, activity coefficients held at their value
     before crystallisation.
     """
-    si = gypsum_si(sp, temperature_c, activity)
+    si = gypsum_si(sp)
     if not si > 0:
         return 0.0
     ca = float(sp.concentration(system_index("calcium"), 0)[0])
@@ -158,55 +158,60 @@ def sludge_of(solids: tuple[Solid, ...], litres: float, *,
                   cake_density_kg_l)
 
 
-def dissolved_vs_ph(metals_mol_l: Mapping[str, float], temperature_c: float,
-                    activity: ActivityModel,
-                    ionic_strength: float, ph: np.ndarray) -> dict[str, np.ndarray]:
-    """Dissolved total of each metal against pH [mg/L], hydroxide present.
+@dataclass(frozen=True)
+class DissolvedCurves:
+    """Dissolved total of each metal of a dosed water against pH, with its
+    solids present (what the cap window and the metals figure read)."""
 
-    At each pH the dissolved part is the lesser of the total and the
-    hydroxide's solubility there. The ionic strength is held at
-    ``ionic_strength`` [mol/L] (that of the dosed water).
-    """
-    ph = np.asarray(ph, dtype=float)
-    tot = np.zeros((ph.size, N_SYSTEMS))
-    for mid, mol in metals_mol_l.items():
-        tot[:, system_index(mid)] = mol
-    mix = Mixture.build(tot, np.zeros(ph.size), ionic_strength, temperature_c, np.nan, activity)
-    sp = speciate(mix, ph, max_iter=1)
-    return {m.id: sp.totals_mol_l[:, system_index(m.id)] * m.molar_mass_g_mol * 1000
-            for m in METALS if m.id in metals_mol_l}
+    ph: np.ndarray                        #: (k,) the pH grid [pH]
+    mg_l: Mapping[str, np.ndarray]        #: metal id -> (k,) dissolved [mg/L]
 
 
-#: pH grid for the cap window [pH]; 0.01 pH steps.
+#: pH grid of the curves; 0.01 pH steps from 0 to 14 [pH].
 _CAP_GRID = np.round(np.arange(0.0, 14.0 + 1e-9, 0.01), 2)
 
 
-def cap_window(metals_mol_l: Mapping[str, float], caps_mg_l: Mapping[str, float],
-               temperature_c: float, activity: ActivityModel, ionic_strength: float,
+def dissolved_vs_ph(dosed: Mixture, ionic_strength: float,
+                    ph: np.ndarray = _CAP_GRID) -> DissolvedCurves:
+    """Dissolved total of each metal of the dosed water ``dosed`` (one row)
+    against pH [mg/L]: the water's own totals (ligands, ion pairs, carbonate
+    and its other solids included) speciated at each pH, the ionic strength
+    held at ``ionic_strength`` [mol/L] (that of the dosed water). The dose
+    that would reach each pH is not added: the curve says what these totals
+    leave dissolved there.
+    """
+    ph = np.asarray(ph, dtype=float)
+    mix = replace(dosed.repeat(ph.size), strong_ionic_strength=np.full(ph.size, ionic_strength))
+    sp = speciate(mix, ph, max_iter=0)
+    return DissolvedCurves(ph, {m.id: sp.totals_mol_l[:, col] * m.molar_mass_g_mol * 1000
+                                for m, col in zip(METALS, METAL_COLUMNS)
+                                if dosed.totals_mol_l[0, col] > 0})
+
+
+def cap_window(curves: DissolvedCurves, caps_mg_l: Mapping[str, float],
                window: tuple[float, float], aim: float) -> CapWindow:
     """The pH range over which every capped metal meets its cap.
 
     Where several separate ranges qualify, the one holding the aim, else the
-    one nearest the window, is given.
+    one nearest the window, is given. Whether the caps are met at the aim is
+    read at the grid point nearest it.
     """
-    # The grid and the aim in one solve: the aim is the last point.
-    curves = dissolved_vs_ph(metals_mol_l, temperature_c, activity, ionic_strength,
-                             np.append(_CAP_GRID, aim))
-    meets = np.ones(_CAP_GRID.size + 1, dtype=bool)
+    grid = curves.ph
+    meets = np.ones(grid.size, dtype=bool)
     for mid, cap in caps_mg_l.items():
-        meets &= curves[mid] <= cap
-    ok, met = meets[:-1], bool(meets[-1])
-    runs = _runs(ok)
+        meets &= curves.mg_l[mid] <= cap
+    met = bool(meets[int(np.argmin(np.abs(grid - aim)))])
+    runs = _runs(meets)
     if not runs:
         return CapWindow(dict(caps_mg_l), None, None, met)
     lo_w, hi_w = window
 
     def distance(run):
-        a, b = _CAP_GRID[run[0]], _CAP_GRID[run[1]]
+        a, b = grid[run[0]], grid[run[1]]
         return 0.0 if a <= aim <= b else min(abs(a - hi_w), abs(b - lo_w), abs(a - lo_w))
 
     best = min(runs, key=distance)
-    lo, hi = float(_CAP_GRID[best[0]]), float(_CAP_GRID[best[1]])
+    lo, hi = float(grid[best[0]]), float(grid[best[1]])
     overlap = (max(lo, lo_w), min(hi, hi_w)) if max(lo, lo_w) <= min(hi, hi_w) else None
     return CapWindow(dict(caps_mg_l), (lo, hi), overlap, met)
 

@@ -21,7 +21,6 @@ from .units import UNIT_SYSTEMS  # noqa: E402
 from .words import words  # noqa: E402
 from ..chem.metals import HARDNESS, label as metal_label  # noqa: E402
 from ..planning.reagents import GENERAL_CAUTION  # noqa: E402
-from ..planning.solids import dissolved_vs_ph  # noqa: E402
 
 __all__ = ["plan_figure", "plan_figure_png", "replay_figure_png", "titration_figure_png"]
 
@@ -165,10 +164,11 @@ def _uncertainty_panel(ax, plan: Plan, scale: float, unit: str, per: str) -> Non
 
 
 def _metals_panel(ax3, plan: Plan, metals) -> None:
-    """Dissolved metal against pH (log scale), with caps, window and aim."""
-    grid = np.linspace(4.0, 13.0, 451)
-    curves = dissolved_vs_ph(metals, plan.water.temperature_c, plan.water.activity,
-                             plan.ionic_strength_end, grid)
+    """Dissolved metal against pH (log scale), with caps, window and aim
+    (the plan's own curves, pH 4 to 13)."""
+    keep = (plan.dissolved.ph >= 4.0) & (plan.dissolved.ph <= 13.0)
+    grid = plan.dissolved.ph[keep]
+    curves = {mid: mg[keep] for mid, mg in plan.dissolved.mg_l.items() if mid in metals}
     ax3.axvspan(plan.target.ph_min, plan.target.ph_max, color="tab:green", alpha=0.13,
                 label="permit pH window")
     caps = {} if plan.cap_window is None else plan.cap_window.caps_mg_l
