@@ -25,7 +25,8 @@ from dosing.errors import InputError
 from tests.helpers import run_cli
 
 ZERO = Spread(ph=0.0, lab_percent=0.0, solutes_percent=0.0, metals_percent=0.0,
-              temperature_c=0.0, amount_percent=0.0, strength_percent=0.0, samples=200)
+              temperature_c=0.0, amount_percent=0.0, strength_percent=0.0, model_scale=0.0,
+              samples=200)
 
 
 def _plan(name):

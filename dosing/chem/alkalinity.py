@@ -23,7 +23,7 @@ __all__ = ["carbonate_for_alkalinity"]
 def carbonate_for_alkalinity(totals_mol_l, ph, temperature_c, alk_eq_l,
                              endpoint_ph, *, activity: ActivityModel,
                              extra_ionic_strength=0.0, max_iter: int = 60,
-                             unknown_pka=None, ferrous_oxidised: bool = False):
+                             unknown_pka=None, ferrous_oxidised: bool = False, shift=None):
     """Carbonate total [mol/L] that explains a titration to ``endpoint_ph``.
 
     ``alk_eq_l`` is the strong acid [eq/L] taken to titrate the water from
@@ -40,7 +40,9 @@ def carbonate_for_alkalinity(totals_mol_l, ph, temperature_c, alk_eq_l,
     the end point, capped at their hydroxide's solubility: the base they
     take to precipitate is part of an acidity. With ``ferrous_oxidised``
     (the hot-peroxide acidity of Standard Methods 2310) ferrous iron ends
-    as Fe(OH)3 and counts 2 eq/mol.
+    as Fe(OH)3 and counts 2 eq/mol. ``shift`` (a
+    :class:`~dosing.chem.mixture.LogKShift`) moves the model's constants per
+    water.
 
     Returns
     -------
@@ -50,7 +52,8 @@ def carbonate_for_alkalinity(totals_mol_l, ph, temperature_c, alk_eq_l,
         explain the measurement and the caller should refuse the input.
     """
     job = _AlkalinityJob.build(totals_mol_l, ph, temperature_c, alk_eq_l, endpoint_ph,
-                               activity, extra_ionic_strength, unknown_pka, ferrous_oxidised)
+                               activity, extra_ionic_strength, unknown_pka, ferrous_oxidised,
+                               shift)
     ionic, ionic_e = job.extra.copy(), job.extra.copy()
     c, coef, new_i, new_ie = job.solve(ionic, ionic_e)
     if activity.ideal:
@@ -77,7 +80,8 @@ def _coupled_carbonate(job: "_AlkalinityJob", c, coef, ionic, ionic_e, passes: i
     """The carbonate where carbonate couples (CaCO3°, CaHCO3+ ...): the
     titration balance A(C) = R(end point) - R(sample) is no longer linear in
     C, so the direct answer starts a secant on it, the two ionic strengths
-    moved along."""
+    moved along. Only the waters with carbonate to find are refined, each
+    until it settles."""
     sample = restrict(job.bare, extra_cols=[CARBONATE], cap=False)
     end = job.rows
     car = end.carb
@@ -85,29 +89,35 @@ def _coupled_carbonate(job: "_AlkalinityJob", c, coef, ionic, ionic_e, passes: i
     # A negative answer (the rest of the water already explains more than the
     # measurement) is kept as the direct solve gives it: the caller refuses it.
     good = np.isfinite(c) & (c > 0)
-    x, ion_s, ion_e = np.where(good, np.maximum(c, 0.0), 0.0), np.where(good, ionic, job.extra), \
-        np.where(np.isfinite(ionic_e), ionic_e, job.extra)
+    out_c, out_i = np.where(good, np.nan, c), np.where(good, np.nan, ionic)
+    live = np.flatnonzero(good)
+    x, ion_s = c[live], ionic[live]
+    ion_e = np.where(np.isfinite(ionic_e[live]), ionic_e[live], job.extra[live])
+    slope = np.where(np.abs(coef[live]) > 1e-12, coef[live], 1.0)
     prev_x, prev_a, cores = None, None, (None, None)
-    slope = np.where(np.abs(coef) > 1e-12, coef, 1.0)
     # The inner solves hold each mass balance to 1e-11 of its total: the
     # alkalinity is resolved to about that of the totals.
-    tol = 1e-15 + 1e-10 * (np.abs(job.alk) + end.totals.sum(axis=1) + x)
-    for _ in range(passes):
-        a, ion_s, ion_e, cores = _titration_balance(job, sample, end, car, fe2, x, ion_s,
-                                                    ion_e, cores)
-        miss = job.alk - a
+    scale = np.abs(job.alk) + end.totals.sum(axis=1)
+    for it in range(passes):
+        if not live.size:
+            break
+        sub = job.take(live)
+        a, ion_s, ion_e, cores = _titration_balance(sub, sample.take(live), end.take(live),
+                                                    car, fe2, x, ion_s, ion_e, cores)
+        miss = sub.alk - a
+        tol = 1e-15 + 1e-10 * (scale[live] + x)
         if prev_x is not None:
             with np.errstate(divide="ignore", invalid="ignore"):
                 sec = (a - prev_a) / (x - prev_x)
             slope = np.where(np.isfinite(sec) & (np.abs(sec) > 1e-9), sec, slope)
-        done = np.abs(miss) <= tol
-        if done.all():
-            break
-        prev_x, prev_a = x, a
-        x = np.where(done, x, x + miss / slope)
-    settled = np.abs(miss) <= 100 * tol
-    return (np.where(good, np.where(settled, x, np.nan), c),
-            np.where(good, np.where(settled, ion_s, np.nan), ionic))
+        done = np.abs(miss) <= (100 * tol if it == passes - 1 else tol)
+        out_c[live[done]], out_i[live[done]] = x[done], ion_s[done]
+        keep = ~done
+        prev_x, prev_a, slope = x[keep], a[keep], slope[keep]
+        x, ion_s, ion_e = x[keep] + miss[keep] / slope, ion_s[keep], ion_e[keep]
+        cores = tuple(None if core is None else core.take(keep) for core in cores)
+        live = live[keep]
+    return out_c, out_i
 
 
 def _titration_balance(job, sample, end, car, fe2, x, ion_s, ion_e, cores):
@@ -151,7 +161,8 @@ class _AlkalinityJob:
 
     @classmethod
     def build(cls, totals_mol_l, ph, temperature_c, alk_eq_l, endpoint_ph, activity,
-              extra_ionic_strength, unknown_pka, ferrous_oxidised) -> "_AlkalinityJob":
+              extra_ionic_strength, unknown_pka, ferrous_oxidised, shift=None
+              ) -> "_AlkalinityJob":
         ph = np.atleast_1d(np.asarray(ph, dtype=float))
         tot = np.broadcast_to(np.atleast_2d(np.asarray(totals_mol_l, dtype=float)),
                               (ph.shape[0], N_SYSTEMS)).copy()
@@ -159,13 +170,19 @@ class _AlkalinityJob:
         t = np.broadcast_to(np.asarray(temperature_c, dtype=float), ph.shape)
         # A species-wise model (SIT) takes the known strong ions as the medium.
         medium = 0.0 if activity.charge_only else extra_ionic_strength
-        bare = Mixture.build(tot, 0.0, medium, t, np.nan, activity, unknown_pka)
+        bare = Mixture.build(tot, 0.0, medium, t, np.nan, activity, unknown_pka, shift)
         rows = restrict(bare, extra_cols=[CARBONATE])
         return cls(rows, ph, np.broadcast_to(np.asarray(endpoint_ph, float), ph.shape),
                    np.broadcast_to(np.asarray(alk_eq_l, dtype=float), ph.shape),
                    np.broadcast_to(np.asarray(extra_ionic_strength, float), ph.shape),
                    np.flatnonzero(rows.cols == system_index("iron_ii")), ferrous_oxidised,
                    bare)
+
+    def take(self, idx) -> "_AlkalinityJob":
+        """The same job for the waters ``idx`` only (the views and the per-water
+        arrays; ``bare`` is left whole: only the refinement's views use rows)."""
+        return replace(self, rows=self.rows.take(idx), ph=self.ph[idx], ep=self.ep[idx],
+                       alk=self.alk[idx], extra=self.extra[idx])
 
     def end_totals(self, sol_e):
         """Totals at the end point: metals capped at their hydroxide's

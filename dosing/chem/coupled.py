@@ -76,6 +76,8 @@ def ref_forms() -> np.ndarray:
 
 
 _REF = ref_forms()
+_CX_POS = {c.id: i for i, c in enumerate(COMPLEXES)}
+_PHASE_POS = {p.id: i for i, p in enumerate(PHASES)}
 #: CO2 held by air, as a solid that never runs out: carbonate's uncomplexed
 #: total is CO2* / alpha_0 (its log K is set per water, see :func:`_log_terms`).
 CO2_AIR = Phase("co2_air", "CO2 from air", "CO2", (("carbonate", 1),), 0, 0.0, None, 44.01,
@@ -107,10 +109,20 @@ class Tableau:
     air: int                  #: index of the CO2-from-air phase, or -1
     sparse: tuple             #: (columns, counts) of the complexes, then of the solids (:func:`sparse`)
     eps: np.ndarray           #: (ns,) interaction coefficient of each complex (SIT; by charge)
+    cx_index: np.ndarray      #: (ns,) position of each complex in COMPLEXES
+    phase_index: np.ndarray   #: (np,) position of each solid in PHASES (-1: CO2 from air)
 
     @property
     def kc(self) -> int:
         return self.cols.size
+
+    def shifted(self, log_k: tuple[np.ndarray, np.ndarray], shift) -> tuple[np.ndarray,
+                                                                           np.ndarray]:
+        """``log_k`` (from :meth:`log_k`) with a LogKShift's per-water shifts added."""
+        lk, lp = log_k
+        lp_shift = np.where(self.phase_index >= 0,
+                            shift.phases[:, np.maximum(self.phase_index, 0)], 0.0)
+        return lk + shift.complexes[:, self.cx_index], lp + lp_shift
 
     def log_k(self, temperature_c: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """(n, ns) and (n, np) log10 K at each temperature (van 't Hoff; calcite
@@ -180,7 +192,9 @@ def _assemble(view_cols, coupled, pos, cx, phases) -> Tableau:
         calcite=next((i for i, p in enumerate(phases) if p is CALCITE), -1),
         air=next((i for i, p in enumerate(phases) if p is CO2_AIR), -1),
         sparse=sparse(nu) + sparse(pnu),
-        eps=np.array([sit.estimate(int(round(z))) for z in nu @ zref + h]))
+        eps=np.array([sit.estimate(int(round(z))) for z in nu @ zref + h]),
+        cx_index=np.array([_CX_POS[c.id] for c in cx], dtype=int),
+        phase_index=np.array([_PHASE_POS.get(p.id, -1) for p in phases], dtype=int))
 
 
 def sparse(m: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -208,6 +222,10 @@ class Core:
     @property
     def u(self) -> np.ndarray:
         return np.exp(self.y)
+
+    def take(self, idx) -> "Core":
+        """The waters ``idx`` only."""
+        return Core(self.y[idx], self.x[idx], self.active[idx], self.c[idx], self.iterations)
 
 
 def _solve_step(tab: Tableau, u, c, active, f, g, scale) -> tuple[np.ndarray, np.ndarray]:

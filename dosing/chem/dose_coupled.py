@@ -42,9 +42,7 @@ _MAX_TRIALS = 60
 
 
 def _take(core: Core | None, idx) -> Core | None:
-    if core is None:
-        return None
-    return Core(core.y[idx], core.x[idx], core.active[idx], core.c[idx], core.iterations)
+    return None if core is None else core.take(idx)
 
 
 def _dilution(reagent: ReagentVector, d: np.ndarray) -> tuple[np.ndarray, np.ndarray]:

@@ -14,9 +14,46 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from .activity import DEFAULT_MODEL, ActivityModel
-from .columns import N_SYSTEMS, SITE_COLUMNS, UNKNOWN, Constants, constants_at
+from .columns import METAL_COLUMNS, N_SYSTEMS, SITE_COLUMNS, UNKNOWN, Constants, constants_at
+from .complexes import COMPLEXES
+from .metals import METALS
+from .phases import PHASES
 
-__all__ = ["Mixture", "ReagentVector", "add_dose"]
+__all__ = ["Mixture", "ReagentVector", "add_dose", "LogKShift"]
+
+
+@dataclass(frozen=True)
+class LogKShift:
+    """Per-water shifts of the model's constants [log10 units]: the model's
+    own uncertainty, sampled with the measurements (arrays with one row per
+    water).
+
+    ``first_step`` moves the first stepwise constant of a column (for a
+    metal, every hydroxo complex against the free ion); ``complexes`` each
+    complex of :data:`~dosing.chem.complexes.COMPLEXES`; ``phases`` each
+    solid of :data:`~dosing.chem.phases.PHASES` (the hydroxides first, in
+    metal order: their shift is also that of the metal's *Ks0 where no
+    coupled core runs).
+    """
+
+    first_step: np.ndarray       #: (n, N_SYSTEMS)
+    complexes: np.ndarray        #: (n, len(COMPLEXES))
+    phases: np.ndarray           #: (n, len(PHASES))
+
+    @classmethod
+    def zeros(cls, n: int) -> "LogKShift":
+        return cls(np.zeros((n, N_SYSTEMS)), np.zeros((n, len(COMPLEXES))),
+                   np.zeros((n, len(PHASES))))
+
+    def take(self, idx) -> "LogKShift":
+        return LogKShift(self.first_step[idx], self.complexes[idx], self.phases[idx])
+
+    def ks0(self) -> np.ndarray:
+        """(n, N_SYSTEMS) shift of each column's hydroxide log *Ks0."""
+        out = np.zeros(self.first_step.shape)
+        out[:, METAL_COLUMNS] = self.phases[:, :len(METALS)]
+        return out
+
 
 @dataclass(frozen=True)
 class Mixture:
@@ -42,6 +79,9 @@ class Mixture:
     site_pka : ndarray (n, 8) or None
         pKa of each fitted buffer site (columns :data:`SITE_COLUMNS`), NaN
         for a site not used [-].
+    shift : LogKShift or None
+        Shifts of the model's constants per water (a sample of the model's
+        own uncertainty); None: the catalogue's values.
     complexes : bool
         Complexes, ion pairs and the solids that couple components (gypsum,
         carbonates, sulfides; :mod:`dosing.chem.coupled`) are in the model
@@ -63,11 +103,12 @@ class Mixture:
     calcite: bool = False
     site_pka: np.ndarray | None = None
     complexes: bool = True
+    shift: LogKShift | None = None
 
     @classmethod
     def build(cls, totals_mol_l, strong_eq_l, strong_ionic_strength,
               temperature_c, co2_air_mol_l=np.nan, activity=DEFAULT_MODEL,
-              unknown_pka=None) -> "Mixture":
+              unknown_pka=None, shift: LogKShift | None = None) -> "Mixture":
         """Broadcast the inputs to n waters and freeze them."""
         if not isinstance(activity, ActivityModel):
             raise TypeError(f"activity must be an ActivityModel, not {activity!r}")
@@ -82,7 +123,7 @@ class Mixture:
         return cls(np.broadcast_to(tot, (n, N_SYSTEMS)).copy(), vec(s),
                    vec(strong_ionic_strength), vec(temperature_c),
                    vec(co2_air_mol_l), activity,
-                   None if unknown_pka is None else vec(unknown_pka))
+                   None if unknown_pka is None else vec(unknown_pka), shift=shift)
 
     def constants(self, cols=None) -> Constants:
         """Constants at this mixture's temperatures, fitted pKa applied.
@@ -107,6 +148,12 @@ class Mixture:
                     k[:, at[0], 0] = np.where(np.isfinite(pk), 10.0 ** -np.nan_to_num(pk),
                                               k[:, at[0], 0])
             const = Constants(const.kw, k, const.a, const.log_ks0)
+        if self.shift is not None:
+            sel = slice(None) if cols is None else np.asarray(cols)
+            k = const.k.copy() if const.k.strides[0] else np.repeat(const.k[:1], self.n, 0)
+            k[:, :, 0] *= 10.0 ** self.shift.first_step[:, sel]
+            const = Constants(const.kw, k, const.a,
+                              const.log_ks0 + self.shift.ks0()[:, sel])
         return const
 
     def take(self, idx) -> "Mixture":
@@ -117,7 +164,8 @@ class Mixture:
                        temperature_c=self.temperature_c[idx],
                        co2_air_mol_l=self.co2_air_mol_l[idx],
                        unknown_pka=None if self.unknown_pka is None else self.unknown_pka[idx],
-                       site_pka=None if self.site_pka is None else self.site_pka[idx])
+                       site_pka=None if self.site_pka is None else self.site_pka[idx],
+                       shift=None if self.shift is None else self.shift.take(idx))
 
     def repeat(self, n: int) -> "Mixture":
         """The first water, n times (a curve or a set of targets for one water)."""

@@ -46,10 +46,6 @@ def _trial(rows: Rows, ph, ionic, core):
     return b.residual, b.ionic, b.core
 
 
-def _take(core: Core, idx) -> Core:
-    return Core(core.y[idx], core.x[idx], core.active[idx], core.c[idx], core.iterations)
-
-
 def _put(core: Core, idx, part: Core) -> None:
     core.y[idx], core.x[idx], core.active[idx], core.c[idx] = \
         part.y, part.x, part.active, part.c
@@ -130,16 +126,14 @@ def ph_coupled(rows: Rows, ph0: np.ndarray, ionic0: np.ndarray, tol_ph: float = 
     ionic = ionic0.copy()
     _, new_i, core = _trial(rows, x, ionic, None)
     if not ideal:
-        ionic = new_i
-    beta = balance(replace(rows, tab=None), species_at(rows, 10.0 ** -x, ionic)).beta
-    search = _Search.start(n, -np.maximum(beta, 1e-300))
+        ionic, core = _settle_ionic(rows, x, ionic, new_i, core, tol_ph)
+    search, nxt = _primed(rows, x, ionic, core)
     fixed = FixedPointSecant.start(n)
-    nxt = x.copy()
     live = np.arange(n)
     for _ in range(max_iter):
         sub = rows.take(live)
         xs = nxt[live]
-        rs, ni, c = _trial(sub, xs, ionic[live], _take(core, live))
+        rs, ni, c = _trial(sub, xs, ionic[live], core.take(live))
         _put(core, live, c)
         step = search.record(live, xs, rs)
         x[live] = xs
@@ -150,8 +144,10 @@ def ph_coupled(rows: Rows, ph0: np.ndarray, ionic0: np.ndarray, tol_ph: float = 
                          + 10.0 ** -xs + 10.0 ** (xs - 14.0)) + 1e-17
         settled = ((np.abs(step - xs) < tol_ph) | (search.width(live) < tol_ph)
                    | (np.abs(rs) <= floor))
+        # The ionic strength is settled to the pH tolerance asked (a relative
+        # change of I moves the pH by less than about that much).
         moved = np.zeros(live.size, dtype=bool) if ideal else \
-            np.abs(ni - ionic[live]) > 1e-12 + 1e-9 * ni
+            np.abs(ni - ionic[live]) > 1e-12 + max(1e-9, tol_ph) * ni
         again = settled & moved
         if again.any():
             w = live[again]
@@ -163,6 +159,50 @@ def ph_coupled(rows: Rows, ph0: np.ndarray, ionic0: np.ndarray, tol_ph: float = 
         if not live.size:
             return x
     raise ModelError(f"pH solve did not converge for {live.size} of {n} waters")
+
+
+#: pH step of the priming secant [pH].
+_PRIME_DPH = 1e-3
+
+
+def _primed(rows: Rows, x, ionic, core) -> tuple["_Search", np.ndarray]:
+    """The search primed with two trials at the start (``x`` and ``x`` +
+    :data:`_PRIME_DPH`): their secant is the first slope, which sees the
+    solids' buffering that the uncoupled view's buffer intensity misses.
+    Returns the search and the next trial of every water."""
+    n = x.size
+    beta = balance(replace(rows, tab=None), species_at(rows, 10.0 ** -x, ionic)).beta
+    search = _Search.start(n, -np.maximum(beta, 1e-300))
+    every = np.arange(n)
+    r0, _, core = _trial(rows, x, ionic, core)
+    search.record(every, x, r0)
+    x1 = np.minimum(x + _PRIME_DPH, _HI - 1e-9)
+    r1, _, _ = _trial(rows, x1, ionic, core)
+    return search, search.record(every, x1, r1)
+
+
+#: Passes of the ionic strength's fixed point at the starting pH.
+_START_PASSES = 8
+
+
+def _settle_ionic(rows: Rows, x, used, implied, core, tol_ph: float):
+    """The ionic strength settled at the starting pH ``x`` (near the root, so
+    near the root's), by secant steps on its fixed point: a start far off
+    (strong ions only, where gypsum or a metal carries the ionic strength)
+    would cost a fresh root search for every correction later."""
+    secant = FixedPointSecant.start(x.size)
+    ionic = used.copy()
+    for _ in range(_START_PASSES):
+        far = np.abs(implied - ionic) > 1e-12 + max(1e-6, tol_ph) * implied
+        if not far.any():
+            break
+        w = np.flatnonzero(far)
+        ionic[w] = secant.next(w, ionic[w], implied[w])
+        _, got, part = _trial(rows.take(w), x[w], ionic[w], core.take(w))
+        implied = implied.copy()
+        implied[w] = got
+        _put(core, w, part)
+    return implied, core
 
 
 @dataclass

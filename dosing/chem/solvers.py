@@ -42,7 +42,7 @@ def solve_ph(mix: Mixture, *, ph_guess=None, tol_ph: float = 1e-12,
     ph = np.full(mix.n, 7.0) if ph_guess is None else np.broadcast_to(
         np.asarray(ph_guess, dtype=float), (mix.n,)).copy()
     if rows.tab is not None:
-        return ph_coupled(rows, ph, ionic, min(tol_ph * 100, 1e-10), max_iter)
+        return ph_coupled(rows, ph, ionic, max(tol_ph, 1e-10), max_iter)
     ph, ionic = _newton(rows, ph, ionic, tol_ph, max_iter, not mix.activity.ideal)
     if mix.activity.ideal:
         return ph
@@ -56,7 +56,7 @@ def solve_ph(mix: Mixture, *, ph_guess=None, tol_ph: float = 1e-12,
         sub = rows.take(idx)
         x = ionic[idx]
         p, _ = _newton(sub, ph[idx], x, tol_ph, max_iter, False)
-        fx = rows_state(sub, p, x)[2]
+        fx = rows_state(sub, p, x, beta=False)[2]
         g = fx - x
         ok = np.abs(g) <= 1e-13 + 1e-10 * fx
         ph[idx] = p
@@ -128,7 +128,7 @@ def strong_balance_at_ph(totals_mol_l, ph, temperature_c, *, activity: ActivityM
                          extra_ionic_strength=0.0, co2_air_mol_l=np.nan,
                          max_iter: int = 60, unknown_pka=None,
                          known_strong_eq_l=0.0, solids: bool = False,
-                         calcite: bool = False, ionic_guess=None):
+                         calcite: bool = False, ionic_guess=None, shift=None):
     """Strong-ion balance S [eq/L] that puts each water at ``ph`` (direct).
 
     Every metal is taken as dissolved (the water as sampled), unless
@@ -140,7 +140,9 @@ def strong_balance_at_ph(totals_mol_l, ph, temperature_c, *, activity: ActivityM
     salt load), ``known_strong_eq_l`` [eq/L] is their net charge, and the
     rest of S, S - known, is taken as monovalent. Where the ionic strength
     does not settle, S is NaN. ``ionic_guess`` [mol/L], if given, starts the
-    ionic-strength iteration (fewer steps; the same answer).
+    ionic-strength iteration (fewer steps; the same answer). ``shift`` (a
+    :class:`~dosing.chem.mixture.LogKShift`) moves the model's constants
+    per water.
 
     Returns
     -------
@@ -148,7 +150,7 @@ def strong_balance_at_ph(totals_mol_l, ph, temperature_c, *, activity: ActivityM
     """
     ph = np.atleast_1d(np.asarray(ph, dtype=float))
     mix = Mixture.build(totals_mol_l, np.zeros_like(ph), extra_ionic_strength,
-                        temperature_c, co2_air_mol_l, activity, unknown_pka)
+                        temperature_c, co2_air_mol_l, activity, unknown_pka, shift)
     extra = mix.strong_ionic_strength
     known = np.broadcast_to(np.asarray(known_strong_eq_l, dtype=float), ph.shape)
     bare = replace(mix, strong_eq_l=np.zeros(mix.n), strong_ionic_strength=np.zeros(mix.n),
@@ -163,7 +165,7 @@ def strong_balance_at_ph(totals_mol_l, ph, temperature_c, *, activity: ActivityM
     def at(ionic):
         view = replace(rows, strong=last, strong_i=extra + 0.5 * np.abs(last - known)) \
             if wise else rows
-        resid, _, i_weak = rows_state(view, ph, ionic)
+        resid, _, i_weak = rows_state(view, ph, ionic, beta=False)
         s = view.strong - resid
         if wise:
             last[:] = np.where(np.isfinite(s), s, 0.0)

@@ -259,6 +259,8 @@ def restrict(mix: Mixture, extra_cols=(), *, cap: bool = True) -> Rows:
         t = mix.temperature_c
         one = t.size > 1 and bool(np.all(t == t[0]))
         core_k = tab.log_k(t[:1] if one else t)
+        if mix.shift is not None:
+            core_k = tab.shifted(core_k, mix.shift)
     return Rows(mix.totals_mol_l[:, cols], mix.strong_eq_l, mix.strong_ionic_strength,
                 mix.co2_air_mol_l, const.kw, const.k, const.a, Z[cols], carb,
                 mix.activity, cols, const.log_ks0, SOLID_Z[cols], cap, ca, log_kc,
@@ -451,11 +453,16 @@ def _calcite(r: Rows, q, totals, kcal, rows, calcite):
 _DPH = 1e-5
 
 
-def rows_state(r: Rows, ph, ionic):
-    """Residual [eq/L], β [eq/(L pH)] and ionic strength [mol/L] at ``ph``."""
+def rows_state(r: Rows, ph, ionic, *, beta: bool = True):
+    """Residual [eq/L], β [eq/(L pH)] and ionic strength [mol/L] at ``ph``
+    (β None when not asked: a coupled water's costs two more equilibria)."""
     if r.tab is not None:
-        b, beta = _coupled_state(r, ph, ionic)
-        return b.residual, beta, b.ionic
+        if not beta:
+            ah = 10.0 ** -ph
+            b = coupled_balance(r.tab, r, species_at(r, ah, ionic), ah, ionic)
+            return b.residual, None, b.ionic
+        b, bi = _coupled_state(r, ph, ionic)
+        return b.residual, bi, b.ionic
     b = balance(r, species_at(r, 10.0 ** -ph, ionic))
     return b.residual, b.beta, b.ionic
 

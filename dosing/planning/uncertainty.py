@@ -6,7 +6,9 @@ vectorised inference and dose solve as one plan), and reports:
 
 * :func:`dose_uncertainty` - the dose each plausible water needs (5th, 50th
   and 95th percentile), how often the planned dose lands outside the window,
-  and which input makes most of the spread;
+  and which input makes most of the spread: a measurement, or the model's
+  own constants (those of the water's metals, ligands and solids, each
+  with its spread between compilations; :mod:`.model_spread`);
 * :func:`staged_dose` - for a batch, a first dose that stays below the aim
   with a stated confidence, and a trim table: for each pH the operator may
   read after it, the extra product, from the water re-inferred from that
@@ -18,8 +20,9 @@ said: a pH reading 0.05 (a meter calibrated that day; Standard Methods
 2 mg/L (Standard Methods 2320 B and 2310 B single-laboratory precision is
 of that order, from memory), listed solutes and metals 5 % (routine
 laboratory analyses), temperature 1 °C, tank volume or flow 5 %, product
-strength 2 % (a supplier's certificate range). The scenario's
-``[uncertainty]`` table overrides each.
+strength 2 % (a supplier's certificate range); the model's constants with
+their spreads between compilations (``model_scale`` scales them, 0 leaves
+them out). The scenario's ``[uncertainty]`` table overrides each.
 
 Pure: numbers in, numbers out.
 """
@@ -34,6 +37,8 @@ import numpy as np
 
 from .findings import Finding, Q, note
 from .measurements import ACIDITY_ENDPOINT_PH, ALKALINITY_ENDPOINT_PH, Measurements
+from .measurements import check
+from .model_spread import group_of, model_groups, present_ids, shift_of
 from .variants import Perturbation, infer_many
 from ..chem import Mixture, add_dose, dose_to_ph, solve_ph, strong_balance_at_ph
 from ..errors import InputError
@@ -45,6 +50,9 @@ __all__ = ["Spread", "SPREAD_KEYS", "DoseUncertainty", "Staging", "TrimRow",
 
 #: A planned dose that leaves the window this often is staged (common practice).
 MATERIAL_RISK = 0.05
+#: pH tolerance of the sampled waters' forward solves [pH]: far finer than any
+#: window edge or percentile the sample reports needs.
+SAMPLE_TOL_PH = 1e-6
 
 #: Plain name of each sampled input, and what would narrow its part most.
 INPUT_WORDS = {
@@ -70,6 +78,7 @@ class Spread:
     temperature_c: float = 1.0
     amount_percent: float = 5.0      #: tank volume or flow
     strength_percent: float = 2.0    #: product strength
+    model_scale: float = 1.0         #: of the model constants' own spreads (0: none)
     samples: int = 2000
     confidence_percent: float = 95.0  #: of the staged first dose staying below the aim
     seed: int = 20261202
@@ -81,6 +90,7 @@ LAB_FLOOR_MG_L = 2.0
 SPREAD_KEYS = {"ph": (0.0, 2.0), "lab_percent": (0.0, 100.0), "solutes_percent": (0.0, 100.0),
                "metals_percent": (0.0, 100.0), "temperature_c": (0.0, 20.0),
                "amount_percent": (0.0, 50.0), "strength_percent": (0.0, 50.0),
+               "model_scale": (0.0, 5.0),
                "samples": (100, 100_000), "confidence_percent": (50.0, 99.9),
                "seed": (0, 2**32 - 1)}
 
@@ -117,6 +127,7 @@ class DoseUncertainty:
     p_above: float = 0.0
     shares: tuple[tuple[str, float], ...] = ()   #: input and its share of the spread
     sample: Any = field(default=None, repr=False)  #: the sampled waters, for staging
+    group_words: Mapping[str, str] = field(default_factory=dict)  #: model group -> its name
 
     @property
     def p_outside(self) -> float:
@@ -128,13 +139,28 @@ class DoseUncertainty:
         if not self.shares or self.shares[0][1] <= 0:
             return note("spread", "the inputs hardly move the dose", "info")
         key, share = self.shares[0]
-        name, advice = INPUT_WORDS[key]
+        name, advice = input_words(key, self.group_words)
         rest = [(k, s) for k, s in self.shares[1:3] if s >= 0.01]
-        q = {"share": Q(share, "%")} | {f"share_{k}": Q(s, "%") for k, s in rest}
-        then = ", ".join(f"{INPUT_WORDS[k][0]} {{share_{k}}}" for k, _ in rest)
+        q = {"share": Q(share, "%")} | {f"share_{_slot(k)}": Q(s, "%") for k, s in rest}
+        then = ", ".join(f"{input_words(k, self.group_words)[0]} {{share_{_slot(k)}}}"
+                         for k, _ in rest)
         return Finding("spread", "info", "most of the spread comes from the {input} ({share}): "
                        "{advice} would narrow it most" + (f"; then {then}" if then else ""), q,
                        {"input": name, "advice": advice})
+
+
+def input_words(key: str, groups: Mapping[str, str]) -> tuple[str, str]:
+    """(plain name, what would narrow it) of a sampled input or model group."""
+    if key in INPUT_WORDS:
+        return INPUT_WORDS[key]
+    return (f"model's {groups.get(key, key)}",
+            "a bench titration of this water (dosing titration), or a jar test for the "
+            "metals,")
+
+
+def _slot(key: str) -> str:
+    """A template slot name for a key (``model:aluminium`` -> ``model_aluminium``)."""
+    return key.replace(":", "_")
 
 
 @dataclass(frozen=True)
@@ -149,8 +175,10 @@ class _Sample:
     strength: np.ndarray      # true product strength over the nominal [-]
 
 
-def _sample(m: Measurements, spread: Spread) -> _Sample:
-    """Latin-hypercube sample of the measurements, and the waters they imply."""
+def _sample(m: Measurements, spread: Spread, reagent_ids=()) -> _Sample:
+    """Latin-hypercube sample of the measurements and of the model's constants
+    the water leans on (:mod:`.model_spread`; its reagent's columns
+    included), and the waters they imply."""
     keys = ["ph", "temperature", "amount", "strength"]
     lab = m.lab_value
     lab_key = lab[0] if lab else None
@@ -162,6 +190,9 @@ def _sample(m: Measurements, spread: Spread) -> _Sample:
         keys.append("solutes")
     if m.metals_mg_l:
         keys.append("metals")
+    groups = _model_groups(m, reagent_ids) if spread.model_scale > 0 else ()
+    groups = tuple(replace(g, sd=g.sd * spread.model_scale) for g in groups)
+    keys += [g.key for g in groups]
     n = spread.samples
     z = np.clip(_normal_scores(_latin_hypercube(n, len(keys), spread.seed)), -4.0, 4.0)
     col = {k: z[:, i] for i, k in enumerate(keys)}
@@ -178,11 +209,21 @@ def _sample(m: Measurements, spread: Spread) -> _Sample:
                               + spread.temperature_c * col["temperature"], 0.0, 60.0),
         lab_mg_l=np.maximum(lab0 + lab_sd * col.get("lab", zero), 0.0),
         solute_factor=rel("solutes", spread.solutes_percent),
-        metal_factor=rel("metals", spread.metals_percent))
+        metal_factor=rel("metals", spread.metals_percent),
+        shift=shift_of(groups, z[:, len(keys) - len(groups):]) if groups else None)
     mix, ok = infer_many(m, variants)
     return _Sample(mix, ok, z, tuple(keys),
                    np.maximum(rel("amount", spread.amount_percent), 0.05),
                    np.maximum(rel("strength", spread.strength_percent), 0.05))
+
+
+def _model_groups(m: Measurements, reagent_ids) -> tuple:
+    """The groups of constants the measured water and its reagent lean on."""
+    job = check(m)
+    extra = set(reagent_ids)
+    if m.lab_value or m.open_to_air or "carbonate" in job.totals:
+        extra.add("carbonate")
+    return model_groups(present_ids(job.vec, extra))
 
 
 def _latin_hypercube(n: int, d: int, seed: int) -> np.ndarray:
@@ -225,7 +266,7 @@ def dose_uncertainty(m: Measurements, plan, spread: Spread = Spread()
     meter): the true need times the true volume over the stated, over the
     true strength. None when no sampled water is a real one.
     """
-    s = _sample(m, spread)
+    s = _sample(m, spread, tuple(plan.reagent.compound.adds))
     r = plan.reagent.vector()
     aim, target = plan.target.ph_aim, plan.target
     need, grip = dose_to_ph(s.mix, r, aim)
@@ -236,14 +277,17 @@ def dose_uncertainty(m: Measurements, plan, spread: Spread = Spread()
     need = np.maximum(need[idx], 0.0) * s.amount[idx] / s.strength[idx]
     given = plan.dose_mol_l * s.strength[idx] / s.amount[idx]
     sub = s.mix.take(idx)
-    ph_after = solve_ph(add_dose(sub, r, given), ph_guess=np.full(idx.size, aim))
+    ph_after = solve_ph(add_dose(sub, r, given), ph_guess=np.full(idx.size, aim),
+                        tol_ph=SAMPLE_TOL_PH)
     p05, p50, p95 = np.percentile(need, [5, 50, 95])
     return DoseUncertainty(
         samples=spread.samples, valid=int(idx.size), needed_mol_l=need,
         ph_after_plan=ph_after, p05_mol_l=float(p05), p50_mol_l=float(p50),
         p95_mol_l=float(p95), p_below=float(np.mean(ph_after < target.ph_min)),
         p_above=float(np.mean(ph_after > target.ph_max)),
-        shares=_shares(s.z[idx], s.keys, need), sample=s)
+        shares=_merged(_shares(s.z[idx], s.keys, need)), sample=s,
+        group_words={group_of(g.key): g.words
+                     for g in _model_groups(m, tuple(plan.reagent.compound.adds))})
 
 
 def _shares(z: np.ndarray, keys: tuple[str, ...], y: np.ndarray) -> tuple:
@@ -260,6 +304,16 @@ def _shares(z: np.ndarray, keys: tuple[str, ...], y: np.ndarray) -> tuple:
         return ()
     order = np.argsort(-c2)
     return tuple((keys[i], float(c2[i] / total)) for i in order)
+
+
+def _merged(shares: tuple) -> tuple:
+    """Shares with the keys of one model group added together (a metal's
+    hydrolysis and its solid are one: its constants), largest first."""
+    out: dict[str, float] = {}
+    for key, share in shares:
+        k = group_of(key) if key.startswith("model:") else key
+        out[k] = out.get(k, 0.0) + share
+    return tuple(sorted(out.items(), key=lambda kv: -kv[1]))
 
 
 @dataclass(frozen=True)
@@ -302,7 +356,7 @@ def staged_dose(plan, unc: DoseUncertainty, spread: Spread = Spread(),
     idx = np.flatnonzero(s.ok)
     given = first * s.strength[idx] / s.amount[idx]
     ph1 = solve_ph(add_dose(s.mix.take(idx), r, given),
-                   ph_guess=np.full(idx.size, plan.target.ph_aim))
+                   ph_guess=np.full(idx.size, plan.target.ph_aim), tol_ph=SAMPLE_TOL_PH)
     lo, hi = np.percentile(ph1, [1, 99])
     grid = _grid(float(lo), float(hi), rows)
     extra = trim_doses(plan, first, grid)
@@ -334,7 +388,8 @@ def follow_table(plan, staging: Staging, waters: Mixture, delivered: np.ndarray,
     r = plan.reagent.vector()
     aim = plan.target.ph_aim
     first = staging.first_mol_l * delivered
-    ph1 = (solve_ph(add_dose(waters, r, first), ph_guess=np.full(waters.n, aim))
+    ph1 = (solve_ph(add_dose(waters, r, first), ph_guess=np.full(waters.n, aim),
+                    tol_ph=SAMPLE_TOL_PH)
            if ph_first is None else ph_first)
     rows = [row for row in staging.trim if row.extra_mol_l is not None]
     if not rows:
@@ -346,7 +401,8 @@ def follow_table(plan, staging: Staging, waters: Mixture, delivered: np.ndarray,
     past = (ph1 >= aim) if plan.reagent.raises_ph else (ph1 <= aim)
     extra = np.where(past, 0.0, extra)
     total = first + extra * delivered        # both per litre of the water before dosing
-    return solve_ph(add_dose(waters, r, total), ph_guess=np.full(waters.n, aim))
+    return solve_ph(add_dose(waters, r, total), ph_guess=np.full(waters.n, aim),
+                    tol_ph=SAMPLE_TOL_PH)
 
 
 def _grid(lo: float, hi: float, rows: int) -> np.ndarray:

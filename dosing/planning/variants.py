@@ -17,6 +17,7 @@ import numpy as np
 
 from ..chem import (CARBONATE, N_ACIDS, Mixture, carbonate_for_alkalinity, co2_in_air_mol_l,
                     speciate, strong_balance_at_ph)
+from ..chem.mixture import LogKShift
 from .effluent import (FULL_EXCHANGE, MAX_AIR_CARBONATE_MOL_L, MAX_CARBONATE_MOL_L,
                        MAX_IONIC_STRENGTH, aerate, air_exchange_fraction)
 from .measurements import (CACO3_MG_PER_MEQ, LAB_PRECISION, LOW_READING_MG_L, Checked,
@@ -34,6 +35,7 @@ class Perturbation:
     lab_mg_l: np.ndarray         #: lab alkalinity or acidity [mg/L as CaCO3] (ignored if none)
     solute_factor: np.ndarray    #: each listed solute over its value given [-]
     metal_factor: np.ndarray     #: each metal over its value given [-]
+    shift: LogKShift | None = None   #: the model's constants moved per variant
 
 
 def _many_carbonate(job: Checked, given_c: bool, open_to_air: bool,
@@ -50,7 +52,7 @@ def _many_carbonate(job: Checked, given_c: bool, open_to_air: bool,
         c, coef, _ = carbonate_for_alkalinity(
             vec, v.ph, v.temperature_c, eq, measured.endpoint_ph, activity=job.activity,
             extra_ionic_strength=job.known_i, unknown_pka=job.unknown_pka,
-            ferrous_oxidised=measured.kind == "acidity")
+            ferrous_oxidised=measured.kind == "acidity", shift=v.shift)
         floor_mg = np.abs(eq - c * coef) * CACO3_MG_PER_MEQ * 1000.0
         slack = np.maximum(LOW_READING_MG_L, LAB_PRECISION * floor_mg)
         zero = (c < 0) & ((mg <= LOW_READING_MG_L) | (floor_mg - mg <= slack))
@@ -62,7 +64,8 @@ def _many_carbonate(job: Checked, given_c: bool, open_to_air: bool,
     elif not given_c and open_to_air:
         co2 = co2_in_air_mol_l(v.temperature_c, job.pco2_uatm * 1e-6)
         probe = speciate(Mixture.build(vec, 0.0, job.known_i, v.temperature_c, co2,
-                                       job.activity, job.unknown_pka), v.ph, solids=False)
+                                       job.activity, job.unknown_pka, v.shift), v.ph,
+                         solids=False)
         vec[:, CARBONATE] = probe.totals_mol_l[:, CARBONATE]
         ok &= vec[:, CARBONATE] <= MAX_AIR_CARBONATE_MOL_L
     return ok
@@ -96,12 +99,13 @@ def infer_many(measurements: Measurements, variants: Perturbation
     s, ionic = strong_balance_at_ph(vec, v.ph, v.temperature_c, activity=job.activity,
                                     extra_ionic_strength=job.known_i,
                                     unknown_pka=job.unknown_pka,
-                                    known_strong_eq_l=job.known_eq)
+                                    known_strong_eq_l=job.known_eq, shift=v.shift)
     ok &= np.isfinite(s) & np.isfinite(ionic) & (ionic <= MAX_IONIC_STRENGTH)
     s = np.where(ok, s, 0.0)
     strong_i = job.known_i + 0.5 * np.abs(s - job.known_eq)
     co2 = (co2_in_air_mol_l(v.temperature_c, job.pco2_uatm * 1e-6) if air_equilibrium
            else np.full(n, math.nan))
     tank = aerate(vec) if m.oxidise_ferrous else vec
-    mix = Mixture.build(tank, s, strong_i, v.temperature_c, co2, job.activity, job.unknown_pka)
+    mix = Mixture.build(tank, s, strong_i, v.temperature_c, co2, job.activity, job.unknown_pka,
+                        v.shift)
     return replace(mix, calcite=m.calcite == "precipitates"), ok
