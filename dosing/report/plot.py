@@ -189,7 +189,8 @@ def _metals_panel(ax3, plan: Plan, metals) -> None:
     ax3.grid(True, which="both", alpha=0.25)
     ax3.legend(loc="upper center", bbox_to_anchor=(0.5, -0.12), ncol=3, fontsize=8,
                frameon=False)
-    ax3.set_title("Metals left in solution with the hydroxide present (model estimate; "
+    ax3.set_title("Metals left in solution at each pH, this water's ligands and solids "
+                  "included (model estimate; "
                   "a jar test is the check)", fontsize=9)
 
 
