@@ -136,8 +136,9 @@ def _log_parser(sub) -> None:
     a = lsub.add_parser("add", help="record a decision for a scenario")
     a.add_argument("scenario")
     a.add_argument("--operator", required=True)
-    a.add_argument("--dosed", type=float, metavar="KG", help="product actually dosed, kg "
-                   "(for a flow, the rate it ran at, kg/h)")
+    a.add_argument("--dosed", metavar="KG", help="product actually dosed, kg (for a flow, the "
+                   "rate it ran at, kg/h); for a treatment train one figure per dose step, "
+                   "in step order, separated by commas")
     a.add_argument("--ph-after", type=float, metavar="PH", help="pH measured after dosing")
     a.add_argument("--note", default="")
     a.add_argument("--corrects", type=int, metavar="ID", help="this entry corrects entry ID")

@@ -31,28 +31,64 @@ def _now() -> str:
 
 def _cmd_plan(args) -> int:
     from .io.scenario import load_scenario
-    from .planning.job import make_plan
-    from .report.plan_json import sheet_dict
-    from .report.sheet import figure_title, render_sheet
     if args.plot and not args.plot.lower().endswith(".png"):
         raise ScenarioError(args.plot, "", "the plot is written as PNG; give a "
                             "file name ending in .png")
     scenario = load_scenario(args.scenario)
-    plan = make_plan(scenario)
-    if args.db:
-        plan = _with_log_bias(args.db, scenario, plan)
-    png = None
-    if args.plot:
-        from .report.plot import plan_figure_png
-        png = plan_figure_png(plan, figure_title(scenario, _now()), args.units,
-                              engineer=args.figure == "engineer")
-    data = require_finite(sheet_dict(scenario, plan), "plan")
-    text = to_json(data) if args.json else render_sheet(scenario, plan, args.units)
+    text, data, png = (_plan_train if scenario.train else _plan_one)(scenario, args)
+    data = require_finite(data, "plan")
     if png is not None:
         write_atomic(args.plot, png)
         sys.stderr.write(f"dosing: wrote the plot to {args.plot}\n")
-    sys.stdout.write(text)
+    sys.stdout.write(to_json(data) if args.json else text)
     return 0
+
+
+def _plan_one(scenario, args):
+    """A one-dose scenario: its sheet, data and figure; with the train the
+    planner proposes first when one dose cannot meet the window and the caps."""
+    from .planning.job import make_plan
+    from .planning.train_job import make_train
+    from .report.plan_json import sheet_dict
+    from .report.sheet import figure_title, render_sheet
+    plan = make_plan(scenario)
+    if args.db:
+        plan = _with_log_bias(args.db, scenario, plan)
+    train = make_train(scenario, plan)
+    data = sheet_dict(scenario, plan)
+    text = render_sheet(scenario, plan, args.units)
+    if train is not None:
+        from .report.train_json import train_keys
+        from .report.train_sheet import render_train
+        from .report.train_view import train_view
+        data |= train_keys(train_view(scenario, train))
+        text = (render_train(scenario, train, args.units) + "\n"
+                + "ONE DOSE ALONE, FOR COMPARISON (it cannot meet the window and the caps)\n"
+                + text)
+    png = None
+    if args.plot:
+        from .report.plot import plan_figure_png, train_figure_png
+        title = figure_title(scenario, _now())
+        png = (train_figure_png(train, title, args.units) if train is not None else
+               plan_figure_png(plan, title, args.units, engineer=args.figure == "engineer"))
+    return text, data, png
+
+
+def _plan_train(scenario, args):
+    """A train scenario: its sheet, data and figure."""
+    from .planning.train_job import make_train
+    from .report.sheet import figure_title
+    from .report.train_json import train_dict
+    from .report.train_sheet import render_train
+    if args.db:
+        raise UsageError("--db", "the shift log's bias is per tank and one dose; a train "
+                         "is planned without it")
+    train = make_train(scenario)
+    png = None
+    if args.plot:
+        from .report.plot import train_figure_png
+        png = train_figure_png(train, figure_title(scenario, _now()), args.units)
+    return render_train(scenario, train, args.units), train_dict(scenario, train), png
 
 
 def _numbers(option: str, text: str | None, low: float, high: float, unit: str):
@@ -331,17 +367,14 @@ def _cmd_log(args) -> int:
         if not args.csv.lower().endswith(".csv"):
             raise ScenarioError(args.csv, "", "the export is CSV; give a name ending in .csv")
     if args.log_command == "add":
-        from .io.scenario import load_scenario
-        from .planning.job import make_plan
-        from .report.plan_json import sheet_dict
-        scenario = load_scenario(args.scenario)
-        plan = make_plan(scenario)
         from pathlib import Path
+        from .io.scenario import load_scenario
+        scenario = load_scenario(args.scenario)
+        plan, dosed = _plan_to_record(scenario, args.dosed)
         toml_text = Path(args.scenario).read_text(encoding="utf-8")
         with ShiftLog(args.db) as log:
             entry_id = log.record_decision(
-                operator=args.operator, scenario_toml=toml_text,
-                plan=sheet_dict(scenario, plan), dosed_kg=args.dosed,
+                operator=args.operator, scenario_toml=toml_text, plan=plan, dosed_kg=dosed,
                 ph_after=args.ph_after, note=args.note, corrects=args.corrects)
             sys.stdout.write(logview.render_entry(log, log.get(entry_id)))
         return 0
@@ -361,6 +394,34 @@ def _cmd_log(args) -> int:
             sys.stdout.write(f"wrote {len(frame)} entries to {args.csv}\n"
                              + logview.unreadable_line(log))
     return 0
+
+
+def _plan_to_record(scenario, dosed_text: str | None) -> tuple[dict, float | None]:
+    """The plan a log entry records (a train whole, with what each dose step
+    was given), and the one dosed figure of a one-dose plan."""
+    from .planning.job import make_plan
+    from .planning.train_job import make_train
+    from .report.plan_json import sheet_dict
+    plan = None if scenario.train else make_plan(scenario)
+    train = make_train(scenario, plan)
+    figures = _numbers("--dosed", dosed_text, -1e-300, 1e9, "kg") if dosed_text else None
+    if train is None:
+        if figures is not None and len(figures) != 1:
+            raise UsageError("--dosed", f"{dosed_text!r}; this plan has one dose: give one "
+                             "figure in kg")
+        return sheet_dict(scenario, plan), None if figures is None else figures[0]
+    from .report.train_json import train_dict, train_keys
+    from .report.train_view import train_view
+    data = (train_dict(scenario, train) if plan is None
+            else sheet_dict(scenario, plan) | train_keys(train_view(scenario, train)))
+    doses = [s["step"] for s in data["steps"] if s["kind"] == "dose"]
+    if figures is not None:
+        if len(figures) != len(doses):
+            raise UsageError("--dosed", f"{dosed_text!r}; this train has {len(doses)} dose "
+                             f"steps ({', '.join(map(str, doses))}): give one figure in kg "
+                             "for each, separated by commas")
+        data["given_kg"] = {str(step): kg for step, kg in zip(doses, figures)}
+    return data, None
 
 
 #: The handler of each subcommand.

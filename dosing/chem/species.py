@@ -68,7 +68,7 @@ MOLAR_MASS = {
     "H2S": _mm(H=2, S=1), "NH3": _mm(N=1, H=3), "HCN": _mm(H=1, C=1, N=1),
     "Mg(OH)2": _mm(Mg=1, O=2, H=2), "CaO": _mm(Ca=1, O=1),
     "CaSO4·2H2O": _mm(Ca=1, S=1, O=6, H=4),
-    "NaHS": _mm(Na=1, H=1, S=1), "Na2S": _mm(Na=2, S=1),
+    "NaHS": _mm(Na=1, H=1, S=1), "Na2S": _mm(Na=2, S=1), "H2O2": _mm(H=2, O=2),
 }
 
 

@@ -35,6 +35,10 @@ from ..chem.metals import METAL_IDS
 from ..planning.solids import CAKE_DENSITY_KG_L, CAKE_SOLIDS_FRACTION, METAL_PERMIT_KEYS
 from ..chem.species import SYSTEM_IDS
 from ..planning.uncertainty import SPREAD_KEYS, spread_from
+from ..planning.blend import mix_streams
+from ..planning.discharge import METAL_BASES
+from ..planning.train import water_of
+from .train_scenario import basis_of_blend, read_steps
 
 __all__ = ["Scenario", "PERMIT_KEYS", "parse_scenario", "load_scenario",
            "scenario_to_toml", "build_scenario", "scenario_key", "measurements_of"]
@@ -78,11 +82,12 @@ _SCHEMA: dict[str, dict[str, tuple]] = {
         "price_per_kg": ((int, float), False),
         "storage_m3": ((int, float), False),
         "storage_kg": ((int, float), False),
+        "readjust_id": ((str,), False),
     },
     "model": {"activity": ((str,), False), "open_to_air": ((bool,), False),
               "pco2_uatm": ((int, float), False), "hours_in_air": ((int, float), False),
               "depth_m": ((int, float), False), "calcite": ((str,), False)},
-    "permit": {k: ((int, float), False) for k in PERMIT_KEYS},
+    "permit": {k: ((int, float), False) for k in PERMIT_KEYS} | {"metals_basis": ((str,), False)},
     "sludge": {"cake_solids_fraction": ((int, float), False),
                "cake_density_kg_l": ((int, float), False)},
     "uncertainty": {k: ((int, float), False) for k in SPREAD_KEYS},
@@ -110,6 +115,8 @@ def _finite(v) -> bool:
 
 def _check_types(path: str, data: Mapping[str, Any]) -> None:
     for key, value in data.items():
+        if key == "step":
+            continue                # a train: checked by io.train_scenario
         if key in _TOP:
             if not isinstance(value, _TOP[key]):
                 raise ScenarioError(path, key, "expected text in quotes")
@@ -136,6 +143,22 @@ def _check_types(path: str, data: Mapping[str, Any]) -> None:
         for sub, (_, required) in schema.items():
             if required and sub not in value:
                 raise ScenarioError(path, f"{key}.{sub}", "missing; this key is required")
+    _check_sections(path, data)
+    for table, (kind, allowed) in _TABLES.items():
+        for sid, v in data.get("effluent", {}).get(table, {}).items():
+            where = f"effluent.{table}.{sid}"
+            if sid not in allowed:
+                raise ScenarioError(path, where, f"unknown {kind}; allowed: "
+                                    + ", ".join(allowed))
+            if not _is_number(v) or not _finite(v):
+                raise ScenarioError(path, where, f"expected a finite number, got {_short(v)}")
+
+
+def _check_sections(path: str, data: Mapping[str, Any]) -> None:
+    """The sections a scenario needs: one dose, or a train ([[step]])."""
+    if "step" in data:
+        _check_train_sections(path, data)
+        return
     for section in _SECTIONS_REQUIRED:
         if section not in data:
             raise ScenarioError(path, f"[{section}]", "missing; a scenario needs "
@@ -144,14 +167,32 @@ def _check_types(path: str, data: Mapping[str, Any]) -> None:
     if ("batch" in data) == ("flow" in data):
         raise ScenarioError(path, "[batch]/[flow]", "give exactly one of [batch] "
                             "(a tank volume) or [flow] (a continuous stream)")
-    for table, (kind, allowed) in _TABLES.items():
-        for sid, v in data["effluent"].get(table, {}).items():
-            where = f"effluent.{table}.{sid}"
-            if sid not in allowed:
-                raise ScenarioError(path, where, f"unknown {kind}; allowed: "
-                                    + ", ".join(allowed))
-            if not _is_number(v) or not _finite(v):
-                raise ScenarioError(path, where, f"expected a finite number, got {_short(v)}")
+
+
+def _check_train_sections(path: str, data: Mapping[str, Any]) -> None:
+    """A train: [target] always; [effluent] and [batch] or [flow] unless a blend
+    makes the water; no [reagent] (each dose names its own)."""
+    steps = data["step"]
+    blend = isinstance(steps, list) and steps and isinstance(steps[0], dict) \
+        and steps[0].get("kind") == "blend"
+    if "target" not in data:
+        raise ScenarioError(path, "[target]", "missing; a train needs the discharge window")
+    if "reagent" in data:
+        raise ScenarioError(path, "[reagent]", "a train names each dose's product in its "
+                            "[[step]] (reagent = \"...\"); leave [reagent] out")
+    if blend:
+        for section in ("effluent", "batch", "flow"):
+            if section in data:
+                raise ScenarioError(path, f"[{section}]", "the blend step makes the water "
+                                    "and its volume or flow from its streams; leave "
+                                    f"[{section}] out")
+        return
+    if "effluent" not in data:
+        raise ScenarioError(path, "[effluent]", "missing; give the water the train starts "
+                            "from, or begin the train with a blend step")
+    if ("batch" in data) == ("flow" in data):
+        raise ScenarioError(path, "[batch]/[flow]", "give exactly one of [batch] "
+                            "(a tank volume) or [flow] (a continuous stream)")
 
 
 #: Tables of [effluent] keyed by name: what they hold and the names allowed.
@@ -218,47 +259,89 @@ def build_scenario(data: Mapping[str, Any], path: str = "<scenario>") -> Scenari
         Naming ``path``, the key and what is allowed.
     """
     _check_types(path, data)
-    r = data["reagent"]
     try:
-        measurements = measurements_of(data)
-        water = infer_water(measurements)
-        t = data["target"]
-        target = Target(float(t["ph_min"]), float(t["ph_max"]),
-                        None if "ph_aim" not in t else float(t["ph_aim"]))
-        basis = (Batch(float(data["batch"]["volume_m3"])) if "batch" in data
-                 else Flow(float(data["flow"]["m3_per_h"])))
-        reagent = _reagent(r)
-        for key, top, unit in _REAGENT_EXTRAS:
-            if key in r and not 0 < r[key] <= top:
-                raise InputError(f"reagent.{key}", f"{r[key]:g}; allowed: above 0 "
-                                 f"and up to {top:,.0f} {unit}")
-        if "storage_m3" in r and reagent.form != "liquid":
-            raise InputError("reagent.storage_m3", "storage by volume is for a "
-                             "solution; give storage_kg for a solid or a gas")
-        if "storage_m3" in r and "storage_kg" in r:
-            raise InputError("reagent.storage_kg", "give storage_m3 or storage_kg, "
-                             "not both")
-        hours = data.get("flow", {}).get("hours_per_day", 24.0)
-        if not 0 < hours <= 24:
-            raise InputError("flow.hours_per_day", f"{hours:g}; allowed: above 0 "
-                             "and up to 24")
-        permit = dict(data.get("permit", {}))
-        for key, cap in permit.items():
-            if not 0 < cap <= 1e6:
-                raise InputError(f"permit.{key}", f"{cap:g}; allowed: above 0 and up "
-                                 "to 1,000,000 mg/L")
-        sludge = _sludge(data.get("sludge", {}))
-        spread = spread_from(data.get("uncertainty"))
-        flow_range = _flow_range(data.get("flow"))
+        fields = _common(data)
+        fields |= _train(data) if "step" in data else _one_dose(data)
     except InputError as err:
         raise ScenarioError(path, scenario_key(err.field), err.reason) from None
-    return Scenario(title=data.get("title", Path(path).stem),
-                    site=data.get("site", ""), tank=data.get("tank", ""),
-                    measurements=measurements, water=water, basis=basis, target=target, reagent=reagent,
-                    price_per_kg=r.get("price_per_kg"), storage_m3=r.get("storage_m3"),
-                    storage_kg=r.get("storage_kg"), hours_per_day=float(hours),
-                    permit=permit, data=data, sludge=sludge, source=path, spread=spread,
-                    flow_range_m3_h=flow_range)
+    return Scenario(title=data.get("title", Path(path).stem), site=data.get("site", ""),
+                    tank=data.get("tank", ""), data=data, source=path, **fields)
+
+
+def _target(data: Mapping[str, Any]) -> Target:
+    t = data["target"]
+    return Target(float(t["ph_min"]), float(t["ph_max"]),
+                  None if "ph_aim" not in t else float(t["ph_aim"]))
+
+
+def _common(data: Mapping[str, Any]) -> dict[str, Any]:
+    """What one dose and a train share: window, permit, sludge, spread, hours."""
+    hours = data.get("flow", {}).get("hours_per_day", 24.0)
+    if not 0 < hours <= 24:
+        raise InputError("flow.hours_per_day", f"{hours:g}; allowed: above 0 "
+                         "and up to 24")
+    permit = dict(data.get("permit", {}))
+    basis_key = permit.pop("metals_basis", "total")
+    if basis_key not in METAL_BASES:
+        raise InputError("permit.metals_basis", f"{basis_key!r}; allowed: "
+                         + " or ".join(f'"{b}"' for b in METAL_BASES))
+    for key, cap in permit.items():
+        if not 0 < cap <= 1e6:
+            raise InputError(f"permit.{key}", f"{cap:g}; allowed: above 0 and up "
+                             "to 1,000,000 mg/L")
+    return dict(target=_target(data), hours_per_day=float(hours), permit=permit,
+                metals_basis=basis_key, sludge=_sludge(data.get("sludge", {})),
+                spread=spread_from(data.get("uncertainty")),
+                flow_range_m3_h=_flow_range(data.get("flow")))
+
+
+def _one_dose(data: Mapping[str, Any]) -> dict[str, Any]:
+    """The fields of a one-dose scenario: its water, amount and product."""
+    r = data["reagent"]
+    measurements = measurements_of(data)
+    reagent = _reagent(r)
+    for key, top, unit in _REAGENT_EXTRAS:
+        if key in r and not 0 < r[key] <= top:
+            raise InputError(f"reagent.{key}", f"{r[key]:g}; allowed: above 0 "
+                             f"and up to {top:,.0f} {unit}")
+    if "storage_m3" in r and reagent.form != "liquid":
+        raise InputError("reagent.storage_m3", "storage by volume is for a "
+                         "solution; give storage_kg for a solid or a gas")
+    if "storage_m3" in r and "storage_kg" in r:
+        raise InputError("reagent.storage_kg", "give storage_m3 or storage_kg, not both")
+    readjust = None
+    if "readjust_id" in r:
+        try:
+            readjust = get_reagent(r["readjust_id"])
+        except InputError as err:
+            raise InputError("reagent.readjust_id", err.reason) from None
+    return dict(measurements=measurements, water=infer_water(measurements),
+                basis=_basis(data), reagent=reagent, price_per_kg=r.get("price_per_kg"),
+                storage_m3=r.get("storage_m3"), storage_kg=r.get("storage_kg"),
+                readjust=readjust)
+
+
+def _basis(data: Mapping[str, Any]) -> Batch | Flow:
+    return (Batch(float(data["batch"]["volume_m3"])) if "batch" in data
+            else Flow(float(data["flow"]["m3_per_h"])))
+
+
+def _train(data: Mapping[str, Any]) -> dict[str, Any]:
+    """The fields of a train: its steps, the water it starts from, its amount."""
+    steps = read_steps(data["step"], _target(data), measurements_of, data.get("model", {}))
+    if steps[0].kind == "blend":
+        mix, template, ions = mix_streams(steps[0].streams)
+        water, measurements, basis = water_of(mix, template, ions_mg_l=ions), None, \
+            basis_of_blend(steps[0])
+    else:
+        measurements = measurements_of(data)
+        water, basis = infer_water(measurements), _basis(data)
+    first = next((s for s in steps if s.kind == "dose"), None)
+    if first is None:
+        raise InputError("step", "a train needs at least one dose step")
+    return dict(measurements=measurements, water=water, basis=basis, reagent=first.reagent,
+                price_per_kg=first.price_per_kg, storage_m3=None, storage_kg=None,
+                train=steps)
 
 
 def _flow_range(flow: Mapping[str, Any] | None) -> tuple[float, float] | None:
@@ -340,6 +423,7 @@ def scenario_to_toml(data: Mapping[str, Any], original: str | None = None) -> st
     doc = tomlkit.parse(original.lstrip("\ufeff")) if original else tomlkit.document()
     for key in _TOP:
         _set(doc, key, data.get(key))
+    _set_steps(doc, data.get("step"))
     for section in _SCHEMA:
         values = data.get(section)
         if values is None:
@@ -354,6 +438,33 @@ def scenario_to_toml(data: Mapping[str, Any], original: str | None = None) -> st
         for key, value in values.items():
             _set(table, key, value)
     return tomlkit.dumps(doc)
+
+
+def _set_steps(doc, steps) -> None:
+    """A train's [[step]] list: kept as written when unchanged, else written anew."""
+    import tomlkit
+    if steps is None:
+        if "step" in doc:
+            del doc["step"]
+        return
+    if "step" in doc and _plain(doc["step"]) == steps:
+        return
+    aot = tomlkit.aot()
+    for step in steps:
+        table = tomlkit.table()
+        for key, value in step.items():
+            if key == "stream":
+                streams = tomlkit.aot()
+                for stream in value:
+                    st = tomlkit.table()
+                    for k, v in stream.items():
+                        st[k] = v
+                    streams.append(st)
+                table["stream"] = streams
+            else:
+                table[key] = value
+        aot.append(table)
+    doc["step"] = aot
 
 
 def _set(container, key: str, value) -> None:

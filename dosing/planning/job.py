@@ -22,6 +22,7 @@ from ..chem.activity import AUTO, DAVIES, DAVIES_I_LIMIT, SIT, kg_water_per_l
 from ..errors import InputError, ModelError, ScenarioError, UnreachableError
 from .control import control_design
 from .effluent import Water, with_sit
+from .findings import Finding, Q
 from .measurements import Measurements
 from .plan import Batch, Flow, Plan, Target, plan_dose
 from .precision import lab_sensitivity, precision_warning
@@ -73,6 +74,14 @@ class Scenario:
         Uncertainty of each input, from the [uncertainty] table.
     flow_range_m3_h : (float, float) or None
         Lowest and highest flow of a stream, for the control design.
+    train : tuple of StepSpec
+        The steps of a treatment train (:mod:`dosing.planning.train`); empty
+        for one dose (the planner may still propose a train).
+    readjust : Reagent or None
+        The product a proposed train brings the water back into the window
+        with ([reagent] readjust_id); None: the planner chooses.
+    metals_basis : {"total", "dissolved"}
+        What the permit's metal caps cap in a train's discharge.
     source : str
         The file it came from, for messages.
     data : Mapping
@@ -97,6 +106,9 @@ class Scenario:
     source: str = "<scenario>"
     spread: Spread = field(default_factory=Spread)
     flow_range_m3_h: tuple[float, float] | None = None
+    train: tuple = ()                      #: the [[step]] list (StepSpec), empty: one dose
+    readjust: Reagent | None = None        #: product to come back into the window, if named
+    metals_basis: str = "total"            #: what the permit's metal caps cap
 
     def storage_lasts(self, litres_used: float | None, kg_used: float | None) -> float | None:
         """How many periods the storage lasts at the given use per period.
@@ -118,7 +130,7 @@ class Scenario:
 def scenario_key(field_name: str) -> str:
     """The scenario key an engine field name came from (``ph`` -> ``effluent.ph``)."""
     head = field_name.split(".")[0]
-    if head in SECTIONS:
+    if head in SECTIONS or head.startswith("step"):
         return field_name
     if head in MODEL_FIELDS:
         return f"model.{field_name}"
@@ -151,8 +163,9 @@ def make_plan(scenario: Scenario, *, sampled: bool = True) -> Plan:
     sens = lab_sensitivity(_measured(scenario, plan), scenario.reagent,
                            scenario.target.ph_aim)
     words = precision_warning(sens, plan.dose_mol_l)
-    plan = replace(plan, precision=sens,
-                   warnings=plan.warnings + ((words,) if words else ()))
+    ferrous = ferrous_finding(plan.water, scenario.reagent, scenario.target, scenario.basis)
+    plan = replace(plan, precision=sens, warnings=plan.warnings + tuple(
+        f for f in (words, ferrous) if f is not None))
     if sampled:
         return with_uncertainty(scenario, plan)
     return replace(plan, control=control_design(plan, scenario.flow_range_m3_h))
@@ -205,3 +218,28 @@ def _sampled(scenario: Scenario, plan: Plan) -> Plan:
     if isinstance(plan.basis, Batch) and unc.p_outside > MATERIAL_RISK:
         staging = staged_dose(plan, unc, spread)
     return replace(plan, uncertainty=unc, staging=staging)
+
+
+def ferrous_finding(water: Water, reagent: Reagent, target: Target, basis: Batch | Flow
+                    ) -> Finding | None:
+    """Iron(II) planned as sampled: the dose with it oxidised first, beside it."""
+    fe2 = water.metals_mol_l.get("iron_ii", 0.0)
+    if fe2 <= 0.0 or water.ferrous_oxidised:
+        return None
+    try:
+        here = plan_dose(water, reagent, target, basis)
+        oxid = plan_dose(replace(water, ferrous_oxidised=True), reagent, target, basis)
+    except (InputError, UnreachableError, ModelError):
+        return None
+    a, b = here.amounts(), oxid.amounts()
+    if a.kg_product is None or b.kg_product is None or a.kg_product <= 0:
+        return None
+    return Finding(
+        "ferrous", "warning",
+        "iron(II) {fe2_mg_l} is planned as dissolved ferrous iron, as sampled: {kg} {per}. "
+        "If the tank aerates, or the iron is oxidised first (as most plants do, since "
+        "ferrous iron stays dissolved to about pH 9), the dose becomes {kg_ox} "
+        "({change:+.0%}): plan with an oxidise step, or set effluent.oxidise_ferrous",
+        {"fe2_mg_l": Q(fe2 * 55845.0, "mg/L"), "kg": Q(a.kg_product, "kg"),
+         "kg_ox": Q(b.kg_product, "kg"), "change": Q(b.kg_product / a.kg_product - 1.0, "%")},
+        {"per": basis.per})

@@ -129,6 +129,9 @@ COMPOUNDS: dict[str, Compound] = {c.formula: c for c in (
        enters_as={"sulfide": 1}),
     _c("Na2S", 2.0, {"Na": 2.0}, 1.0, True, adds={"sulfide": 1.0},
        enters_as={"sulfide": 1}, oh=1.0),
+    # An oxidant, not a pH reagent: an oxidise step doses it by the iron it
+    # oxidises (0.5 mol per mol of iron(II)); it adds no strong ion.
+    _c("H2O2", 0.0, {}, 0.0, False),
 )}
 
 _CAUSTIC = ("Caustic burns skin and eyes on contact: face shield, "
@@ -243,6 +246,12 @@ _SULFIDE = ("Sulfide releases hydrogen sulfide, a toxic gas that kills at a few 
             "apart from acid wastes and say so on the sludge manifest.",
             "The product is strongly alkaline and corrosive: face shield, gloves and "
             "apron; eyewash and shower at hand.")
+_PEROXIDE = ("Hydrogen peroxide is a strong oxidiser: it burns skin and eyes, and it "
+             "decomposes to oxygen and heat on contact with metals, dirt or alkali: keep it "
+             "away from organics and combustibles, vent its tank, never return unused "
+             "peroxide to the drum.",
+             "Dose it into the iron water slowly, with mixing: the oxidation releases acid "
+             "and the pH falls.")
 _LIME = ("Lime dust burns eyes and airways: goggles and dust mask when loading.",
          "Lime dissolves slowly: feed it as a slurry, mix well and allow "
          "reaction time before reading the pH.")
@@ -356,6 +365,15 @@ CATALOGUE: dict[str, Reagent] = {r.id: r for r in (
     Reagent("sulfide-60", "sodium sulfide flake, 60 % Na2S", COMPOUNDS["Na2S"], 0.60, None,
             "solid", "", _SULFIDE + ("Flake dissolves hot and strongly alkaline: dissolve "
                                      "it in a day tank, slowly, with mixing.",)),
+    Reagent("peroxide-35", "hydrogen peroxide 35 %", COMPOUNDS["H2O2"], 0.35, 1.13, "liquid",
+            "35 % H2O2 about 1.13 kg/L at 20 °C (CRC Handbook, concentrative properties of "
+            "aqueous solutions; from memory)", _PEROXIDE),
+    Reagent("lime-slurry-15", "lime slurry, 15 % Ca(OH)2", COMPOUNDS["Ca(OH)2"], 0.15, 1.09,
+            "liquid", "computed for 15 % solids from Ca(OH)2 2.24 g/cm3 (CRC Handbook, "
+            "physical constants of inorganic compounds, from memory) and water: "
+            "1/(0.15/2.24 + 0.85); 10-20 % slurries are common practice",
+            ("Lime slurry settles and scales: keep it stirred, the lines short and "
+             "flushed, the pump rated for slurry.",) + _LIME),
     Reagent("co2", "carbon dioxide gas", COMPOUNDS["CO2"], 1.0, None, "gas", "",
             ("CO2 displaces air: in a pit, a closed room or a covered tank it "
              "suffocates without warning; ventilate and use a gas monitor.",

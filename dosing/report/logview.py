@@ -75,7 +75,9 @@ def render_entry(log: ShiftLog, e: Entry) -> str:
         verb = "corrects" if e.kind == "correction" else "follows up"
         out.append(f"  {verb} entry {e.refers_to}")
     plan = e.plan
-    if plan:
+    if plan and plan.get("steps"):
+        out.extend(_train_lines(plan))
+    elif plan:
         dose = plan.get("dose", {})
         per = " per hour" if "kg_product_per_h" in dose else ""
         out.append(f"  planned: {_n(e.planned_kg)} kg{per} of {plan.get('reagent_name', e.reagent)}"
@@ -103,6 +105,27 @@ def render_entry(log: ShiftLog, e: Entry) -> str:
         for c in plan.get("cautions", []):
             out.append(f"  - {c}")
     return "\n".join(out) + "\n"
+
+
+def _train_lines(plan: dict) -> list[str]:
+    """A recorded treatment train: each step as planned, and what was given."""
+    given = plan.get("given_kg", {})
+    head = "proposed by the planner" if plan.get("train", {}).get("proposed") else "its steps"
+    out = [f"  treatment train, {head}:"]
+    for s in plan["steps"]:
+        what = f"    {s['step']} {s['kind']}" + (f" ({s['label']})" if s.get("label") else "")
+        dose = s.get("dose") or {}
+        kg = dose.get("kg_product", dose.get("kg_product_per_h"))
+        if s["kind"] == "dose":
+            what += (f": {_n(kg)} kg of {s.get('reagent', '?')} planned"
+                     + (f", {_n(given[str(s['step'])])} kg given" if str(s["step"]) in given
+                        else ""))
+        out.append(what + f", pH {_n(s.get('ph_in'))} to {_n(s.get('ph_after'))}")
+    d = plan.get("train", {}).get("discharge", {})
+    if d:
+        out.append(f"  discharge at pH {_n(d.get('ph'))}: "
+                   + ("window and caps met" if d.get("met") else "NOT MET"))
+    return out
 
 
 def _staging_lines(plan: dict) -> list[str]:

@@ -22,7 +22,8 @@ from .words import words  # noqa: E402
 from ..chem.metals import HARDNESS, label as metal_label  # noqa: E402
 from ..planning.reagents import GENERAL_CAUTION  # noqa: E402
 
-__all__ = ["plan_figure", "plan_figure_png", "replay_figure_png", "titration_figure_png"]
+__all__ = ["plan_figure", "plan_figure_png", "replay_figure_png", "titration_figure_png",
+           "train_figure_png"]
 
 #: The line under every figure: the general caution, once (reagents.py).
 FOOTER = f"Model estimate. {GENERAL_CAUTION}"
@@ -80,6 +81,35 @@ def plan_figure(plan: Plan, title: str = "", units: str = "metric", *,
     return fig
 
 
+def train_figure_png(train, title: str = "", units: str = "metric") -> bytes:
+    """PNG of a treatment train: one titration panel per dose step, each on the
+    water the step before left, then the metals of the first step that
+    precipitates them; the cautions of every product under it."""
+    doses = [(i, r) for i, r in enumerate(train.steps, start=1) if r.plan is not None]
+    first = next((r.plan for _, r in doses if r.plan.dissolved is not None
+                  and any(m not in HARDNESS for m in r.plan.dissolved.mg_l)), None)
+    panels = len(doses) + (first is not None)
+    fig, axes = plt.subplots(panels, 1, figsize=(8.0, 1.2 + 4.4 * panels), dpi=110,
+                             squeeze=False)
+    last = doses[-1][0]
+    for ax, (i, r) in zip(axes[:, 0], doses):
+        plan = r.plan
+        scale, unit, xlabel = dose_axis(plan, units)
+        _curve_panel(ax, plan, scale, unit, xlabel, False,
+                     "permit window" if i == last else f"step {i} window")
+        _litres_axis(ax, plan, UNIT_SYSTEMS[units], plan.basis.per)
+        head = f"Step {i}, dose" + (f": {r.spec.label}" if r.spec.label else "")
+        ax.set_title(f"{head} ({plan.reagent.name}), from pH {plan.ph_start:.2f}",
+                     fontsize=10, pad=24 if plan.reagent.form == "liquid" else 6)
+    if first is not None:
+        caps = {c.metal: c.cap_mg_l for c in train.discharge.metals}
+        _metals_panel(axes[-1, 0], first, {m: 1 for m in first.dissolved.mg_l
+                                           if m not in HARDNESS}, caps,
+                      (train.target.ph_min, train.target.ph_max))
+    fig.suptitle(title or "Treatment train", fontsize=11)
+    return _png(fig, train.cautions)
+
+
 def _litres_axis(ax, plan: Plan, u, per: str) -> None:
     """The same doses in litres (gallons) along the top, for a solution
     measured by mass."""
@@ -93,12 +123,12 @@ def _litres_axis(ax, plan: Plan, u, per: str) -> None:
 
 
 def _curve_panel(ax, plan: Plan, scale: float, unit: str, xlabel: str,
-                 engineer: bool) -> None:
+                 engineer: bool, window: str = "permit window") -> None:
     """pH against dose: the window, the doses that keep it, the aim, the plan."""
     c = plan.curve
     x = c.dose_mol_l * scale
     ax.axhspan(plan.target.ph_min, plan.target.ph_max, color="tab:green", alpha=0.13,
-               label=f"permit window pH {plan.target.ph_min:g}–{plan.target.ph_max:g}")
+               label=f"{window} pH {plan.target.ph_min:g}–{plan.target.ph_max:g}")
     lo, hi = plan.band_mol_l
     band_hi = (hi if hi is not None else c.dose_mol_l[-1]) * scale
     ax.axvspan(lo * scale, band_hi, color="tab:green", alpha=0.10, hatch="//", lw=0,
@@ -163,15 +193,17 @@ def _uncertainty_panel(ax, plan: Plan, scale: float, unit: str, per: str) -> Non
                  fontsize=9)
 
 
-def _metals_panel(ax3, plan: Plan, metals) -> None:
+def _metals_panel(ax3, plan: Plan, metals, caps=None, window=None) -> None:
     """Dissolved metal against pH (log scale), with caps, window and aim
-    (the plan's own curves, pH 4 to 13)."""
+    (the plan's own curves, pH 4 to 13); ``caps`` and ``window`` default to
+    the plan's own."""
     keep = (plan.dissolved.ph >= 4.0) & (plan.dissolved.ph <= 13.0)
     grid = plan.dissolved.ph[keep]
     curves = {mid: mg[keep] for mid, mg in plan.dissolved.mg_l.items() if mid in metals}
-    ax3.axvspan(plan.target.ph_min, plan.target.ph_max, color="tab:green", alpha=0.13,
-                label="permit pH window")
-    caps = {} if plan.cap_window is None else plan.cap_window.caps_mg_l
+    lo, hi = window or (plan.target.ph_min, plan.target.ph_max)
+    ax3.axvspan(lo, hi, color="tab:green", alpha=0.13, label="permit pH window")
+    if caps is None:
+        caps = {} if plan.cap_window is None else plan.cap_window.caps_mg_l
     for i, (mid, mg) in enumerate(curves.items()):
         color = f"C{i}"
         ax3.plot(grid, np.maximum(mg, 1e-6), color=color, lw=1.8,

@@ -25,7 +25,7 @@ from .words import bias_words, shown, texts, words
 __all__ = ["render_sheet", "render_view", "headline", "dose_lines", "metal_lines",
            "check_lines", "caution_lines", "water_lines", "uncertainty_lines", "log_lines",
            "control_lines", "staging_lines", "amount_text", "dose_axis", "figure_title",
-           "STEEP_PH_PER_PERCENT"]
+           "STEEP_PH_PER_PERCENT", "slope_text"]
 
 
 def amount_text(v: PlanView, a: Amounts, units: str = "metric", digits: int = 3) -> str:
@@ -119,7 +119,7 @@ def dose_lines(v: PlanView, units: str = "metric") -> list[tuple[str, str]]:
     rows.append(("pH", f"{plan.ph_start:.2f} now, {plan.ph_end:.2f} after the dose "
                  f"(aim {plan.target.ph_aim:g})"))
     if plan.dose_needed:
-        rows.append(("sensitivity", _slope_text(plan, u, flow)
+        rows.append(("sensitivity", slope_text(plan, u, flow)
                      + f"; a {METERING_ERROR:.0%} dosing error gives pH "
                      f"{min(plan.ph_low_dose, plan.ph_high_dose):.2f} to "
                      f"{max(plan.ph_low_dose, plan.ph_high_dose):.2f}"))
@@ -385,7 +385,7 @@ def staging_lines(v: PlanView, units: str = "metric") -> list[str]:
 STEEP_PH_PER_PERCENT = 1.0
 
 
-def _slope_text(plan: Plan, u, flow: bool) -> str:
+def slope_text(plan: Plan, u, flow: bool) -> str:
     """How the pH answers the dose at the aim, in what the operator adjusts:
     per 1 % of the dose, and per unit of product (per kg/h for a flow)."""
     slope = abs(plan.slope_ph_per_mmol_l)
