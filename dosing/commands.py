@@ -397,31 +397,13 @@ def _cmd_log(args) -> int:
 
 
 def _plan_to_record(scenario, dosed_text: str | None) -> tuple[dict, float | None]:
-    """The plan a log entry records (a train whole, with what each dose step
-    was given), and the one dosed figure of a one-dose plan."""
+    """What ``log add`` records: the plan (a train whole) and the one dosed figure."""
     from .planning.job import make_plan
     from .planning.train_job import make_train
-    from .report.plan_json import sheet_dict
+    from .report.record import record_of
     plan = None if scenario.train else make_plan(scenario)
-    train = make_train(scenario, plan)
     figures = _numbers("--dosed", dosed_text, -1e-300, 1e9, "kg") if dosed_text else None
-    if train is None:
-        if figures is not None and len(figures) != 1:
-            raise UsageError("--dosed", f"{dosed_text!r}; this plan has one dose: give one "
-                             "figure in kg")
-        return sheet_dict(scenario, plan), None if figures is None else figures[0]
-    from .report.train_json import train_dict, train_keys
-    from .report.train_view import train_view
-    data = (train_dict(scenario, train) if plan is None
-            else sheet_dict(scenario, plan) | train_keys(train_view(scenario, train)))
-    doses = [s["step"] for s in data["steps"] if s["kind"] == "dose"]
-    if figures is not None:
-        if len(figures) != len(doses):
-            raise UsageError("--dosed", f"{dosed_text!r}; this train has {len(doses)} dose "
-                             f"steps ({', '.join(map(str, doses))}): give one figure in kg "
-                             "for each, separated by commas")
-        data["given_kg"] = {str(step): kg for step, kg in zip(doses, figures)}
-    return data, None
+    return record_of(scenario, plan, make_train(scenario, plan), figures)
 
 
 #: The handler of each subcommand.

@@ -8,6 +8,7 @@ tests.
 
 from __future__ import annotations
 
+import copy
 import time
 from dataclasses import replace
 from pathlib import Path
@@ -29,8 +30,11 @@ from dosing.planning.plan import Plan
 from dosing.planning.reagents import CATALOGUE, GENERAL_CAUTION
 from dosing.io.scenario import build_scenario, load_scenario, scenario_to_toml
 from dosing.planning.job import Scenario, make_plan, with_uncertainty
-from dosing.report.plan_json import sheet_dict
+from dosing.planning.train_job import make_train
+from dosing.planning.train_plan import TrainPlan
+from dosing.report.record import record_of
 from dosing.report.sheet import render_sheet
+from dosing.report.train_sheet import render_train
 from dosing.report.titration import render_titration
 from dosing.report.units import UnitSystem
 from dosing.planning.bench import check_curve, parse_titrant
@@ -46,6 +50,9 @@ from .screens.path import PathScreen
 from .widgets.curve import CurvePlot, TitrationPlot
 from .widgets.dose import DosePanel
 from .widgets.sweep import SweepTable
+from .widgets.train import TrainPanel
+from .train_actions import TrainActions
+from .train_mode import with_steps
 
 __all__ = ["Tankside", "make_app", "run", "DEFAULT_DATA"]
 
@@ -72,7 +79,7 @@ def _form_key(key: str) -> str | None:
     return None
 
 
-class Tankside(App):
+class Tankside(TrainActions, App):
     """Edit a dosing scenario and watch the plan follow."""
 
     CSS_PATH = "tankside.tcss"
@@ -88,6 +95,7 @@ class Tankside(App):
         ("f6", "toggle_units", "metric/US"),
         ("f7", "record", "record"),
         ("f8", "titration", "titration"),
+        ("f9", "view('train')", "train"),
         ("ctrl+q", "quit", "quit"),
     ]
 
@@ -105,6 +113,8 @@ class Tankside(App):
     """True while the plan's uncertainty is being sampled in the background."""
     planning: reactive[bool] = reactive(False, init=False)
     """True while the form's latest values are being planned in the background."""
+    train: TrainPlan | None = None
+    """The train planned with :attr:`plan` (the scenario's, or one the planner proposes)."""
 
     def __init__(self, path: str | None = None, data: dict[str, Any] | None = None,
                  db: str | None = None, *, show_timing: bool = True):
@@ -120,6 +130,7 @@ class Tankside(App):
         self._t0 = 0.0                       # when the latest plan was asked for
         self._generation = 0                 # which form state the latest request is for
         self._pick_compare = False
+        self.steps: list[dict[str, Any]] | None = None   # a train's [[step]] tables
 
     # --------------------------------------------------------- layout --
     def compose(self) -> ComposeResult:
@@ -142,6 +153,8 @@ class Tankside(App):
                 with TabPane("Sheet", id="sheet"):
                     with VerticalScroll():
                         yield Static(id="sheet-text")
+                with TabPane("Train", id="train"):
+                    yield TrainPanel(id="train-panel")
                 with TabPane("Titration", id="titration"):
                     with VerticalScroll():
                         plot = TitrationPlot(id="titration-plot")
@@ -169,6 +182,8 @@ class Tankside(App):
     def _load(self, data: dict[str, Any]) -> None:
         form = self.query_one(ScenarioForm)
         form.load_data(data)
+        self.steps = copy.deepcopy(data.get("step")) or None
+        form.set_train(self.steps)
         self.sub_title = self.path or "unsaved"
         # The sweep's other product follows the file's reagent once it is planned.
         self._pick_compare = True
@@ -181,6 +196,7 @@ class Tankside(App):
         self._generation += 1
         form = self.query_one(ScenarioForm)
         data, errors = form.to_data()
+        data = with_steps(data, self.steps)
         scenario = None
         message = ""
         if not errors:
@@ -203,14 +219,21 @@ class Tankside(App):
                         exclusive=True, group="plan")
 
     def _plan_in_background(self, generation: int, scenario: Scenario) -> None:
-        """The plan, computed off the event loop (a worker thread)."""
+        """The plan (and train), computed off the event loop (a worker thread).
+        A train scenario's plan is its first dose's (the curve shows it)."""
         try:
-            result: Plan | str = make_plan(scenario, sampled=False)
+            if scenario.train:
+                train = make_train(scenario)
+                plan = next(r.plan for r in train.steps if r.plan is not None)
+            else:
+                plan = make_plan(scenario, sampled=False)
+                train = make_train(scenario, plan)
+            result: tuple | str = (plan, train)
         except DosingError as err:
             result = str(err)
         self.call_from_thread(self._planned, generation, scenario, result)
 
-    def _planned(self, generation: int, scenario: Scenario, result: Plan | str) -> None:
+    def _planned(self, generation: int, scenario: Scenario, result: tuple | str) -> None:
         """Show a plan, unless the form has moved on since it was asked for."""
         if generation != self._generation:
             return
@@ -218,7 +241,7 @@ class Tankside(App):
         if isinstance(result, str):
             self._not_planned(result)
             return
-        plan = result
+        plan, self.train = result
         self.stale = False
         self.scenario, self.plan = scenario, plan     # the watcher renders the views
         self.last_recompute_ms = (time.perf_counter() - self._t0) * 1000
@@ -226,7 +249,7 @@ class Tankside(App):
         if self._pick_compare:
             self._pick_compare = False
             self.query_one("#compare", Select).value = default_alternative(scenario.reagent)
-        if plan.dose_needed:
+        if plan.dose_needed and not scenario.train:
             self.sampling = True
             self.status += "; sampling how sure the dose is..."
             self.run_worker(lambda: self._sample_in_background(scenario, plan), thread=True,
@@ -281,14 +304,23 @@ class Tankside(App):
     def _render_views(self) -> None:
         if self.plan is None or self.scenario is None:
             return
-        s, p, u = self.scenario, self.plan, self.units
-        self.query_one(DosePanel).show(s, p, u, self.stale)
+        s, p, u, t = self.scenario, self.plan, self.units, self.train
+        width = self._sheet_width()
+        if s.train:
+            self.query_one(DosePanel).show_train(s, t, u, self.stale)
+            sheet = render_train(s, t, u, width=width)
+        else:
+            self.query_one(DosePanel).show(s, p, u, self.stale, train=t)
+            sheet = render_sheet(s, p, u, width=width)
+            if t is not None:
+                sheet = render_train(s, t, u, width=width) + "\n" + sheet
         self.query_one(CurvePlot).show(p, u)
         # Plain text: the sheet's [reagent-id] must not be read as markup. It is
         # laid out for the pane's width, so no line wraps back to column 0.
-        self.query_one("#sheet-text", Static).update(
-            Text(render_sheet(s, p, u, width=self._sheet_width())))
-        self._render_sweep()
+        self.query_one("#sheet-text", Static).update(Text(sheet))
+        self.query_one(TrainPanel).show(s, self.steps, t, u, width)
+        if not s.train:
+            self._render_sweep()
 
     def _sheet_width(self) -> int:
         """Columns the sheet may use in its pane (78 until the pane is laid out)."""
@@ -321,6 +353,8 @@ class Tankside(App):
 
     def action_view(self, name: str) -> None:
         self.query_one(TabbedContent).active = name
+        if name == "train":
+            self.query_one("#train-table").focus()     # its keys act on the steps
 
     def action_toggle_units(self) -> None:
         self.units = "us" if self.units == "metric" else "metric"
@@ -350,6 +384,7 @@ class Tankside(App):
         if not path:
             return
         data, errors = self.query_one(ScenarioForm).to_data()
+        data = with_steps(data, self.steps)
         if errors or self.stale:
             self.status = "not saved: fix the field marked in red first"
             return
@@ -380,20 +415,24 @@ class Tankside(App):
         if self.planning:
             self.status = "not recorded: the plan for the latest values is not ready; try again"
             return
-        self.push_screen(record_dialog(per_hour=isinstance(self.plan.basis, Flow)),
-                         self.record)
+        doses = () if self.train is None else tuple(
+            i for i, r in enumerate(self.train.steps, start=1) if r.spec.kind == "dose")
+        self.push_screen(record_dialog(isinstance(self.plan.basis, Flow), doses), self.record)
 
     def record(self, answer: RecordAnswer | None) -> None:
         """Record the current plan in the shift log (same code as `dosing log add`)."""
         if answer is None:
             return
-        data, _ = self.query_one(ScenarioForm).to_data()
+        data = with_steps(self.query_one(ScenarioForm).to_data()[0], self.steps)
         try:
+            plan = None if self.scenario.train else self._full_plan()
+            given = answer.given if self.train is not None else (
+                None if answer.dosed is None else (answer.dosed,))
+            record, dosed = record_of(self.scenario, plan, self.train, given)
             with ShiftLog(self.db) as log:
                 entry = log.record_decision(
                     operator=answer.operator, scenario_toml=scenario_to_toml(data),
-                    plan=sheet_dict(self.scenario, self._full_plan()), dosed_kg=answer.dosed,
-                    ph_after=answer.ph_after, note=answer.note)
+                    plan=record, dosed_kg=dosed, ph_after=answer.ph_after, note=answer.note)
                 where = log.path
         except DosingError as err:
             self.status = f"not recorded: {err}"

@@ -140,20 +140,24 @@ class ScenarioForm(VerticalScroll):
         for f in _in_section("window"):
             yield from self._row(f)
         yield Static("Reagent", classes="section")
-        with Horizontal(classes="row"):
+        note = Static("", id="train-note", classes="kept")
+        note.display = False
+        yield note
+        with Horizontal(classes="row reagent"):
             yield Label("product", classes="label")
             # The product's name, as on the drum; its id is what a file stores.
             options = [(r.name, r.id) for r in CATALOGUE.values()]
             options.append(("custom product ...", "custom"))
             yield Select(options, value="caustic-50", allow_blank=False, compact=True,
                          id="f-reagent--id", classes="value")
-        with Horizontal(classes="row custom"):
+        with Horizontal(classes="row custom reagent"):
             yield Label("compound", classes="label")
             yield Select([(c, c) for c in COMPOUNDS], value="NaOH", allow_blank=False,
                          compact=True,
                          id="f-reagent--compound", classes="value")
         for f in _in_section("reagent"):
-            yield from self._row(f, "custom" if f.key != "reagent.price_per_kg" else "")
+            yield from self._row(f, "custom reagent" if f.key != "reagent.price_per_kg"
+                                 else "reagent")
         yield Static("Model", classes="section")
         with Horizontal(classes="row"):
             yield Label("activity", classes="label")
@@ -163,6 +167,25 @@ class ScenarioForm(VerticalScroll):
         with Horizontal(classes="row"):
             yield Label("open to air", classes="label")
             yield Switch(value=False, id="f-model--open-to-air")
+
+    def set_train(self, steps: list | None) -> None:
+        """Grey out what a train does not read: the reagent (each dose step names
+        its product) and, for a train that starts with a blend, the water and
+        the amount (the streams give them)."""
+        blend = bool(steps) and steps[0].get("kind") == "blend"
+        unused = ("reagent.",) if steps else ()
+        if blend:
+            unused += ("effluent.", "basis.")
+        for f in FIELDS:
+            self.query_one("#" + field_id(f.key), Input).disabled = f.key.startswith(unused)
+        for sid in ("#f-reagent--id", "#f-reagent--compound"):
+            self.query_one(sid, Select).disabled = bool(steps)
+        # Each step names its product: the reagent rows go (tankside.tcss).
+        self.set_class(bool(steps), "train")
+        note = self.query_one("#train-note", Static)
+        note.display = bool(steps)
+        note.update("a treatment train: each dose step names its product (F9)"
+                    + ("; the blend's streams give the water and the amount" if blend else ""))
 
     def _row(self, f: Field, extra: str = "") -> ComposeResult:
         with Horizontal(classes=f"row {extra}".strip()):

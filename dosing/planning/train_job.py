@@ -58,6 +58,7 @@ def _train(scenario: Scenario, plan: Plan | None) -> TrainPlan | None:
     if found is None:
         return None
     steps, why = found
+    steps = (replace(steps[0], price_per_kg=scenario.price_per_kg),) + steps[1:]
     tp = plan_train(steps, scenario.water, scenario.basis, scenario.target, scenario.permit,
                     proposed=True, why=why, **common)
     return _with_removal(tp, steps, scenario, why, common)

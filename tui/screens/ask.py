@@ -32,6 +32,7 @@ class Ask:
     number: bool = False         #: must read as a number (None when left empty)
     required: bool = False
     example: str = ""            #: shown greyed in the empty box
+    value: str = ""              #: what the box holds when the dialog opens
 
 
 @dataclass(frozen=True)
@@ -42,6 +43,7 @@ class RecordAnswer:
     dosed: float | None          #: product given [kg per batch, or kg/h for a flow]
     ph_after: float | None
     note: str
+    given: tuple[float, ...] | None = None   #: a train's: product given per dose step [kg]
 
 
 @dataclass(frozen=True)
@@ -70,7 +72,7 @@ class AskScreen(ModalScreen["T | None"], Generic[T]):
             for a in self._asks:
                 with Horizontal(classes="row"):
                     yield Label(a.label, classes="label")
-                    yield Input(id=f"ask-{a.key}", classes="value", compact=True,
+                    yield Input(a.value, id=f"ask-{a.key}", classes="value", compact=True,
                                 placeholder=a.example)
                     yield Label(a.unit, classes="unit")
             error = Label("", id="ask-error", classes="error")
@@ -93,7 +95,11 @@ class AskScreen(ModalScreen["T | None"], Generic[T]):
                     return self._refuse(f"{a.label}: {text!r} is not a number")
             else:
                 values[a.key] = text if text or not a.number else None
-        self.dismiss(self._make(values))
+        try:
+            answer = self._make(values)
+        except ValueError as err:          # the maker's own check: the dialog stays open
+            return self._refuse(str(err))
+        self.dismiss(answer)
 
     def _refuse(self, why: str) -> None:
         error = self.query_one("#ask-error", Label)
@@ -104,15 +110,33 @@ class AskScreen(ModalScreen["T | None"], Generic[T]):
         self.dismiss(None)
 
 
-def record_dialog(per_hour: bool) -> AskScreen[RecordAnswer]:
-    """Ask who records the decision and, optionally, what was dosed."""
+def record_dialog(per_hour: bool, dose_steps: tuple[int, ...] = ()) -> AskScreen[RecordAnswer]:
+    """Ask who records the decision and, optionally, what was dosed (for a
+    train, what each of its ``dose_steps`` was given)."""
+    unit = "kg/h" if per_hour else "kg"
+    if dose_steps:
+        steps = ", ".join(map(str, dose_steps))
+        dosed = Ask("given", "given", unit, example=f"optional: steps {steps}, e.g. 12.5, 0.4")
+    else:
+        dosed = Ask("dosed", "dosed", unit, number=True, example="optional")
+
+    def make(v: dict[str, Any]) -> RecordAnswer:
+        given = None
+        if dose_steps and v.get("given"):
+            try:
+                given = tuple(float(x) for x in v["given"].replace(";", ",").split(",")
+                              if x.strip())
+            except ValueError:
+                raise ValueError(f"given: {v['given']!r}; give one figure in {unit} for each "
+                                 f"dose step ({steps}), separated by commas") from None
+            if len(given) != len(dose_steps):
+                raise ValueError(f"given: {len(given)} figures for {len(dose_steps)} dose "
+                                 f"steps ({steps})")
+        return RecordAnswer(v["operator"], v.get("dosed"), v["ph_after"], v["note"], given)
     return AskScreen("Record this decision in the shift log", [
-        Ask("operator", "operator", required=True, example="your name"),
-        Ask("dosed", "dosed", "kg/h" if per_hour else "kg", number=True, example="optional"),
+        Ask("operator", "operator", required=True, example="your name"), dosed,
         Ask("ph_after", "pH after", number=True, example="optional"),
-        Ask("note", "note", example="optional")],
-        lambda v: RecordAnswer(v["operator"], v["dosed"], v["ph_after"], v["note"]),
-        action="record")
+        Ask("note", "note", example="optional")], make, action="record")
 
 
 def titration_dialog() -> AskScreen[TitrationAnswer]:

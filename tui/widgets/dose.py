@@ -17,13 +17,49 @@ from dosing.report.words import texts
 
 __all__ = ["DosePanel"]
 
+
+def _train_text(scenario, train, units: str) -> Text:
+    """A train in a few lines: each step's headline, the discharge, the warnings."""
+    from dosing.report.train_sheet import step_headline
+    from dosing.report.train_view import train_view
+    from dosing.report.words import words
+    v = train_view(scenario, train)
+    out = Text()
+    head = "TREATMENT TRAIN" + (" proposed by the planner" if train.proposed else "")
+    out.append(f"{head} for {scenario.title}\n", style="bold")
+    for s in v.steps:
+        out.append(step_headline(v, s, units) + "\n")
+    d = train.discharge
+    out.append(f"discharge at pH {d.ph:.2f}: "
+               + ("window and every cap met" if d.met else "NOT MET: see the checks (F9)")
+               + "\n", style="bold" if d.met else "bold reverse red")
+    for w in v.warnings:
+        out.append(f"! {words(w, units)}\n",
+                   style="bold red" if w.level == "danger" else "yellow")
+    return out
+
 _STYLE = {"!!": "bold red", "! ": "yellow", "- ": "dim", "  ": ""}
 
 
 class DosePanel(Static):
     """Shows one plan; ``stale`` marks a plan kept while the form is invalid."""
 
-    def show(self, scenario: Scenario, plan: Plan, units: UnitSystem, stale: bool) -> None:
+    def show_train(self, scenario: Scenario, train, units: UnitSystem, stale: bool) -> None:
+        """A train scenario: its steps and discharge (each step in full on F9)."""
+        self.set_class(stale, "stale")
+        text = Text()
+        if stale:
+            text.append("Last valid plan shown: fix the field marked in red.\n",
+                        style="bold reverse yellow")
+        text.append_text(_train_text(scenario, train, units))
+        text.append("\n")
+        for c in train.cautions:
+            text.append(f"- {c}\n", style="dim")
+        self.update(text)
+        self.plain_text = text.plain
+
+    def show(self, scenario: Scenario, plan: Plan, units: UnitSystem, stale: bool,
+             train=None) -> None:
         # A plan kept while the form is invalid is dimmed under its banner:
         # it is not the dose for what the form now says.
         self.set_class(stale, "stale")
@@ -40,6 +76,10 @@ class DosePanel(Static):
         # A plan that breaks the permit says so first, above the dose.
         for breach in texts(view.breaches, units):
             head.append(f"PERMIT BREACH: {breach}\n", style="bold reverse red")
+        if train is not None:
+            # One dose cannot do: the planner's train first, then the one dose.
+            head.append_text(_train_text(scenario, train, units))
+            head.append("\nONE DOSE ALONE, FOR COMPARISON\n", style="bold")
         head.append(f"{plan.reagent.name} for {scenario.title}\n", style="bold")
         staged = Text()
         stage_rows = staging_lines(view, units)
