@@ -115,21 +115,35 @@ def _cmd_sweep(args) -> int:
     strengths = _numbers("--strengths", args.strengths, 0.0, 100.0, "%")
     scenario = load_scenario(args.scenario)
     sizes = _numbers("--sizes", args.sizes, 0.0, 1e6, "m3 (or m3/h)")
-    if args.others == ["none"]:
+    if scenario.train:
+        result = _train_grid(scenario, args, sizes)
+    elif args.others == ["none"]:
         others = ()
     elif args.others:
         others = tuple(get_reagent(o) for o in args.others)
     else:
         others = (default_alternative(scenario.reagent),)
-    result = strength_grid(scenario, sizes or default_sizes(scenario.basis),
-                           strengths=tuple(v / 100 for v in strengths) if strengths else None,
-                           others=others)
+    if not scenario.train:
+        result = strength_grid(scenario, sizes or default_sizes(scenario.basis),
+                               strengths=tuple(v / 100 for v in strengths) if strengths
+                               else None, others=others)
     data = require_finite(sweep_dict(result, scenario), "sweep")
     if args.csv:
         write_atomic(args.csv, sweep_csv(result, scenario).encode())
         sys.stderr.write(f"dosing: wrote the grid to {args.csv}\n")
     sys.stdout.write(to_json(data) if args.json else render_sweep(result, scenario, args.units))
     return 0
+
+
+def _train_grid(scenario, args, sizes):
+    """A train's dose steps against sizes (its products are its steps')."""
+    from .planning.sweep import default_sizes, train_sweep
+    from .planning.train_job import make_train
+    for option, given in (("--strengths", args.strengths), ("--with", args.others)):
+        if given:
+            raise UsageError(option, "a treatment train's products are its steps'; the grid "
+                             "gives each dose step's product per size")
+    return train_sweep(make_train(scenario), sizes or default_sizes(scenario.basis))
 
 
 def _with_log_bias(db: str, scenario, plan):
@@ -251,13 +265,12 @@ def _cmd_replay(args) -> int:
 
 
 def _flow_scenario(path: str):
-    from .planning.basis import Flow
+    from .io.replay_io import replay_refusal
     from .io.scenario import load_scenario
     scenario = load_scenario(path)
-    if not isinstance(scenario.basis, Flow):
-        raise ScenarioError(path, "[flow]", "replay needs a flow scenario: logged "
-                            "data are flows and rates, and this scenario plans a batch; "
-                            "give [flow] m3_per_h instead of [batch]")
+    why = replay_refusal(scenario)
+    if why:
+        raise ScenarioError(path, "[[step]]" if scenario.train else "[flow]", why)
     return scenario
 
 

@@ -266,3 +266,57 @@ def test_train_demos_round_trip_through_the_scenario_writer(name):
     text = render_train(s, train)
     assert "TREATMENT TRAIN" in text
     assert "have the final word on any dose." in " ".join(text.split())
+
+
+# --------------------------------------------------------------- slurry --
+def test_lime_as_a_slurry_doses_the_same_lime_in_litres_of_slurry():
+    # A 15 % slurry of hydrated lime: density 1 / (0.15 / 2.24 + 0.85) =
+    # 1.091 kg/L (Ca(OH)2 2.24 g/cm3, CRC Handbook, from memory; water 1),
+    # and 1 / 0.15 kg of slurry per kg of lime (by hand).
+    from dosing.planning.plan import plan_dose
+    from dosing.planning.strengths import as_slurry
+    lime = get_reagent("lime")
+    slurry = as_slurry(lime, 0.15)
+    assert slurry.density_kg_l == pytest.approx(1.0 / (0.15 / 2.24 + 0.85), abs=1e-3)
+    w = _water(2.8, alkalinity_mg_l_as_caco3=0, solutes_mg_l={"sulfate": 400})
+    t = Target(6.0, 9.0, 7.5)
+    a = plan_dose(w, lime, t, Batch(10.0)).amounts()
+    b = plan_dose(w, slurry, t, Batch(10.0)).amounts()
+    assert b.kg_product * 0.15 == pytest.approx(a.kg_product, rel=1e-3)
+    assert b.litres_product == pytest.approx(b.kg_product / slurry.density_kg_l, rel=1e-9)
+
+
+def test_a_slurry_of_caustic_is_refused(tmp_path):
+    path = tmp_path / "s.toml"
+    path.write_text(_BASE.format(steps='[[step]]\nkind = "dose"\nreagent = "caustic-50"\n'
+                                       'slurry_fraction = 0.1\n'))
+    r = run_cli("plan", str(path))
+    assert r.returncode == 2 and "step[1].slurry_fraction" in r.stderr
+
+
+def test_sweep_of_a_train_scales_each_dose_step_with_the_size():
+    # A dose per litre of water does not depend on the tank: each step's
+    # product for 2 x the volume is 2 x (by proportion).
+    from pathlib import Path
+    from dosing.planning.sweep import train_sweep
+    s = load_scenario(str(Path(__file__).resolve().parents[1] / "scenarios"
+                          / "lime-then-caustic.toml"))
+    grid = train_sweep(make_train(s), (15.0, 30.0))
+    small, big = grid.cells
+    assert [c.amounts.kg_product * 2 for c in small] == pytest.approx(
+        [c.amounts.kg_product for c in big], rel=1e-12)
+    assert [p.name.split(":")[0] for p in grid.reagents] == ["step 1", "step 2"]
+    r = run_cli("sweep", "scenarios/lime-then-caustic.toml", "--with", "lime")
+    assert r.returncode == 2 and "--with" in r.stderr
+
+
+def test_replay_of_a_train_is_refused_in_one_line(tmp_path):
+    # Replay plans one dose per logged row; a train is refused by name and
+    # nothing is written.
+    data = tmp_path / "log.csv"
+    data.write_text("time,flow_m3_per_h,ph\n2026-01-01T00:00,120,3.1\n")
+    out = tmp_path / "rows.csv"
+    r = run_cli("replay", str(data), "--scenario", "scenarios/mine-water-train.toml",
+                "--csv", str(out))
+    assert r.returncode == 2 and "[[step]]" in r.stderr and "Traceback" not in r.stderr
+    assert len(r.stderr.strip().splitlines()) == 1 and not out.exists()

@@ -34,12 +34,11 @@ from typing import Any, Callable, Iterator, Mapping, Sequence
 import pandas as pd
 
 from ..errors import ScenarioError, UsageError
-from ..planning.basis import Flow
 from ..planning.reagents import GENERAL_CAUTION
 from ..planning.replay import nominal_step, plan_part, stitch
 from ..planning.replay_totals import ReplayReport, ReplayTotals
 from .replay_io import (CHUNK_ROWS, PART_BYTES, Part, file_parts, finish_replay,
-                        iter_site_chunks, read_part, site_files)
+                        iter_site_chunks, read_part, replay_refusal, site_files)
 from ..planning.job import Scenario
 from .scenario import load_scenario, parse_toml, read_text_file
 
@@ -99,9 +98,9 @@ def _site(path: str, base: Path, name: str, table: Any) -> Site:
         raise ScenarioError(path, f"{where}.data", "expected a list of data files or "
                             "globs, e.g. data = [\"logs/north/*.csv\"]")
     scenario = load_scenario(str(base / scen) if not Path(scen).is_absolute() else scen)
-    if not isinstance(scenario.basis, Flow):
-        raise ScenarioError(path, f"{where}.scenario", f"{scen} plans a batch; replay needs "
-                            "a flow scenario ([flow] m3_per_h)")
+    why = replay_refusal(scenario)
+    if why:
+        raise ScenarioError(path, f"{where}.scenario", f"{scen}: {why}")
     return Site(name, scenario, tuple(site_files(data, base, f"{where}.data")))
 
 

@@ -24,9 +24,26 @@ from ..planning.replay_totals import ReplayReport, ReplayTotals, replay_report
 from ..planning.job import Scenario
 
 __all__ = ["iter_chunks", "iter_site_chunks", "run_replay", "site_files", "Part",
-           "file_parts", "read_part", "CHUNK_ROWS", "PART_BYTES"]
+           "file_parts", "read_part", "replay_refusal", "CHUNK_ROWS", "PART_BYTES"]
 
 CHUNK_ROWS = 100_000
+
+
+def replay_refusal(scenario: Scenario) -> str | None:
+    """Why this scenario cannot be replayed over logged data, or None.
+
+    Replay plans one dose for each logged row on a stream; a batch has no
+    rows to replay and a treatment train is not replayed yet (each row would
+    need every step re-planned, and the totals per product of each step)."""
+    from ..planning.basis import Flow
+    if not isinstance(scenario.basis, Flow):
+        return ("replay needs a flow scenario: logged data are flows and rates, and "
+                "this scenario plans a batch; give [flow] m3_per_h instead of [batch]")
+    if scenario.train:
+        return ("replay plans one dose per logged row and this scenario is a treatment "
+                "train ([[step]]); replay the dose step on its own (a scenario with "
+                "[reagent] and no [[step]]), or plan the train with `dosing plan`")
+    return None
 
 
 def _parse_times(col: pd.Series) -> pd.Series:

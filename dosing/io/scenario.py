@@ -29,7 +29,7 @@ from ..planning.measurements import (ACIDITY_ENDPOINT_PH, ALKALINITY_ENDPOINT_PH
 from ..errors import InputError, ScenarioError
 from ..planning.basis import Batch, Flow, Target
 from ..planning.reagents import Reagent, get_reagent
-from ..planning.strengths import custom_reagent, with_purity
+from ..planning.strengths import as_slurry, custom_reagent, with_purity
 from ..planning.hazards import ION_PERMIT_KEYS
 from ..chem.metals import METAL_IDS
 from ..planning.solids import CAKE_DENSITY_KG_L, CAKE_SOLIDS_FRACTION, METAL_PERMIT_KEYS
@@ -83,6 +83,7 @@ _SCHEMA: dict[str, dict[str, tuple]] = {
         "storage_m3": ((int, float), False),
         "storage_kg": ((int, float), False),
         "readjust_id": ((str,), False),
+        "slurry_fraction": ((int, float), False),
     },
     "model": {"activity": ((str,), False), "open_to_air": ((bool,), False),
               "pco2_uatm": ((int, float), False), "hours_in_air": ((int, float), False),
@@ -216,6 +217,8 @@ def _reagent(r: Mapping[str, Any]) -> Reagent:
         reagent = get_reagent(r["id"])
         if "purity" in r:
             reagent = with_purity(reagent, r["purity"])
+        if "slurry_fraction" in r:
+            reagent = as_slurry(reagent, float(r["slurry_fraction"]))
         return reagent
     if "compound" not in r:
         raise InputError("reagent.id", "give a catalogue id, or a custom reagent "

@@ -21,6 +21,7 @@ Format (our own; the README shows it whole)::
     ph_aim = 9.6                  # the last dose defaults to [target]
     # ph_min = 9.3, ph_max = 9.9  # default aim -/+ 0.3 (the last dose: [target])
     # price_per_kg = 0.3
+    # slurry_fraction = 0.15      # lime or magnesia fed as a slurry of this solids
 
     [[step]]
     kind = "separate"             # clarifier or filter
@@ -39,13 +40,14 @@ from ..errors import InputError
 from ..planning.basis import Batch, Flow, Target
 from ..planning.effluent import infer_water
 from ..planning.reagents import get_reagent
+from ..planning.strengths import as_slurry
 from ..planning.train import DEFAULT_REMOVAL, STEP_KINDS, StepSpec
 
 __all__ = ["read_steps", "basis_of_blend", "STEP_KEYS", "INTERMEDIATE_BAND"]
 
 #: Keys each kind of step takes (kind and label for all).
 STEP_KEYS = {"blend": ("stream",), "oxidise": ("by", "fraction", "reagent"),
-             "dose": ("reagent", "ph_aim", "ph_min", "ph_max", "price_per_kg"),
+             "dose": ("reagent", "ph_aim", "ph_min", "ph_max", "price_per_kg", "slurry_fraction"),
              "separate": ("removal",)}
 _STREAM_KEYS = ("name", "volume_m3", "m3_per_h", "effluent")
 #: Half-width of the window of a dose step that is not the last [pH].
@@ -104,6 +106,9 @@ def _reagent(where: str, table: Mapping, default: str | None = None):
 
 def _dose(where, table, label, *, target, last, **_) -> StepSpec:
     reagent = _reagent(where, table)
+    if "slurry_fraction" in table:
+        reagent = as_slurry(reagent, _number(f"{where}.slurry_fraction",
+                                             table["slurry_fraction"], 0.0, 1.0), where)
     if "ph_aim" not in table and not (last and target is not None):
         raise InputError(f"{where}.ph_aim", "missing; a dose step needs its pH aim (the "
                          "last dose may take the [target] window instead)")

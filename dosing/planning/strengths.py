@@ -15,7 +15,8 @@ from dataclasses import replace
 from ..errors import InputError
 from .reagents import CATALOGUE, COMPOUNDS, SOLUTION_DENSITIES, Compound, Reagent, _rho
 
-__all__ = ["STRENGTHS", "SOLID_PURITIES", "ALTERNATIVE", "strengths_of", "at_strength",
+__all__ = ["as_slurry", "SOLID_DENSITY_KG_L", "USUAL_SLURRY",
+           "STRENGTHS", "SOLID_PURITIES", "ALTERNATIVE", "strengths_of", "at_strength",
            "with_purity", "custom_reagent"]
 
 
@@ -105,6 +106,41 @@ def with_purity(reagent: Reagent, purity: float) -> Reagent:
                          "allowed: above 0 and up to 1")
     name = reagent.name.split(",")[0] + f", {purity * 100:g} % {reagent.compound.formula}"
     return replace(reagent, mass_fraction=purity, name=name)
+
+
+#: Densities of the solids a plant feeds as slurry [kg/L] (CRC Handbook,
+#: physical constants of inorganic compounds; from memory). Quicklime is
+#: slaked to Ca(OH)2 before it is a slurry.
+SOLID_DENSITY_KG_L = {"Ca(OH)2": 2.24, "CaO": 2.24, "Mg(OH)2": 2.34, "CaCO3": 2.71}
+#: A lime slurry's usual solids, for the sheet's words (common practice: 10-20 %).
+USUAL_SLURRY = (0.10, 0.20)
+
+
+def as_slurry(reagent: Reagent, fraction: float, where: str = "reagent") -> Reagent:
+    """A solid product fed as a slurry of ``fraction`` of it by mass [-]: a
+    liquid whose density is that of the solid and water mixed,
+    1 / (w / rho_solid + (1 - w) / rho_water), so doses and pump rates come
+    out in litres of slurry."""
+    formula = reagent.compound.formula
+    if reagent.form != "solid" or formula not in SOLID_DENSITY_KG_L:
+        raise InputError(f"{where}.slurry_fraction", f"{reagent.id} is not fed as a slurry; "
+                         "allowed with lime, quicklime, magnesia or limestone")
+    if not 0.02 <= fraction <= 0.5:
+        raise InputError(f"{where}.slurry_fraction", f"{fraction:g}; allowed: 0.02 to 0.5 "
+                         "(common practice: lime slurries of 0.10 to 0.20)")
+    # Quicklime slakes: the slurry carries Ca(OH)2, 74.09 g per 56.08 g of CaO.
+    gain = COMPOUNDS["Ca(OH)2"].molar_mass_g_mol / COMPOUNDS["CaO"].molar_mass_g_mol \
+        if formula == "CaO" else 1.0
+    solids = min(fraction * gain, 0.9)
+    rho = 1.0 / (solids / SOLID_DENSITY_KG_L[formula] + (1.0 - solids) / 1.0)
+    return replace(reagent, id=f"{reagent.id}-as-slurry-{fraction * 100:g}",
+                   name=f"{reagent.name.split(',')[0]} as {fraction * 100:g} % slurry",
+                   mass_fraction=reagent.mass_fraction * fraction, density_kg_l=round(rho, 3),
+                   form="liquid",
+                   density_source=f"computed for {solids * 100:.3g} % solids of "
+                   f"{SOLID_DENSITY_KG_L[formula]} kg/L and water",
+                   cautions=("Slurry settles and scales: keep it stirred, the lines short "
+                             "and flushed, the pump rated for slurry.",) + reagent.cautions)
 
 
 def custom_reagent(compound: str, *, mass_fraction: float | None = None,

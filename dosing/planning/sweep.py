@@ -6,7 +6,7 @@ reagent and scales; every cell still comes from :func:`plan_dose`.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 from ..errors import DosingError
 from .plan import Amounts, Batch, Flow, Plan, amounts_for, plan_dose
@@ -14,7 +14,7 @@ from .reagents import Reagent, get_reagent
 from .strengths import ALTERNATIVE, at_strength, strengths_of
 from .job import Scenario
 
-__all__ = ["SweepCell", "Sweep", "sweep", "strength_grid", "default_alternative",
+__all__ = ["train_sweep", "SweepCell", "Sweep", "sweep", "strength_grid", "default_alternative",
            "default_sizes"]
 
 def default_alternative(reagent: Reagent) -> str:
@@ -94,3 +94,19 @@ def strength_grid(scenario: Scenario, sizes: tuple[float, ...], *,
         if all(o.id != p.id for p in products):
             products.append(o)
     return sweep(scenario, tuple(products), sizes, known=known)
+
+
+def train_sweep(train, sizes: tuple[float, ...]) -> Sweep:
+    """A train's dose steps against sizes: each step's product for each tank
+    volume or flow (a dose per litre of water does not depend on the size,
+    so the train is planned once). Each product is named with its step."""
+    flow = isinstance(train.basis, Flow)
+    steps = [(i, r) for i, r in enumerate(train.steps, start=1) if r.plan is not None]
+    products = tuple(replace(r.plan.reagent, name=f"step {i}: {r.plan.reagent.name}")
+                     for i, r in steps)
+    rows = []
+    for size in sizes:
+        basis = Flow(size) if flow else Batch(size)
+        rows.append(tuple(SweepCell(amounts_for(r.plan.dose_mol_l, r.plan.reagent, basis))
+                          for _, r in steps))
+    return Sweep(tuple(sizes), flow, products, tuple(rows))

@@ -85,8 +85,10 @@ def render_sweep(result: Sweep, scenario: Scenario, units: str = "metric",
             else "product per batch for each tank volume")
     col = max(9, *(len(h) + 1 for h in heads))
     label_w = max(18, width - 6 - col * len(heads))
-    out = [f"SIZES AGAINST STRENGTHS  {scenario.title}", "=" * 40,
-           f"{what}, to pH {fmt(scenario.target.ph_aim)}", "",
+    head, aim = (("TRAIN STEPS AGAINST SIZES", "each dose step to its own aim, the last to pH")
+                 if scenario.train else ("SIZES AGAINST STRENGTHS", "to pH"))
+    out = [f"{head}  {scenario.title}", "=" * 40,
+           *wrap(f"{what}, {aim} {fmt(scenario.target.ph_aim)}", width, ""), "",
            f"{size_heading(result, unit):<{label_w + 6}}" + "".join(f"{h:>{col}}"
                                                                   for h in heads)]
     for row in grid_rows(result, units):
