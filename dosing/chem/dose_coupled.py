@@ -39,6 +39,10 @@ __all__ = ["dose_coupled"]
 
 #: Trials per water before it is given up (no number: the reagent has no grip).
 _MAX_TRIALS = 60
+#: Largest |dR/dd| a product can give [eq per mol]: a mole delivers a few
+#: equivalents (lime two, soda ash two, sodium sulfide two), and its dilution
+#: and the complexes it forms change the balance by less than that.
+SLOPE_MAX = 1e3
 
 
 def _take(core: Core | None, idx) -> Core | None:
@@ -88,7 +92,10 @@ def dose_coupled(rows: Rows, n_r: np.ndarray, reagent: ReagentVector, ah: np.nda
     d0 = np.zeros(n)
     r0, ionic, core = _residual(rows, n_r, reagent, ah, d0, ionic, None)
     scale = np.abs(rows.strong) + rows.totals.sum(axis=1) + 1e-12
-    slope = np.where(np.abs(slope0) > 1e-12, slope0, 1.0)
+    # A start slope outside what any product can deliver (a few equivalents
+    # per mole) is not a slope: the secant finds its own from 1.
+    sane = np.isfinite(slope0) & (np.abs(slope0) > 1e-12) & (np.abs(slope0) < SLOPE_MAX)
+    slope = np.where(sane, slope0, 1.0)
     d = np.where(np.isfinite(first), first, -r0 / slope)
     dose, out_slope = np.full(n, np.nan), slope.copy()
     live = np.arange(n)
@@ -106,7 +113,8 @@ def dose_coupled(rows: Rows, n_r: np.ndarray, reagent: ReagentVector, ah: np.nda
         # Converged: the residual at the inner solve's resolution (its mass
         # balances hold to 1e-11 of each total), or a step too small to matter.
         done = settled & ((np.abs(r) <= 1e-11 * scale[live] + 1e-18)
-                          | (np.abs(step) <= 1e-13 * np.abs(d) + 1e-18))
+                          | ((np.abs(step) <= 1e-13 * np.abs(d) + 1e-18)
+                             & (np.abs(r) <= 1e-7 * scale[live] + 1e-15)))
         dose[live[done]], out_slope[live[done]] = d[done], slope_l[done]
         step = np.clip(step, -4.0 * np.abs(d - prev_d) - 1e-9, 4.0 * np.abs(d - prev_d) + 1e-9)
         keep = ~done & np.isfinite(step)
