@@ -42,7 +42,7 @@ from .replay_io import (CHUNK_ROWS, PART_BYTES, Part, file_parts, finish_replay,
 from ..planning.job import Scenario
 from .scenario import load_scenario, parse_toml, read_text_file
 
-__all__ = ["Site", "load_fleet", "replay_sites", "fleet_report", "FleetReport", "ProductTotal",
+__all__ = ["Site", "load_fleet", "cut_parts", "replay_sites", "fleet_report", "FleetReport", "ProductTotal",
            "dask_client"]
 
 _SITE_KEYS = {"scenario": "the site's flow scenario file",
@@ -120,7 +120,7 @@ def dask_client(scheduler: str | None = None, workers: int | None = None) -> Ite
         except (OSError, TimeoutError, ValueError) as err:
             raise UsageError("--scheduler", f"no Dask scheduler answers at {scheduler} "
                              f"({' '.join(str(err).split())[:120]})") from None
-        with client:
+        with client, _quiet_teardown():
             _ready(client, "--scheduler")
             yield client
         return
@@ -135,13 +135,26 @@ def dask_client(scheduler: str | None = None, workers: int | None = None) -> Ite
         with dask.config.set({"distributed.nanny.pre-spawn-environ.MALLOC_TRIM_THRESHOLD_":
                               None}):
             cluster = LocalCluster(n_workers=n, threads_per_worker=1, processes=True,
-                                   dashboard_address=":0", silence_logs=logging.ERROR)
+                                   dashboard_address=":0", silence_logs=logging.CRITICAL)
     except (RuntimeError, OSError) as err:
         raise UsageError("--workers", f"a local Dask cluster of {n} workers did not start "
                          f"({' '.join(str(err).split())[:120]})") from None
-    with cluster, Client(cluster) as client:
+    with cluster, Client(cluster) as client, _quiet_teardown():
         _ready(client, "--workers")
         yield client
+
+
+@contextlib.contextmanager
+def _quiet_teardown() -> Iterator[None]:
+    """When the run fails, the cluster is stopped without its log lines
+    (closed connections of workers being shut down) reaching the terminal:
+    the error itself is the one line the operator sees."""
+    try:
+        yield
+    except BaseException:
+        for name in ("distributed", "tornado", "asyncio"):
+            logging.getLogger(name).setLevel(logging.CRITICAL + 1)
+        raise
 
 
 def _import_kernel() -> bool:
@@ -166,20 +179,31 @@ def _ready(client, option: str) -> None:
                          "install this package on every worker") from None
 
 
+def cut_parts(sites: Sequence[Site], part_bytes: int = PART_BYTES) -> list[tuple[int, Part]]:
+    """Every site's files cut into parts: (site index, part). Each file is
+    opened and its header checked here, so a missing, empty or unreadable
+    file is a clear error before any cluster starts."""
+    plan: list[tuple[int, Part]] = []
+    for i, site in enumerate(sites):
+        plan.extend((i, part) for f in site.files for part in file_parts(f, part_bytes))
+    return plan
+
+
 def replay_sites(sites: Sequence[Site], client, *, part_bytes: int = PART_BYTES,
                  chunk_rows: int = CHUNK_ROWS, keep_hourly: bool = False,
-                 progress: Callable[[int, int], None] | None = None
+                 progress: Callable[[int, int], None] | None = None,
+                 plan: list[tuple[int, Part]] | None = None
                  ) -> dict[str, tuple[ReplayReport, ReplayTotals]]:
     """Replay every site on the client's cluster: {name: (report, totals)}.
 
     ``progress(done, total)`` is called as parts finish. ``chunk_rows`` is
     the chunk a one-pass replay would read first, which sets the record's
-    usual time step (so both give the same figures).
+    usual time step (so both give the same figures). ``plan``: the parts
+    from :func:`cut_parts`, when already cut.
     """
     import dask.dataframe as dd
-    plan: list[tuple[int, Part]] = []
-    for i, site in enumerate(sites):
-        plan.extend((i, part) for f in site.files for part in file_parts(f, part_bytes))
+    if plan is None:
+        plan = cut_parts(sites, part_bytes)
     if progress:
         progress(0, len(plan))            # the bar shows its total from the start
     # Each site's usual time step, from its first chunk: read on the workers

@@ -16,9 +16,10 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Callable, Iterator, Sequence
 
+import numpy as np
 import pandas as pd
 
-from ..errors import ScenarioError
+from ..errors import ModelError, ScenarioError
 from ..planning.replay import ReplayState, as_numbers, normalise_columns, plan_rows
 from ..planning.replay_totals import ReplayReport, ReplayTotals, replay_report
 from ..planning.job import Scenario
@@ -56,16 +57,36 @@ def _parse_times(col: pd.Series) -> pd.Series:
     otherwise pandas' ISO 8601 parser reads what it can and the slower
     any-format parser only what that leaves.
     """
+    if col.dtype.kind == "M":                   # Parquet: times already
+        return _in_span(col)
     col = _as_text(col)
-    fast = _arrow_times(col)
-    if fast is not None:
-        return fast
+    long = col.str.len() > TIME_CHARS_MAX
+    if long.any():                              # no timestamp is this long; the
+        col = col.where(~long)                  # parsers are slow on such text
+    out = _arrow_times(col)
+    if out is not None:
+        return _in_span(out)
     out = _naive_times(col, "ISO8601")
     missed = (out.isna() & col.notna()).to_numpy()
     if missed.any():
-        out = out.copy()
         out[missed] = _naive_times(col[missed], "mixed")
     return out
+
+
+def _in_span(out: pd.Series) -> pd.Series:
+    """Naive times in microseconds, NaT outside :data:`TIME_SPAN`."""
+    if getattr(out.dt, "tz", None) is not None:
+        out = out.dt.tz_convert("UTC").dt.tz_localize(None)
+    return out.where((out >= TIME_SPAN[0]) & (out < TIME_SPAN[1])).astype("datetime64[us]")
+
+
+#: The longest text read as a timestamp (ISO 8601 with nanoseconds and an
+#: offset is 35 characters); a longer cell is not one.
+TIME_CHARS_MAX = 64
+#: Timestamps outside these years are logger faults, not plant data, and
+#: the row is flagged (1900 to 2200, common practice; it also keeps every
+#: time inside what a nanosecond clock holds, 1677 to 2262).
+TIME_SPAN = (pd.Timestamp("1900-01-01"), pd.Timestamp("2200-01-01"))
 
 
 def _arrow_times(col: pd.Series) -> pd.Series | None:
@@ -98,9 +119,7 @@ def _naive_times(col: pd.Series, fmt: str) -> pd.Series:
         out = pd.to_datetime(col, errors="coerce", utc=False, format=fmt)
     except ValueError:                      # offsets differ between rows
         out = pd.to_datetime(col, errors="coerce", utc=True, format=fmt)
-    if getattr(out.dt, "tz", None) is not None:
-        out = out.dt.tz_convert("UTC").dt.tz_localize(None)
-    return out
+    return _in_span(out)
 
 
 def iter_chunks(path: str, chunk_rows: int = CHUNK_ROWS) -> Iterator[pd.DataFrame]:
@@ -298,10 +317,17 @@ def _read_row_group(part: Part) -> pd.DataFrame:
         f = pq.ParquetFile(part.path)
         mapping = normalise_columns(f.schema.names, part.path)
         table = f.read_row_group(part.row_group, columns=list(mapping.values()))
-        return _our_parquet_frame(table, mapping)
+        return _our_parquet_frame(table, mapping, part.path)
 
 
-def _our_parquet_frame(table, mapping: dict[str, str]) -> pd.DataFrame:
+def _our_parquet_frame(table, mapping: dict[str, str], path: str) -> pd.DataFrame:
+    for name in table.column_names:
+        col = table.column(name)
+        try:
+            col.validate(full=True)
+        except Exception:               # pyarrow raises several kinds here
+            raise ScenarioError(path, name, "this column holds text that is not valid "
+                                "UTF-8 (a damaged file, or another encoding)") from None
     return _typed(table.to_pandas().rename(columns={v: k for k, v in mapping.items()}))
 
 
@@ -310,8 +336,8 @@ def _parquet_errors(path: str, pa):
     """pyarrow's reading errors as one line naming the file."""
     try:
         yield
-    except (pa.ArrowException, OSError) as err:
-        why = " ".join(str(err).split())[:160]
+    except (pa.ArrowException, OSError, UnicodeDecodeError) as err:
+        why = " ".join(str(err).encode("ascii", "replace").decode().split())[:160]
         raise ScenarioError(path, "", f"not a readable Parquet file ({why})") from None
 
 
@@ -331,7 +357,7 @@ def _parquet_chunks(path: str, chunk_rows: int) -> Iterator[pd.DataFrame]:
         f = pq.ParquetFile(path)
         mapping = normalise_columns(f.schema.names, path)
         for batch in f.iter_batches(batch_size=chunk_rows, columns=list(mapping.values())):
-            yield _our_parquet_frame(batch, mapping)
+            yield _our_parquet_frame(batch, mapping, path)
 
 
 def run_replay(paths: str | Sequence[str], scenario: Scenario, *,
@@ -360,11 +386,20 @@ def run_replay(paths: str | Sequence[str], scenario: Scenario, *,
         rows = plan_rows(chunk.reset_index(drop=True), scenario, state)
         totals.add(rows)
         if rows_out is not None:
+            _finite_rows(rows, paths)
             rows.to_csv(rows_out, header=header, index=False, float_format="%.9g")
             header = False
         if progress:
             progress(totals.rows)
     return finish_replay(totals, scenario, paths), totals
+
+
+def _finite_rows(rows: pd.DataFrame, paths: Sequence[str]) -> None:
+    """No infinite number goes into the per-row file (empty means not a number)."""
+    numbers = rows.select_dtypes("number").to_numpy(dtype=float)
+    if np.isinf(numbers).any():
+        raise ModelError(f"{', '.join(paths)}: a per-row result is not a finite number; "
+                         "the per-row file was not written")
 
 
 def finish_replay(totals: ReplayTotals, scenario: Scenario,

@@ -28,7 +28,7 @@ from ..planning.measurements import (ACIDITY_ENDPOINT_PH, ALKALINITY_ENDPOINT_PH
                                      Measurements)
 from ..errors import InputError, ScenarioError
 from ..planning.basis import Batch, Flow, Target
-from ..planning.reagents import Reagent, get_reagent
+from ..planning.reagents import Reagent, ph_reagent
 from ..planning.strengths import as_slurry, custom_reagent, with_purity
 from ..planning.hazards import ION_PERMIT_KEYS
 from ..chem.metals import METAL_IDS
@@ -214,7 +214,7 @@ def _reagent(r: Mapping[str, Any]) -> Reagent:
         if extra:
             raise InputError(f"reagent.{sorted(extra)[0]}", "give either a catalogue "
                              "id or a custom reagent (compound and strength), not both")
-        reagent = get_reagent(r["id"])
+        reagent = ph_reagent(r["id"])
         if "purity" in r:
             reagent = with_purity(reagent, r["purity"])
         if "slurry_fraction" in r:
@@ -315,7 +315,7 @@ def _one_dose(data: Mapping[str, Any]) -> dict[str, Any]:
     readjust = None
     if "readjust_id" in r:
         try:
-            readjust = get_reagent(r["readjust_id"])
+            readjust = ph_reagent(r["readjust_id"])
         except InputError as err:
             raise InputError("reagent.readjust_id", err.reason) from None
     return dict(measurements=measurements, water=infer_water(measurements),

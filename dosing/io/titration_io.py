@@ -24,24 +24,41 @@ def _num(text: str) -> float:
         return math.nan
 
 
-def read_titration_csv(path: str, drop_rows=()
-                       ) -> tuple[list[float], list[float], list[int], list[Finding]]:
-    """(volumes mL, pH, file line numbers, notes) from a titration CSV."""
+#: The largest titration file read [bytes]: thousands of readings, far
+#: more than any bench titration (common practice: tens to a few hundred).
+MAX_BYTES = 1_000_000
+
+
+def _csv_rows(path: str) -> list[list[str]]:
+    """The file's rows (comma, semicolon or tab), or one line saying why not."""
     p = Path(path)
     if not p.is_file():
         raise ScenarioError(path, "", "no such file")
+    if p.stat().st_size > MAX_BYTES:
+        raise ScenarioError(path, "", f"{p.stat().st_size:,} bytes; a bench titration is a "
+                            f"few hundred readings (allowed: up to {MAX_BYTES:,} bytes)")
     try:
         text = p.read_text(encoding="utf-8-sig")
     except UnicodeDecodeError:
         raise ScenarioError(path, "", "not a UTF-8 text file") from None
-    sample = text[:2048]
     try:
-        dialect = csv.Sniffer().sniff(sample, delimiters=",;\t")
+        dialect = csv.Sniffer().sniff(text[:2048], delimiters=",;\t")
     except csv.Error:
         dialect = csv.excel
-    rows = list(csv.reader(text.splitlines(), dialect))
+    try:
+        rows = list(csv.reader(text.splitlines(), dialect))
+    except csv.Error as err:
+        raise ScenarioError(path, "", f"not a readable CSV file ({err}); a bench titration "
+                            "has a volume and a pH on each line") from None
     if not rows:
         raise ScenarioError(path, "", "the file is empty")
+    return rows
+
+
+def read_titration_csv(path: str, drop_rows=()
+                       ) -> tuple[list[float], list[float], list[int], list[Finding]]:
+    """(volumes mL, pH, file line numbers, notes) from a titration CSV."""
+    rows = _csv_rows(path)
     header = [h.strip() for h in rows[0]]
     keys = [h.split("(")[0].split("[")[0].strip().lower().replace(" ", "_") for h in header]
     vol = next((i for i, k in enumerate(keys) if k in VOLUME_NAMES), None)

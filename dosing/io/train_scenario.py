@@ -39,7 +39,7 @@ from typing import Any, Mapping
 from ..errors import InputError
 from ..planning.basis import Batch, Flow, Target
 from ..planning.effluent import infer_water
-from ..planning.reagents import get_reagent
+from ..planning.reagents import get_reagent, ph_reagent
 from ..planning.strengths import as_slurry
 from ..planning.train import DEFAULT_REMOVAL, STEP_KINDS, StepSpec
 
@@ -93,13 +93,13 @@ def read_steps(steps: Any, target: Target | None, measurements_of, model: Mappin
     return tuple(out)
 
 
-def _reagent(where: str, table: Mapping, default: str | None = None):
+def _reagent(where: str, table: Mapping, default: str | None = None, *, ph: bool = True):
     rid = table.get("reagent", default)
     if not isinstance(rid, str):
         raise InputError(f"{where}.reagent", "give the product's catalogue id in quotes "
                          "(see `dosing reagents`)")
     try:
-        return get_reagent(rid)
+        return ph_reagent(rid) if ph else get_reagent(rid)
     except InputError as err:
         raise InputError(f"{where}.reagent", err.reason) from None
 
@@ -137,7 +137,8 @@ def _oxidise(where, table, label, **_) -> StepSpec:
     if by == "air" and "reagent" in table:
         raise InputError(f"{where}.reagent", "air needs no product; give a reagent only "
                          "with by = \"peroxide\"")
-    reagent = _reagent(where, table, "peroxide-35") if by == "peroxide" else None
+    reagent = (_reagent(where, table, "peroxide-35", ph=False) if by == "peroxide"
+               else None)
     if reagent is not None and reagent.compound.formula != "H2O2":
         raise InputError(f"{where}.reagent", f"{reagent.id} is not an oxidant; allowed: a "
                          "hydrogen peroxide product (peroxide-35)")

@@ -49,7 +49,11 @@ def equivalents_per_mol(compound: Compound) -> float | None:
     if compound.formula == "CO2":
         return None
     if compound.raises_ph:
-        return compound.strong_eq
+        # Sodium and potassium count as strong ions; calcium and magnesium
+        # enter as metals, two equivalents each (Ca(OH)2, CaO, Mg(OH)2,
+        # CaCO3 to CO2).
+        divalent = compound.adds.get("calcium", 0.0) + compound.adds.get("magnesium", 0.0)
+        return compound.strong_eq + 2.0 * divalent
     if "sulfate" in compound.adds:
         return 2.0          # H2SO4: both protons, above about pH 3
     return -compound.strong_eq
@@ -158,6 +162,11 @@ class BenchCurve:
     notes: tuple[Finding, ...] = field(default=())
 
 
+#: A curve whose pH moves no more than this [pH] over the whole titration
+#: carries no information about the water (a dead meter, water as titrant).
+FLAT_PH = 0.05
+
+
 def check_curve(sample_ml: float, titrant: Titrant, added_ml, ph, rows=None,
                 source: str = "titration") -> BenchCurve:
     """Validate a titration; raises InputError with the row at fault."""
@@ -190,6 +199,10 @@ def check_curve(sample_ml: float, titrant: Titrant, added_ml, ph, rows=None,
         raise InputError(source, f"{v[-1]:g} mL of titrant for a {sample_ml:g} mL "
                          "sample: the volumes look like the wrong unit; give mL")
     direction = 1.0 if titrant.compound.raises_ph else -1.0
+    if p.max() - p.min() <= FLAT_PH or (p[-1] - p[0]) * direction <= FLAT_PH:
+        raise InputError(source, f"the pH does not move ({p.min():g} to {p.max():g} over "
+                         f"{v[-1] - v[0]:g} mL of {titrant.label}): check the titrant "
+                         "and the meter")
     _refuse_back_titration(p * direction, rows, titrant, source)
     dp = np.diff(p) * direction
     notes: list[Finding] = []
@@ -267,6 +280,9 @@ def direct_scaling(curve: BenchCurve, reagent: Reagent, target: Target) -> Direc
                                 v_ml / 1000.0 * curve.titrant.normality_eq_l
                                 / (curve.sample_ml / 1000.0))
     eq_r = equivalents_per_mol(reagent.compound)
+    if eq_r == 0.0:
+        raise InputError("reagent", f"{reagent.name} delivers no acid or base equivalents: "
+                         "it is not a pH reagent; allowed: a catalogue acid or base")
     if eq_r is None:
         notes.append(note("no-equivalents", "{reagent} cannot be scaled by equivalents (its "
                           "strength as an acid depends on the pH): use the model dose",

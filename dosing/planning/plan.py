@@ -274,6 +274,7 @@ def _plan_once(water: Water, reagent: Reagent, target: Target, basis: Batch | Fl
     ceiling = _ceiling(water, reagent)
     edges = _edge_doses(water, reagent, target, ceiling)
     dose = edges.aim if edges.needed else 0.0
+    _refuse_swamping(reagent, dose)
     dosed = add_dose(mix, reagent.vector(), dose)
     ph_end = float(solve_ph(dosed, ph_guess=target.ph_aim if edges.needed else water.ph)[0])
     if edges.needed and abs(ph_end - target.ph_aim) > 1e-6:
@@ -307,6 +308,20 @@ def _plan_once(water: Water, reagent: Reagent, target: Target, basis: Batch | Fl
                 calcite=_calcite_case(water, reagent, dose, end_state, si_without_calcite))
     notes = edges.notes + speciation_findings(end_state, metals_after, caps)
     return replace(plan, warnings=plan_warnings(plan, notes))
+
+
+def _refuse_swamping(reagent: Reagent, dose: float) -> None:
+    """A product so weak that it outweighs the water it treats is refused."""
+    share = dose * (reagent.litres_product_per_mol or 0.0)
+    if share > PRODUCT_VOLUME_MAX:
+        raise InputError("reagent", f"{reagent.name} would take {share:.3g} L of product "
+                         "per litre of water, more than the water itself: the tank or "
+                         "line cannot hold it and the water would be mostly product; "
+                         "use a stronger product")
+
+
+#: Product volume per volume of water past which a dose is refused [-].
+PRODUCT_VOLUME_MAX = 1.0
 
 
 @dataclass(frozen=True)

@@ -42,6 +42,7 @@ def plan_warnings(plan, notes: tuple[Finding, ...]) -> tuple[Finding, ...]:
     warnings += _window_words(plan)
     warnings += _ionic_words(plan)
     warnings += _undissolved_words(plan)
+    warnings += _volume_words(plan)
     if plan.cap_window is not None:
         warnings.extend(_cap_words(plan.cap_window, plan.target))
     if plan.air is not None and plan.dose_needed:
@@ -49,6 +50,21 @@ def plan_warnings(plan, notes: tuple[Finding, ...]) -> tuple[Finding, ...]:
     if plan.calcite is not None:
         warnings.append(_calcite_words(plan))
     return tuple(warnings)
+
+
+#: Product volume per volume of water past which the dose's own volume is
+#: worth saying [-] (common practice: a few per cent of a tank's freeboard).
+PRODUCT_VOLUME_WARN = 0.05
+
+
+def _volume_words(plan) -> list[Finding]:
+    """A warning when the product's own volume is a material part of the water's."""
+    share = plan.dose_mol_l * (plan.reagent.litres_product_per_mol or 0.0)
+    if share <= PRODUCT_VOLUME_WARN:
+        return []
+    return [note("product-volume", "the product adds {share:.0%} to the volume of the "
+                 "water (planned with that dilution): check the tank or line holds it, "
+                 "or use a stronger product", "warning", share=Q(share, "%"))]
 
 
 def _window_words(plan) -> list[Finding]:

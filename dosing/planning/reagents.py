@@ -38,7 +38,7 @@ from ..errors import InputError
 from .findings import Finding, Q, note
 from ..chem.species import MOLAR_MASS
 
-__all__ = ["Compound", "COMPOUNDS", "Reagent", "CATALOGUE", "REAGENT_IDS", "get_reagent",
+__all__ = ["Compound", "COMPOUNDS", "Reagent", "CATALOGUE", "REAGENT_IDS", "get_reagent", "ph_reagent",
            "GENERAL_CAUTION", "SOLUTION_DENSITIES"]
 
 #: Shown with every dose, by every front end.
@@ -383,6 +383,22 @@ CATALOGUE: dict[str, Reagent] = {r.id: r for r in (
 
 #: Catalogue ids in display order.
 REAGENT_IDS: tuple[str, ...] = tuple(CATALOGUE)
+
+
+def ph_reagent(reagent_id: str) -> Reagent:
+    """Catalogue reagent by id that moves the pH (an acid or a base).
+
+    Raises
+    ------
+    InputError
+        Unknown id, or a product that is not a pH reagent (an oxidant).
+    """
+    reagent = get_reagent(reagent_id)
+    if reagent.compound.formula == "H2O2":
+        raise InputError("reagent.id", f"{reagent_id} is an oxidant, not a pH reagent: it "
+                         "goes in an oxidise step ([[step]] kind = \"oxidise\", by = "
+                         "\"peroxide\"); allowed here: a catalogue acid or base")
+    return reagent
 
 
 def get_reagent(reagent_id: str) -> Reagent:

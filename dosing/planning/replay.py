@@ -189,7 +189,21 @@ def as_numbers(col) -> np.ndarray:
         return col.to_numpy(dtype=float, na_value=np.nan)   # nullable ints too
     if col.dtype.kind == "b":
         return np.full(len(col), np.nan)
-    return pd.to_numeric(col, errors="coerce").to_numpy(dtype=float)
+    try:
+        return pd.to_numeric(col, errors="coerce").to_numpy(dtype=float)
+    except (OverflowError, ValueError, TypeError):
+        # an integer of hundreds of digits: cell by cell, too big is infinite
+        # (and flagged as implausible by the checks after)
+        return np.array([_one_number(v) for v in col.tolist()], dtype=float)
+
+
+def _one_number(v) -> float:
+    try:
+        return float(v)
+    except OverflowError:                   # an int too large for a float
+        return math.inf if v > 0 else -math.inf
+    except (ValueError, TypeError):
+        return math.nan
 
 
 def _flatline(ph: np.ndarray, state: ReplayState, flag: np.ndarray) -> None:
@@ -212,9 +226,11 @@ def _row_results(frame, scenario: Scenario, flag, flow, ph, temp, dt, dose) -> p
     kg_mol = r_.kg_product_per_mol
     l_mol = r_.litres_product_per_mol
     mol_h = np.where(planned, dose, np.nan) * np.where(np.isnan(flow), 0, flow) * 1000.0
+    def finite(x):                  # an infinite reading is echoed empty (flag says why)
+        return np.where(np.isfinite(x), x, np.nan)
     out = pd.DataFrame({
         "timestamp": frame["timestamp"].to_numpy(),
-        "flow_m3_h": flow, "ph": ph, "temperature_c": temp, "dt_s": dt,
+        "flow_m3_h": finite(flow), "ph": finite(ph), "temperature_c": finite(temp), "dt_s": dt,
         "dose_mmol_l": np.where(planned, dose * 1000.0, np.nan),
         "dose_kg_h": mol_h * kg_mol if kg_mol is not None else np.nan,
         "dose_l_h": mol_h * l_mol if l_mol is not None else np.nan,

@@ -26,12 +26,12 @@ FLATLINE_ROWS = 60
 
 
 FLAGS = {
-    "bad_timestamp": "timestamp missing or unreadable",
+    "bad_timestamp": "timestamp missing, unreadable or outside the years 1900-2200",
     "time_not_increasing": "timestamp not after the previous row",
-    "flow_missing": "flow missing",
+    "flow_missing": "flow missing or not a number",
     "flow_negative": "flow negative",
     "flow_implausible": "flow above 100,000 m3/h or not a finite number",
-    "ph_missing": "pH missing",
+    "ph_missing": "pH missing or not a number",
     "ph_out_of_range": "pH outside 0-14",
     "temperature_out_of_range": "temperature outside 0-60 °C or missing",
     "alkalinity_bad": "alkalinity missing, negative, above 100,000 mg/L or inconsistent "
@@ -218,7 +218,9 @@ class ReplayTotals:
         k = int(np.searchsorted(np.cumsum(self.hist), math.ceil(q / 100.0 * total)))
         if k == 0:
             return 0.0
-        return float(_EDGES[min(k + 1, _EDGES.size - 1)])
+        # The bin's upper edge, but never past the largest rate seen (a bin
+        # is 2.3 % wide: with few rows its edge can lie above them all).
+        return min(float(_EDGES[min(k + 1, _EDGES.size - 1)]), self.rate_max)
 
 
 @dataclass(frozen=True)
@@ -309,7 +311,7 @@ def replay_report(totals: ReplayTotals, scenario, source: str,
         # Smallest rate the pump must hold: 5th percentile of non-zero rates.
         cum = np.cumsum(totals.hist[1:])
         k = int(np.searchsorted(cum, math.ceil(0.05 * cum[-1])))
-        low = float(_EDGES[k + 1])
+        low = min(float(_EDGES[k + 1]), totals.rate_max)
     return ReplayReport(
         source=source, title=scenario.title, site=scenario.site, tank=scenario.tank,
         reagent=scenario.reagent.id, reagent_name=scenario.reagent.name, rows=totals.rows,

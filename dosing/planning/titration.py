@@ -23,6 +23,7 @@ from .effluent import Water
 from .findings import Finding, Q, note
 from .job import Scenario
 from .plan import Plan, plan_dose
+from .reagents import GENERAL_CAUTION
 from .water_fit import WaterFit, fit_water
 
 __all__ = ["compare", "Comparison", "GAP_WARN", "FIT_MODES", "SIMPLE_FIT_ENOUGH",
@@ -56,6 +57,11 @@ SIMPLE_FIT_ENOUGH = 0.03
 
 FIT_MODES = ("auto", "simple", "spectrum")
 
+#: Past this pH misfit [RMS] the fitted water does not explain the curve
+#: (thirty times a good meter's noise, common practice) and no model dose
+#: is given.
+MISFIT_NO_DOSE = 0.3
+
 
 def _choose_fit(curve: BenchCurve, base: Water, unknown_acid: str, mode: str):
     """The simple fit, the buffer spectrum, and which one the plan uses."""
@@ -79,12 +85,24 @@ class Comparison:
     fit: WaterFit
     spectrum: Any                   #: the buffer spectrum, or None (simple fit only)
     used: str                       #: "simple" or "spectrum": the water the plan rests on
-    plan: Plan                      #: the plan from the fitted water
+    plan: Plan | None               #: the plan from the fitted water; None when the fit
+                                    #: cannot explain the curve (no model dose then)
     scenario: Scenario              #: the scenario with the fitted water
     gap: float | None               #: (model - direct) / direct dose
     warnings: tuple[Finding, ...]
     curve: BenchCurve               #: the bench curve as checked
     direct_amounts: Amounts | None  #: the direct dose in product, per batch or hour
+    water: Water | None = None      #: the fitted water the model rests on
+
+    @property
+    def rms_ph(self) -> float:
+        """pH misfit of the fit the model rests on [pH RMS]."""
+        return self.spectrum.rms_ph if self.used == "spectrum" else self.fit.rms_ph
+
+    @property
+    def cautions(self) -> tuple[str, ...]:
+        """The reagent's safety words and the final word (with or without a model plan)."""
+        return tuple(self.scenario.reagent.cautions) + (GENERAL_CAUTION,)
 
 
 def compare(curve: BenchCurve, scenario: Scenario, *, unknown_acid: str = "auto",
@@ -100,7 +118,9 @@ def compare(curve: BenchCurve, scenario: Scenario, *, unknown_acid: str = "auto"
     direct = direct_scaling(curve, reagent, target)
     fit, spec, used = _choose_fit(curve, scenario.water, unknown_acid, fit_mode)
     water = spec.water if used == "spectrum" else fit.water
-    plan = plan_dose(water, reagent, target, basis, permit=scenario.permit)
+    rms = spec.rms_ph if used == "spectrum" else fit.rms_ph
+    plan = (plan_dose(water, reagent, target, basis, permit=scenario.permit)
+            if rms <= MISFIT_NO_DOSE else None)
     eff = {"ph": round(water.ph, 3), "temperature_c": water.temperature_c}
     fitted = replace(scenario, water=water, measurements=None,
                      data=dict(scenario.data, effluent=eff))
@@ -108,8 +128,14 @@ def compare(curve: BenchCurve, scenario: Scenario, *, unknown_acid: str = "auto"
         list(fit.warnings) if used == "simple" else [])
     warnings += _extrapolation_words(curve, target, spec if used == "spectrum" else None)
     warnings += _sample_words(curve, scenario.water.ph)
+    if plan is None:
+        warnings.append(note("fit-cannot-explain", "no model dose: the fitted water misses "
+                             "the curve by {rms:.2f} pH (RMS), many times a meter's noise, so "
+                             "no water the model knows gives this curve. Check the readings, "
+                             "the titrant and the sample volume; titrate again before using "
+                             "the direct scaling", "warning", rms=Q(rms, "pH")))
     gap = None
-    if direct.dose_mol_l and plan.dose_mol_l:
+    if plan is not None and direct.dose_mol_l and plan.dose_mol_l:
         gap = (plan.dose_mol_l - direct.dose_mol_l) / direct.dose_mol_l
         if abs(gap) > GAP_WARN:
             warnings.append(note("methods-differ", "the model dose and the direct scaling differ "
@@ -118,7 +144,8 @@ def compare(curve: BenchCurve, scenario: Scenario, *, unknown_acid: str = "auto"
                                  gap=Q(gap, "%")))
     a = amounts_for(direct.dose_mol_l, reagent, basis) if direct.dose_mol_l is not None \
         else None
-    return Comparison(direct, fit, spec, used, plan, fitted, gap, tuple(warnings), curve, a)
+    return Comparison(direct, fit, spec, used, plan, fitted, gap, tuple(warnings), curve, a,
+                      water)
 
 
 #: The sample's own pH (no titrant yet) and the scenario's pH differ by more

@@ -24,7 +24,7 @@ __all__ = ["titration_dict", "render_titration", "spectrum_bars"]
 def titration_dict(c) -> dict[str, Any]:
     """The comparison as plain data (SI units, JSON-ready, stable keys)."""
     curve, direct, fit, spec, a = c.curve, c.direct, c.fit, c.spectrum, c.direct_amounts
-    per = "per_h" if isinstance(c.plan.basis, Flow) else "per_batch"
+    per = "per_h" if isinstance(c.scenario.basis, Flow) else "per_batch"
     return {
         "sample_ml": curve.sample_ml, "titrant": curve.titrant.label,
         "points": int(curve.ph.size),
@@ -40,11 +40,12 @@ def titration_dict(c) -> dict[str, Any]:
         "model": {"fitted": fit.params, "stderr": fit.stderr, "rms_ph": fit.rms_ph,
                   "unknown_acid": fit.unknown_acid,
                   "residual_ml": [float(r) for r in fit.residual_ml],
-                  "used": c.used, "plan": sheet_dict(c.scenario, c.plan)},
+                  "used": c.used,
+                  "plan": None if c.plan is None else sheet_dict(c.scenario, c.plan)},
         "spectrum": None if spec is None else _spectrum_dict(spec),
         "gap_model_vs_direct": c.gap,
         "warnings": texts(c.warnings),
-        "cautions": list(c.plan.cautions),
+        "cautions": list(c.cautions),
     }
 
 
@@ -72,7 +73,7 @@ def render_titration(scenario, c, units: str = "metric", width: int = 78) -> str
     """Both titration methods side by side (a :class:`~dosing.planning.titration.Comparison`),
     then the model plan's sheet."""
     direct, plan, curve = c.direct, c.plan, c.curve
-    a, label = plan.amounts(), plan.basis.per
+    label = c.scenario.basis.per
     da = c.direct_amounts
     scaled = (f"{fmt(direct.dose_mol_l * 1000)} mmol/L, "
               f"{product_text(da.kg_product, da.litres_product, units)} {label}"
@@ -81,9 +82,14 @@ def render_titration(scenario, c, units: str = "metric", width: int = 78) -> str
     out = wrap(f"BENCH TITRATION  {curve.ph.size} points, {fmt(curve.sample_ml)} mL "
                f"sample, titrant {curve.titrant.label}", width, "") + ["=" * 40]
     out += hanging("direct scaling", f"{fmt(direct.ml_at_aim)} mL titrant to pH "
-                   f"{plan.target.ph_aim:g} -> {scaled}", width)
-    out += hanging("model fit", f"{fmt(a.mmol_per_l)} mmol/L, "
-                   f"{product_text(a.kg_product, a.litres_product, units)} {label}", width)
+                   f"{c.scenario.target.ph_aim:g} -> {scaled}", width)
+    if plan is None:
+        out += hanging("model fit", f"no dose: the fit misses the curve by {c.rms_ph:.2f} pH "
+                       "RMS (see the warnings)", width)
+    else:
+        a = plan.amounts()
+        out += hanging("model fit", f"{fmt(a.mmol_per_l)} mmol/L, "
+                       f"{product_text(a.kg_product, a.litres_product, units)} {label}", width)
     if c.gap is not None:
         out += hanging("", f"the model is {c.gap:+.1%} against the direct scaling", width)
     spec = c.spectrum
@@ -105,6 +111,11 @@ def render_titration(scenario, c, units: str = "metric", width: int = 78) -> str
         out += ["", "TITRATION WARNINGS"]
         for w in texts(c.warnings, units):
             out.extend(wrap(w, width, "  ! "))
+    if plan is None:
+        out += ["", "CAUTIONS"]
+        for line in c.cautions:
+            out.extend(wrap(line, width, "  - "))
+        return "\n".join(out) + "\n"
     out += ["", "PLAN WITH THE FITTED WATER", ""]
     out.append(render_sheet(c.scenario, plan, units, width))
     return "\n".join(out)
