@@ -21,6 +21,7 @@ import sys
 
 from . import commands
 from .errors import DosingError, InputError, UsageError
+from .report.text import printable, printable_stdout
 
 __all__ = ["main"]
 
@@ -70,6 +71,8 @@ def _plan_parser(sub) -> None:
                    "this tank (how far its doses ran from plan); read only")
     p.add_argument("--units", choices=("metric", "us"), default="metric",
                    help="units of the dose sheet (default metric)")
+    p.add_argument("--force", action="store_true", help="replace an existing output "
+                   "file this program did not write (never an input, never through a link)")
 
 
 def _sweep_parser(sub) -> None:
@@ -85,6 +88,8 @@ def _sweep_parser(sub) -> None:
     w.add_argument("--json", action="store_true", help="print the grid as JSON")
     w.add_argument("--csv", metavar="OUT.csv", help="write the grid as CSV (SI units)")
     w.add_argument("--units", choices=("metric", "us"), default="metric")
+    w.add_argument("--force", action="store_true", help="replace an existing output "
+                   "file this program did not write (never an input, never through a link)")
 
 
 def _replay_parser(sub) -> None:
@@ -106,6 +111,8 @@ def _replay_parser(sub) -> None:
     r.add_argument("--units", choices=("metric", "us"), default="metric")
     r.add_argument("--chunk-rows", type=int, default=100_000, metavar="N",
                    help="about this many rows read at a time (memory stays constant)")
+    r.add_argument("--force", action="store_true", help="replace an existing output "
+                   "file this program did not write (never an input, never through a link)")
 
 
 def _titration_parser(sub) -> None:
@@ -127,6 +134,8 @@ def _titration_parser(sub) -> None:
     t.add_argument("--json", action="store_true")
     t.add_argument("--plot", metavar="FILE.png")
     t.add_argument("--units", choices=("metric", "us"), default="metric")
+    t.add_argument("--force", action="store_true", help="replace an existing output "
+                   "file this program did not write (never an input, never through a link)")
 
 
 def _log_parser(sub) -> None:
@@ -161,6 +170,8 @@ def _log_parser(sub) -> None:
     ex.add_argument("--since", metavar="DATE")
     ex.add_argument("--tank")
     ex.add_argument("--db", metavar="PATH", help=db_help)
+    ex.add_argument("--force", action="store_true", help="replace an existing output "
+                   "file this program did not write (never an input, never through a link)")
 
 
 def main(argv: list[str] | None = None) -> int:
@@ -168,12 +179,15 @@ def main(argv: list[str] | None = None) -> int:
     args = _parser().parse_args(argv)
     handler = commands.HANDLERS[args.command]
     try:
-        return handler(args)
+        if args.command == "tui":
+            return handler(args)            # the terminal view draws with escape codes
+        with printable_stdout():
+            return handler(args)
     except DosingError as err:
         if isinstance(err, InputError) and err.field in OPTION_OF_FIELD:
             # The engine names its fields; on the command line they are options.
             err = UsageError(OPTION_OF_FIELD[err.field], err.reason)
-        sys.stderr.write(f"dosing: error: {err}\n")
+        sys.stderr.write(f"dosing: error: {printable(str(err))}\n")
         return EXIT_BAD_INPUT
     except BrokenPipeError:
         return 0

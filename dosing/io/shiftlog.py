@@ -92,7 +92,7 @@ class Entry:
     @property
     def plan(self) -> dict[str, Any] | None:
         """The stored plan JSON as data."""
-        return None if self.plan_json is None else json.loads(self.plan_json)
+        return None if self.plan_json is None else json.loads(self.plan_json, strict=False)
 
 
 @dataclass(frozen=True)
@@ -113,6 +113,41 @@ class Bias:
 _COLUMNS = ("id", "kind", "utc", "operator", "site", "tank", "title", "reagent",
             "scenario_toml", "plan_json", "planned_kg", "dosed_kg", "ph_start",
             "ph_planned", "ph_after", "note", "refers_to", "engine_version")
+
+
+_TEXT = ("kind", "utc", "operator", "site", "tank", "title", "reagent", "engine_version")
+_NUMBER = ("planned_kg", "dosed_kg", "ph_start", "ph_planned", "ph_after")
+
+
+def _entry(row) -> Entry:
+    """An entry from a row as read, checked: a row whose cells are not what
+    the log writes (bytes, a damaged plan, a time that is not one) raises
+    ValueError, so damage shows as an unreadable entry, never a crash."""
+    if row is None or len(row) != len(_COLUMNS):
+        raise ValueError("no such row")
+    cells = dict(zip(_COLUMNS, row))
+    if not isinstance(cells["id"], int):
+        raise ValueError("id")
+    for key in _TEXT + ("note",):
+        if not isinstance(cells[key], str):
+            raise ValueError(key)
+    for key in _NUMBER:
+        if cells[key] is not None and (isinstance(cells[key], bool)
+                                       or not isinstance(cells[key], (int, float))):
+            raise ValueError(key)
+    if cells["refers_to"] is not None and not isinstance(cells["refers_to"], int):
+        raise ValueError("refers_to")
+    datetime.fromisoformat(cells["utc"])                  # ValueError if not a time
+    for key in ("scenario_toml", "plan_json"):
+        if cells[key] is not None and not isinstance(cells[key], str):
+            raise ValueError(key)
+    if cells["plan_json"] is not None:
+        # A control character inside a string is kept (strict=False): the
+        # plan is still readable; anything else that is not JSON is damage.
+        plan = json.loads(cells["plan_json"], strict=False)
+        if not isinstance(plan, dict):
+            raise ValueError("plan_json")
+    return Entry(*row)
 
 
 def _valid_id(entry_id: int) -> bool:
@@ -142,15 +177,18 @@ class ShiftLog(LogFile):
         except sqlite3.OperationalError as err:
             if _is_lock(err):
                 raise self._locked_error() from None
-            raise
+            raise self._write_error(err) from None
         try:
             if row.get("refers_to") is not None:
                 self._require(int(row["refers_to"]))
             cur = db.execute(f"INSERT INTO entries ({keys}) VALUES ({marks})",
                              tuple(row.values()))
             db.execute("COMMIT")
-        except BaseException:
-            db.execute("ROLLBACK")
+        except BaseException as err:
+            if db.in_transaction:           # SQLite may have rolled back already
+                db.execute("ROLLBACK")
+            if isinstance(err, sqlite3.Error):
+                raise self._write_error(err) from None
             raise
         return int(cur.lastrowid)
 
@@ -197,13 +235,30 @@ class ShiftLog(LogFile):
                            (entry_id,)) if _valid_id(entry_id) else [])
         if not rows:
             raise ShiftLogError(f"no entry {entry_id} in {self.path}")
-        return Entry(*rows[0])
+        try:
+            return _entry(rows[0])
+        except ValueError:
+            raise ShiftLogError(f"{self.path}: entry {entry_id} is damaged and cannot be "
+                                "read; the other entries can (dosing log list)") from None
 
     def related(self, entry_id: int) -> list[Entry]:
-        """Entries that refer to ``entry_id`` (corrections, follow-ups), oldest first."""
+        """Entries that refer to ``entry_id`` (corrections, follow-ups), oldest
+        first; damaged ones left out (and listed in :attr:`unreadable`)."""
         rows = self._rows(f"SELECT {', '.join(_COLUMNS)} FROM entries "
                           "WHERE refers_to = ? ORDER BY id", (entry_id,))
-        return [Entry(*r) for r in rows]
+        return self._checked(rows)
+
+    def _checked(self, rows) -> list[Entry]:
+        """Entries of rows read; a damaged row's id goes to :attr:`unreadable`."""
+        out = []
+        for row in rows:
+            try:
+                out.append(_entry(row))
+            except ValueError:
+                if not hasattr(self, "unreadable"):
+                    self.unreadable = []
+                self.unreadable.append(row[0] if row and isinstance(row[0], int) else "?")
+        return out
 
     def entries(self, *, since_utc: str | None = None, tank: str | None = None) -> Iterator[Entry]:
         """All entries, oldest first, filtered by time and tank.
@@ -221,8 +276,9 @@ class ShiftLog(LogFile):
             args.append(tank)
         self.unreadable = []
         try:
-            found = [Entry(*r) for r in self._rows(select + where + " ORDER BY id", args)]
+            found = self._checked(self._rows(select + where + " ORDER BY id", args))
         except ShiftLogError:
+            self.unreadable = []
             found = [e for e in self._salvage(select + " WHERE id = ?")
                      if (not since_utc or e.utc >= since_utc) and (not tank or e.tank == tank)]
         return iter(found)
@@ -245,9 +301,8 @@ class ShiftLog(LogFile):
         found = []
         for entry_id in range(1, top + 1):
             try:
-                row = self._db.execute(sql, (entry_id,)).fetchone()
-                found.append(Entry(*row))
-            except (sqlite3.DatabaseError, TypeError):
+                found.append(_entry(self._db.execute(sql, (entry_id,)).fetchone()))
+            except (sqlite3.DatabaseError, ValueError, TypeError):
                 self.unreadable.append(entry_id)
         return found
 

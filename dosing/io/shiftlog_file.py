@@ -69,6 +69,29 @@ BEGIN SELECT RAISE(ABORT, 'the shift log is append-only: entries are never delet
 MIGRATIONS: tuple[tuple[int, str], ...] = ((1, _V1),)
 
 
+def _schema_of(db: sqlite3.Connection) -> frozenset:
+    """The database's tables, indexes and triggers with their SQL (spaces
+    normalised); SQLite's own objects left out."""
+    rows = db.execute("SELECT type, name, tbl_name, sql FROM sqlite_master "
+                      "WHERE name NOT LIKE 'sqlite_%'").fetchall()
+    return frozenset((t, n, tb, " ".join((sql or "").split())) for t, n, tb, sql in rows)
+
+
+_SCHEMAS: dict[int, frozenset] = {}
+
+
+def _expected_schema(version: int) -> frozenset:
+    """The log's schema at ``version`` (empty at 0), built in memory by the migrations."""
+    if version not in _SCHEMAS:
+        mem = sqlite3.connect(":memory:")
+        for reached, script in MIGRATIONS:
+            if reached <= version:
+                mem.executescript(script)
+        _SCHEMAS[version] = _schema_of(mem)
+        mem.close()
+    return _SCHEMAS[version]
+
+
 class LogFile:
     """An open log file. Use as a context manager, or call :meth:`close`.
 
@@ -98,12 +121,14 @@ class LogFile:
         try:
             self._db = sqlite3.connect(str(self.path), timeout=lock_wait_s,
                                        isolation_level=None)
+            self._db.text_factory = _text
             self._db.execute(f"PRAGMA busy_timeout = {int(lock_wait_s * 1000)}")
             self._prepare_with_retry(lock_wait_s)
         except sqlite3.DatabaseError as err:
-            raise self._locked_error() if _is_lock(err) else ShiftLogError(
-                f"{self.path}: cannot be used as a shift log ({err}); "
-                "the file was not changed") from None
+            if _is_lock(err) or _is_full(err):
+                raise self._write_error(err) from None
+            raise ShiftLogError(f"{self.path}: cannot be used as a shift log ({err}); "
+                                "the file was not changed") from None
 
     # ------------------------------------------------------------ opening --
     def _check_file(self) -> None:
@@ -135,6 +160,7 @@ class LogFile:
         for mode in ("?mode=ro", "?mode=ro&immutable=1"):
             db = sqlite3.connect(uri + mode, uri=True, timeout=self.lock_wait_s,
                                  isolation_level=None)
+            db.text_factory = _text
             try:
                 self._identify(db)
                 if self.writable:
@@ -161,16 +187,21 @@ class LogFile:
         try:
             app_id = db.execute("PRAGMA application_id").fetchone()[0]
             version = db.execute("PRAGMA user_version").fetchone()[0]
-            tables = db.execute("SELECT count(*) FROM sqlite_master").fetchone()[0]
+            schema = _schema_of(db)
         finally:
             db.execute("COMMIT")
-        if app_id not in (0, APPLICATION_ID) or (app_id == 0 and (tables or version)):
-            raise ShiftLogError(f"{self.path}: is an SQLite database of another program, "
+        foreign = ShiftLogError(f"{self.path}: is an SQLite database of another program, "
                                 "not a shift log; it was not changed")
+        if app_id not in (0, APPLICATION_ID) or (app_id == 0 and (schema or version)):
+            raise foreign
         if version > SCHEMA_VERSION:
             raise ShiftLogError(f"{self.path}: was written by a newer version of the "
                                 f"planner (schema {version}, this one reads up to "
                                 f"{SCHEMA_VERSION}); upgrade before using it")
+        # Only an empty file, or one whose whole schema is the log's at its
+        # version, is taken: anything else is refused before any write.
+        if schema != _expected_schema(version):
+            raise foreign
         return version
 
     def _refuse_damaged(self, db: sqlite3.Connection) -> None:
@@ -252,8 +283,21 @@ class LogFile:
         except sqlite3.DatabaseError as err:
             raise self._damaged(err) from None
 
+    def _write_error(self, err: Exception) -> ShiftLogError:
+        """Why an entry could not be written: a full disk said as such, a lock,
+        or anything else; in every case nothing was written."""
+        if _is_full(err):
+            return ShiftLogError(f"{self.path}: the disk holding the log is full; nothing "
+                                 "was written (entries already in the log are unchanged). "
+                                 "Free some space and record the entry again")
+        if _is_lock(err):
+            return self._locked_error()
+        return ShiftLogError(f"{self.path}: the entry could not be written ({err}); "
+                             "nothing was written")
+
     def _damaged(self, err: Exception) -> ShiftLogError:
-        return ShiftLogError(f"{self.path}: is damaged ({err}); the file was not changed. "
+        why = " ".join(str(err).split())[:120]
+        return ShiftLogError(f"{self.path}: is damaged ({why}); the file was not changed. "
                              f"{_RECOVER}")
 
 
@@ -268,6 +312,25 @@ def default_log_path() -> Path:
 _RECOVER = ("Copy what can still be read with `dosing log export --csv FILE` (or the "
             "sqlite3 tool's .recover command), then move the damaged file aside and start "
             "a new log (or restore a backup)")
+
+
+class Undecodable(bytes):
+    """A text cell of a damaged log that is not UTF-8: kept as its bytes (not
+    a str), so the entry holding it is reported unreadable, never shown altered."""
+
+
+def _text(raw: bytes):
+    try:
+        return raw.decode("utf-8")
+    except UnicodeDecodeError:
+        return Undecodable(raw)
+
+
+def _is_full(err: Exception) -> bool:
+    """SQLite's SQLITE_FULL (or the operating system's "no space left")."""
+    text = str(err).lower()
+    return "disk is full" in text or "no space left" in text or \
+        getattr(err, "sqlite_errorcode", None) == 13
 
 
 def _is_lock(err: Exception) -> bool:

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import math
 
-__all__ = ["fmt", "require_finite", "to_json"]
+__all__ = ["fmt", "require_finite", "to_json", "csv_text", "csv_safe_frame"]
 
 TINY_EXPONENT = -6
 
@@ -82,3 +82,28 @@ def to_json(data) -> str:
     import json
     return json.dumps(require_finite(data, "result"), indent=2, ensure_ascii=False,
                       allow_nan=False, default=str) + "\n"
+
+
+#: First characters that make a spreadsheet read a cell as a formula (or,
+#: tab and carriage return, shift it into one).
+_FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
+
+
+def csv_text(value):
+    """A text cell for a CSV that a spreadsheet will open: one starting like
+    a formula gets a leading single quote (common practice, the OWASP advice
+    on CSV injection), so it is shown, never run. Non-text is returned as it is."""
+    if isinstance(value, str) and value.startswith(_FORMULA_START):
+        return "'" + value
+    return value
+
+
+def csv_safe_frame(frame):
+    """A copy of a DataFrame with every text cell made safe by :func:`csv_text`;
+    numeric columns (a -0.5 stays a number) are not touched."""
+    out = frame.copy()
+    for col in out.columns:
+        if out[col].dtype == object or str(out[col].dtype).startswith("str"):
+            out[col] = out[col].map(csv_text)
+    return out
+

@@ -12,7 +12,7 @@ import io
 from dataclasses import dataclass
 from typing import Any
 
-from .numbers import fmt
+from .numbers import csv_text, fmt
 from ..planning.reagents import GENERAL_CAUTION
 from ..planning.job import Scenario
 from .text import wrap
@@ -136,7 +136,8 @@ def sweep_csv(result: Sweep, scenario: Scenario) -> str:
                 f"litres_product{per}", "not_planned_because"])
     for p in d["products"]:
         for s, cell in zip(d["sizes"], p["cells"]):
-            w.writerow([f"{s:.9g}", p["id"], p["name"], _g(p["strength_percent"]),
+            w.writerow([f"{s:.9g}", csv_text(p["id"]), csv_text(p["name"]),
+                        _g(p["strength_percent"]),
                         _g(cell.get("kg_product")), _g(cell.get("litres_product")),
                         cell.get("problem", "")])
     return buf.getvalue()
