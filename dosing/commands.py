@@ -9,10 +9,12 @@ errors reach :func:`dosing.cli.main`, which prints them on one line.
 from __future__ import annotations
 
 import contextlib
+import csv
 import sys
 
 from .errors import ScenarioError, UsageError
 from .io.files import write_atomic
+from .io.outputs import check_outputs
 from .report.numbers import require_finite, to_json
 
 __all__ = ["HANDLERS", "OPTION_OF_FIELD"]
@@ -34,6 +36,7 @@ def _cmd_plan(args) -> int:
     if args.plot and not args.plot.lower().endswith(".png"):
         raise ScenarioError(args.plot, "", "the plot is written as PNG; give a "
                             "file name ending in .png")
+    check_outputs([("--plot", args.plot)], [args.scenario, args.db], force=args.force)
     scenario = load_scenario(args.scenario)
     text, data, png = (_plan_train if scenario.train else _plan_one)(scenario, args)
     data = require_finite(data, "plan")
@@ -112,6 +115,7 @@ def _cmd_sweep(args) -> int:
     from .report.sweep_sheet import render_sweep, sweep_csv, sweep_dict
     if args.csv and not args.csv.lower().endswith(".csv"):
         raise ScenarioError(args.csv, "", "give a file name ending in .csv")
+    check_outputs([("--csv", args.csv)], [args.scenario], force=args.force)
     strengths = _numbers("--strengths", args.strengths, 0.0, 100.0, "%")
     scenario = load_scenario(args.scenario)
     sizes = _numbers("--sizes", args.sizes, 0.0, 1e6, "m3 (or m3/h)")
@@ -245,9 +249,11 @@ def _cmd_replay(args) -> int:
         raise UsageError("replay", "give the data file(s) and --scenario, or --fleet FLEET.toml")
     if not args.scenario:
         raise UsageError("--scenario", "missing; give the flow scenario the data belong to")
-    scenario = _flow_scenario(args.scenario)
     from .io.replay_io import site_files
     files = site_files(args.data, where="data")
+    check_outputs([("--csv", args.csv), ("--plot", args.plot)], [args.scenario, *files],
+                  force=args.force)
+    scenario = _flow_scenario(args.scenario)
     if args.scheduler or args.workers:
         if args.csv:
             raise UsageError("--csv", "per-row results are written by a one-process replay; "
@@ -294,13 +300,15 @@ def _replay_in_process(args, scenario, files: list[str]):
 def _run_on_dask(args, sites):
     """Replay sites on Dask (a local cluster or ``--scheduler``):
     ({name: (report, totals)}, the number of workers)."""
-    from .io.fleet import dask_client, replay_sites
+    from .io.fleet import cut_parts, dask_client, replay_sites
+    part_bytes = int(args.part_mb * 2**20)
+    plan = cut_parts(sites, part_bytes)     # every file checked before the cluster starts
     with _progress(None, "parts") as progress, \
             dask_client(args.scheduler, args.workers) as client:
         workers = len(client.scheduler_info().get("workers", {}))
-        results = replay_sites(sites, client, part_bytes=int(args.part_mb * 2**20),
+        results = replay_sites(sites, client, part_bytes=part_bytes,
                                chunk_rows=args.chunk_rows, keep_hourly=bool(args.plot),
-                               progress=progress)
+                               progress=progress, plan=plan)
     for name, (report, _) in results.items():
         require_finite(report.to_dict(), f"{report.source}: replay")
     return results, workers
@@ -340,6 +348,7 @@ def _cmd_titration(args) -> int:
     from .io.titration_io import read_titration_csv
     if args.plot and not args.plot.lower().endswith(".png"):
         raise ScenarioError(args.plot, "", "give a file name ending in .png")
+    check_outputs([("--plot", args.plot)], [args.data, args.scenario], force=args.force)
     try:
         titrant = parse_titrant(args.titrant)
         vols, phs, lines, notes = read_titration_csv(args.data, args.drop)
@@ -379,6 +388,10 @@ def _cmd_log(args) -> int:
     if args.log_command == "export":
         if not args.csv.lower().endswith(".csv"):
             raise ScenarioError(args.csv, "", "the export is CSV; give a name ending in .csv")
+        from .io.shiftlog import default_log_path
+        db = args.db or default_log_path()
+        check_outputs([("--csv", args.csv)], [db, f"{db}-wal", f"{db}-shm"],
+                      force=args.force)
     if args.log_command == "add":
         from pathlib import Path
         from .io.scenario import load_scenario
@@ -403,7 +416,11 @@ def _cmd_log(args) -> int:
             sys.stdout.write(logview.render_entry(log, log.get(args.id)))
         elif args.log_command == "export":
             frame = log.frame(since_utc=since, tank=args.tank)
-            write_atomic(args.csv, frame.to_csv(index=False).encode("utf-8"))
+            from .report.numbers import csv_safe_frame
+            # Text always quoted (a carriage return inside a note stays in its
+            # cell); numbers bare, so a spreadsheet reads them as numbers.
+            write_atomic(args.csv, csv_safe_frame(frame).to_csv(
+                index=False, quoting=csv.QUOTE_NONNUMERIC).encode("utf-8"))
             sys.stdout.write(f"wrote {len(frame)} entries to {args.csv}\n"
                              + logview.unreadable_line(log))
     return 0

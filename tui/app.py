@@ -10,7 +10,6 @@ from __future__ import annotations
 
 import copy
 import time
-from dataclasses import replace
 from pathlib import Path
 from typing import Any
 
@@ -35,23 +34,20 @@ from dosing.planning.train_plan import TrainPlan
 from dosing.report.record import record_of
 from dosing.report.sheet import render_sheet
 from dosing.report.train_sheet import render_train
-from dosing.report.titration import render_titration
 from dosing.report.units import UnitSystem
-from dosing.planning.bench import check_curve, parse_titrant
-from dosing.planning.titration import compare
-from dosing.io.titration_io import read_titration_csv
 from dosing.io.shiftlog import ShiftLog
 from dosing.planning.sweep import default_alternative, default_sizes, strength_grid
 
 from .form import FIELDS, ScenarioForm, field_id
 from .screens.help import HelpScreen
-from .screens.ask import RecordAnswer, TitrationAnswer, record_dialog, titration_dialog
+from .screens.ask import RecordAnswer, record_dialog
 from .screens.path import PathScreen
 from .widgets.curve import CurvePlot, TitrationPlot
 from .widgets.dose import DosePanel
 from .widgets.sweep import SweepTable
 from .widgets.train import TrainPanel
 from .train_actions import TrainActions
+from .titration_actions import TitrationActions
 from .train_mode import with_steps
 
 __all__ = ["Tankside", "make_app", "run", "DEFAULT_DATA"]
@@ -79,7 +75,7 @@ def _form_key(key: str) -> str | None:
     return None
 
 
-class Tankside(TrainActions, App):
+class Tankside(TrainActions, TitrationActions, App):
     """Edit a dosing scenario and watch the plan follow."""
 
     CSS_PATH = "tankside.tcss"
@@ -131,6 +127,8 @@ class Tankside(TrainActions, App):
         self._generation = 0                 # which form state the latest request is for
         self._pick_compare = False
         self.steps: list[dict[str, Any]] | None = None   # a train's [[step]] tables
+        self._refused: str | None = None     # why the file given on start-up did not open
+        self._refused_form: dict | None = None   # the form as it stood then
 
     # --------------------------------------------------------- layout --
     def compose(self) -> ComposeResult:
@@ -173,9 +171,24 @@ class Tankside(TrainActions, App):
                 data = dict(load_scenario(self.path).data)
                 self._source = _read_text(self.path)
             except ScenarioError as err:
-                self.status = f"could not open: {err}"
-                data = None
+                self._refuse_start(str(err))
+                return
         self._load(data or DEFAULT_DATA)
+        self.query_one("#" + field_id("effluent.ph")).focus()
+
+    def _refuse_start(self, why: str) -> None:
+        """The file named on start-up could not be opened: say so and plan
+        nothing (no default plan under its name) until a scenario is opened
+        or the operator starts a new one by editing the fields."""
+        bad, self.path = self.path, None
+        self._refused = f"could not open {bad}: {why}"
+        form = self.query_one(ScenarioForm)
+        form.load_data(DEFAULT_DATA)
+        form.set_train(None)
+        self._refused_form = form.to_data()[0]
+        self.sub_title = f"{bad} not opened"
+        self.status = f"nothing planned: {bad} did not open (Ctrl+O opens another file)"
+        self.query_one(DosePanel).show_refusal(self._refused)
         self.query_one("#" + field_id("effluent.ph")).focus()
 
     # ---------------------------------------------------------- state --
@@ -341,6 +354,11 @@ class Tankside(TrainActions, App):
     # -------------------------------------------------------- handlers --
     @on(ScenarioForm.Edited)
     def _form_edited(self) -> None:
+        if self._refused:
+            if self.query_one(ScenarioForm).to_data()[0] == self._refused_form:
+                return                      # a widget settling, not the operator
+            self._refused = None            # the operator starts a new scenario
+            self.sub_title = "unsaved"
         self.recompute()
 
     @on(Select.Changed, "#compare")
@@ -371,6 +389,7 @@ class Tankside(TrainActions, App):
             self.status = f"not opened: {err}"
             return
         self.path = path
+        self._refused = None
         self._source = _read_text(path)
         self._load(data)
         # Keystrokes go to the form at once: its first field, as on start-up.
@@ -438,38 +457,6 @@ class Tankside(TrainActions, App):
             self.status = f"not recorded: {err}"
             return
         self.status = f"recorded as entry {entry} in {where}"
-
-
-    def action_titration(self) -> None:
-        if self.stale or self.scenario is None:
-            self.status = "fix the field marked in red before scaling a titration"
-            return
-        self.push_screen(titration_dialog(), self.load_titration)
-
-    def load_titration(self, answer: TitrationAnswer | None) -> None:
-        """Scale a bench titration with the current scenario (same code as the CLI)."""
-        if answer is None:
-            return
-        path, sample_ml, titrant_text = answer.path, answer.sample_ml, answer.titrant
-        try:
-            titrant = parse_titrant(titrant_text)
-            vols, phs, lines, notes = read_titration_csv(path)
-            curve = check_curve(sample_ml, titrant, vols, phs, lines, source=path)
-            curve = replace(curve, notes=tuple(notes) + curve.notes)
-            report = compare(curve, self.scenario)
-        except DosingError as err:
-            self.status = f"titration not loaded: {err}"
-            return
-        self.query_one("#titration-text", Static).update(
-            Text(render_titration(self.scenario, report, self.units,
-                                  width=self._sheet_width())))
-        plot = self.query_one("#titration-plot", TitrationPlot)
-        plot.display = True
-        plot.show(curve, report.plan.water, report.plan.target)
-        self.query_one(TabbedContent).active = "titration"
-        gap = report.gap
-        self.status = (f"titration {path}: model {gap:+.0%} against direct scaling"
-                       if gap is not None else f"titration {path} loaded")
 
 
 def _read_text(path: str) -> str | None:

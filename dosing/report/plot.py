@@ -14,6 +14,7 @@ matplotlib.use("Agg")
 import matplotlib.pyplot as plt  # noqa: E402
 import numpy as np  # noqa: E402
 
+from ..io.outputs import PNG_SOFTWARE  # noqa: E402
 from ..planning.plan import Plan  # noqa: E402
 from .numbers import fmt  # noqa: E402
 from .sheet import dose_axis  # noqa: E402
@@ -40,7 +41,7 @@ def _png(fig, cautions: tuple[str, ...] | list[str] = ()) -> bytes:
     footer = (len(lines) * 9.0 / 72.0 + 0.08) / fig.get_figheight()
     fig.tight_layout(rect=(0, footer, 1, 1))
     buf = io.BytesIO()
-    fig.savefig(buf, format="png")
+    fig.savefig(buf, format="png", metadata={"Software": PNG_SOFTWARE})
     plt.close(fig)
     return buf.getvalue()
 
@@ -288,16 +289,15 @@ def titration_figure_png(curve, comparison, title: str = "") -> bytes:
     PCHIP interpolation, model curve, window, dose; with a buffer spectrum
     fitted, its sites as bars over pKa below."""
     direct = comparison.direct
-    plan = comparison.plan
     # The spectrum is drawn when the plan rests on it (not when the simple fit sufficed).
     spec = comparison.spectrum if comparison.used == "spectrum" else None
-    water = plan.water
+    water = comparison.water
     if spec is not None:
         fig, (ax, ax_s) = plt.subplots(2, 1, figsize=(8.0, 9.0), dpi=110,
                                        gridspec_kw={"height_ratios": [3, 2]})
     else:
         fig, ax = plt.subplots(figsize=(8.0, 5.4), dpi=110)
-    t = plan.target
+    t = comparison.scenario.target
     ax.axhspan(t.ph_min, t.ph_max, color="tab:green", alpha=0.13,
                label=f"window pH {t.ph_min:g}-{t.ph_max:g}")
     ax.axhline(t.ph_aim, color="tab:green", ls="--", lw=1.0, label=f"aim pH {t.ph_aim:g}")
@@ -306,9 +306,10 @@ def titration_figure_png(curve, comparison, title: str = "") -> bytes:
     ax.plot(ml, ph_grid, color="0.4", lw=1.2, label="interpolation (PCHIP)")
     from ..planning.water_fit import model_curve
     v, ph_model = model_curve(curve, water)
+    kind = "buffer spectrum" if comparison.used == "spectrum" else "model"
     ax.plot(v, ph_model, color="tab:blue", lw=1.8,
-            label="fitted water (" + ("buffer spectrum" if comparison.used == "spectrum" else "model")
-            + ")")
+            label=(f"fitted water ({kind})" if comparison.plan is not None else
+                   f"fitted water ({kind}): misses the curve, no model dose"))
     ax.plot(curve.added_ml, curve.ph, "o", color="k", ms=4, label="measured")
     ax.axvline(direct.ml_at_aim, color="tab:red", ls=":", lw=1.0,
                label=f"{direct.ml_at_aim:.2f} mL to the aim")
@@ -319,7 +320,7 @@ def titration_figure_png(curve, comparison, title: str = "") -> bytes:
     ax.set_title(title or "Bench titration", fontsize=11)
     if spec is not None:
         _spectrum_panel(ax_s, spec)
-    return _png(fig, plan.cautions)
+    return _png(fig, comparison.cautions)
 
 
 def _spectrum_panel(ax, spec) -> None:

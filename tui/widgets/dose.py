@@ -58,6 +58,17 @@ class DosePanel(Static):
         self.update(text)
         self.plain_text = text.plain
 
+    def show_refusal(self, why: str) -> None:
+        """No plan: the file could not be opened, and why."""
+        self.set_class(False, "stale")
+        text = Text()
+        text.append("NOTHING PLANNED\n", style="bold reverse red")
+        text.append(why + "\n\n")
+        text.append("Ctrl+O opens another scenario file; editing the fields starts a "
+                    "new scenario from the values shown.\n")
+        self.update(text)
+        self.plain_text = text.plain
+
     def show(self, scenario: Scenario, plan: Plan, units: UnitSystem, stale: bool,
              train=None) -> None:
         # A plan kept while the form is invalid is dimmed under its banner:
