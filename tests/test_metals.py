@@ -254,3 +254,35 @@ def test_shift_log_records_solids_and_metals(tmp_path):
     assert r.returncode == 0, r.stderr
     assert "solid: Zn(OH)2" in r.stdout and "metals left: zinc" in r.stdout
     assert "final word" in r.stdout
+
+
+def _oh_and_charge(formula: str) -> tuple[int, int]:
+    """(OH count, charge) of a hydroxo complex written as in the catalogue:
+    ``MnOH+``, ``Mn(OH)3-``, ``Zn(OH)4 2-``, ``Fe(OH)3`` (neutral)."""
+    import re
+    m = re.fullmatch(r"[A-Z][a-z]?(?:OH|\(OH\)(\d))(?: ?(\d)?([+-]))?", formula)
+    assert m, formula
+    oh = int(m.group(1) or 1)
+    sign = {"+": 1, "-": -1, None: 0}[m.group(3)]
+    return oh, sign * int(m.group(2) or 1) if sign else 0
+
+
+@pytest.mark.parametrize("metal", METALS, ids=lambda m: m.id)
+def test_each_hydrolysis_constant_sits_in_the_row_of_its_species(metal):
+    # Me(z+) + j H2O = Me(OH)j(z-j) + j H+: the j-th cumulative constant
+    # belongs to the complex with j OH and charge z - j (stoichiometry). A
+    # constant of Mn(OH)3- once sat in the second row, read as log *beta2.
+    assert len(metal.species) == len(metal.log_beta)
+    for j, formula in enumerate(metal.species, start=1):
+        assert _oh_and_charge(formula) == (j, metal.charge - j), formula
+    # Each further OH is harder to add than the last on average: the
+    # cumulative constants fall (every compilation agrees on the sign).
+    assert all(b < a for a, b in zip((0.0,) + metal.log_beta, metal.log_beta))
+
+
+def test_manganese_has_its_neutral_hydroxo_complex():
+    # Baes & Mesmer (1976), Mn(II) hydrolysis: log *beta2 of Mn(OH)2° about
+    # -22.2 and log *beta3 of Mn(OH)3- about -34.8 (both from memory).
+    mn = get_metal("manganese")
+    assert mn.species[1] == "Mn(OH)2" and mn.log_beta[1] == pytest.approx(-22.2, abs=0.3)
+    assert mn.species[2] == "Mn(OH)3-" and mn.log_beta[2] == pytest.approx(-34.8, abs=0.3)

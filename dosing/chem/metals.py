@@ -107,6 +107,10 @@ class Metal:
         Enthalpy of the *Ks0 reaction [kJ/mol]; None where not at hand.
     source : str
         Where the numbers come from.
+    species : tuple of str
+        The hydroxo complex each ``log_beta`` entry describes, in order
+        (``"MnOH+", "Mn(OH)2", "Mn(OH)3-"``): the j-th holds j OH and charge
+        z - j, which the tests check, so a constant cannot sit in the wrong row.
     """
 
     id: str
@@ -120,6 +124,7 @@ class Metal:
     log_ks0: float
     enthalpy_ks0_kj_mol: float | None
     source: str
+    species: tuple[str, ...] = ()
 
     @property
     def molar_mass_g_mol(self) -> float:
@@ -159,18 +164,21 @@ METALS: tuple[Metal, ...] = (
           "Fe(OH)3", "ferrihydrite (fresh amorphous Fe(OH)3): what a tank "
           "precipitates; goethite is orders of magnitude less soluble", 4.891, None,
           "[N90] hydrolysis and ferrihydrite log *Ks0 4.891 (from memory); "
-          "[SM96] gives 3.0-4.9 for amorphous Fe(OH)3."),
+          "[SM96] gives 3.0-4.9 for amorphous Fe(OH)3.",
+          species=("FeOH2+", "Fe(OH)2+", "Fe(OH)3", "Fe(OH)4-")),
     Metal("iron_ii", "iron(II), ferrous", "Fe", 2,
           (-9.5, -20.57, -31.0), _k(13.2, 28.57, 30.3),
           "Fe(OH)2", "fresh Fe(OH)2 (white rust), log *Ks0 12.85; published "
           "range 12.85-13.5", 12.85, None,
           "[BM76] hydrolysis (from memory); enthalpies [N90] (from memory); "
-          "Fe(OH)2 log *Ks0 12.85 [BM76] (from memory)."),
+          "Fe(OH)2 log *Ks0 12.85 [BM76] (from memory).",
+          species=("FeOH+", "Fe(OH)2", "Fe(OH)3-")),
     Metal("aluminium", "aluminium", "Al", 3,
           (-5.00, -10.1, -16.9, -22.7), _k(11.49, 26.90, 39.89, 42.30),
           "Al(OH)3", "amorphous Al(OH)3, log *Ks0 10.8 (gibbsite 8.11 forms "
           "only on ageing)", 10.8, -26.5 * KCAL,
-          "[N90] hydrolysis, enthalpies and amorphous Al(OH)3 (from memory)."),
+          "[N90] hydrolysis, enthalpies and amorphous Al(OH)3 (from memory).",
+          species=("AlOH2+", "Al(OH)2+", "Al(OH)3", "Al(OH)4-")),
     Metal("zinc", "zinc", "Zn", 2,
           (-8.96, -17.82, -28.05, -40.41), None,
           "Zn(OH)2", "amorphous Zn(OH)2, log *Ks0 12.45 (epsilon-Zn(OH)2 11.4 "
@@ -178,47 +186,56 @@ METALS: tuple[Metal, ...] = (
           "hydrolysis [P13] (from memory; [BM76] gives -16.9 for Zn(OH)2°, "
           "which would hold about 2 mg/L in solution at the minimum, more than "
           "plants see); amorphous Zn(OH)2 [BM76] (from memory). Amphoteric: "
-          "zincate above about pH 10."),
+          "zincate above about pH 10.",
+          species=("ZnOH+", "Zn(OH)2", "Zn(OH)3-", "Zn(OH)4 2-")),
     Metal("copper", "copper(II)", "Cu", 2,
           (-7.95, -16.23, -26.60, -39.74), None,
           "Cu(OH)2", "Cu(OH)2, log *Ks0 8.64 (tenorite CuO 7.65 after ageing)",
           8.64, None,
           "hydrolysis [P07] (from memory; [BM76] gives -13.68 for Cu(OH)2°); "
           "Cu(OH)2 [BM76] (from memory). The neutral complex is poorly known "
-          "and sets the minimum; polynuclear Cu2(OH)2 2+ is not modelled."),
+          "and sets the minimum; polynuclear Cu2(OH)2 2+ is not modelled.",
+          species=("CuOH+", "Cu(OH)2", "Cu(OH)3-", "Cu(OH)4 2-")),
     Metal("nickel", "nickel", "Ni", 2,
           (-9.86, -19.0, -30.0), None,
           "Ni(OH)2", "fresh Ni(OH)2, log *Ks0 12.8 (aged 10.8)", 12.8, None,
-          "[BM76] hydrolysis and fresh Ni(OH)2 (from memory)."),
+          "[BM76] hydrolysis and fresh Ni(OH)2 (from memory).",
+          species=("NiOH+", "Ni(OH)2", "Ni(OH)3-")),
     Metal("cadmium", "cadmium", "Cd", 2,
           (-10.08, -20.35, -33.3, -47.35), None,
           "Cd(OH)2", "Cd(OH)2, log *Ks0 13.65", 13.65, None,
-          "[BM76] hydrolysis and Cd(OH)2 (from memory)."),
+          "[BM76] hydrolysis and Cd(OH)2 (from memory).",
+          species=("CdOH+", "Cd(OH)2", "Cd(OH)3-", "Cd(OH)4 2-")),
     Metal("lead", "lead", "Pb", 2,
           (-7.71, -17.12, -28.06), None,
           "Pb(OH)2", "Pb(OH)2, log *Ks0 8.15", 8.15, None,
-          "[BM76] hydrolysis and Pb(OH)2 (from memory); amphoteric."),
+          "[BM76] hydrolysis and Pb(OH)2 (from memory); amphoteric.",
+          species=("PbOH+", "Pb(OH)2", "Pb(OH)3-")),
     Metal("chromium_iii", "chromium(III)", "Cr", 3,
           (-3.57, -9.84, -16.19, -27.65), None,
           "Cr(OH)3", "amorphous Cr(OH)3, log *Ks0 9.76", 9.76, None,
           "[R87] hydrolysis and amorphous Cr(OH)3 (from memory); amphoteric. "
-          "Chromium(VI) is not a metal cation: reduce it to Cr(III) first."),
+          "Chromium(VI) is not a metal cation: reduce it to Cr(III) first.",
+          species=("CrOH2+", "Cr(OH)2+", "Cr(OH)3", "Cr(OH)4-")),
     Metal("manganese", "manganese(II)", "Mn", 2,
-          (-10.59, -34.8), None,
+          (-10.59, -22.2, -34.8), None,
           "Mn(OH)2", "pyrochroite Mn(OH)2, log *Ks0 15.2", 15.2, None,
-          "[N90] MnOH+ and pyrochroite (from memory); Mn(OH)3- [BM76] (from "
-          "memory); enthalpies not at hand for the series, so not moved with "
-          "temperature. Needs pH above 10 or oxidation."),
+          "[N90] MnOH+ and pyrochroite (from memory); Mn(OH)2° and Mn(OH)3- "
+          "[BM76] (from memory); enthalpies not at hand for the series, so not "
+          "moved with temperature. Needs pH above 10 or oxidation.",
+          species=("MnOH+", "Mn(OH)2", "Mn(OH)3-")),
     Metal("magnesium", "magnesium", "Mg", 2,
           (-11.44,), _k(15.952),
           "Mg(OH)2", "brucite Mg(OH)2, log *Ks0 16.84", 16.84, -25.84 * KCAL,
-          "[N90] MgOH+ and brucite with enthalpies (from memory)."),
+          "[N90] MgOH+ and brucite with enthalpies (from memory).",
+          species=("MgOH+",)),
     Metal("calcium", "calcium", "Ca", 2,
           (-12.78,), _k(14.535),
           "Ca(OH)2", "portlandite Ca(OH)2, log *Ks0 22.8: sets the pH that "
           "saturated lime reaches (about 12.45 at 25 °C, lower when warm)",
           22.8, -30.69 * KCAL,
-          "[N90] CaOH+ and portlandite with enthalpies (from memory)."),
+          "[N90] CaOH+ and portlandite with enthalpies (from memory).",
+          species=("CaOH+",)),
 )
 
 #: Metal ids in catalogue order (the order of their engine columns).
