@@ -286,3 +286,28 @@ def test_manganese_has_its_neutral_hydroxo_complex():
     mn = get_metal("manganese")
     assert mn.species[1] == "Mn(OH)2" and mn.log_beta[1] == pytest.approx(-22.2, abs=0.3)
     assert mn.species[2] == "Mn(OH)3-" and mn.log_beta[2] == pytest.approx(-34.8, abs=0.3)
+
+
+def test_ideal_activity_is_warned_where_it_decides_the_solids(tmp_path):
+    # At I = 0.06 mol/L the Davies equation (Davies 1962) puts log gamma of a
+    # divalent ion near -0.35, so Ca2+ and SO4 2- activities are each about
+    # 45 % of their concentrations: gypsum saturation moves by a factor of
+    # about five and the gypsum formed with it. Ideal activity must say so.
+    from pathlib import Path
+    root = Path(__file__).resolve().parents[1] / "scenarios"
+    text = (root / "lime-acid-batch.toml").read_text()
+    ideal = tmp_path / "ideal.toml"
+    ideal.write_text(text.replace('activity = "davies"', 'activity = "ideal"'))
+    r = run_cli("plan", str(ideal), "--json")
+    assert r.returncode == 0, r.stderr
+    import json
+    warned = [w for w in json.loads(r.stdout)["warnings"] if "ideal activity decides" in w]
+    assert len(warned) == 1 and "CaSO4" in warned[0]
+    r = run_cli("plan", str(root / "lime-acid-batch.toml"), "--json")
+    assert not [w for w in json.loads(r.stdout)["warnings"] if "ideal activity" in w]
+    dilute = tmp_path / "dilute.toml"
+    dilute.write_text((root / "acid-rinse-caustic.toml").read_text().replace(
+        'activity = "davies"', 'activity = "ideal"'))
+    r = run_cli("plan", str(dilute), "--json")
+    assert r.returncode == 0, r.stderr
+    assert not [w for w in json.loads(r.stdout)["warnings"] if "ideal activity" in w]

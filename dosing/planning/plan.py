@@ -39,6 +39,7 @@ from ..chem.metals import METAL_IDS
 from .ligand_findings import speciation_findings
 from .reagents import GENERAL_CAUTION, Reagent
 from .solids import (METAL_PERMIT_KEYS, CapWindow, DissolvedCurves, Solid, cap_window,
+                     ideal_activity_finding,
                      dissolved_vs_ph, metals_after_mg_l, solids_after)
 from ..chem.water import henry_co2
 
@@ -306,7 +307,9 @@ def _plan_once(water: Water, reagent: Reagent, target: Target, basis: Batch | Fl
                 cap_window=window, dissolved=curves, ph_ceiling=ceiling,
                 air=_air_exchange(water, reagent, target.ph_aim, dose),
                 calcite=_calcite_case(water, reagent, dose, end_state, si_without_calcite))
-    notes = edges.notes + speciation_findings(end_state, metals_after, caps)
+    ideal = ideal_activity_finding(dosed, ph_end, solids, water.temperature_c)
+    notes = edges.notes + speciation_findings(end_state, metals_after, caps) + (
+        (ideal,) if ideal is not None else ())
     return replace(plan, warnings=plan_warnings(plan, notes))
 
 

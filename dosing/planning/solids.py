@@ -29,14 +29,15 @@ from typing import Mapping
 
 import numpy as np
 
-from ..chem.activity import ActivityModel
+from ..chem.activity import DAVIES, ActivityModel
 from ..chem import METAL_COLUMNS, Mixture, Speciation, speciate, system_index
 from .hazards import gypsum_si
+from .findings import Finding, Q, note
 from ..chem.metals import HARDNESS, METALS, METAL_IDS
 from ..chem.phases import PHASES
 from ..chem.species import MOLAR_MASS
 
-__all__ = ["Solid", "Sludge", "CapWindow", "METAL_PERMIT_KEYS", "CAKE_SOLIDS_FRACTION",
+__all__ = ["Solid", "Sludge", "ideal_activity_finding", "CapWindow", "METAL_PERMIT_KEYS", "CAKE_SOLIDS_FRACTION",
            "CAKE_DENSITY_KG_L", "solids_after", "metals_after_mg_l", "metals_present_mol_l",
            "sludge_of", "DissolvedCurves", "dissolved_vs_ph", "cap_window"]
 
@@ -222,3 +223,38 @@ def _runs(mask: np.ndarray) -> list[tuple[int, int]]:
     starts = np.flatnonzero(edges == 1)
     ends = np.flatnonzero(edges == -1) - 1
     return list(zip(starts.tolist(), ends.tolist()))
+
+
+#: A solid whose amount moves by more than this share between ideal and
+#: Davies activity is one the activity model decides [-].
+_SOLID_MODEL_SHARE = 0.25
+
+
+def ideal_activity_finding(dosed: Mixture, ph: float, solids: tuple[Solid, ...],
+                           temperature_c: float) -> Finding | None:
+    """With ideal activity, a warning where Davies activity at the same pH
+    would form other solids (or amounts far apart): at that ionic strength
+    the activity model decides what precipitates. None otherwise."""
+    if not dosed.activity.ideal:
+        return None
+    real = speciate(replace(dosed, activity=DAVIES), np.array([ph]))
+    other = {x.id: x for x in solids_after(real, temperature_c, DAVIES)}
+    mine = {x.id: x for x in solids}
+    diff = {sid: (mine[sid].mg_per_l if sid in mine else 0.0,
+                  other[sid].mg_per_l if sid in other else 0.0)
+            for sid in set(mine) | set(other)}
+    moved = {sid: ab for sid, ab in diff.items()
+             if abs(ab[0] - ab[1]) > _SOLID_MODEL_SHARE * max(ab) and max(ab) > 1.0}
+    if not moved:
+        return None
+    sid = max(moved, key=lambda k: abs(moved[k][0] - moved[k][1]))
+    a, b = moved[sid]
+    formula = (mine.get(sid) or other[sid]).formula
+    return note("ideal-changes-solids", "ideal activity decides the solids here: at an "
+                "ionic strength of {ionic} the Davies equation gives {solid} {davies_mg_l} "
+                "against {ideal_mg_l} with ideal activity, at the same pH. Plan with "
+                "[model] activity = \"auto\" (the default) unless a measurement says "
+                "otherwise", "warning", {"solid": formula},
+                ionic=Q(float(real.ionic_strength[0]), "mol/L"), davies_mg_l=Q(b, "mg/L"),
+                ideal_mg_l=Q(a, "mg/L"))
+
