@@ -333,6 +333,7 @@ class Staging:
     trim: tuple[TrimRow, ...]
     ph_first_range: tuple[float, float]   #: 5th to 95th percentile after the first dose
     p_inside: float = math.nan       #: plausible waters the table lands in the window [-]
+    reading_sd: float = 0.0          #: pH reading error the landing rate includes [pH]
 
 
 def staged_dose(plan, unc: DoseUncertainty, spread: Spread = Spread(),
@@ -368,7 +369,7 @@ def staged_dose(plan, unc: DoseUncertainty, spread: Spread = Spread(),
                  if math.isfinite(e) or (p >= plan.target.ph_aim if raising
                                          else p <= plan.target.ph_aim))
     p5, p95 = np.percentile(ph1, [5, 95])
-    staging = Staging(conf, first, trim, (float(p5), float(p95)))
+    staging = Staging(conf, first, trim, (float(p5), float(p95)), reading_sd=spread.ph)
     final = follow_table(plan, staging, s.mix.take(idx), s.strength[idx] / s.amount[idx],
                          ph_first=ph1)
     t = plan.target
@@ -381,9 +382,11 @@ def follow_table(plan, staging: Staging, waters: Mixture, delivered: np.ndarray,
 
     ``delivered`` is product reaching the water per product metered (true
     strength over nominal, stated volume over true). The operator reads the
-    pH after the first dose and adds the extra the table gives for it
-    (interpolated between rows; nothing at or past the aim). ``ph_first``:
-    the readings after the first dose, when already solved.
+    pH after the first dose, with the meter's error (``staging.reading_sd``,
+    normal, a fixed seed so the figure is repeatable), and adds the extra
+    the table gives for the reading (interpolated between rows; nothing at
+    or past the aim). ``ph_first``: the true pH after the first dose, when
+    already solved.
     """
     r = plan.reagent.vector()
     aim = plan.target.ph_aim
@@ -397,12 +400,18 @@ def follow_table(plan, staging: Staging, waters: Mixture, delivered: np.ndarray,
     x = np.array([row.ph_read for row in rows])
     y = np.array([row.extra_mol_l for row in rows])
     order = np.argsort(x)
-    extra = np.interp(ph1, x[order], y[order])
-    past = (ph1 >= aim) if plan.reagent.raises_ph else (ph1 <= aim)
+    read = ph1 + staging.reading_sd * np.random.default_rng(READING_SEED).standard_normal(
+        ph1.size)
+    extra = np.interp(read, x[order], y[order])
+    past = (read >= aim) if plan.reagent.raises_ph else (read <= aim)
     extra = np.where(past, 0.0, extra)
     total = first + extra * delivered        # both per litre of the water before dosing
     return solve_ph(add_dose(waters, r, total), ph_guess=np.full(waters.n, aim),
                     tol_ph=SAMPLE_TOL_PH)
+
+
+#: Seed of the pH-reading errors of the simulated trim (repeatable figures).
+READING_SEED = 20261205
 
 
 def _grid(lo: float, hi: float, rows: int) -> np.ndarray:

@@ -137,7 +137,8 @@ def _staging_lines(plan: dict) -> list[str]:
     first = st["first"]
     out = [f"  staged: first dose {_n(first.get('kg_product'))} kg, then by the pH read "
            f"(lands in the window in {st['p_inside_window_after_trim']:.0%} of plausible "
-           "waters):"]
+           "waters" + (f", pH read to ±{st['reading_sd_ph']:g}" if st.get("reading_sd_ph")
+                       else "") + "):"]
     rows = [f"pH {r['ph_read']:.1f} +{_n(r.get('extra_kg_product'))} kg"
             for r in st["trim"] if not r["at_or_past_aim"]]
     out.append("    " + "; ".join(rows))

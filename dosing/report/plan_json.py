@@ -203,6 +203,7 @@ def _staging_dict(v: PlanView) -> dict[str, Any] | None:
     if st is None:
         return None
     return {"confidence": st.confidence, "p_inside_window_after_trim": st.p_inside,
+            "reading_sd_ph": st.reading_sd,
             "first": _amount_dict(v, v.first),
             "ph_after_first_p05_p95": list(st.ph_first_range),
             "trim": [{"ph_read": r.ph_read, "at_or_past_aim": a is None,

@@ -358,8 +358,9 @@ def staging_lines(v: PlanView, units: str = "metric") -> list[str]:
            f"{st.confidence:.0%} of them. Mix well, then read the pH (expected "
            f"{st.ph_first_range[0]:.1f} to {st.ph_first_range[1]:.1f}).",
            "2. Add what the table gives for the pH read (between two rows, in "
-           f"proportion), mix, read again. Followed, it lands in the window in "
-           f"{st.p_inside:.0%} of the plausible waters:",
+           f"proportion), mix, read again. Followed, with the pH read to "
+           f"±{st.reading_sd:g}, it lands in the window in {st.p_inside:.0%} of the "
+           "plausible waters:",
            f"   {'pH read':<11} add"]
     up = plan.reagent.raises_ph
     edge = (f"above {plan.target.ph_max:g}" if up else f"below {plan.target.ph_min:g}")
