@@ -73,7 +73,9 @@ def _plan_one(scenario, args):
         from .report.plot import plan_figure_png, train_figure_png
         title = figure_title(scenario, _now())
         png = (train_figure_png(train, title, args.units) if train is not None else
-               plan_figure_png(plan, title, args.units, engineer=args.figure == "engineer"))
+               plan_figure_png(plan, title, args.units, engineer=args.figure == "engineer",
+                               window="permit window" if scenario.permit else
+                               "target window"))
     return text, data, png
 
 

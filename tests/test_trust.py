@@ -318,3 +318,21 @@ def test_issue_11_accepted_scenarios_stay_within_physical_bounds(
     assert 0.0 <= plan.ph_end <= 14.0
     heat = [c for c in plan.checks if "temperature_after_c" in c.values]
     assert heat and heat[0].values["temperature_after_c"] < 100.0
+
+
+def test_a_figure_of_a_plan_that_breaks_the_permit_carries_the_breach(tmp_path):
+    # Issue 29: the figure of a plan that breaks a cap must say so, as the
+    # sheet does; a plan within the permit gets no banner.
+    from dosing.io.scenario import load_scenario
+    from dosing.planning.job import make_plan
+    from pathlib import Path
+    from dosing.report.plot import _breach_banner
+    root = Path(__file__).resolve().parents[1] / "scenarios"
+    text = (root / "lime-acid-batch.toml").read_text() + "\n[permit]\ncalcium_mg_l = 300\n"
+    path = tmp_path / "breach.toml"
+    path.write_text(text)
+    plan = make_plan(load_scenario(str(path)), sampled=False)
+    banner = _breach_banner(plan, "metric")
+    assert banner.startswith("PERMIT BREACH: permit cap calcium 300 mg/L")
+    assert _breach_banner(make_plan(load_scenario(str(root / "lime-acid-batch.toml")),
+                                    sampled=False), "metric") == ""

@@ -30,16 +30,25 @@ __all__ = ["plan_figure", "plan_figure_png", "replay_figure_png", "titration_fig
 FOOTER = f"Model estimate. {GENERAL_CAUTION}"
 
 
-def _png(fig, cautions: tuple[str, ...] | list[str] = ()) -> bytes:
-    """Add the reagent's cautions and the final-word footer, lay out, render to
-    PNG bytes and close. Every figure that shows a dose carries them."""
+def _png(fig, cautions: tuple[str, ...] | list[str] = (), banner: str = "") -> bytes:
+    """Add the reagent's cautions and the final-word footer (and a red
+    ``banner`` across the top: a permit breach), lay out, render to PNG bytes
+    and close. Every figure that shows a dose carries them."""
     import textwrap
     lines = [ln for c in cautions if c != FOOTER and "final word" not in c
              for ln in textwrap.wrap("Caution: " + c, 150)] + [FOOTER]
     fig.text(0.01, 0.005, "\n".join(lines), fontsize=6.5, color="0.3", va="bottom")
     # Room for the footer whatever the figure's height: about 9 pt a line.
-    footer = (len(lines) * 9.0 / 72.0 + 0.08) / fig.get_figheight()
-    fig.tight_layout(rect=(0, footer, 1, 1))
+    height = fig.get_figheight()
+    footer = (len(lines) * 9.0 / 72.0 + 0.08) / height
+    top = 1.0
+    if banner:
+        head = textwrap.wrap(banner, 95)
+        fig.text(0.5, 1.0 - 0.06 / height, "\n".join(head), ha="center", va="top",
+                 fontsize=9, fontweight="bold", color="white",
+                 bbox={"facecolor": "tab:red", "edgecolor": "none", "pad": 4})
+        top = 1.0 - (len(head) * 12.5 / 72.0 + 0.2) / height
+    fig.tight_layout(rect=(0, footer, 1, top))
     buf = io.BytesIO()
     fig.savefig(buf, format="png", metadata={"Software": PNG_SOFTWARE})
     plt.close(fig)
@@ -47,13 +56,25 @@ def _png(fig, cautions: tuple[str, ...] | list[str] = ()) -> bytes:
 
 
 def plan_figure_png(plan: Plan, title: str = "", units: str = "metric", *,
-                    engineer: bool = False) -> bytes:
-    """PNG bytes of :func:`plan_figure`, with the cautions under it."""
-    return _png(plan_figure(plan, title, units, engineer=engineer), plan.cautions)
+                    engineer: bool = False, window: str = "target window") -> bytes:
+    """PNG bytes of :func:`plan_figure`, with the cautions under it and a
+    banner across the top when the plan breaks the permit."""
+    return _png(plan_figure(plan, title, units, engineer=engineer, window=window),
+                plan.cautions, _breach_banner(plan, units))
+
+
+def _breach_banner(plan: Plan, units: str) -> str:
+    """The first permit breach of a plan, in words ("" when none)."""
+    from ..planning.plan_findings import permit_breaches
+    found = permit_breaches(plan)
+    if not found:
+        return ""
+    more = f" (and {len(found) - 1} more: see the sheet)" if len(found) > 1 else ""
+    return "PERMIT BREACH: " + words(found[0], units) + more
 
 
 def plan_figure(plan: Plan, title: str = "", units: str = "metric", *,
-                engineer: bool = False):
+                engineer: bool = False, window: str = "target window"):
     """The figure of pH against dose of product, with the window and the plan.
 
     The x axis is product per batch (or per hour for a flow) in the unit
@@ -70,13 +91,13 @@ def plan_figure(plan: Plan, title: str = "", units: str = "metric", *,
     fig, axes = plt.subplots(panels, 1, figsize=(8.0, 5.6 + 4.4 * (panels - 1)), dpi=110,
                              squeeze=False)
     extra = list(axes[1:, 0])
-    _curve_panel(axes[0, 0], plan, scale, unit, xlabel, engineer)
+    _curve_panel(axes[0, 0], plan, scale, unit, xlabel, engineer, window)
     _litres_axis(axes[0, 0], plan, u, per)
     axes[0, 0].set_title(title or "Titration curve", fontsize=11, pad=24 if
                          plan.reagent.form == "liquid" else 6)
     if metals:
         _metals_panel(extra.pop(0), plan, {k: v for k, v in metals.items()
-                                           if k not in HARDNESS} or metals)
+                                           if k not in HARDNESS} or metals, label=window)
     if plan.uncertainty is not None:
         _uncertainty_panel(extra.pop(0), plan, scale, unit, per)
     return fig
@@ -172,7 +193,13 @@ def _uncertainty_panel(ax, plan: Plan, scale: float, unit: str, per: str) -> Non
     need = unc.needed_mol_l * scale
     ax.hist(need, bins=40, color="tab:blue", alpha=0.55,
             label=f"dose needed, {unc.valid:,} plausible waters")
+    st = plan.staging
+    # A staged first dose at the 95 % confidence is the 5th percentile
+    # itself: one line, named as both, so neither hides the other.
+    at_p05 = st is not None and abs(st.first_mol_l - unc.p05_mol_l) <= 0.005 * unc.p05_mol_l
     for q, mol in (("5th", unc.p05_mol_l), ("95th", unc.p95_mol_l)):
+        if q == "5th" and at_p05:
+            continue
         ax.axvline(mol * scale, color="0.3", ls="--", lw=1.0,
                    label=f"{q} percentile {fmt(mol * scale)} {unit}")
     d = plan.dose_mol_l * scale
@@ -183,7 +210,8 @@ def _uncertainty_panel(ax, plan: Plan, scale: float, unit: str, per: str) -> Non
         f = plan.staging.first_mol_l * scale
         ax.axvline(f, color="tab:orange", lw=1.6,
                    label=f"staged first dose {fmt(f)} {unit} "
-                         f"({plan.staging.confidence:.0%} short of the aim)")
+                         f"({plan.staging.confidence:.0%} short of the aim"
+                         + (", the 5th percentile)" if at_p05 else ")"))
     ax.set_xlabel(f"{plan.reagent.name}, {unit.removesuffix('/h')} {per}")
     ax.set_ylabel("plausible waters")
     ax.grid(True, alpha=0.3)
@@ -194,7 +222,8 @@ def _uncertainty_panel(ax, plan: Plan, scale: float, unit: str, per: str) -> Non
                  fontsize=9)
 
 
-def _metals_panel(ax3, plan: Plan, metals, caps=None, window=None) -> None:
+def _metals_panel(ax3, plan: Plan, metals, caps=None, window=None,
+                  label: str = "permit window") -> None:
     """Dissolved metal against pH (log scale), with caps, window and aim
     (the plan's own curves, pH 4 to 13); ``caps`` and ``window`` default to
     the plan's own."""
@@ -202,7 +231,7 @@ def _metals_panel(ax3, plan: Plan, metals, caps=None, window=None) -> None:
     grid = plan.dissolved.ph[keep]
     curves = {mid: mg[keep] for mid, mg in plan.dissolved.mg_l.items() if mid in metals}
     lo, hi = window or (plan.target.ph_min, plan.target.ph_max)
-    ax3.axvspan(lo, hi, color="tab:green", alpha=0.13, label="permit pH window")
+    ax3.axvspan(lo, hi, color="tab:green", alpha=0.13, label=f"{label} pH")
     if caps is None:
         caps = {} if plan.cap_window is None else plan.cap_window.caps_mg_l
     for i, (mid, mg) in enumerate(curves.items()):

@@ -18,7 +18,7 @@ from ..planning.plan import Plan
 from ..planning.plan_findings import METERING_ERROR
 from .numbers import fmt
 from .text import hanging, table, wrap
-from .units import KG_PER_LB, L_PER_US_GAL, UNIT_SYSTEMS, product_text
+from .units import KG_PER_LB, L_PER_US_GAL, UNIT_SYSTEMS, product_text, volume_text
 from .view import PlanView, plan_view
 from .words import bias_words, shown, texts, words
 
@@ -49,11 +49,7 @@ def metal_lines(v: PlanView, units: str = "metric") -> list[tuple[str, str]]:
         rows.append(("solid formed", f"{x.formula} {fmt(x.mg_per_l)} mg/L = "
                      f"{fmt(kg * u.mass_per_kg)} {u.mass} {per}"))
     if plan.solids:
-        sl = v.sludge
-        rows.append(("sludge", f"{fmt(sl.dry_kg * u.mass_per_kg)} {u.mass} dry {per}; as "
-                     f"wet cake at {sl.solids_fraction:.0%} solids about "
-                     f"{fmt(sl.cake_kg * u.mass_per_kg)} {u.mass} = "
-                     f"{fmt(sl.cake_m3 * u.water_volume_per_m3)} {u.water_volume}"))
+        rows.append(("sludge", sludge_text(v.sludge, units, per)))
     metals = {k: x for k, x in plan.metals_after_mg_l.items() if k not in HARDNESS}
     if metals:
         rows.append(("metals left", ", ".join(
@@ -384,6 +380,14 @@ def staging_lines(v: PlanView, units: str = "metric") -> list[str]:
 #: at the aim and no linear slope is printed (common practice: a dose
 #: metered to 1 % should not swing the pH by a whole unit).
 STEEP_PH_PER_PERCENT = 1.0
+
+
+def sludge_text(sl, units: str, per: str) -> str:
+    """Dry sludge and the wet cake it makes, for a plan or a train."""
+    u = UNIT_SYSTEMS[units]
+    return (f"{fmt(sl.dry_kg * u.mass_per_kg)} {u.mass} dry {per}; as wet cake at "
+            f"{sl.solids_fraction:.0%} solids about {fmt(sl.cake_kg * u.mass_per_kg)} "
+            f"{u.mass} = {volume_text(sl.cake_m3, units)}")
 
 
 def slope_text(plan: Plan, u, flow: bool) -> str:

@@ -13,7 +13,7 @@ from ..chem.metals import HARDNESS, label as metal_label
 from ..planning.job import Scenario
 from ..planning.train_plan import TrainPlan
 from .numbers import fmt
-from .sheet import slope_text
+from .sheet import slope_text, sludge_text
 from .text import table, wrap
 from .train_view import STEP_WORDS, StepView, TrainView, train_view
 from .units import UNIT_SYSTEMS, product_text
@@ -136,7 +136,7 @@ def render_train_view(v: TrainView, units: str = "metric", width: int = 78) -> s
 
 def _totals(out: list[str], v: TrainView, units: str, width: int) -> None:
     """The products over the whole train, their cost, and the sludge."""
-    u, per = UNIT_SYSTEMS[units], v.train.basis.per
+    per = v.train.basis.per
     rows = [(p.reagent.name, f"{_amount(v, p.amounts, units)}"
              + ("" if v.flow else f" {per}") + " (step "
              + ", ".join(str(i) for i in p.steps) + ")"
@@ -144,10 +144,7 @@ def _totals(out: list[str], v: TrainView, units: str, width: int) -> None:
             for p in v.products]
     sl = v.train.sludge
     if sl is not None:
-        rows.append(("sludge", f"{fmt(sl.dry_kg * u.mass_per_kg)} {u.mass} dry {per}; as wet "
-                     f"cake at {sl.solids_fraction:.0%} solids about "
-                     f"{fmt(sl.cake_kg * u.mass_per_kg)} {u.mass} = "
-                     f"{fmt(sl.cake_m3 * u.water_volume_per_m3)} {u.water_volume}"))
+        rows.append(("sludge", sludge_text(sl, units, per)))
     if v.cost is not None:
         rows.append(("cost", f"{fmt(v.cost)} {per}, every product"))
     if rows:

@@ -59,3 +59,17 @@ def product_text(kg: float | None, litres: float | None, units: str = "metric",
     if litres is not None:
         parts.append(f"{fmt(litres * u.product_volume_per_l, digits)} {u.product_volume}{h}")
     return " = ".join(parts) if parts else "n/a"
+
+
+def volume_text(m3: float, units: str = "metric") -> str:
+    """A volume of water or sludge: litres below one cubic metre (a cake of
+    0.00686 m³ reads as 6.86 L), else m³; gallons in US units.
+
+    >>> volume_text(0.00686), volume_text(12.5), volume_text(1.0, "us")
+    ('6.86 L', '12.5 m³', '264 gal')
+    """
+    u = UNIT_SYSTEMS[units]
+    if u.name == "metric" and m3 < 1.0:
+        return f"{fmt(m3 * 1000.0)} L"
+    return f"{fmt(m3 * u.water_volume_per_m3)} {u.water_volume}"
+
