@@ -60,6 +60,9 @@ def test_storage_for_less_than_one_batch_is_flagged(tmp_path):
     scen = _variant(tmp_path, CIP, "storage_m3 = 0.5", "storage_m3 = 0.005")
     text = run_cli("plan", scen).stdout
     assert "LESS THAN ONE BATCH" in text
+    # Issue 29: every flag the sheet raises is in the JSON warnings too.
+    d = json.loads(run_cli("plan", scen, "--json").stdout)
+    assert any("LESS THAN ONE BATCH" in w for w in d["warnings"])
 
 
 def test_replay_of_a_batch_scenario_says_it_needs_a_flow(tmp_path):

@@ -65,7 +65,7 @@ def plan_dict(v: PlanView) -> dict[str, Any]:
         **metals_dict(v),
         "checks": [{"id": c.id, "level": c.level, "message": words(c),
                     "values": c.values} for c in plan.checks],
-        "warnings": texts(plan.warnings),
+        "warnings": texts(v.warnings),
         "cautions": list(plan.cautions),
     }
 

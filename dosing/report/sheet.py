@@ -102,8 +102,7 @@ def dose_lines(v: PlanView, units: str = "metric") -> list[tuple[str, str]]:
     if supply.batches is not None:
         n = supply.batches
         rows.append(("storage lasts", f"{fmt(n)} batches" + (
-            " - !! LESS THAN ONE BATCH: the store cannot hold this dose; order more "
-            "before starting" if n < 1 else "")))
+            " - LESS THAN ONE BATCH (see the warnings)" if n < 1 else "")))
     lo, hi = v.band
     # A narrow band gets the digits it needs for its two ends to differ.
     digits = 3
@@ -141,7 +140,7 @@ def caution_lines(v: PlanView, units: str = "metric") -> list[str]:
     """Warnings, dangers and cautions, as every front end lists them."""
     checks = check_lines(v, units)
     return ([f"!! {m}" for k, m in checks if k == "!!"]
-            + [f"! {w}" for w in texts(v.plan.warnings, units)]
+            + [f"! {w}" for w in texts(v.warnings, units)]
             + [f"! {m}" for k, m in checks if k == "! "]
             + [f"- {c}" for c in v.plan.cautions])
 
@@ -272,10 +271,10 @@ def render_view(v: PlanView, units: str = "metric", width: int = 78) -> str:
     out.append("CHECKS")
     for mark, msg in check_lines(v, units):
         out.extend(wrap(msg, width, f" {mark} "))
-    if plan.warnings:
+    if v.warnings:
         out.append("")
         out.append("WARNINGS")
-        for msg in texts(plan.warnings, units):
+        for msg in texts(v.warnings, units):
             out.extend(wrap(msg, width, "  ! "))
     out.append("")
     out.append("CAUTIONS")
@@ -368,11 +367,6 @@ def staging_lines(v: PlanView, units: str = "metric") -> list[str]:
         out.append(f"   {row.ph_read:>5.1f}       {prod(extra)}")
     out.append("The table is for the first reading only: if the pH is still short of the "
                "window after the trim, add small amounts and read after each.")
-    if st.p_inside < st.confidence:
-        out.append(f"!! Even staged, this lands in the window in only {st.p_inside:.0%} of "
-                   "the plausible waters: the window is narrower than this product can be "
-                   "metered to. Finish with a dilute reagent in small steps, or widen the "
-                   "aim with the engineer.")
     return out
 
 

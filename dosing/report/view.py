@@ -16,7 +16,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 from ..planning.basis import Amounts, Flow
-from ..planning.findings import Finding
+from ..planning.findings import Finding, Q, note
 from ..planning.job import Scenario
 from ..planning.plan import Plan
 from ..planning.plan_findings import permit_breaches
@@ -58,6 +58,13 @@ class PlanView:
     rate_l_h: tuple[float, float] | None       #: [L/h]
     checks: tuple[Finding, ...]           #: dangers first, then warnings, then the rest
     breaches: tuple[Finding, ...]         #: permit checks broken
+    flags: tuple[Finding, ...] = ()       #: what the view itself flags (storage, staging)
+
+    @property
+    def warnings(self) -> tuple[Finding, ...]:
+        """Every warning of the plan and of the view: what the sheet flags
+        is what the JSON and the log carry."""
+        return tuple(self.plan.warnings) + self.flags
 
     @property
     def flow(self) -> bool:
@@ -97,7 +104,27 @@ def plan_view(scenario: Scenario, plan: Plan) -> PlanView:
         offered=None if bias is None else plan.amounts(plan.dose_mol_l * bias.mean_ratio),
         **_rates(plan),
         checks=tuple(sorted_findings(plan.checks)),
-        breaches=permit_breaches(plan))
+        breaches=permit_breaches(plan),
+        flags=_flags(scenario, plan, a))
+
+
+def _flags(scenario: Scenario, plan: Plan, a: Amounts) -> tuple[Finding, ...]:
+    """Warnings that come from the job around the plan: a store that cannot
+    hold one batch, a staged dose that still lands outside the window too often."""
+    out = []
+    supply = _supply(scenario, plan, a)
+    if supply.batches is not None and supply.batches < 1:
+        out.append(note("storage-short", "LESS THAN ONE BATCH in store ({batches:.2g} "
+                        "batches): the store cannot hold this dose; order more before "
+                        "starting", "warning", batches=Q(supply.batches)))
+    st = plan.staging
+    if st is not None and st.p_inside < st.confidence:
+        out.append(note("staged-short", "even staged, this lands in the window in only "
+                        "{p_inside} of the plausible waters: the window is narrower than "
+                        "this product can be metered to. Finish with a dilute reagent in "
+                        "small steps, or widen the aim with the engineer", "warning",
+                        p_inside=Q(st.p_inside, "%")))
+    return tuple(out)
 
 
 def _supply(scenario: Scenario, plan: Plan, a: Amounts) -> Supply:
