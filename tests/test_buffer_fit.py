@@ -14,7 +14,7 @@ import pytest
 
 from dosing.report.words import texts
 from dosing.report.titration import titration_dict
-from dosing.chem.activity import DAVIES, IDEAL
+from dosing.chem.activity import DAVIES
 from dosing.planning.measurements import Measurements
 from dosing import get_reagent, infer_water
 from dosing.planning.buffer_fit import fit_spectrum

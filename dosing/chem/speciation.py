@@ -325,16 +325,23 @@ def species_at(r: Rows, ah, ionic, *, m2: bool = True) -> SpeciesAt:
     kcal = None
     if r.ca >= 0:
         log_g = 0.0 if t is None else -(z2[r.ca, 0] + z2[r.carb, 2]) * t
-        with np.errstate(divide="ignore", over="ignore"):
-            kcal = 10.0 ** np.minimum(r.log_kc - log_g, 300.0) / (
-                alpha[:, r.ca, 0] * alpha[:, r.carb, 2])
-        opened = np.isfinite(r.co2)
-        if opened.any():
-            # Carbonate held by air: calcite caps calcium like a hydroxide.
-            held = r.co2[opened] / alpha[opened, r.carb, 0]
-            sol = sol.copy()
-            sol[opened, r.ca] = np.minimum(sol[opened, r.ca], kcal[opened] / held)
+        kcal, sol = _calcite_product(r, alpha, log_g, sol)
     return SpeciesAt(alpha, q, m2, ah / g1, r.kw / (ah * g1), sol, kcal)
+
+
+def _calcite_product(r: Rows, alpha, log_g, sol):
+    """(calcite's conditional product [mol²/L²], the solubilities with
+    calcium capped by calcite where air holds the carbonate) of the waters."""
+    with np.errstate(divide="ignore", over="ignore"):
+        kcal = 10.0 ** np.minimum(r.log_kc - log_g, 300.0) / (
+            alpha[:, r.ca, 0] * alpha[:, r.carb, 2])
+    opened = np.isfinite(r.co2)
+    if opened.any():
+        # Carbonate held by air: calcite caps calcium like a hydroxide.
+        held = r.co2[opened] / alpha[opened, r.carb, 0]
+        sol = sol.copy()
+        sol[opened, r.ca] = np.minimum(sol[opened, r.ca], kcal[opened] / held)
+    return kcal, sol
 
 
 def _species_at_wise(r: Rows, ah, ionic, want_m2: bool) -> SpeciesAt:
@@ -350,15 +357,7 @@ def _species_at_wise(r: Rows, ah, ionic, want_m2: bool) -> SpeciesAt:
             sol = 10.0 ** np.minimum(log_free, 300.0) / alpha[:, :, 0]
     kcal = None
     if r.ca >= 0:
-        log_g = lg[:, r.ca, 0] + lg[:, r.carb, 2]
-        with np.errstate(divide="ignore", over="ignore"):
-            kcal = 10.0 ** np.minimum(r.log_kc - log_g, 300.0) / (
-                alpha[:, r.ca, 0] * alpha[:, r.carb, 2])
-        opened = np.isfinite(r.co2)
-        if opened.any():
-            held = r.co2[opened] / alpha[opened, r.carb, 0]
-            sol = sol.copy()
-            sol[opened, r.ca] = np.minimum(sol[opened, r.ca], kcal[opened] / held)
+        kcal, sol = _calcite_product(r, alpha, lg[:, r.ca, 0] + lg[:, r.carb, 2], sol)
     return SpeciesAt(alpha, q, m2, ah / 10.0 ** act.lg_h, r.kw / (ah * 10.0 ** act.lg_oh),
                      sol, kcal, act)
 
