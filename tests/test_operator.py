@@ -168,3 +168,11 @@ def test_replay_report_carries_site_and_tank(tmp_path):
     from dosing.io.scenario import load_scenario
     s = load_scenario(FLOW)
     assert (d["site"], d["tank"]) == (s.site, s.tank) and s.site and s.tank
+
+
+def test_the_dose_lines_say_one_quantity_per_phrase():
+    # Issue 29: active compound and product apart; the precision in words.
+    r = run_cli("plan", "scenarios/acid-rinse-caustic.toml")
+    assert "active compound    8.39 kg NaOH (5.25 mmol/L)\n" in r.stdout
+    assert "in the water       420 mg/L of product\n" in r.stdout
+    assert "pH read 0.05 off changes the dose by" in r.stdout

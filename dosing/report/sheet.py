@@ -86,10 +86,9 @@ def dose_lines(v: PlanView, units: str = "metric") -> list[tuple[str, str]]:
     rows.append((f"product {per}", product(a)))
     rows.append(("active compound",
                  f"{fmt(a.kg_active * u.mass_per_kg)} {u.mass}{'/h' if flow else ''} "
-                 f"{plan.reagent.compound.formula}"
-                 f" ({fmt(a.mmol_per_l)} mmol/L"
-                 + (f", {fmt(a.mg_per_l_product)} mg/L of product)" if a.mg_per_l_product
-                    is not None else ")")))
+                 f"{plan.reagent.compound.formula} ({fmt(a.mmol_per_l)} mmol/L)"))
+    if a.mg_per_l_product is not None:
+        rows.append(("in the water", f"{fmt(a.mg_per_l_product)} mg/L of product"))
     if flow and a.litres_product is not None:
         rows.append(("metering pump", f"{fmt(a.litres_product * u.product_volume_per_l)} "
                      f"{u.product_volume}/h = {fmt(a.litres_product * 1000 / 60)} mL/min"))
@@ -412,10 +411,11 @@ def _precision_text(plan: Plan) -> str:
         unit = f" {sens.unit.split()[0]}" if sens.unit else ""
         lo, hi = (x if abs(x) >= 0.005 else 0.0 for x in (min(changes), max(changes)))
         lo, hi = min(lo, 0.0), max(hi, 0.0)
-        parts.append(f"{sens.label} ±{sens.plus_minus:.2g}{unit} {lo:+.0%} to {hi:+.0%}")
+        parts.append(f"{sens.label} read {sens.plus_minus:.2g}{unit} off changes the dose "
+                     f"by {lo:+.0%} to {hi:+.0%}")
     if not parts:
         return "the dose moves less than 1 % within the usual precision of the readings"
-    return "dose change within the readings' usual precision: " + ", ".join(parts)
+    return "; ".join(parts)
 
 
 def _total_name(w, key: str) -> str:
