@@ -161,6 +161,8 @@ def _log_parser(sub) -> None:
     ls = lsub.add_parser("list", help="list entries")
     ls.add_argument("--since", metavar="DATE", help="only entries from this date (ISO 8601)")
     ls.add_argument("--tank", help="only this tank")
+    ls.add_argument("--wide", action="store_true", help="every column (about 150 wide): "
+                    "operator, pH aim and the entry referred to")
     ls.add_argument("--db", metavar="PATH", help=db_help)
     sh = lsub.add_parser("show", help="show one entry with its corrections and follow-ups")
     sh.add_argument("id", type=int)

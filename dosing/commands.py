@@ -413,7 +413,8 @@ def _cmd_log(args) -> int:
             sys.stdout.write(f"recorded follow-up {new} on entry {args.id}: "
                              f"pH {args.ph_after:g}\n")
         elif args.log_command == "list":
-            sys.stdout.write(logview.render_list(log, since_utc=since, tank=args.tank))
+            sys.stdout.write(logview.render_list(log, since_utc=since, tank=args.tank,
+                                                 wide=args.wide))
         elif args.log_command == "show":
             sys.stdout.write(logview.render_entry(log, log.get(args.id)))
         elif args.log_command == "export":

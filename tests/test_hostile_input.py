@@ -277,7 +277,7 @@ def test_r15_control_characters_are_shown_escaped_and_stored_as_given(tmp_path):
     code, out, _ = run("log", "add", SCEN, "--operator", evil, "--note", "\x1b]0;x\x07",
                        "--db", db)
     assert code == 0 and "\x1b" not in out and "ev\\x1b[2Jil\\x07" in out
-    for argv in (["log", "list"], ["log", "show", "1"]):
+    for argv in (["log", "list", "--wide"], ["log", "show", "1"]):
         code, out, _ = run(*argv, "--db", db)
         assert code == 0 and "\x1b" not in out and "\x07" not in out and "\\x1b" in out
     from dosing.io.shiftlog import ShiftLog
@@ -543,6 +543,7 @@ _WORDS = st.one_of(_CELL, _TEXT, st.sampled_from(
      "--strengths", "20", "--with", "lime", "--sample-ml", "50", "--titrant", "0.1 M NaOH",
      "--scenario", "--since", "2026-01-01", "--tank", "T-3", "--dosed", "3,4", "--id",
      "--ph-after", "7", "--operator", "x", "--chunk-rows", "1000", "--fit", "spectrum",
+     "--wide",
      "@SCEN", "@DATA", "@JAR", "@DB", "@NEW", "1", "-1", "1e999"]))
 
 

@@ -41,8 +41,11 @@ def test_add_list_show_follow_up_and_correction(tmp_path):
     assert "CORRECTED by entry 3" in r.stdout and "follow-up 2" in r.stdout
     r = cli("log", "list", "--tank", "CIP-R2", "--db", db)
     lines = r.stdout.strip().splitlines()
-    assert len(lines) == 2 + 3 + 2          # header, rule, 3 entries, blank, final word
-    assert "licensed engineer have the final word" in lines[-1]
+    # header, rule, 3 entries, the two legends, blank, final word (two lines)
+    assert len(lines) == 2 + 3 + 2 + 1 + 2
+    assert lines[2].lstrip().startswith("1* ")            # entry 1 is corrected
+    assert all(len(ln) <= 80 for ln in lines)
+    assert "final word on any dose" in lines[-1]
     # Planned vs dosed ratio: the planned product is 30.0 kg (see the demo).
     with ShiftLog(db) as log:
         e = log.get(1)

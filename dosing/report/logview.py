@@ -6,6 +6,7 @@ from .numbers import fmt
 from ..chem.metals import label
 from ..planning.reagents import GENERAL_CAUTION
 from ..io.shiftlog import Entry, ShiftLog
+from .text import wrap
 from .words import bias_words
 
 __all__ = ["render_list", "render_entry", "unreadable_line"]
@@ -27,22 +28,43 @@ def _pct(ratio) -> str:
     return "-" if ratio is None else f"{ratio:.0%}"
 
 
-def render_list(log: ShiftLog, *, since_utc: str | None = None, tank: str | None = None) -> str:
-    """One line per entry, with planned vs dosed and the latest pH after."""
+_KIND = {"decision": "dec", "correction": "corr", "follow_up": "f-up"}
+
+
+def _row(log: ShiftLog, e: Entry, wide: bool, corrected: bool) -> str:
+    """One entry as a line of the list (78 columns, or all of them with ``wide``)."""
+    mark = "*" if corrected else " "
+    if wide:
+        return (f"{e.id:>5}{mark} {e.local_time[:19]:<19}  {e.kind:<10}  {e.tank[:14]:<14}  "
+                f"{e.reagent[:16]:<16}  {e.operator[:10]:<10}  {_kg(e, e.planned_kg):>12}  "
+                f"{_kg(e, e.dosed_kg):>12}  {_pct(e.dosed_ratio):>5}  {_n(e.ph_planned):>6}  "
+                f"{_n(log.latest_ph(e)):>8}  {e.refers_to or ''}")
+    when = e.local_time[5:16].replace("T", " ")
+    return (f"{e.id:>4}{mark} {when:<11} {_KIND.get(e.kind, e.kind)[:4]:<4} {e.tank[:8]:<8} "
+            f"{e.reagent[:12]:<12} {_kg(e, e.planned_kg):>10} {_kg(e, e.dosed_kg):>10} "
+            f"{_pct(e.dosed_ratio):>5} {_n(log.latest_ph(e)):>5}")
+
+
+def render_list(log: ShiftLog, *, since_utc: str | None = None, tank: str | None = None,
+                wide: bool = False) -> str:
+    """One line per entry, with planned vs dosed and the latest pH after; 78
+    columns (operator, pH aim and the entry referred to with ``wide``).
+    An entry a later correction replaces is marked with a star."""
     head = (f"{'id':>5}  {'local time':<19}  {'kind':<10}  {'tank':<14}  {'reagent':<16}  "
             f"{'operator':<10}  {'planned':>12}  {'dosed':>12}  {'ratio':>5}  "
-            f"{'pH aim':>6}  {'pH after':>8}  refers")
+            f"{'pH aim':>6}  {'pH after':>8}  refers") if wide else (
+            f"{'id':>4}  {'time':<11} {'kind':<4} {'tank':<8} {'reagent':<12} "
+            f"{'planned':>10} {'dosed':>10} {'ratio':>5} {'pH':>5}")
     lines = [head, "-" * len(head)]
-    n = 0
-    for e in log.entries(since_utc=since_utc, tank=tank):
-        n += 1
-        lines.append(
-            f"{e.id:>5}  {e.local_time[:19]:<19}  {e.kind:<10}  {e.tank[:14]:<14}  "
-            f"{e.reagent[:16]:<16}  {e.operator[:10]:<10}  {_kg(e, e.planned_kg):>12}  "
-            f"{_kg(e, e.dosed_kg):>12}  {_pct(e.dosed_ratio):>5}  {_n(e.ph_planned):>6}  "
-            f"{_n(log.latest_ph(e)):>8}  {e.refers_to or ''}")
-    if n == 0:
+    entries = list(log.entries(since_utc=since_utc, tank=tank))
+    corrected = {e.refers_to for e in entries if e.kind == "correction"}
+    lines += [_row(log, e, wide, e.id in corrected) for e in entries]
+    if not entries:
         lines.append("(no entries)")
+    elif corrected:
+        lines.append("* corrected by a later entry (dosing log show ID)")
+    if not wide:
+        lines.append("pH: the latest reading after the dose; --wide adds operator, aim, refers")
     if log.unreadable:
         lines.append(unreadable_line(log).rstrip("\n"))
     for name in ([tank] if tank else log.tanks()):
@@ -50,7 +72,7 @@ def render_list(log: ShiftLog, *, since_utc: str | None = None, tank: str | None
         if b is not None:
             lines.append(("!! " if b.due else "") + bias_words(b))
     lines.append("")
-    lines.append(GENERAL_CAUTION)
+    lines.extend(wrap(GENERAL_CAUTION, 78, ""))
     return "\n".join(lines) + "\n"
 
 
