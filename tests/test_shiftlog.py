@@ -225,3 +225,16 @@ def test_tankside_records_through_the_same_code(tmp_path):
         assert e.operator == "D. Osei" and e.dosed_kg == 29.5
         assert e.note == "split over two batches"
         assert e.plan["reagent"] == "sulfuric-98"
+
+
+def test_the_export_says_what_its_kilograms_are(tmp_path):
+    # Issue 29: planned_kg of a flow is a rate (kg/h); the export says which.
+    db = str(tmp_path / "log.sqlite")
+    flow = str(ROOT / "scenarios" / "food-acetate-stream.toml")
+    assert cli("log", "add", SCEN, "--operator", "A", "--db", db).returncode == 0
+    assert cli("log", "add", flow, "--operator", "A", "--dosed", "12", "--db", db).returncode == 0
+    out = tmp_path / "x.csv"
+    assert cli("log", "export", "--csv", str(out), "--db", db).returncode == 0
+    frame = pd.read_csv(out)
+    assert list(frame["kg_are"]) == ["kg per batch", "kg per hour"]
+    assert frame["dosed_kg"].iloc[1] == 12.0

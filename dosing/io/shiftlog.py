@@ -358,8 +358,21 @@ class ShiftLog(LogFile):
         import pandas as pd
         rows = [dict(zip(_COLUMNS, (getattr(e, c) for c in _COLUMNS)),
                      local_time=e.local_time, dosed_ratio=e.dosed_ratio,
-                     latest_ph_after=self.latest_ph(e),
+                     latest_ph_after=self.latest_ph(e), kg_are=_kg_basis(e),
                      cautions=" | ".join((e.plan or {}).get("cautions", [])))
                 for e in self.entries(since_utc=since_utc, tank=tank)]
-        return pd.DataFrame(rows, columns=list(_COLUMNS) + ["local_time", "dosed_ratio",
-                                                          "latest_ph_after", "cautions"])
+        return pd.DataFrame(rows, columns=list(_COLUMNS) + [
+            "local_time", "dosed_ratio", "latest_ph_after", "kg_are", "cautions"])
+
+
+def _kg_basis(e: Entry) -> str:
+    """What planned_kg and dosed_kg of an entry are: kg per batch, or kg/h
+    for a flow (the rate the pump ran at); empty for a follow-up."""
+    plan = e.plan or {}
+    if not plan:
+        return ""
+    dose = plan.get("dose") or {}
+    steps = plan.get("steps") or []
+    flow = "kg_product_per_h" in dose or any("kg_product_per_h" in (s.get("dose") or {})
+                                             for s in steps)
+    return "kg per hour" if flow else "kg per batch"
