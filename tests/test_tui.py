@@ -391,3 +391,17 @@ def test_loading_a_file_plans_once():
         await settle(app, pilot)
         assert len(calls) == 1 and app.plan.reagent.id == "caustic-25"
     drive(check)
+
+
+def test_a_decimal_comma_is_read_and_an_ambiguous_one_refused():
+    # Issue 29: "2,8" is 2.8 where the locale writes a decimal comma; "1,234"
+    # could be either, so it is refused with a reason, never guessed.
+    async def check(app, pilot):
+        await set_field(app, pilot, "effluent.ph", "11,2")
+        assert app.scenario.measurements.ph == 11.2
+        await set_field(app, pilot, "target.ph_aim", "7,25")
+        assert app.scenario.target.ph_aim == 7.25
+        await set_field(app, pilot, "basis.amount", "1,234")
+        shown = app.query_one("#" + field_id("basis.amount") + "-error").render()
+        assert app.stale and "could be 1.234 or 1234" in str(shown)
+    drive(check)

@@ -85,6 +85,25 @@ def field_id(key: str) -> str:
     return "f-" + key.replace(".", "--").replace("_", "-")
 
 
+def read_number(text: str) -> float:
+    """A number as typed: a decimal point, or a decimal comma (``2,8``) where
+    the writer's locale uses one. A comma before exactly three digits
+    (``1,234``) could be either a decimal or a thousands mark, so it is
+    refused with a reason rather than guessed.
+
+    >>> read_number("2,8"), read_number("12.75"), read_number("-0,05")
+    (2.8, 12.75, -0.05)
+    """
+    t = text.strip()
+    if "," in t and "." not in t and t.count(",") == 1:
+        whole, frac = t.split(",")
+        if len(frac) == 3 and whole.lstrip("+-").isdigit():
+            raise ValueError(f"{t!r} could be {whole}.{frac} or {whole}{frac}: write it "
+                             "with a point, or without the comma")
+        t = f"{whole}.{frac}"
+    return float(t)
+
+
 def parse_pairs(text: str) -> dict[str, float]:
     """``"sulfate=1.8, acetate=3"`` to a dict; raises ValueError with a reason."""
     out: dict[str, float] = {}
@@ -259,7 +278,7 @@ class ScenarioForm(VerticalScroll):
                 data[section][key] = parse_pairs(text) if f.kind == "pairs" else \
                     self._get(f.key, text)
             except ValueError as err:
-                errors[f.key] = (str(err) if f.kind == "pairs"
+                errors[f.key] = (str(err) if f.kind == "pairs" or "could be" in str(err)
                                  else f"{text!r} is not a number")
         self._basis_to_data(data, errors)
         self._reagent_to_data(data["reagent"])
@@ -281,9 +300,10 @@ class ScenarioForm(VerticalScroll):
                 section.pop(k, None)
         try:
             section[key] = self._get("basis.amount", amount_text)
-        except ValueError:
-            errors["basis.amount"] = (f"{amount_text!r} is not a number" if amount_text
-                                      else "missing; give the tank volume or the flow")
+        except ValueError as err:
+            errors["basis.amount"] = (
+                str(err) if "could be" in str(err) else f"{amount_text!r} is not a number"
+                if amount_text else "missing; give the tank volume or the flow")
 
     def _reagent_to_data(self, r: dict[str, Any]) -> None:
         """The reagent section: a catalogue id, or a custom compound."""
@@ -356,11 +376,11 @@ class ScenarioForm(VerticalScroll):
         """A typed number in SI units; raises ValueError if it is no number."""
         conv = US_FIELDS.get(self._unit_key(key))
         if self.units != "us" or not conv:
-            return float(text)
+            return read_number(text)
         shown = self._shown.get(key)
         if shown and shown[0] == text:
             return shown[1]          # not retyped: the file's value, exactly
-        return conv.to_si(float(text))
+        return conv.to_si(read_number(text))
 
     def set_units(self, units: UnitSystem) -> None:
         """Show and read the fields in ``units`` ("metric" or "us"): each

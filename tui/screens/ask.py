@@ -16,6 +16,8 @@ from textual.containers import Horizontal, Vertical
 from textual.screen import ModalScreen
 from textual.widgets import Input, Label
 
+from ..form import read_number
+
 __all__ = ["Ask", "AskScreen", "RecordAnswer", "TitrationAnswer", "record_dialog",
            "titration_dialog"]
 
@@ -90,9 +92,10 @@ class AskScreen(ModalScreen["T | None"], Generic[T]):
                 return self._refuse(f"{a.label}: missing; it is needed")
             if a.number and text:
                 try:
-                    values[a.key] = float(text)
-                except ValueError:
-                    return self._refuse(f"{a.label}: {text!r} is not a number")
+                    values[a.key] = read_number(text)
+                except ValueError as err:
+                    why = str(err) if "could be" in str(err) else f"{text!r} is not a number"
+                    return self._refuse(f"{a.label}: {why}")
             else:
                 values[a.key] = text if text or not a.number else None
         try:
