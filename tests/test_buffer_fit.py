@@ -81,7 +81,8 @@ def test_compare_uses_the_spectrum_when_the_simple_fit_misses(tmp_path):
                            "reagent": {"id": "caustic-50"}}, "jar.toml")
     report = titration_dict(compare(curve, scen))
     assert report["model"]["used"] == "spectrum"
-    assert report["spectrum"]["rms_ph"] <= 3 * NOISE < report["model"]["rms_ph"]
+    assert report["spectrum"]["rms_ph"] <= 3 * NOISE < report["model"]["rms_ph_simple_fit"]
+    assert report["model"]["rms_ph"] == report["spectrum"]["rms_ph"]   # the fit planned with
     simple = titration_dict(compare(curve, scen, fit_mode="simple"))
     assert simple["model"]["used"] == "simple" and simple["spectrum"] is None
 

@@ -73,6 +73,7 @@ def test_the_two_methods_agree_on_a_clean_curve():
     assert abs(report["gap_model_vs_direct"]) < 0.03
     assert not any("differ by" in w for w in report["warnings"])
     assert report["cautions"][-1].endswith("final word on any dose.")
+    assert report["trusted"] == "model"          # the fit explains the curve
 
 
 def test_a_sample_not_at_the_scenarios_ph_is_questioned():
@@ -179,3 +180,18 @@ def test_titration_command_end_to_end(tmp_path):
     import json
     d = json.loads(r.stdout)
     assert d["points"] == 29 and "direct" in d and "model" in d
+
+
+def test_the_sheet_leads_with_the_method_it_trusts(tmp_path):
+    # Issue 29: where the fit misses the curve, the direct scaling leads.
+    jar = tmp_path / "jar.csv"
+    jar.write_text("ml,pH\n" + "".join(f"{i * 0.01:g},{p}\n" for i, p in
+                                       enumerate([3, 13, 13.1, 13.2, 13.3, 13.4])))
+    r = run_cli("titration", str(jar), "--sample-ml", "50", "--titrant", "0.1 M NaOH",
+                "--fit", "spectrum")
+    assert r.returncode == 0, r.stderr
+    assert r.stdout.splitlines()[2].startswith("DOSE BY DIRECT SCALING")
+    import json
+    d = json.loads(run_cli("titration", str(jar), "--sample-ml", "50", "--titrant",
+                           "0.1 M NaOH", "--fit", "spectrum", "--json").stdout)
+    assert d["trusted"] == "direct" and d["model"]["rms_ph"] == d["spectrum"]["rms_ph"]

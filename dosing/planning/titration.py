@@ -24,7 +24,7 @@ from .findings import Finding, Q, note
 from .job import Scenario
 from .plan import Plan, plan_dose
 from .reagents import GENERAL_CAUTION
-from .water_fit import WaterFit, fit_water
+from .water_fit import FIT_TRUST_PH, WaterFit, fit_water
 
 __all__ = ["compare", "Comparison", "GAP_WARN", "FIT_MODES", "SIMPLE_FIT_ENOUGH",
            "SAMPLE_PH_WARN"]
@@ -98,6 +98,12 @@ class Comparison:
     def rms_ph(self) -> float:
         """pH misfit of the fit the model rests on [pH RMS]."""
         return self.spectrum.rms_ph if self.used == "spectrum" else self.fit.rms_ph
+
+    @property
+    def trusted(self) -> str:
+        """The method to lead with: "model" while the fit the plan rests on
+        explains the curve, "direct" when it misses it (see :data:`FIT_TRUST_PH`)."""
+        return "model" if self.plan is not None and self.rms_ph <= FIT_TRUST_PH else "direct"
 
     @property
     def cautions(self) -> tuple[str, ...]:

@@ -23,7 +23,11 @@ from .bench import BenchCurve
 from .effluent import Water
 from .findings import Finding, Q, note
 
-__all__ = ["FIT_LABELS", "WaterFit", "fit_water", "model_curve"]
+__all__ = ["FIT_LABELS", "FIT_TRUST_PH", "WaterFit", "fit_water", "model_curve"]
+
+#: Past this pH misfit [RMS] a fitted water is not trusted over the direct
+#: scaling of the curve (ten times a good meter's noise, common practice).
+FIT_TRUST_PH = 0.1
 
 
 #: What each fitted value is called on the page, and its unit.
@@ -149,7 +153,7 @@ def _fit_warnings(names, x, std, cond, rms, with_u) -> list[Finding]:
             warnings.append(note("poorly-determined", "{what} is poorly determined "
                                  "({value:.3gnum} ± {err:.2g})", "warning", {"what": what},
                                  value=Q(float(value), unit), err=Q(float(err), unit)))
-    if rms > 0.1:
+    if rms > FIT_TRUST_PH:
         warnings.append(note("poor-fit", "poor fit: the model misses the measured pH by "
                              "{rms:.2f} (RMS); a buffer the listed solutes do not explain, or a "
                              "misread; trust the direct scaling more", rms=Q(rms, "pH")))

@@ -37,7 +37,9 @@ def titration_dict(c) -> dict[str, Any]:
             f"litres_product_{per}": None if a is None else a.litres_product,
             "band_mmol_per_l": [None if b is None else b * 1000 for b in direct.band_mol_l],
         },
-        "model": {"fitted": fit.params, "stderr": fit.stderr, "rms_ph": fit.rms_ph,
+        "trusted": c.trusted,
+        "model": {"fitted": fit.params, "stderr": fit.stderr, "rms_ph": c.rms_ph,
+                  "rms_ph_simple_fit": fit.rms_ph,
                   "unknown_acid": fit.unknown_acid,
                   "residual_ml": [float(r) for r in fit.residual_ml],
                   "used": c.used,
@@ -81,6 +83,11 @@ def render_titration(scenario, c, units: str = "metric", width: int = 78) -> str
               else "no dose by equivalents for this reagent (see the warnings)")
     out = wrap(f"BENCH TITRATION  {curve.ph.size} points, {fmt(curve.sample_ml)} mL "
                f"sample, titrant {curve.titrant.label}", width, "") + ["=" * 40]
+    if c.trusted == "direct" and direct.dose_mol_l is not None:
+        out += wrap(f"DOSE BY DIRECT SCALING {scaled}: the fitted water misses the curve "
+                    f"by {c.rms_ph:.2f} pH, so the curve itself is the better guide; the "
+                    "plan below rests on the fit and is shown for its checks", width, "")
+        out.append("")
     out += hanging("direct scaling", f"{fmt(direct.ml_at_aim)} mL titrant to pH "
                    f"{c.scenario.target.ph_aim:g} -> {scaled}", width)
     if plan is None:
