@@ -176,3 +176,31 @@ def test_the_dose_lines_say_one_quantity_per_phrase():
     assert "active compound    8.39 kg NaOH (5.25 mmol/L)\n" in r.stdout
     assert "in the water       420 mg/L of product\n" in r.stdout
     assert "pH read 0.05 off changes the dose by" in r.stdout
+
+
+def test_a_cost_carries_its_currency_or_says_it_has_none(tmp_path):
+    # Issue 29: "cost 7.05" had no currency.
+    r = run_cli("plan", "scenarios/acid-rinse-caustic.toml", "--json")
+    d = json.loads(r.stdout)
+    assert d["currency"] == "GBP" and d["cost"] > 0
+    assert "7.05 GBP per batch" in run_cli("plan", "scenarios/acid-rinse-caustic.toml").stdout
+    text = run_cli("plan", "scenarios/food-acetate-stream.toml").stdout
+    assert "no currency named" in " ".join(text.split())
+    bad = _variant(tmp_path, Path("scenarios/acid-rinse-caustic.toml"), 'currency = "GBP"',
+                   'currency = "pounds sterling"')
+    r = run_cli("plan", bad)
+    assert r.returncode == 2 and "currency" in r.stderr
+
+
+def test_a_fleet_never_adds_costs_in_different_currencies(tmp_path):
+    from dataclasses import replace
+    from dosing.io.fleet import _product_total
+    from dosing.io.replay_io import run_replay
+    from dosing.io.scenario import load_scenario
+    data = tmp_path / "log.csv"
+    data.write_text("timestamp,flow,ph\n2026-01-01T00:00,5,4\n2026-01-01T00:01,5,4.1\n")
+    report, _ = run_replay(str(data), load_scenario("scenarios/food-acetate-stream.toml"))
+    a, b = replace(report, cost=10.0, currency="EUR"), replace(report, cost=5.0, currency="GBP")
+    assert _product_total([("a", a), ("b", b)]).cost is None
+    same = _product_total([("a", a), ("b", replace(b, currency="EUR"))])
+    assert same.cost == 15.0 and same.currency == "EUR"

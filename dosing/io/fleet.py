@@ -272,8 +272,10 @@ class ProductTotal:
     sites: tuple[str, ...]
     kg_product: float
     litres_product: float
-    cost: float                          #: over the sites that give a price
+    cost: float | None                   #: over the sites that give a price; None
+                                         #: when they price in different currencies
     sites_without_price: tuple[str, ...]
+    currency: str = ""                   #: of the cost ("": the prices' own units)
 
 
 @dataclass(frozen=True)
@@ -300,11 +302,25 @@ class FleetReport:
                 "rows_planned": self.rows_planned,
                 "products": {k: {"reagent_name": p.reagent_name, "sites": list(p.sites),
                                  "kg_product": p.kg_product, "litres_product": p.litres_product,
-                                 "cost": p.cost,
+                                 "cost": p.cost, "currency": p.currency or None,
                                  "sites_without_price": list(p.sites_without_price)}
                              for k, p in self.products.items()},
                 "sites": {name: r.to_dict() for name, r in self.sites.items()},
                 "cautions": list(self.cautions)}
+
+
+def _product_total(rs: list[tuple[str, ReplayReport]]) -> ProductTotal:
+    """One product's totals over its sites; costs in different currencies
+    are not added."""
+    priced = [(n, r) for n, r in rs if r.cost is not None]
+    currencies = {r.currency for _, r in priced}
+    return ProductTotal(
+        reagent_name=rs[0][1].reagent_name, sites=tuple(n for n, _ in rs),
+        kg_product=sum(r.kg_product for _, r in rs),
+        litres_product=sum(r.litres_product or 0.0 for _, r in rs),
+        cost=sum(r.cost for _, r in priced) if len(currencies) <= 1 else None,
+        sites_without_price=tuple(n for n, r in rs if r.cost is None),
+        currency=currencies.pop() if len(currencies) == 1 else "")
 
 
 def fleet_report(fleet: str, results: Mapping[str, tuple[ReplayReport, ReplayTotals]],
@@ -316,12 +332,6 @@ def fleet_report(fleet: str, results: Mapping[str, tuple[ReplayReport, ReplayTot
     for name, (r, _) in results.items():
         by_product.setdefault(r.reagent, []).append((name, r))
         cautions.extend(c for c in r.cautions if c not in cautions and c != GENERAL_CAUTION)
-    products = {pid: ProductTotal(
-        reagent_name=rs[0][1].reagent_name, sites=tuple(n for n, _ in rs),
-        kg_product=sum(r.kg_product for _, r in rs),
-        litres_product=sum(r.litres_product or 0.0 for _, r in rs),
-        cost=sum(r.cost for _, r in rs if r.cost is not None),
-        sites_without_price=tuple(n for n, r in rs if r.cost is None))
-        for pid, rs in by_product.items()}
+    products = {pid: _product_total(rs) for pid, rs in by_product.items()}
     return FleetReport(fleet, workers, {name: r for name, (r, _) in results.items()},
                        products, tuple(cautions) + (GENERAL_CAUTION,))

@@ -97,7 +97,9 @@ _SCHEMA: dict[str, dict[str, tuple]] = {
 #: above any real plant, low enough that no total or cost overflows).
 _REAGENT_EXTRAS = (("price_per_kg", 1e6, "per kg"), ("storage_m3", 1e6, "m3"),
                    ("storage_kg", 1e9, "kg"))
-_TOP = {"title": (str,), "site": (str,), "tank": (str,)}
+_TOP = {"title": (str,), "site": (str,), "tank": (str,), "currency": (str,)}
+#: The longest currency name or symbol taken ("EUR", "GBP", "US$", "€").
+CURRENCY_CHARS = 8
 _SECTIONS_REQUIRED = ("effluent", "target", "reagent")
 
 
@@ -121,6 +123,11 @@ def _check_types(path: str, data: Mapping[str, Any]) -> None:
         if key in _TOP:
             if not isinstance(value, _TOP[key]):
                 raise ScenarioError(path, key, "expected text in quotes")
+            if key == "currency" and not (0 < len(value.strip()) <= CURRENCY_CHARS
+                                          and value.strip().isprintable()):
+                raise ScenarioError(path, key, f"{value!r}; allowed: a currency code or "
+                                    f"symbol of 1 to {CURRENCY_CHARS} characters, e.g. "
+                                    "\"EUR\"")
             continue
         if key not in _SCHEMA:
             allowed = ", ".join(list(_TOP) + [f"[{s}]" for s in _SCHEMA])
@@ -268,7 +275,8 @@ def build_scenario(data: Mapping[str, Any], path: str = "<scenario>") -> Scenari
     except InputError as err:
         raise ScenarioError(path, scenario_key(err.field), err.reason) from None
     return Scenario(title=data.get("title", Path(path).stem), site=data.get("site", ""),
-                    tank=data.get("tank", ""), data=data, source=path, **fields)
+                    tank=data.get("tank", ""), currency=data.get("currency", "").strip(),
+                    data=data, source=path, **fields)
 
 
 def _target(data: Mapping[str, Any]) -> Target:

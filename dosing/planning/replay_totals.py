@@ -261,6 +261,7 @@ class ReplayReport:
     daily_kg_product: dict[str, float]
     cautions: tuple[str, ...]
     files: tuple[str, ...] = ()           #: the files read, in order
+    currency: str = ""                    #: what the cost is in ("": the price's units)
 
     @property
     def rows_not_planned(self) -> int:
@@ -280,7 +281,7 @@ class ReplayReport:
             "not_planned": {k: {"rows": n, "why": why} for k, (n, why) in self.not_planned.items()},
             "first": self.first, "last": self.last, "hours_covered": self.hours_covered,
             "total": {"kg_product": self.kg_product, "litres_product": self.litres_product,
-                      "cost": self.cost},
+                      "cost": self.cost, "currency": self.currency or None},
             "daily": {"days": self.days, "mean_kg_product": self.mean_kg_per_day,
                       "max_kg_product": self.max_kg_per_day,
                       "mean_litres_product": self.mean_litres_per_day},
@@ -332,4 +333,5 @@ def replay_report(totals: ReplayTotals, scenario, source: str,
         fraction_outside_window=(totals.seconds_outside / totals.seconds
                                  if totals.seconds else None),
         daily_kg_product=dict(zip(days, daily_kg)),
-        cautions=tuple(scenario.reagent.cautions) + (GENERAL_CAUTION,), files=tuple(files))
+        cautions=tuple(scenario.reagent.cautions) + (GENERAL_CAUTION,), files=tuple(files),
+        currency=getattr(scenario, "currency", ""))

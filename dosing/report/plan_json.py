@@ -61,6 +61,7 @@ def plan_dict(v: PlanView) -> dict[str, Any]:
         "control": _control_dict(v),
         "log_bias": _log_bias_dict(v),
         "cost" + v.suffix: v.cost,
+        "currency": scenario.currency or None,
         "water": _water_dict(plan),
         **metals_dict(v),
         "checks": [{"id": c.id, "level": c.level, "message": words(c),

@@ -5,7 +5,7 @@ from __future__ import annotations
 from ..planning.replay_totals import ReplayReport
 from .numbers import fmt
 from .text import hanging, wrap
-from .units import UNIT_SYSTEMS, product_text
+from .units import UNIT_SYSTEMS, money_text, product_text
 
 __all__ = ["render_replay", "render_fleet"]
 
@@ -26,7 +26,7 @@ def render_replay(r: ReplayReport, units: str = "metric", width: int = 78) -> st
             f"  total          {fmt(r.kg_product * u.mass_per_kg)} {u.mass}"
             + (f" = {fmt(r.litres_product * u.product_volume_per_l)} {u.product_volume}"
                if r.litres_product else "")
-            + (f", cost {fmt(r.cost)}" if r.cost is not None else ""),
+            + (f", cost {money_text(r.cost, r.currency)}" if r.cost is not None else ""),
             f"  per day        mean {fmt(r.mean_kg_per_day * u.mass_per_kg)} "
             f"{u.mass}, max {fmt(r.max_kg_per_day * u.mass_per_kg)} {u.mass} "
             f"over {r.days} days"]
@@ -66,10 +66,13 @@ def render_fleet(report, units: str = "metric", width: int = 78) -> str:
     out += ["", "BY PRODUCT (amounts of different products are never added)"]
     for pid, p in r.products.items():
         unpriced = p.sites_without_price
-        if not unpriced:
-            cost = f", cost {fmt(p.cost)}"
+        if p.cost is None:
+            cost = ", cost not added: the sites price it in different currencies"
+        elif not unpriced:
+            cost = f", cost {money_text(p.cost, p.currency)}"
         elif len(unpriced) < len(p.sites):
-            cost = f", cost {fmt(p.cost)} not counting {', '.join(unpriced)} (no price)"
+            cost = (f", cost {money_text(p.cost, p.currency)} not counting "
+                    f"{', '.join(unpriced)} (no price)")
         else:
             cost = ""
         n = len(p.sites)

@@ -18,7 +18,8 @@ from ..planning.plan import Plan
 from ..planning.plan_findings import METERING_ERROR
 from .numbers import fmt
 from .text import hanging, table, wrap
-from .units import KG_PER_LB, L_PER_US_GAL, UNIT_SYSTEMS, product_text, volume_text
+from .units import (KG_PER_LB, L_PER_US_GAL, NO_CURRENCY, UNIT_SYSTEMS, money_text,
+                    product_text, volume_text)
 from .view import PlanView, plan_view
 from .words import bias_words, shown, texts, words
 
@@ -122,8 +123,10 @@ def dose_lines(v: PlanView, units: str = "metric") -> list[tuple[str, str]]:
         rows.extend(uncertainty_lines(v, units))
     if v.cost is not None:
         cost = v.cost
-        rows.append(("cost", f"{fmt(cost)} {per}"
-                     + (f", {fmt(cost * scenario.hours_per_day)} per day" if flow else "")))
+        cur = scenario.currency
+        rows.append(("cost", f"{money_text(cost, cur)} {per}"
+                     + (f", {money_text(cost * scenario.hours_per_day, cur)} per day"
+                        if flow else "") + ("" if cur else f" {NO_CURRENCY}")))
     return rows
 
 

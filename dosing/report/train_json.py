@@ -75,6 +75,7 @@ def train_keys(v: TrainView) -> dict[str, Any]:
                           "steps": list(p.steps), **_amounts(v, p.amounts),
                           f"cost{v.suffix}": p.cost} for p in v.products],
             f"cost{v.suffix}": v.cost,
+            "currency": v.scenario.currency or None,
             "sludge": None if v.train.sludge is None else _sludge(v, v.train.sludge),
             "discharge": {
                 "ph": d.ph, "in_window": d.in_window, "met": d.met,

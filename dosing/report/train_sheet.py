@@ -16,7 +16,7 @@ from .numbers import fmt
 from .sheet import slope_text, sludge_text
 from .text import table, wrap
 from .train_view import STEP_WORDS, StepView, TrainView, train_view
-from .units import UNIT_SYSTEMS, product_text
+from .units import NO_CURRENCY, UNIT_SYSTEMS, money_text, product_text
 from .words import words
 
 __all__ = ["render_train", "render_train_view", "step_headline", "step_rows"]
@@ -136,17 +136,18 @@ def render_train_view(v: TrainView, units: str = "metric", width: int = 78) -> s
 
 def _totals(out: list[str], v: TrainView, units: str, width: int) -> None:
     """The products over the whole train, their cost, and the sludge."""
-    per = v.train.basis.per
+    per, cur = v.train.basis.per, v.scenario.currency
     rows = [(p.reagent.name, f"{_amount(v, p.amounts, units)}"
              + ("" if v.flow else f" {per}") + " (step "
              + ", ".join(str(i) for i in p.steps) + ")"
-             + ("" if p.cost is None else f"; cost {fmt(p.cost)} {per}"))
+             + ("" if p.cost is None else f"; cost {money_text(p.cost, cur)} {per}"))
             for p in v.products]
     sl = v.train.sludge
     if sl is not None:
         rows.append(("sludge", sludge_text(sl, units, per)))
     if v.cost is not None:
-        rows.append(("cost", f"{fmt(v.cost)} {per}, every product"))
+        rows.append(("cost", f"{money_text(v.cost, cur)} {per}, every product"
+                     + ("" if cur else f" {NO_CURRENCY}")))
     if rows:
         out.append("")
         out.append("TRAIN TOTALS")

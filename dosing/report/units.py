@@ -73,3 +73,16 @@ def volume_text(m3: float, units: str = "metric") -> str:
         return f"{fmt(m3 * 1000.0)} L"
     return f"{fmt(m3 * u.water_volume_per_m3)} {u.water_volume}"
 
+
+def money_text(amount: float, currency: str) -> str:
+    """A cost with its currency ("7.05 EUR"); the bare number when the
+    scenario names none (see :data:`NO_CURRENCY`).
+
+    >>> money_text(7.05, "EUR"), money_text(7.05, "")
+    ('7.05 EUR', '7.05')
+    """
+    return f"{fmt(amount)} {currency}" if currency else fmt(amount)
+
+
+#: Said beside a cost when the scenario names no currency.
+NO_CURRENCY = "(in the units the price is given in: no currency named)"
