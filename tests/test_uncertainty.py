@@ -96,15 +96,22 @@ def test_trim_table_lands_in_the_window_as_often_as_stated(name):
 def test_trim_rows_come_from_reinference_not_proportion():
     _, plan, _ = _plan("plating-rinse-metals")
     rows = [r for r in plan.staging.trim if r.extra_mol_l is not None]
-    extra = np.array([r.extra_mol_l for r in rows])
-    # Less is added the higher the reading, and never more than the whole plan.
-    assert np.all(np.diff(extra) < 0) and extra.max() < plan.dose_mol_l
+    from dosing.planning.uncertainty import metering_step, trim_doses
+    exact = trim_doses(plan, plan.staging.first_mol_l, np.array([r.ph_read for r in rows]))
+    # Less is needed the higher the reading, and never more than the whole plan.
+    assert np.all(np.diff(exact) < 0) and exact.max() < plan.dose_mol_l
+    # The table gives each as it can be metered: rounded to the step, and
+    # nothing where less than half a step is needed (issue 29).
+    _, _, step = metering_step(plan)
+    for r, e in zip(rows, exact):
+        assert r.below_metering == (e < step / 2)
+        assert r.extra_mol_l == pytest.approx(0.0 if e < step / 2 else round(e / step) * step)
+        assert abs(r.extra_mol_l - e) <= step / 2 + 1e-15
     # At a reading on the titration curve of the first dose, the extra is what
     # that curve needs from there (the same water, re-inferred from its pH).
     from dosing.chem import add_dose, solve_ph
     r = plan.reagent.vector()
     ph1 = float(solve_ph(add_dose(plan.water.mixture(), r, plan.staging.first_mol_l))[0])
-    from dosing.planning.uncertainty import trim_doses
     extra_at = float(trim_doses(plan, plan.staging.first_mol_l, np.array([ph1]))[0])
     assert plan.staging.first_mol_l + extra_at == pytest.approx(plan.dose_mol_l, rel=2e-3)
 

@@ -46,6 +46,7 @@ from .plan import has_grip
 
 __all__ = ["Spread", "SPREAD_KEYS", "DoseUncertainty", "Staging", "TrimRow",
            "dose_uncertainty", "staged_dose", "follow_table", "spread_from", "MATERIAL_RISK",
+           "metering_step",
            "INPUT_WORDS"]
 
 #: A planned dose that leaves the window this often is staged (common practice).
@@ -322,6 +323,7 @@ class TrimRow:
 
     ph_read: float
     extra_mol_l: float | None        #: None: at or past the aim, add nothing
+    below_metering: bool = False     #: what is needed is under half a metering step
 
 
 @dataclass(frozen=True)
@@ -334,6 +336,7 @@ class Staging:
     ph_first_range: tuple[float, float]   #: 5th to 95th percentile after the first dose
     p_inside: float = math.nan       #: plausible waters the table lands in the window [-]
     reading_sd: float = 0.0          #: pH reading error the landing rate includes [pH]
+    metering: tuple[str, float] = ("litres", 0.0)   #: ("litres" or "kg", the step)
 
 
 def staged_dose(plan, unc: DoseUncertainty, spread: Spread = Spread(),
@@ -362,14 +365,20 @@ def staged_dose(plan, unc: DoseUncertainty, spread: Spread = Spread(),
     grid = _grid(float(lo), float(hi), rows)
     extra = trim_doses(plan, first, grid)
     raising = plan.reagent.raises_ph
+    # Each extra as it can be metered: rounded to the step, nothing below half of it.
+    unit, step, step_mol = metering_step(plan)
+    small = extra < step_mol / 2.0
+    metered = np.where(small, 0.0, np.round(extra / step_mol) * step_mol)
     # A reading whose water cannot be re-inferred gets no row (never a guess).
     trim = tuple(TrimRow(float(p), None if (p >= plan.target.ph_aim if raising
-                                           else p <= plan.target.ph_aim) else float(e))
-                 for p, e in zip(grid, extra)
+                                           else p <= plan.target.ph_aim) else float(m),
+                         bool(b))
+                 for p, e, m, b in zip(grid, extra, metered, small)
                  if math.isfinite(e) or (p >= plan.target.ph_aim if raising
                                          else p <= plan.target.ph_aim))
     p5, p95 = np.percentile(ph1, [5, 95])
-    staging = Staging(conf, first, trim, (float(p5), float(p95)), reading_sd=spread.ph)
+    staging = Staging(conf, first, trim, (float(p5), float(p95)), reading_sd=spread.ph,
+                      metering=(unit, step))
     final = follow_table(plan, staging, s.mix.take(idx), s.strength[idx] / s.amount[idx],
                          ph_first=ph1)
     t = plan.target
@@ -408,6 +417,28 @@ def follow_table(plan, staging: Staging, waters: Mixture, delivered: np.ndarray,
     total = first + extra * delivered        # both per litre of the water before dosing
     return solve_ph(add_dose(waters, r, total), ph_guess=np.full(waters.n, aim),
                     tol_ph=SAMPLE_TOL_PH)
+
+
+#: A batch dose is metered to this share of the planned dose, and never finer
+#: than 0.1 L of a solution (a graduated jug, a day-tank gauge) or 0.1 kg of
+#: a solid (a platform scale): common practice for a hand-dosed batch.
+METER_SHARE = 0.01
+METER_FLOOR = {"litres": 0.1, "kg": 0.1}
+
+
+def metering_step(plan) -> tuple[str, float, float]:
+    """("litres" or "kg", the step an extra dose is metered to in that unit
+    (rounded up to 1, 2 or 5 times a power of ten), the step as mol/L of water)."""
+    r, a = plan.reagent, plan.amounts()
+    if a.litres_product is not None and r.litres_product_per_mol:
+        unit, amount, per_mol = "litres", a.litres_product, r.litres_product_per_mol
+    else:
+        unit, amount, per_mol = "kg", a.kg_product or 0.0, r.kg_product_per_mol or 0.0
+    raw = max(METER_FLOOR[unit], METER_SHARE * amount)
+    power = 10.0 ** math.floor(math.log10(raw))
+    step = next(m * power for m in (1.0, 2.0, 5.0, 10.0) if m * power >= raw * (1 - 1e-12))
+    litres = plan.basis.litres
+    return unit, step, (step / (per_mol * litres) if per_mol and litres else 0.0)
 
 
 #: Seed of the pH-reading errors of the simulated trim (repeatable figures).

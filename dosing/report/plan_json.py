@@ -207,6 +207,8 @@ def _staging_dict(v: PlanView) -> dict[str, Any] | None:
             "reading_sd_ph": st.reading_sd,
             "first": _amount_dict(v, v.first),
             "ph_after_first_p05_p95": list(st.ph_first_range),
+            "metering_step": {st.metering[0]: st.metering[1]},
             "trim": [{"ph_read": r.ph_read, "at_or_past_aim": a is None,
-                      **({} if a is None else _amount_dict(v, a, "extra_"))}
+                      **({} if a is None else _amount_dict(v, a, "extra_")),
+                      "below_metering": r.below_metering}
                      for r, a in zip(st.trim, v.trim)]}

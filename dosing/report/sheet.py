@@ -366,9 +366,16 @@ def staging_lines(v: PlanView, units: str = "metric") -> list[str]:
             out.append(f"   {row.ph_read:>5.1f} {'up' if up else 'down':<4}  nothing more "
                        f"({edge}: stop and call the engineer)")
             break
-        out.append(f"   {row.ph_read:>5.1f}       {prod(extra)}")
-    out.append("The table is for the first reading only: if the pH is still short of the "
-               "window after the trim, add small amounts and read after each.")
+        short = row.ph_read < plan.target.ph_min if up else row.ph_read > plan.target.ph_max
+        out.append(f"   {row.ph_read:>5.1f}       " + (
+            prod(extra) if not row.below_metering else
+            "below what can be metered: finish with a dilute reagent" if short else
+            "below what can be metered: add nothing"))
+    unit, step = st.metering
+    out.append(f"Amounts are rounded to {step:g} {'L' if unit == 'litres' else 'kg'}, "
+               "what a batch can be metered to. The table is for the first reading only: "
+               "if the pH is still short of the window after the trim, add small amounts "
+               "and read after each.")
     return out
 
 
