@@ -106,3 +106,12 @@ def test_a_proposal_as_steps_plans_the_same_train():
     assert own.discharge.ph == pytest.approx(proposed.discharge.ph, abs=1e-6)
     assert own.products[0].amounts.kg_product == pytest.approx(
         proposed.products[0].amounts.kg_product, rel=1e-6)
+
+
+def test_a_train_shows_no_custom_product_rows():
+    # A train scenario has no [reagent]; its steps name the products, so the
+    # custom-product rows (compound, strength) are not shown either.
+    async def check(app, pilot):
+        rows = [w for w in app.query(".custom") if w.display]
+        assert rows == []
+    drive(check, str(ROOT / "scenarios" / "mine-water-train.toml"))

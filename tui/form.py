@@ -201,6 +201,7 @@ class ScenarioForm(VerticalScroll):
             self.query_one(sid, Select).disabled = bool(steps)
         # Each step names its product: the reagent rows go (tankside.tcss).
         self.set_class(bool(steps), "train")
+        self._show_custom(self.query_one("#f-reagent--id", Select).value == "custom")
         note = self.query_one("#train-note", Static)
         note.display = bool(steps)
         note.update("a treatment train: each dose step names its product (F9)"
@@ -410,8 +411,9 @@ class ScenarioForm(VerticalScroll):
         self._label_amount(self.query_one("#f-basis--mode", Select).value == "flow")
 
     def _show_custom(self, custom: bool) -> None:
+        # A train names its products in its steps: no custom-product rows then.
         for w in self.query(".custom"):
-            w.display = custom
+            w.display = custom and not self.has_class("train")
 
     def _edited(self) -> None:
         self.post_message(self.Edited(self))
