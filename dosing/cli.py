@@ -148,6 +148,8 @@ def _log_parser(sub) -> None:
     a.add_argument("--dosed", metavar="KG", help="product actually dosed, kg (for a flow, the "
                    "rate it ran at, kg/h); for a treatment train one figure per dose step, "
                    "in step order, separated by commas")
+    a.add_argument("--dosed-l", metavar="L", help="the same in litres of product (L/h for a "
+                   "flow), recorded as kg by the product's density; not with --dosed")
     a.add_argument("--ph-after", type=float, metavar="PH", help="pH measured after dosing")
     a.add_argument("--note", default="")
     a.add_argument("--corrects", type=int, metavar="ID", help="this entry corrects entry ID")

@@ -22,7 +22,7 @@ __all__ = ["HANDLERS", "OPTION_OF_FIELD"]
 #: Engine fields given on the command line as options (errors name the option).
 OPTION_OF_FIELD = {"titrant": "--titrant", "sample_ml": "--sample-ml", "fit": "--fit",
                    "operator": "--operator", "ph_after": "--ph-after", "since": "--since",
-                   "dosed": "--dosed"}
+                   "dosed": "--dosed", "dosed_l": "--dosed-l"}
 
 
 def _now() -> str:
@@ -398,7 +398,7 @@ def _cmd_log(args) -> int:
         from pathlib import Path
         from .io.scenario import load_scenario
         scenario = load_scenario(args.scenario)
-        plan, dosed = _plan_to_record(scenario, args.dosed)
+        plan, dosed = _plan_to_record(scenario, args.dosed, args.dosed_l)
         toml_text = Path(args.scenario).read_text(encoding="utf-8")
         with ShiftLog(args.db) as log:
             entry_id = log.record_decision(
@@ -429,14 +429,23 @@ def _cmd_log(args) -> int:
     return 0
 
 
-def _plan_to_record(scenario, dosed_text: str | None) -> tuple[dict, float | None]:
-    """What ``log add`` records: the plan (a train whole) and the one dosed figure."""
+def _plan_to_record(scenario, dosed_text: str | None, dosed_l_text: str | None = None
+                    ) -> tuple[dict, float | None]:
+    """What ``log add`` records: the plan (a train whole) and the one dosed
+    figure; litres given (``--dosed-l``) are recorded as kg by the density."""
     from .planning.job import make_plan
     from .planning.train_job import make_train
-    from .report.record import record_of
+    from .report.record import litres_to_kg, record_of
+    if dosed_text and dosed_l_text:
+        raise UsageError("--dosed-l", "give what was dosed in kg (--dosed) or in litres "
+                         "(--dosed-l), not both")
     plan = None if scenario.train else make_plan(scenario)
+    train = make_train(scenario, plan)
     figures = _numbers("--dosed", dosed_text, -1e-300, 1e9, "kg") if dosed_text else None
-    return record_of(scenario, plan, make_train(scenario, plan), figures)
+    if dosed_l_text:
+        figures = litres_to_kg(scenario, plan, train,
+                               _numbers("--dosed-l", dosed_l_text, -1e-300, 1e9, "L"))
+    return record_of(scenario, plan, train, figures)
 
 
 #: The handler of each subcommand.

@@ -543,7 +543,7 @@ _WORDS = st.one_of(_CELL, _TEXT, st.sampled_from(
      "--strengths", "20", "--with", "lime", "--sample-ml", "50", "--titrant", "0.1 M NaOH",
      "--scenario", "--since", "2026-01-01", "--tank", "T-3", "--dosed", "3,4", "--id",
      "--ph-after", "7", "--operator", "x", "--chunk-rows", "1000", "--fit", "spectrum",
-     "--wide",
+     "--wide", "--dosed-l", "11",
      "@SCEN", "@DATA", "@JAR", "@DB", "@NEW", "1", "-1", "1e999"]))
 
 

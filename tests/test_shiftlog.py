@@ -238,3 +238,19 @@ def test_the_export_says_what_its_kilograms_are(tmp_path):
     frame = pd.read_csv(out)
     assert list(frame["kg_are"]) == ["kg per batch", "kg per hour"]
     assert frame["dosed_kg"].iloc[1] == 12.0
+
+
+def test_what_was_dosed_may_be_given_in_litres(tmp_path):
+    # Issue 29: --dosed-l records litres as kg by the product's density
+    # (50 % caustic soda 1.5253 kg/L at 20 °C, Perry's Chemical Engineers'
+    # Handbook as the catalogue cites it, from memory): 11.0 L is 16.78 kg.
+    db = str(tmp_path / "log.sqlite")
+    rinse = str(ROOT / "scenarios" / "acid-rinse-caustic.toml")
+    r = cli("log", "add", rinse, "--operator", "A", "--dosed-l", "11", "--db", db)
+    assert r.returncode == 0, r.stderr
+    with ShiftLog(db, writable=False) as log:
+        e = log.get(1)
+    assert e.dosed_kg == pytest.approx(11.0 * 1.5253, rel=1e-9)
+    lime = str(ROOT / "scenarios" / "lime-acid-batch.toml")
+    r = cli("log", "add", lime, "--operator", "A", "--dosed-l", "11", "--db", db)
+    assert r.returncode == 2 and "--dosed-l" in r.stderr and "kg" in r.stderr

@@ -18,7 +18,33 @@ from .plan_json import sheet_dict
 from .train_json import train_dict, train_keys
 from .train_view import train_view
 
-__all__ = ["record_of"]
+__all__ = ["record_of", "litres_to_kg"]
+
+
+def litres_to_kg(scenario: Scenario, plan: Plan | None, train: TrainPlan | None,
+                 litres: Sequence[float]) -> list[float]:
+    """Litres of product given (one figure, or one per dose step of a train)
+    as kilograms, by each product's density.
+
+    Raises
+    ------
+    InputError
+        (field ``dosed_l``) A product that is not a solution, or a count
+        that does not match the doses.
+    """
+    reagents = ([plan.reagent] if train is None else
+                [r.plan.reagent for r in train.steps if r.plan is not None])
+    if len(litres) != len(reagents):
+        raise InputError("dosed_l", f"give {len(reagents)} figure(s) in litres, one per dose"
+                         " step in step order" if train is not None else
+                         "this plan has one dose: give one figure in litres")
+    out = []
+    for reagent, value in zip(reagents, litres):
+        if not reagent.litres_product_per_mol or not reagent.kg_product_per_mol:
+            raise InputError("dosed_l", f"{reagent.name} is not measured in litres here: "
+                             "give what was dosed in kg (--dosed)")
+        out.append(value * reagent.kg_product_per_mol / reagent.litres_product_per_mol)
+    return out
 
 
 def record_of(scenario: Scenario, plan: Plan | None, train: TrainPlan | None,
