@@ -21,6 +21,7 @@ from dosing import Batch, Target, get_reagent, infer_water, plan_dose
 from dosing.chem import (Mixture, add_dose, constants_at, dose_to_ph, solve_ph,
                                 speciate, system_index)
 from dosing.chem.metals import METALS, get_metal
+from dosing.chem.columns import COLUMN_IDS
 from dosing.planning.reagents import COMPOUNDS
 from dosing.planning.solids import dissolved_vs_ph
 from tests.helpers import run_cli, totals
@@ -311,3 +312,18 @@ def test_ideal_activity_is_warned_where_it_decides_the_solids(tmp_path):
     r = run_cli("plan", str(dilute), "--json")
     assert r.returncode == 0, r.stderr
     assert not [w for w in json.loads(r.stdout)["warnings"] if "ideal activity" in w]
+
+
+def test_a_subnormal_total_is_no_total():
+    # Found by the round-trip test above: a total of 5e-324 mol/L (the
+    # smallest float) scaled a mass balance by infinity in the compiled core.
+    # Such a total is nothing; the water plans as if it were absent.
+    tot = np.zeros(len(COLUMN_IDS))
+    tot[2], tot[25], tot[26], tot[35] = 4.940656e-324, 1.953125e-3, 1.953125e-3, 3e-3
+    none = tot.copy()
+    none[2] = 0.0
+    r = COMPOUNDS["NaOH"].vector(0.0)
+    for target in (6.0, 11.0):
+        d, _ = dose_to_ph(Mixture.build(tot, 0.0, 0.0, 40.0, math.nan, IDEAL), r, target)
+        d0, _ = dose_to_ph(Mixture.build(none, 0.0, 0.0, 40.0, math.nan, IDEAL), r, target)
+        assert d[0] == pytest.approx(d0[0], rel=1e-9, abs=1e-15)

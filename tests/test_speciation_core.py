@@ -230,3 +230,31 @@ def test_kernel_rows_started_from_their_neighbour_match_cold_starts():
                                    rtol=1e-8, atol=1e-14)
         np.testing.assert_allclose(together.solids_mol_l[i], alone.solids_mol_l[0],
                                    rtol=1e-7, atol=1e-13)
+
+
+@pytest.mark.parametrize("t_c", [5.0, 40.0, 60.0])
+def test_solids_move_with_temperature_as_van_t_hoff_says(t_c):
+    # van 't Hoff: ln K(T) = ln K(298.15 K) - dH/R (1/T - 1/298.15), dH the
+    # enthalpy of the reaction K describes (dissolution for a solid). The
+    # coupled core's constants of every solid with an enthalpy must be the
+    # same as the direct solver's hydroxide constants and this formula; a
+    # sign turned once made brucite 65 times too soluble at 40 °C.
+    from dosing.chem.columns import constants_at
+    from dosing.chem.coupled import tableau_for
+    cols = np.arange(len(COLUMN_IDS))
+    tab = tableau_for(cols, solids=True, calcite=False)
+    _, lp = tab.log_k(np.array([t_c]))
+    direct = constants_at(np.array([t_c]))
+    inv = 1.0 / (t_c + 273.15) - 1.0 / 298.15
+    for p, pid in enumerate(tab.phase_ids):
+        phase = next((x for x in PHASES if x.id == pid), None)
+        if phase is None or phase.enthalpy_kj_mol is None:
+            continue                # CO2 from air; a solid with no enthalpy at hand
+        expect = phase.log_k25 - phase.enthalpy_kj_mol * 1000.0 / (8.314462618 * math.log(10)) * inv
+        assert lp[0, p] == pytest.approx(expect, abs=1e-9), pid
+        if pid.endswith("_hydroxide"):
+            col = COLUMN_IDS.index(pid.removesuffix("_hydroxide"))
+            assert lp[0, p] == pytest.approx(direct.log_ks0[0, col], abs=1e-9), pid
+    # Brucite, exothermic to dissolve: less soluble warm than cold.
+    mg = tab.phase_ids.index("magnesium_hydroxide")
+    assert (lp[0, mg] < 16.84) == (t_c > 25.0)

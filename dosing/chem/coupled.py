@@ -129,8 +129,12 @@ class Tableau:
         by Plummer & Busenberg 1982)."""
         inv = (1.0 / (np.asarray(temperature_c, dtype=float) + 273.15) - 1.0 / 298.15)
         f = -1000.0 / (R_J_MOL_K * LN10) * inv[:, None]
+        # Both sets move by ln K(T) = ln K(25 °C) - ΔH/R (1/T - 1/298.15) with
+        # the enthalpy of the reaction each K describes: a complex's formation,
+        # a solid's dissolution (a sign turned here once made brucite, lime and
+        # Al(OH)3 more soluble when warm, against the direct solver).
         lk = self.log_k25[None, :] + f * self.dh[None, :]
-        lp = self.plog_k25[None, :] - f * self.pdh[None, :]
+        lp = self.plog_k25[None, :] + f * self.pdh[None, :]
         if self.calcite >= 0:
             lp[:, self.calcite] = -calcite_pksp(temperature_c)
         return lk, lp
@@ -250,6 +254,12 @@ def _solve_step(tab: Tableau, u, c, active, f, g, scale) -> tuple[np.ndarray, np
     return step[:, :kc], step[:, kc:]
 
 
+#: Totals below this are taken as absent [mol/L]: one ion in about two
+#: million litres, far below any measurement, and well above the subnormal
+#: floats on which the mass-balance scaling would overflow.
+TOTAL_FLOOR = 1e-30
+
+
 def equilibrate(tab: Tableau, totals: np.ndarray, lk: np.ndarray, lp: np.ndarray,
                 core: Core | None = None, *, max_iter: int = 80,
                 held: np.ndarray | None = None) -> Core:
@@ -265,6 +275,9 @@ def equilibrate(tab: Tableau, totals: np.ndarray, lk: np.ndarray, lp: np.ndarray
     where numba is installed, else through :func:`equilibrate_reference`;
     the two solve the same equations to the same tolerances (tested).
     """
+    # A total below TOTAL_FLOOR is nothing (a subnormal such as 5e-324 mol/L
+    # would scale a mass balance by infinity).
+    totals = np.where(totals < TOTAL_FLOOR, 0.0, totals)
     if _kernel is None or not KERNEL.on:
         return equilibrate_reference(tab, totals, lk, lp, core, max_iter=max_iter, held=held)
     n, npx = totals.shape[0], tab.pnu.shape[0]
