@@ -38,7 +38,7 @@ from dosing.report.units import UnitSystem
 from dosing.io.shiftlog import ShiftLog
 from dosing.planning.sweep import default_alternative, default_sizes, strength_grid
 
-from .form import FIELDS, ScenarioForm, field_id
+from .form import FIELDS, PAIRS, ScenarioForm, field_id
 from .screens.help import HelpScreen
 from .screens.ask import RecordAnswer, record_dialog
 from .screens.path import PathScreen
@@ -69,9 +69,9 @@ def _form_key(key: str) -> str | None:
     """The form field a scenario error key belongs to, if any."""
     if key.startswith(("batch.", "flow.")):
         return "basis.amount"
-    for f in FIELDS:
-        if key == f.key or key.startswith(f.key + "."):
-            return f.key
+    for k in [f.key for f in FIELDS] + [p[0] for p in PAIRS]:
+        if key == k or key.startswith(k + "."):
+            return k
     return None
 
 
@@ -218,7 +218,8 @@ class Tankside(TrainActions, TitrationActions, App):
             except ScenarioError as err:
                 key = _form_key(err.key)
                 if key:
-                    errors[key] = err.reason
+                    entry = err.key[len(key) + 1:]      # a table's row: name it
+                    errors[key] = f"{entry}: {err.reason}" if entry else err.reason
                 else:
                     message = f"{err.key or 'scenario'}: {err.reason}"
         form.show_errors(errors)

@@ -21,7 +21,10 @@ from dosing.chem.activity import AUTO, DEFAULT_CHOICE, MODELS
 from dosing.planning.reagents import CATALOGUE, COMPOUNDS
 from dosing.report.units import KG_PER_LB, L_PER_US_GAL, UnitSystem
 
-__all__ = ["Field", "FIELDS", "ScenarioForm", "field_id", "parse_pairs", "US_FIELDS"]
+from .widgets.pairs import PairsBox, pairs_id, parse_pairs, read_number
+
+__all__ = ["Field", "FIELDS", "PAIRS", "ScenarioForm", "field_id", "parse_pairs", "read_number",
+           "US_FIELDS"]
 
 
 @dataclass(frozen=True)
@@ -31,7 +34,6 @@ class Field:
     key: str          #: dotted scenario key
     label: str
     unit: str = ""
-    kind: str = "number"   #: "number" or "pairs" (name=value, ...)
     section: str = "effluent"   #: the form section it shows in
 
 
@@ -40,7 +42,6 @@ FIELDS = (
     Field("effluent.temperature_c", "temperature", "°C"),
     Field("effluent.alkalinity_mg_l_as_caco3", "alkalinity", "mg/L CaCO3"),
     Field("effluent.acidity_mg_l_as_caco3", "acidity", "mg/L CaCO3"),
-    Field("effluent.solutes_mmol_l", "solutes", "mmol/L", "pairs"),
     Field("basis.amount", "volume", "m³", section="tank"),
     Field("target.ph_min", "pH min", section="window"),
     Field("target.ph_max", "pH max", section="window"),
@@ -48,6 +49,15 @@ FIELDS = (
     Field("reagent.mass_fraction", "strength", "mass fraction", section="reagent"),
     Field("reagent.density_kg_l", "density", "kg/L", section="reagent"),
     Field("reagent.price_per_kg", "price", "per kg", section="reagent"),
+)
+
+
+#: The [effluent] tables shown as rows: key, title, unit, an example entry.
+PAIRS = (
+    ("effluent.metals_mg_l", "metals", "mg/L", "e.g. zinc=2.5"),
+    ("effluent.solutes_mg_l", "solutes", "mg/L", "e.g. sulfate=650"),
+    ("effluent.solutes_mmol_l", "solutes", "mmol/L", "e.g. acetate=3"),
+    ("effluent.ions_mg_l", "background ions", "mg/L", "e.g. sodium=40"),
 )
 
 
@@ -85,39 +95,6 @@ def field_id(key: str) -> str:
     return "f-" + key.replace(".", "--").replace("_", "-")
 
 
-def read_number(text: str) -> float:
-    """A number as typed: a decimal point, or a decimal comma (``2,8``) where
-    the writer's locale uses one. A comma before exactly three digits
-    (``1,234``) could be either a decimal or a thousands mark, so it is
-    refused with a reason rather than guessed.
-
-    >>> read_number("2,8"), read_number("12.75"), read_number("-0,05")
-    (2.8, 12.75, -0.05)
-    """
-    t = text.strip()
-    if "," in t and "." not in t and t.count(",") == 1:
-        whole, frac = t.split(",")
-        if len(frac) == 3 and whole.lstrip("+-").isdigit():
-            raise ValueError(f"{t!r} could be {whole}.{frac} or {whole}{frac}: write it "
-                             "with a point, or without the comma")
-        t = f"{whole}.{frac}"
-    return float(t)
-
-
-def parse_pairs(text: str) -> dict[str, float]:
-    """``"sulfate=1.8, acetate=3"`` to a dict; raises ValueError with a reason."""
-    out: dict[str, float] = {}
-    for part in filter(None, (p.strip() for p in text.replace(";", ",").split(","))):
-        if "=" not in part:
-            raise ValueError(f"{part!r}: write name=value, e.g. sulfate=1.8")
-        name, value = (x.strip() for x in part.split("=", 1))
-        try:
-            out[name] = float(value)
-        except ValueError:
-            raise ValueError(f"{name}: {value!r} is not a number") from None
-    return out
-
-
 def _fmt(v: Any) -> str:
     if isinstance(v, dict):
         return ", ".join(f"{k}={x:g}" for k, x in v.items())
@@ -146,6 +123,8 @@ class ScenarioForm(VerticalScroll):
         yield Static("Effluent", classes="section")
         for f in _in_section("effluent"):
             yield from self._row(f)
+        for key, title, unit, example in PAIRS:
+            yield PairsBox(key, title, unit, example)
         yield Static("", classes="kept", id="kept-effluent")
         yield Static("Tank or flow", classes="section")
         with Horizontal(classes="row"):
@@ -197,6 +176,9 @@ class ScenarioForm(VerticalScroll):
             unused += ("effluent.", "basis.")
         for f in FIELDS:
             self.query_one("#" + field_id(f.key), Input).disabled = f.key.startswith(unused)
+        for key, *_ in PAIRS:
+            for box in self.query_one("#" + pairs_id(key), PairsBox).query(Input):
+                box.disabled = blend
         for sid in ("#f-reagent--id", "#f-reagent--compound"):
             self.query_one(sid, Select).disabled = bool(steps)
         # Each step names its product: the reagent rows go (tankside.tcss).
@@ -249,7 +231,11 @@ class ScenarioForm(VerticalScroll):
         self.query_one("#f-model--open-to-air", Switch).value = bool(
             m.get("open_to_air", False))
         self._show_custom(rid not in CATALOGUE)
+        eff = data.get("effluent", {})
+        for key, *_ in PAIRS:
+            self.query_one("#" + pairs_id(key), PairsBox).set_values(eff.get(key.split(".")[1]))
         shown = {f.key.split(".")[1] for f in FIELDS if f.key.startswith("effluent.")}
+        shown |= {key.split(".")[1] for key, *_ in PAIRS}
         kept = {k: v for k, v in data.get("effluent", {}).items() if k not in shown}
         note = self.query_one("#kept-effluent", Static)
         note.update("kept from the file: " + "; ".join(f"{k} {_fmt(v)}"
@@ -276,15 +262,27 @@ class ScenarioForm(VerticalScroll):
                 data[section].pop(key, None)
                 continue
             try:
-                data[section][key] = parse_pairs(text) if f.kind == "pairs" else \
-                    self._get(f.key, text)
+                data[section][key] = self._get(f.key, text)
             except ValueError as err:
-                errors[f.key] = (str(err) if f.kind == "pairs" or "could be" in str(err)
+                errors[f.key] = (str(err) if "could be" in str(err)
                                  else f"{text!r} is not a number")
+        self._pairs_to_data(data["effluent"], errors)
         self._basis_to_data(data, errors)
         self._reagent_to_data(data["reagent"])
         self._model_to_data(data)
         return data, errors
+
+    def _pairs_to_data(self, effluent: dict[str, Any], errors: dict[str, str]) -> None:
+        """The metals, solutes and ions rows; an emptied table leaves the file."""
+        for key, *_ in PAIRS:
+            values, why = self.query_one("#" + pairs_id(key), PairsBox).read()
+            name = key.split(".")[1]
+            if why:
+                errors[key] = why
+            elif values is None:
+                effluent.pop(name, None)
+            else:
+                effluent[name] = values
 
     def _basis_to_data(self, data: dict[str, Any], errors: dict[str, str]) -> None:
         """The tank or flow section: one of [batch] volume_m3 or [flow] m3_per_h."""
@@ -344,6 +342,8 @@ class ScenarioForm(VerticalScroll):
             label.update(errors.get(f.key, ""))
             label.display = f.key in errors
             self.query_one("#" + field_id(f.key), Input).set_class(f.key in errors, "bad")
+        for key, *_ in PAIRS:
+            self.query_one("#" + pairs_id(key), PairsBox).show_error(errors.get(key, ""))
 
     # ------------------------------------------------------------ events --
     def _label_amount(self, flow: bool) -> None:

@@ -26,8 +26,11 @@ Change any value on the left: the dose is planned again at once.
 | F1 | this help |
 | Ctrl+Q | quit |
 
-**Fields.** Solutes are written `name=value` in mmol/L, separated by commas
-(`sulfate=1.8, acetate=3`); `dosing solutes` lists the names. Leave
+**Fields.** Metals, solutes (mg/L or mmol/L) and background ions are
+rows: change a value to change it, clear it to remove the row, and type
+`name=value` in the *add* box (several separated by `;`), then Enter, to
+add rows; `dosing solutes` lists the solute names. A decimal comma (`2,8`)
+is read as a decimal. Leave
 alkalinity or acidity empty if the lab did not measure it (give one, not
 both). Choose *custom product* to enter your own strength and density.
 
