@@ -9,6 +9,7 @@ tests.
 from __future__ import annotations
 
 import copy
+import threading
 import time
 from pathlib import Path
 from typing import Any
@@ -16,38 +17,33 @@ from typing import Any
 from rich.text import Text
 from textual import on
 from textual.app import App, ComposeResult
-from textual.containers import Horizontal, VerticalScroll
+from textual.binding import Binding
+from textual.containers import Horizontal, ScrollableContainer, VerticalScroll
 from textual.reactive import reactive
-from textual.widgets import (Footer, Header, Label, Select, Static, TabbedContent,
-                             TabPane)
+from textual.widgets import (DataTable, Footer, Header, Label, Select, Static,
+                             TabbedContent, TabPane)
 
 from dosing.chem.activity import DEFAULT_CHOICE
 from dosing.errors import DosingError, ScenarioError
-from dosing.io.files import write_atomic
-from dosing.planning.basis import Flow
 from dosing.planning.plan import Plan
 from dosing.planning.reagents import CATALOGUE, GENERAL_CAUTION
-from dosing.io.scenario import build_scenario, load_scenario, scenario_to_toml
+from dosing.io.scenario import build_scenario, load_scenario
 from dosing.planning.job import Scenario, make_plan, with_uncertainty
 from dosing.planning.train_job import make_train
 from dosing.planning.train_plan import TrainPlan
-from dosing.report.record import record_of
-from dosing.report.sheet import render_sheet
-from dosing.report.train_sheet import render_train
 from dosing.report.units import UnitSystem
-from dosing.io.shiftlog import ShiftLog
-from dosing.planning.sweep import default_alternative, default_sizes, strength_grid
+from dosing.planning.sweep import default_alternative
 
 from .form import FIELDS, PAIRS, ScenarioForm, field_id
 from .screens.help import HelpScreen
-from .screens.ask import RecordAnswer, record_dialog
-from .screens.path import PathScreen
 from .widgets.curve import CurvePlot, TitrationPlot
 from .widgets.dose import DosePanel
 from .widgets.sweep import SweepTable
 from .widgets.train import TrainPanel
 from .train_actions import TrainActions
 from .titration_actions import TitrationActions
+from .file_actions import FileActions, read_text
+from .view_render import VIEWS, ViewRendering
 from .train_mode import with_steps
 
 __all__ = ["Tankside", "make_app", "run", "DEFAULT_DATA"]
@@ -75,24 +71,29 @@ def _form_key(key: str) -> str | None:
     return None
 
 
-class Tankside(TrainActions, TitrationActions, App):
+class Tankside(ViewRendering, FileActions, TrainActions, TitrationActions, App):
     """Edit a dosing scenario and watch the plan follow."""
 
     CSS_PATH = "tankside.tcss"
     TITLE = "Tankside, neutralisation dosing"
+    # Every key fits the footer at 80 columns: the views share one entry
+    # (F1 lists each); the tabs above the views are clickable too.
     BINDINGS = [
-        ("f1", "help", "help"),
-        ("f2", "view('dose')", "dose"),
-        ("f3", "view('curve')", "curve"),
-        ("f4", "view('sweep')", "sweep"),
-        ("f5", "view('sheet')", "sheet"),
-        ("ctrl+o", "open", "open"),
-        ("ctrl+s", "save", "save"),
-        ("f6", "toggle_units", "metric/US"),
-        ("f7", "record", "record"),
-        ("f8", "titration", "titration"),
-        ("f9", "view('train')", "train"),
-        ("ctrl+q", "quit", "quit"),
+        Binding("ctrl+q", "quit", "quit"),
+        Binding("f1", "help", "help"),
+        Binding("f2", "view('dose')", "views", key_display="f2-5,f9"),
+        Binding("f3", "view('curve')", "curve", show=False),
+        Binding("f4", "view('sweep')", "sweep", show=False),
+        Binding("f5", "view('sheet')", "sheet", show=False),
+        Binding("f9", "view('train')", "train", show=False),
+        Binding("ctrl+o", "open", "open"),
+        Binding("ctrl+s", "save", "save"),
+        Binding("f6", "toggle_units", "units"),
+        Binding("f7", "record", "record"),
+        Binding("f8", "titration", "titration"),
+        # The view on the right scrolls from the keyboard wherever the focus is.
+        Binding("pagedown", "scroll_view(1)", "scroll", show=False, priority=True),
+        Binding("pageup", "scroll_view(-1)", "scroll", show=False, priority=True),
     ]
 
     plan: reactive[Plan | None] = reactive(None, init=False, always_update=True)
@@ -122,13 +123,16 @@ class Tankside(TrainActions, TitrationActions, App):
         self._overwrite_ok: str | None = None  # a path the user agreed to overwrite
         self.db = db
         self._initial = data
-        self.last_recompute_ms = 0.0
+        self.last_recompute_ms = 0.0         # from a change to its plan shown
+        self.last_plan_ms = 0.0              # from a change to its plan ready
         self._t0 = 0.0                       # when the latest plan was asked for
         self._generation = 0                 # which form state the latest request is for
         self._pick_compare = False
         self.steps: list[dict[str, Any]] | None = None   # a train's [[step]] tables
         self._refused: str | None = None     # why the file given on start-up did not open
         self._refused_form: dict | None = None   # the form as it stood then
+        self._dirty: set[str] = set(VIEWS)   # views not drawn since the plan changed
+        self._sweep_token = 0                # which sweep request is the latest
 
     # --------------------------------------------------------- layout --
     def compose(self) -> ComposeResult:
@@ -162,14 +166,15 @@ class Tankside(TrainActions, TitrationActions, App):
                                      "mL and pH).", id="titration-text")
         yield Static("", id="status")
         yield Static(CAUTION, id="caution")
-        yield Footer()
+        yield Footer(compact=True, show_command_palette=False)
 
     def on_mount(self) -> None:
+        self._fit_title()
         data = self._initial
         if data is None and self.path:
             try:
                 data = dict(load_scenario(self.path).data)
-                self._source = _read_text(self.path)
+                self._source = read_text(self.path)
             except ScenarioError as err:
                 self._refuse_start(str(err))
                 return
@@ -245,10 +250,14 @@ class Tankside(TrainActions, TitrationActions, App):
             result: tuple | str = (plan, train)
         except DosingError as err:
             result = str(err)
-        self.call_from_thread(self._planned, generation, scenario, result)
+        self.call_from_thread(self._planned, generation, scenario, result,
+                              time.perf_counter())
 
-    def _planned(self, generation: int, scenario: Scenario, result: tuple | str) -> None:
-        """Show a plan, unless the form has moved on since it was asked for."""
+    def _planned(self, generation: int, scenario: Scenario, result: tuple | str,
+                 ready: float | None = None) -> None:
+        """Show a plan, unless the form has moved on since it was asked for
+        (``ready``: when the worker had it; now if not given)."""
+        ready = time.perf_counter() if ready is None else ready
         if generation != self._generation:
             return
         self.planning = False
@@ -257,17 +266,26 @@ class Tankside(TrainActions, TitrationActions, App):
             return
         plan, self.train = result
         self.stale = False
+        self.last_plan_ms = (ready - self._t0) * 1000
+        self.sweep = None
         self.scenario, self.plan = scenario, plan     # the watcher renders the views
+        # The sweep and the sampling wait until the dose is on screen: drawing
+        # it does not share the interpreter with them.
+        drawn = threading.Event()
+        self.call_after_refresh(self._shown, ready, drawn)
         self.last_recompute_ms = (time.perf_counter() - self._t0) * 1000
         self.status = f"planned and shown{self._took()}"
         if self._pick_compare:
             self._pick_compare = False
-            self.query_one("#compare", Select).value = default_alternative(scenario.reagent)
+            with self.prevent(Select.Changed):
+                self.query_one("#compare", Select).value = default_alternative(
+                    scenario.reagent)
+        self._start_sweep(drawn)
         if plan.dose_needed and not scenario.train:
             self.sampling = True
             self.status += "; sampling how sure the dose is..."
-            self.run_worker(lambda: self._sample_in_background(scenario, plan), thread=True,
-                            exclusive=True, group="sampling")
+            self.run_worker(lambda: self._sample_in_background(scenario, plan, drawn),
+                            thread=True, exclusive=True, group="sampling")
 
     def _not_planned(self, message: str) -> None:
         """No plan for the form as it stands: the last one stays, marked stale."""
@@ -287,8 +305,12 @@ class Tankside(TrainActions, TitrationActions, App):
             return with_uncertainty(self.scenario, self.plan)
         return self.plan
 
-    def _sample_in_background(self, scenario, plan) -> None:
-        """How sure the dose is, computed off the event loop (a worker thread)."""
+    def _sample_in_background(self, scenario, plan, drawn: threading.Event | None = None
+                              ) -> None:
+        """How sure the dose is, computed off the event loop (a worker thread)
+        once the plan is drawn (or after half a second)."""
+        if drawn is not None:
+            drawn.wait(0.5)
         try:
             full = with_uncertainty(scenario, plan)
         except DosingError:
@@ -298,7 +320,9 @@ class Tankside(TrainActions, TitrationActions, App):
     def _sampled(self, base, full) -> None:
         """Show the sampled plan, unless the form has moved on since."""
         if self.plan is base:
-            self.plan = full
+            # Only the views that show how sure the dose is are drawn again.
+            self.set_reactive(Tankside.plan, full)
+            self._render_views(("dose", "sheet"))
             # Only replace the status this run set (a later message stays).
             if full.uncertainty is not None and self.status.endswith("dose is..."):
                 self.status = (f"planned{self._took()}; "
@@ -313,44 +337,14 @@ class Tankside(TrainActions, TitrationActions, App):
         self._render_views()
 
     def watch_status(self, value: str) -> None:
-        self.query_one("#status", Static).update(Text(value))
-
-    def _render_views(self) -> None:
-        if self.plan is None or self.scenario is None:
-            return
-        s, p, u, t = self.scenario, self.plan, self.units, self.train
-        width = self._sheet_width()
-        if s.train:
-            self.query_one(DosePanel).show_train(s, t, u, self.stale)
-            sheet = render_train(s, t, u, width=width)
-        else:
-            self.query_one(DosePanel).show(s, p, u, self.stale, train=t)
-            sheet = render_sheet(s, p, u, width=width)
-            if t is not None:
-                sheet = render_train(s, t, u, width=width) + "\n" + sheet
-        self.query_one(CurvePlot).show(p, u)
-        # Plain text: the sheet's [reagent-id] must not be read as markup. It is
-        # laid out for the pane's width, so no line wraps back to column 0.
-        self.query_one("#sheet-text", Static).update(Text(sheet))
-        self.query_one(TrainPanel).show(s, self.steps, t, u, width)
-        if not s.train:
-            self._render_sweep()
-
-    def _sheet_width(self) -> int:
-        """Columns the sheet may use in its pane (78 until the pane is laid out)."""
-        width = self.query_one("#views").size.width
-        return max(30, min(100, width - 8)) if width else 78
-
-    def on_resize(self) -> None:
-        self._render_views()
-
-    def _render_sweep(self) -> None:
-        s = self.scenario
-        other = self.query_one("#compare", Select).value
-        others = () if other == s.reagent.id else (other,)
-        result = strength_grid(s, default_sizes(s.basis), others=others,
-                               known={s.reagent.id: self.plan})
-        self.query_one(SweepTable).show(result, self.units)
+        bar = self.query_one("#status", Static)
+        bar.update(Text(value))
+        # A message longer than the bar wraps onto a second or third line;
+        # the screen is laid out again only when the height changes.
+        room = max(20, (bar.size.width or self.size.width) - 2)
+        lines = min(3, 1 + (len(value) - 1) // room) if value else 1
+        if bar.styles.height is None or bar.styles.height.value != lines:
+            bar.styles.height = lines
 
     # -------------------------------------------------------- handlers --
     @on(ScenarioForm.Edited)
@@ -362,11 +356,6 @@ class Tankside(TrainActions, TitrationActions, App):
             self.sub_title = "unsaved"
         self.recompute()
 
-    @on(Select.Changed, "#compare")
-    def _compare_changed(self) -> None:
-        if self.scenario is not None:
-            self._render_sweep()
-
     def action_help(self) -> None:
         self.push_screen(HelpScreen())
 
@@ -375,98 +364,18 @@ class Tankside(TrainActions, TitrationActions, App):
         if name == "train":
             self.query_one("#train-table").focus()     # its keys act on the steps
 
+    def action_scroll_view(self, pages: int) -> None:
+        """Page the active view (its text, or its table) up or down."""
+        pane = self.query_one(TabbedContent).active_pane
+        if pane is None:
+            return
+        target = next(iter(pane.query(ScrollableContainer)), None) or \
+            next(iter(pane.query(DataTable)), None)
+        if target is not None:
+            (target.scroll_page_down if pages > 0 else target.scroll_page_up)(animate=False)
+
     def action_toggle_units(self) -> None:
         self.units = "us" if self.units == "metric" else "metric"
-
-    def action_open(self) -> None:
-        self.push_screen(PathScreen("Open scenario file:", self.path or ""), self.open_path)
-
-    def open_path(self, path: str | None) -> None:
-        if not path:
-            return
-        try:
-            data = dict(load_scenario(path).data)
-        except ScenarioError as err:
-            self.status = f"not opened: {err}"
-            return
-        self.path = path
-        self._refused = None
-        self._source = _read_text(path)
-        self._load(data)
-        # Keystrokes go to the form at once: its first field, as on start-up.
-        self.query_one("#" + field_id("effluent.ph")).focus()
-
-    def action_save(self) -> None:
-        self.push_screen(PathScreen("Save scenario as:", self.path or "scenario.toml"),
-                         self.save_path)
-
-    def save_path(self, path: str | None) -> None:
-        if not path:
-            return
-        data, errors = self.query_one(ScenarioForm).to_data()
-        data = with_steps(data, self.steps)
-        if errors or self.stale:
-            self.status = "not saved: fix the field marked in red first"
-            return
-        if Path(path).exists() and self._overwrite_ok != path:
-            # Never overwrite without asking: the same save again confirms.
-            self._overwrite_ok = path
-            self.status = (f"{path} exists: press Ctrl+S and Enter again to overwrite it "
-                           "(its comments and layout are kept)")
-            return
-        keep = self._source if path == self.path else None
-        try:
-            build_scenario(data, path)
-            write_atomic(path, scenario_to_toml(data, keep).encode("utf-8"))
-        except DosingError as err:
-            self.status = f"not saved: {err}"
-            return
-        self._overwrite_ok = None
-        self.path = path
-        self._source = _read_text(path)
-        self.sub_title = path
-        self.status = f"saved {path}"
-
-
-    def action_record(self) -> None:
-        if self.stale or self.plan is None:
-            self.status = "not recorded: fix the field marked in red first"
-            return
-        if self.planning:
-            self.status = "not recorded: the plan for the latest values is not ready; try again"
-            return
-        doses = () if self.train is None else tuple(
-            i for i, r in enumerate(self.train.steps, start=1) if r.spec.kind == "dose")
-        self.push_screen(record_dialog(isinstance(self.plan.basis, Flow), doses), self.record)
-
-    def record(self, answer: RecordAnswer | None) -> None:
-        """Record the current plan in the shift log (same code as `dosing log add`)."""
-        if answer is None:
-            return
-        data = with_steps(self.query_one(ScenarioForm).to_data()[0], self.steps)
-        try:
-            plan = None if self.scenario.train else self._full_plan()
-            given = answer.given if self.train is not None else (
-                None if answer.dosed is None else (answer.dosed,))
-            record, dosed = record_of(self.scenario, plan, self.train, given)
-            with ShiftLog(self.db) as log:
-                entry = log.record_decision(
-                    operator=answer.operator, scenario_toml=scenario_to_toml(data),
-                    plan=record, dosed_kg=dosed, ph_after=answer.ph_after, note=answer.note)
-                where = log.path
-        except DosingError as err:
-            self.status = f"not recorded: {err}"
-            return
-        self.status = f"recorded as entry {entry} in {where}"
-
-
-def _read_text(path: str) -> str | None:
-    """A scenario file's text, to keep its comments when saving; None if unreadable."""
-    try:
-        return Path(path).read_text(encoding="utf-8-sig")
-    except (OSError, UnicodeDecodeError):
-        return None
-
 
 def make_app(path: str | None = None, data: dict[str, Any] | None = None,
              db: str | None = None, *, show_timing: bool = True) -> Tankside:

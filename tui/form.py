@@ -69,6 +69,7 @@ class Shown:
     unit: str
     from_si: Any
     to_si: Any
+    digits: int = 6     #: significant digits shown (the exact value is kept)
 
 
 _LB_GAL_PER_KG_L = L_PER_US_GAL / KG_PER_LB        # 8.345 lb/gal per kg/L
@@ -81,7 +82,8 @@ US_FIELDS = {
                            lambda gpm: gpm * 60.0 * L_PER_US_GAL / 1000.0),
     "reagent.density_kg_l": Shown("lb/gal", lambda d: d * _LB_GAL_PER_KG_L,
                                   lambda d: d / _LB_GAL_PER_KG_L),
-    "reagent.price_per_kg": Shown("per lb", lambda p: p * KG_PER_LB, lambda p: p / KG_PER_LB),
+    "reagent.price_per_kg": Shown("per lb", lambda p: p * KG_PER_LB, lambda p: p / KG_PER_LB,
+                                  digits=4),
 }
 
 
@@ -231,6 +233,8 @@ class ScenarioForm(VerticalScroll):
         self.query_one("#f-model--open-to-air", Switch).value = bool(
             m.get("open_to_air", False))
         self._show_custom(rid not in CATALOGUE)
+        self.query_one("#" + field_id("reagent.price_per_kg") + "-unit", Label).update(
+            self._unit("reagent.price_per_kg", "per kg"))
         eff = data.get("effluent", {})
         for key, *_ in PAIRS:
             self.query_one("#" + pairs_id(key), PairsBox).set_values(eff.get(key.split(".")[1]))
@@ -362,14 +366,16 @@ class ScenarioForm(VerticalScroll):
 
     def _unit(self, key: str, metric: str) -> str:
         conv = US_FIELDS.get(self._unit_key(key))
-        return conv.unit if self.units == "us" and conv else metric
+        unit = conv.unit if self.units == "us" and conv else metric
+        currency = self._base.get("currency") if key == "reagent.price_per_kg" else None
+        return f"{currency} {unit}" if isinstance(currency, str) and currency else unit
 
     def _put(self, key: str, si_value: Any) -> None:
         """Show a scenario value in the form's units."""
         conv = US_FIELDS.get(self._unit_key(key))
         text = _fmt(si_value)
         if self.units == "us" and conv and isinstance(si_value, (int, float)):
-            text = _fmt(float(f"{conv.from_si(si_value):.6g}"))
+            text = _fmt(float(f"{conv.from_si(si_value):.{conv.digits}g}"))
             self._shown[key] = (text, si_value)
         self.query_one("#" + field_id(key), Input).value = text
 

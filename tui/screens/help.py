@@ -17,10 +17,11 @@ Change any value on the left: the dose is planned again at once.
 | key | does |
 |---|---|
 | Tab / Shift+Tab | next / previous field |
-| F2 F3 F4 F5 | Dose, Curve, Sweep, Sheet views |
+| F2 F3 F4 F5 F9 | Dose, Curve, Sweep, Sheet and Train views (or click a tab) |
+| PgUp / PgDn | scroll the view on the right (wherever the cursor is) |
 | Ctrl+O | open a scenario file |
 | Ctrl+S | save the scenario (TOML, same as `dosing plan` reads) |
-| F6 | metric / US units |
+| F6 | units: metric or US |
 | F7 | record this decision in the shift log (operator, what was dosed, pH after, note) |
 | F8 | scale a bench titration (file, sample mL, titrant) with this scenario |
 | F1 | this help |

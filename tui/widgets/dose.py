@@ -9,8 +9,8 @@ from textual.widgets import Static
 
 from dosing.planning.job import Scenario
 from dosing.planning.plan import Plan
-from dosing.report.sheet import (caution_lines, check_lines, dose_lines, metal_lines,
-                                 staging_lines)
+from dosing.report.sheet import (caution_lines, check_lines, control_lines, dose_lines,
+                                 metal_lines, staging_lines)
 from dosing.report.units import UnitSystem
 from dosing.report.view import plan_view
 from dosing.report.words import texts
@@ -38,11 +38,28 @@ def _train_text(scenario, train, units: str) -> Text:
                    style="bold red" if w.level == "danger" else "yellow")
     return out
 
+def _control_table(view, units: str) -> list:
+    """A flow's control design (process gain, accuracy, pump range, stages)
+    under its heading; nothing for a batch."""
+    rows = control_lines(view, units)
+    if not rows:
+        return []
+    grid = Table.grid(padding=(0, 2))
+    grid.add_column(style="bold")
+    grid.add_column()
+    for label, value in rows:
+        grid.add_row(label, value)
+    return [Text("CONTROL (continuous stream)", style="bold"), grid, Text("")]
+
+
 _STYLE = {"!!": "bold red", "! ": "yellow", "- ": "dim", "  ": ""}
 
 
 class DosePanel(Static):
     """Shows one plan; ``stale`` marks a plan kept while the form is invalid."""
+
+    _group = None           # the plan's renderable, for :attr:`plain_text`
+    _plain: str | None = ""
 
     def show_train(self, scenario: Scenario, train, units: UnitSystem, stale: bool) -> None:
         """A train scenario: its steps and discharge (each step in full on F9)."""
@@ -98,18 +115,51 @@ class DosePanel(Static):
             staged.append("STAGED DOSE\n", style="bold")
             for line in stage_rows:
                 staged.append(line + "\n")
+        control = _control_table(view, units)
         notes = Text()
         for line in caution_lines(view, units):
             notes.append(line + "\n", style=_STYLE.get(line[:2], ""))
         for mark, message in check_lines(view, units):
             if mark == "  ":
                 notes.append(f"· {message}\n", style="dim")
-        group = Group(head, table, Text(""), staged, notes)
-        self.update(group)
-        console = Console(width=200, record=True, file=_Null())
-        console.print(group)
-        self.plain_text = console.export_text()
-        """What the panel shows, as plain text."""
+        group = Group(head, table, Text(""), *([staged] if staged else []), *control, notes)
+        # Laid out once for the pane's width: the screen then measures and
+        # paints plain styled lines (a table re-measured on every refresh
+        # cost a change tens of milliseconds).
+        self.update(_flat(group, self._width()))
+        self._group = group
+        self._plain = None
+
+    def _width(self) -> int:
+        """Columns the panel's text may use (78 until it is laid out)."""
+        width = self.content_size.width or (self.parent.size.width - 3 if self.parent else 0)
+        return max(20, width) if width > 0 else 78
+
+    @property
+    def plain_text(self) -> str:
+        """What the panel shows, as plain text (unwrapped, for searching)."""
+        if self._plain is None:
+            console = Console(width=200, record=True, file=_Null())
+            console.print(self._group)
+            self._plain = console.export_text()
+        return self._plain
+
+    @plain_text.setter
+    def plain_text(self, text: str) -> None:
+        self._group, self._plain = None, text
+
+
+def _flat(renderable, width: int) -> Text:
+    """A rich renderable laid out at ``width`` as styled lines of text."""
+    console = Console(width=width, file=_Null(), color_system="truecolor")
+    out = Text()
+    for line in console.render_lines(renderable, console.options.update(width=width),
+                                     pad=False):
+        for seg in line:
+            if not seg.control:
+                out.append(seg.text, seg.style)
+        out.append("\n")
+    return out
 
 
 class _Null:
