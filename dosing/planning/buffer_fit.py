@@ -32,6 +32,7 @@ from ..chem.activity import debye_huckel_a
 from .effluent import Water
 from .findings import Finding, Q, note
 from ..chem import (CARBONATE, Mixture, add_dose, solve_ph, speciate, system_index)
+from ..chem.metals import get_metal
 from ..chem.species import SITE_IDS, SYSTEMS
 from ..chem.water import carbonate_pk, pkw, vant_hoff_pk
 
@@ -184,7 +185,8 @@ def fit_spectrum(curve, base: Water, *, with_carbonate: bool = True, bootstrap: 
     water = _water(base, x, grid, with_carbonate)
     model_ph = _forward(curve, water)
     resid = model_ph - curve.ph
-    regions = _regions(x, grid, with_carbonate, design, ridge, bootstrap, seed, t)
+    regions = _regions(x, grid, with_carbonate, design, ridge, bootstrap, seed, t,
+                       base.metals_mol_l)
     s = float(x[0] - x[1])
     c = float(x[2]) if with_carbonate else 0.0
     lo, hi = float(np.min(curve.ph)), float(np.max(curve.ph))
@@ -251,8 +253,9 @@ def _state_along(curve, water: Water):
     return sp.ionic_strength, sp.buffer_intensity_eq_l
 
 
-def _regions(x, grid, with_carbonate, design, ridge, bootstrap, seed, t):
-    """Buffer regions of the fit, with bootstrap spreads of their totals."""
+def _regions(x, grid, with_carbonate, design, ridge, bootstrap, seed, t, metals=None):
+    """Buffer regions of the fit, with bootstrap spreads of their totals;
+    each named after a metal the scenario gives or a catalogue system near it."""
     sites = _sites(x, with_carbonate)
     keep = _keep(x, grid, with_carbonate)
     idx = np.flatnonzero(keep)
@@ -281,7 +284,7 @@ def _regions(x, grid, with_carbonate, design, ridge, bootstrap, seed, t):
         pka = float(np.sum(grid[g] * c) / np.sum(c))
         out.append(BufferRegion(pka, float(c.sum() * 1000),
                                 float(np.std(boots[:, j], ddof=1) * 1000) if bootstrap > 1
-                                else 0.0, _guess(pka, t)))
+                                else 0.0, _metal_guess(pka, metals or {}) or _guess(pka, t)))
     return tuple(out)
 
 
@@ -295,6 +298,27 @@ def _guess(pka: float, t: float) -> str:
         d = float(np.min(np.abs(pks - pka)))
         if d < _MATCH:
             near.append((d, s.id))
+    return " or ".join(name for _, name in sorted(near)[:2])
+
+
+def _metal_guess(pka: float, metals_mol_l) -> str:
+    """The metals the scenario gives that would buffer near ``pka``: where
+    their hydroxide starts to form at their total (from its *Ks0 at 25 °C:
+    log[M] = log *Ks0 - z pH), from 1/z pH below that (ten times the metal
+    the lab found: a jar often holds more than a filtered sample) to 2/z
+    above (where most of it has come down), or near their first hydrolysis
+    step. Up to two, nearest first; "" when none."""
+    near = []
+    for metal_id, total in metals_mol_l.items():
+        if not total > 0:
+            continue
+        m = get_metal(metal_id)
+        onset = (m.log_ks0 - math.log10(total)) / m.charge
+        pk1 = m.stepwise_pk()[0]
+        if onset - 1.0 / m.charge - _MATCH <= pka <= onset + 2.0 / m.charge + _MATCH:
+            near.append((abs(pka - onset), f"{m.name} hydroxide forming"))
+        elif abs(pka - pk1) < _MATCH:
+            near.append((abs(pka - pk1), f"{m.name} hydrolysis"))
     return " or ".join(name for _, name in sorted(near)[:2])
 
 
