@@ -93,6 +93,12 @@ def test_a_flows_control_design_is_in_the_dose_view_and_pages_from_the_keyboard(
         await pilot.press("pageup")
         await pilot.pause()
         assert scroll.scroll_y == 0
+        await pilot.press("f1")                 # over the help, the keys are the help's
+        await pilot.pause()
+        await pilot.press("pagedown")
+        await pilot.pause()
+        assert scroll.scroll_y == 0
+        assert app.screen.query_one("#help-box").scroll_y > 0
     drive(check, FLOW)
 
 

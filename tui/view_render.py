@@ -95,6 +95,13 @@ class ViewRendering:
         own = min(range(len(result.sizes)), key=lambda k: abs(result.sizes[k] - mine))
         table.show(result, self.units, own=own, room=room)
 
+    def check_action(self, action: str, parameters) -> bool | None:
+        """PgUp/PgDn page the views only on the main screen: over a dialog or
+        the help they are the dialog's own."""
+        if action == "scroll_view" and len(self.screen_stack) > 1:
+            return False
+        return True
+
     def _sheet_width(self) -> int:
         """Columns the sheet may use in its pane (78 until the pane is laid out)."""
         width = self.query_one("#views").size.width
