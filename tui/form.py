@@ -77,9 +77,9 @@ _LB_GAL_PER_KG_L = L_PER_US_GAL / KG_PER_LB        # 8.345 lb/gal per kg/L
 US_FIELDS = {
     "effluent.temperature_c": Shown("°F", lambda c: c * 1.8 + 32.0, lambda f: (f - 32.0) / 1.8),
     "batch.volume_m3": Shown("gal", lambda m3: m3 * 1000.0 / L_PER_US_GAL,
-                             lambda gal: gal * L_PER_US_GAL / 1000.0),
+                             lambda gal: gal * L_PER_US_GAL / 1000.0, digits=5),
     "flow.m3_per_h": Shown("gpm", lambda q: q * 1000.0 / L_PER_US_GAL / 60.0,
-                           lambda gpm: gpm * 60.0 * L_PER_US_GAL / 1000.0),
+                           lambda gpm: gpm * 60.0 * L_PER_US_GAL / 1000.0, digits=5),
     "reagent.density_kg_l": Shown("lb/gal", lambda d: d * _LB_GAL_PER_KG_L,
                                   lambda d: d / _LB_GAL_PER_KG_L),
     "reagent.price_per_kg": Shown("per lb", lambda p: p * KG_PER_LB, lambda p: p / KG_PER_LB,
