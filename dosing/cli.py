@@ -8,6 +8,7 @@ solutes    list the weak-acid systems and their reporting basis.
 tui        open Tankside, the terminal view.
 replay     plan every row of logged flow and pH data; totals, percentiles, plot.
 titration  scale a bench titration, and fit a water to it, for a full-scale dose.
+simulate   tanks, probe, pump and controller in time over a record; designs compared.
 log        the shift log: add, follow-up, list, show, export.
 
 Every error of the planner's own family prints one line on stderr and exits
@@ -19,7 +20,7 @@ from __future__ import annotations
 import argparse
 import sys
 
-from . import commands
+from . import commands, commands_simulate
 from .errors import DosingError, InputError, UsageError
 from .report.text import printable, printable_stdout
 
@@ -57,6 +58,7 @@ def _parser() -> argparse.ArgumentParser:
     _log_parser(sub)
     _replay_parser(sub)
     _titration_parser(sub)
+    commands_simulate.add_parser(sub)
     return ap
 
 

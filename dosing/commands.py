@@ -15,6 +15,7 @@ import sys
 from .errors import ScenarioError, UsageError
 from .io.files import write_atomic
 from .io.outputs import check_outputs
+from .commands_simulate import cmd_simulate
 from .report.numbers import require_finite, to_json
 
 __all__ = ["HANDLERS", "OPTION_OF_FIELD"]
@@ -22,7 +23,8 @@ __all__ = ["HANDLERS", "OPTION_OF_FIELD"]
 #: Engine fields given on the command line as options (errors name the option).
 OPTION_OF_FIELD = {"titrant": "--titrant", "sample_ml": "--sample-ml", "fit": "--fit",
                    "operator": "--operator", "ph_after": "--ph-after", "since": "--since",
-                   "dosed": "--dosed", "dosed_l": "--dosed-l"}
+                   "dosed": "--dosed", "dosed_l": "--dosed-l", "step_s": "--step-s",
+                   "tuning": "--tunings", "data": "--data"}
 
 
 def _now() -> str:
@@ -451,4 +453,4 @@ def _plan_to_record(scenario, dosed_text: str | None, dosed_l_text: str | None =
 #: The handler of each subcommand.
 HANDLERS = {"plan": _cmd_plan, "reagents": _cmd_reagents, "solutes": _cmd_solutes,
             "tui": _cmd_tui, "log": _cmd_log, "replay": _cmd_replay, "sweep": _cmd_sweep,
-            "titration": _cmd_titration}
+            "titration": _cmd_titration, "simulate": cmd_simulate}

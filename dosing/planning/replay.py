@@ -297,9 +297,13 @@ def distinct_rows(columns: list[np.ndarray]) -> tuple[np.ndarray, np.ndarray]:
     return np.flatnonzero(new), code
 
 
-def _dose_distinct(scenario: Scenario, ph, temp, a) -> tuple[np.ndarray, np.ndarray]:
-    """Dose [mol/L] and flag code (0 when planned) for distinct waters."""
-    w, reagent, target = scenario.water, scenario.reagent, scenario.target
+def row_mixture(scenario: Scenario, ph, temp, a):
+    """Each row's water as sampled, as the engine holds it: the scenario's
+    solutes and metals, carbonate from the row's alkalinity (if given) and
+    the strong-ion balance from its pH. Returns the mixture and two masks:
+    rows whose alkalinity is unusable, and rows the model could not settle
+    (their strong-ion balance is set to 0 there)."""
+    w = scenario.water
     m = ph.size
     # Each row's water as sampled: the scenario's solutes and metals.
     base = np.broadcast_to(totals_vector(w.totals_mol_l, w.metals_mol_l),
@@ -326,6 +330,14 @@ def _dose_distinct(scenario: Scenario, ph, temp, a) -> tuple[np.ndarray, np.ndar
     tank = aerate(base) if w.ferrous_oxidised else base
     mix = replace(Mixture.build(tank, s, w.strong_ionic_strength_for(s), temp, co2, w.activity,
                                 pka), calcite=w.calcite == "precipitates")
+    return mix, bad, unsettled
+
+
+def _dose_distinct(scenario: Scenario, ph, temp, a) -> tuple[np.ndarray, np.ndarray]:
+    """Dose [mol/L] and flag code (0 when planned) for distinct waters."""
+    reagent, target = scenario.reagent, scenario.target
+    w, m = scenario.water, ph.size
+    mix, bad, unsettled = row_mixture(scenario, ph, temp, a)
     dose, grip = dose_to_ph(mix, reagent.vector(), target.ph_aim)
     if w.calcite == "auto":
         dose = _calcite_where_fast(mix, reagent, target.ph_aim, dose)

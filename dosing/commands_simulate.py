@@ -1,0 +1,145 @@
+"""``dosing simulate``: continuous neutralisation in time, designs side by side.
+
+Reads a flow scenario and, optionally, a logged record (the files
+``replay`` reads); without one, made-up disturbances around the scenario's
+stream. Each design (stages times tunings) runs over the same influent;
+the comparison prints as text or JSON. Every error is one line (exit 2);
+nothing is written when a run fails.
+"""
+
+from __future__ import annotations
+
+import sys
+
+from .errors import ScenarioError, UsageError
+from .io.files import write_atomic
+from .io.outputs import check_outputs
+from .report.numbers import require_finite, to_json
+
+__all__ = ["add_parser", "cmd_simulate"]
+
+#: Most integration steps one design may take (about half an hour at 1 ms a step).
+MAX_STEPS = 2_000_000
+
+
+def add_parser(sub) -> None:
+    s = sub.add_parser("simulate", help="simulate tanks, probe, pump and controller over "
+                       "time and compare designs")
+    s.add_argument("scenario", help="flow scenario: water model, reagent, window")
+    s.add_argument("--data", nargs="+", metavar="FILE", help="logged record (CSV or "
+                   "Parquet with timestamp, flow and pH, as replay reads); default: made-up "
+                   "disturbances around the scenario's stream")
+    s.add_argument("--hours", type=float, default=24.0,
+                   help="length of the made-up record (default 24)")
+    s.add_argument("--seed", type=int, default=1, help="seed of the made-up record")
+    s.add_argument("--step-s", type=float, default=10.0,
+                   help="integration step in seconds (default 10)")
+    s.add_argument("--stages", default="1,2", help="stage counts to compare (default 1,2)")
+    s.add_argument("--tunings", default="tight,smooth",
+                   help="controller tunings to compare: tight, smooth (default both)")
+    s.add_argument("--without-feedforward", action="store_true",
+                   help="also run each design with feedback only (no flow feedforward)")
+    s.add_argument("--residence-min", type=float, default=None,
+                   help="residence time of each stage's tank in minutes (default: the "
+                   "control design's)")
+    s.add_argument("--probe-lag-s", type=float, default=30.0, help="probe lag (default 30 s)")
+    s.add_argument("--delay-s", type=float, default=10.0,
+                   help="dosing point to probe transport delay (default 10 s)")
+    s.add_argument("--json", action="store_true", help="print the comparison as JSON")
+    s.add_argument("--plot", metavar="FILE.png", help="write the discharge pH and pump "
+                   "rate of each design against the window")
+    s.add_argument("--units", choices=("metric", "us"), default="metric")
+    s.add_argument("--force", action="store_true", help="replace an existing output file "
+                   "this program did not write")
+
+
+def _range(option: str, value: float, low: float, high: float, unit: str) -> float:
+    if not low <= value <= high:
+        raise UsageError(option, f"{value:g}; allowed: {low:g} to {high:g} {unit}")
+    return value
+
+
+def _choices(args, residence_min: float):
+    from .planning.simulate_design import TUNINGS, DesignChoice
+    try:
+        stages = sorted({int(v) for v in args.stages.split(",") if v.strip()})
+    except ValueError:
+        stages = []
+    if not stages or not set(stages) <= {1, 2, 3}:
+        raise UsageError("--stages", f"{args.stages!r}; give 1, 2 or 3, separated by commas")
+    tunings = [v.strip() for v in args.tunings.split(",") if v.strip()]
+    if not tunings or not set(tunings) <= set(TUNINGS):
+        raise UsageError("--tunings", f"{args.tunings!r}; allowed: {', '.join(TUNINGS)}")
+    feeds = (True, False) if args.without_feedforward else (True,)
+    return [DesignChoice(n, t, ff, residence_min, args.probe_lag_s, args.delay_s)
+            for ff in feeds for n in stages for t in tunings]
+
+
+def _scenario(path: str):
+    from .io.scenario import load_scenario
+    from .planning.basis import Flow
+    scenario = load_scenario(path)
+    if scenario.train:
+        raise ScenarioError(path, "[[step]]", "simulate runs one dosing point per stage; a "
+                            "treatment train is not simulated")
+    if not isinstance(scenario.basis, Flow):
+        raise ScenarioError(path, "[flow]", "simulate needs a continuous stream: give [flow] "
+                            "m3_per_h instead of [batch]")
+    slow = scenario.reagent.compound.formula in ("Ca(OH)2", "CaO", "Mg(OH)2", "CaCO3")
+    if scenario.reagent.form != "liquid" or slow:
+        raise ScenarioError(path, "reagent", f"{scenario.reagent.name} is a slurry or a solid "
+                            "that dissolves over minutes, which the simulation does not "
+                            "model; simulate with a liquid product")
+    return scenario
+
+
+def _influent(args, scenario):
+    from .planning.simulate_influent import record_influent, synthetic_influent
+    if not args.data:
+        _range("--hours", args.hours, 0.1, 24.0 * 366, "h")
+        return synthetic_influent(scenario, args.hours, args.seed), 0, \
+            f"made-up disturbances (seed {args.seed})"
+    import pandas as pd
+    from .io.replay_io import iter_chunks, site_files
+    files = site_files(args.data, where="data")
+    frame = pd.concat([c for f in files for c in iter_chunks(f)], ignore_index=True)
+    influent, held = record_influent(frame, scenario)
+    return influent, held, ", ".join(files)
+
+
+def cmd_simulate(args) -> int:
+    """Handler of ``dosing simulate``."""
+    from .planning.job import make_plan
+    from .planning.simulate_design import simulate
+    from .report.simulate_report import render_simulation, simulation_dict
+    if args.plot and not args.plot.lower().endswith(".png"):
+        raise ScenarioError(args.plot, "", "give a file name ending in .png")
+    check_outputs([("--plot", args.plot)], [args.scenario, *(args.data or [])],
+                  force=args.force)
+    step = _range("--step-s", args.step_s, 1.0, 600.0, "s")
+    _range("--probe-lag-s", args.probe_lag_s, 0.0, 3600.0, "s")
+    _range("--delay-s", args.delay_s, 0.0, 3600.0, "s")
+    scenario = _scenario(args.scenario)
+    plan = make_plan(scenario, sampled=False)
+    residence = args.residence_min if args.residence_min is not None else (
+        plan.control.stages[0].residence_min if plan.control else 10.0)
+    _range("--residence-min", residence, 0.5, 240.0, "min")
+    choices = _choices(args, residence)
+    influent, held, source = _influent(args, scenario)
+    seconds = float(influent.dt_s.sum())
+    if args.probe_lag_s + args.delay_s >= seconds:
+        raise UsageError("--probe-lag-s", "the probe's lag and delay are longer than the "
+                         "record: give a longer record or a faster probe")
+    if seconds / step > MAX_STEPS:
+        raise UsageError("--step-s", f"the record needs {seconds / step:,.0f} steps per "
+                         f"design, beyond {MAX_STEPS:,}: simulate a part of it, or a longer "
+                         "step")
+    sim = simulate(scenario, influent, choices, source=source, rows_held=held, step_s=step,
+                   control=plan.control)
+    data = simulation_dict(sim)
+    require_finite(data, f"{args.scenario}: simulation")
+    if args.plot:
+        from .report.simulate_plot import simulation_figure_png
+        write_atomic(args.plot, simulation_figure_png(sim, args.units))
+    sys.stdout.write(to_json(data) if args.json else render_simulation(sim, args.units))
+    return 0

@@ -1,0 +1,138 @@
+"""A simulation of continuous neutralisation as text and as JSON.
+
+Read from :class:`~dosing.planning.simulate_design.Simulation`: one table
+row per design (time outside the window, the worst excursion, reagent
+against the static replay's figure), then each design's stages (set-point,
+tuning, time at the pump's limits), what the model assumes, the cautions.
+"""
+
+from __future__ import annotations
+
+from ..planning.reagents import GENERAL_CAUTION
+from .numbers import fmt
+from .text import hanging, wrap
+from .units import UNIT_SYSTEMS
+
+__all__ = ["render_simulation", "simulation_dict", "ASSUMPTIONS"]
+
+#: What every simulation assumes, said on the sheet and in the JSON.
+ASSUMPTIONS = (
+    "each tank well mixed and closed to air; precipitation instant; the reagent mixes at once",
+    "the probe reads through a first-order lag after its transport delay; no fouling, "
+    "drift or noise",
+    "the influent holds each row's reading until the next; a missing or implausible row "
+    "holds the one before",
+    "metals form hydroxides as the engine's direct solver gives them; complexes with "
+    "ammonia, cyanide or chelants are not in the simulation",
+    "controller tuned by the SIMC rule (Skogestad 2003) at each stage's set-point; the "
+    "pump meters between its minimum (1/100 of its maximum) and its maximum, or stops",
+)
+
+
+def _kg(sim, mol: float) -> float | None:
+    k = sim.reagent.kg_product_per_mol
+    return None if k is None else mol * k
+
+
+def _minutes(seconds: float) -> str:
+    return f"{fmt(seconds / 60.0)} min" if seconds < 5400 else f"{fmt(seconds / 3600.0)} h"
+
+
+def _clock(seconds: float) -> str:
+    """Time from the record's start as d hh:mm."""
+    m = int(round(seconds / 60.0))
+    return f"day {m // 1440 + 1} {m % 1440 // 60:02d}:{m % 60:02d}"
+
+
+def _design_dict(sim, run) -> dict:
+    worst = max(run.excursions, key=lambda e: abs(e.peak_ph - sim.aim), default=None)
+    kg = _kg(sim, run.reagent_mol)
+    stages = []
+    for k, st in enumerate(run.design.stages):
+        at_max, stopped = run.at_limit_s(k)
+        stages.append({"setpoint_ph": st.setpoint_ph, "volume_m3": st.volume_m3,
+                       "residence_s": st.volume_m3 * 3600.0 / run.design.nominal_flow_m3_h,
+                       "tuning": st.tuning, "kc_percent_per_ph": st.kc_pct_per_ph,
+                       "ti_s": st.ti_s, "process_gain_ph_per_percent": st.gain_ph_per_pct,
+                       "feedforward": st.feedforward, "probe_lag_s": st.probe_lag_s,
+                       "delay_s": st.delay_s, "pump_max_mol_s": st.pump_max_mol_s,
+                       "pump_at_max_fraction": at_max / run.total_s,
+                       "pump_stopped_fraction": stopped / run.total_s,
+                       "ph_min": float(run.ph[k].min()), "ph_max": float(run.ph[k].max())})
+    return {"name": run.design.name, "outside_fraction": run.outside_s / run.total_s,
+            "outside_h": run.outside_s / 3600.0, "excursions": len(run.excursions),
+            "worst_excursion": None if worst is None else {
+                "start_s": worst.start_s, "duration_s": worst.duration_s,
+                "peak_ph": worst.peak_ph},
+            "reagent_mol": run.reagent_mol, "reagent_kg_product": kg,
+            "reagent_vs_static": run.reagent_mol / sim.static_mol if sim.static_mol > 0
+            else None,
+            "stages": stages}
+
+
+def simulation_dict(sim) -> dict:
+    """The simulation with stable keys, for ``--json``."""
+    cautions = list(sim.reagent.cautions) + [GENERAL_CAUTION]
+    return {"title": sim.title, "source": sim.source, "hours": sim.hours,
+            "step_s": sim.step_s, "rows": sim.rows, "rows_held": sim.rows_held,
+            "window_ph": list(sim.window), "aim_ph": sim.aim, "reagent": sim.reagent.id,
+            "static_reagent_mol": sim.static_mol,
+            "static_reagent_kg_product": _kg(sim, sim.static_mol),
+            "designs": [_design_dict(sim, r) for r in sim.runs],
+            "assumptions": list(ASSUMPTIONS), "cautions": cautions}
+
+
+def render_simulation(sim, units: str = "metric", width: int = 78) -> str:
+    """The comparison as text for the engineer."""
+    u = UNIT_SYSTEMS[units]
+    data = simulation_dict(sim)
+    lo, hi = sim.window
+    out = [f"SIMULATION  {sim.title}  [{sim.reagent.id}]", "=" * 40]
+    out += hanging("influent", f"{sim.source}: {sim.rows:,} rows over {fmt(sim.hours)} h"
+                   + (f", {sim.rows_held:,} held from the row before" if sim.rows_held
+                      else "") + f"; step {fmt(sim.step_s)} s", width, indent=10)
+    out += [f"window    pH {fmt(lo)} to {fmt(hi)}, aim {fmt(sim.aim)}", ""]
+    out += _table(sim, data, u)
+    for d in data["designs"]:
+        out += ["", d["name"].upper()]
+        for k, st in enumerate(d["stages"], start=1):
+            out += hanging(f"  stage {k}", _stage_text(st, u), width, indent=12)
+        w = d["worst_excursion"]
+        if w:
+            out += hanging("  worst", f"pH {fmt(w['peak_ph'], 3)} at {_clock(w['start_s'])}, "
+                           f"outside for {_minutes(w['duration_s'])}", width, indent=12)
+    out += ["", "WHAT THE SIMULATION ASSUMES"]
+    for a in data["assumptions"]:
+        out += wrap(a, width, "  - ")
+    out += ["", "CAUTIONS"]
+    for c in data["cautions"]:
+        out += wrap(c, width, "  - ")
+    return "\n".join(out) + "\n"
+
+
+def _table(sim, data, u) -> list[str]:
+    """One line per design: time outside, excursions, reagent."""
+    head = f"  {'design':<32} {'outside':>9} {'events':>6} {'reagent ' + u.mass:>12} {'vs exact':>9}"
+    rows = [head]
+    for d in data["designs"]:
+        kg = d["reagent_kg_product"]
+        reagent = fmt(kg * u.mass_per_kg) if kg is not None else "n/a"
+        ratio = f"{d['reagent_vs_static']:.3f}" if d["reagent_vs_static"] else "n/a"
+        rows.append(f"  {d['name'][:32]:<32} {d['outside_fraction']:>8.2%} "
+                    f"{d['excursions']:>6} {reagent:>12} {ratio:>9}")
+    kg = data["static_reagent_kg_product"]
+    rows.append(f"  {'every row dosed exactly (replay)':<32} {'':>9} {'':>6} "
+                f"{fmt(kg * u.mass_per_kg) if kg is not None else 'n/a':>12} {'1.000':>9}")
+    return rows
+
+
+def _stage_text(st: dict, u) -> str:
+    vol = fmt(st["volume_m3"] * u.water_volume_per_m3)
+    return (f"set-point pH {fmt(st['setpoint_ph'], 3)}, tank {vol} {u.water_volume} "
+            f"({st['residence_s'] / 60.0:.1f} min), {st['tuning']}: Kc "
+            f"{fmt(st['kc_percent_per_ph'])} % per pH, Ti {fmt(st['ti_s'])} s (process gain "
+            f"{fmt(st['process_gain_ph_per_percent'])} pH per %); "
+            f"{'ratio feedforward from the flow; ' if st['feedforward'] else ''}"
+            f"pump at its maximum {st['pump_at_max_fraction']:.1%} of the time, stopped "
+            f"{st['pump_stopped_fraction']:.1%}; pH {fmt(st['ph_min'], 3)} to "
+            f"{fmt(st['ph_max'], 3)}")
