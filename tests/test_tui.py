@@ -7,6 +7,7 @@ import pytest
 
 from dosing.io.scenario import load_scenario, parse_scenario
 from dosing.planning.job import make_plan
+from tests.tui_helpers import drive as run_in_tankside, settle
 from tui.app import make_app
 from tui.form import field_id
 from tui.screens.ask import TitrationAnswer
@@ -16,19 +17,7 @@ CIP = str(ROOT / "scenarios" / "cip-sulfuric.toml")
 
 
 def drive(coro_fn, path=CIP):
-    async def main():
-        app = make_app(path)
-        async with app.run_test(size=(150, 45)) as pilot:
-            await settle(app, pilot)
-            await coro_fn(app, pilot)
-    asyncio.run(main())
-
-
-async def settle(app, pilot):
-    """Wait until the plan (made in a worker thread) and its sampling are shown."""
-    await pilot.pause()
-    await app.workers.wait_for_complete()
-    await pilot.pause()
+    run_in_tankside(coro_fn, path)
 
 
 async def set_field(app, pilot, key, text):

@@ -3,13 +3,12 @@ reachable, the file name whole, the sweep keeps the operator's own size,
 a flow's control design in the Dose view, the views scroll from the
 keyboard, and US prices, saving and long messages read well."""
 
-import asyncio
 from pathlib import Path
 
 import pytest
 
 from dosing.io.scenario import load_scenario
-from tui.app import make_app
+from tests.tui_helpers import drive as run_in_tankside, settle
 from tui.form import field_id
 from tui.screens.help import HELP
 
@@ -20,18 +19,7 @@ RINSE = str(ROOT / "scenarios" / "acid-rinse-caustic.toml")
 
 
 def drive(coro_fn, path=PLATING, size=(80, 24)):
-    async def main():
-        app = make_app(path, show_timing=False)
-        async with app.run_test(size=size) as pilot:
-            await settle(app, pilot)
-            await coro_fn(app, pilot)
-    asyncio.run(main())
-
-
-async def settle(app, pilot):
-    await pilot.pause()
-    await app.workers.wait_for_complete()
-    await pilot.pause()
+    run_in_tankside(coro_fn, path, size, show_timing=False)
 
 
 def test_every_key_is_in_the_footer_or_the_help_at_80_columns():

@@ -2,7 +2,6 @@
 item 7): each change is planned as the same scenario written to a file
 would be, and bad names or values are refused beside the table."""
 
-import asyncio
 import copy
 from pathlib import Path
 
@@ -10,7 +9,7 @@ import pytest
 
 from dosing.io.scenario import load_scenario, parse_scenario, scenario_to_toml
 from dosing.planning.job import make_plan
-from tui.app import make_app
+from tests.tui_helpers import drive as run_in_tankside, settle
 from tui.form import ScenarioForm
 from tui.widgets.pairs import PairsBox, pairs_id
 
@@ -19,18 +18,7 @@ PLATING = str(ROOT / "scenarios" / "plating-rinse-metals.toml")
 
 
 def drive(coro_fn, path=PLATING):
-    async def main():
-        app = make_app(path, show_timing=False)
-        async with app.run_test(size=(150, 60)) as pilot:
-            await settle(app, pilot)
-            await coro_fn(app, pilot)
-    asyncio.run(main())
-
-
-async def settle(app, pilot):
-    await pilot.pause()
-    await app.workers.wait_for_complete()
-    await pilot.pause()
+    run_in_tankside(coro_fn, path, (150, 60), show_timing=False)
 
 
 def table(app, key="effluent.metals_mg_l") -> PairsBox:

@@ -6,7 +6,6 @@ must show them and keep the scenario's steps through edits and a save.
 
 from __future__ import annotations
 
-import asyncio
 from pathlib import Path
 
 import pytest
@@ -14,8 +13,7 @@ import pytest
 from dosing.io.scenario import load_scenario, parse_scenario
 from dosing.planning.job import make_plan
 from dosing.planning.train_job import make_train
-from tests.test_tui import settle
-from tui.app import make_app
+from tests.tui_helpers import drive as run_in_tankside, settle
 from tui.train_mode import moved, removed, steps_of, with_steps
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -24,12 +22,7 @@ PLATING = str(ROOT / "scenarios" / "plating-rinse-window69.toml")
 
 
 def drive(coro_fn, path):
-    async def main():
-        app = make_app(path, show_timing=False)
-        async with app.run_test(size=(150, 45)) as pilot:
-            await settle(app, pilot)
-            await coro_fn(app, pilot)
-    asyncio.run(main())
+    run_in_tankside(coro_fn, path, show_timing=False)
 
 
 def test_a_train_scenario_shows_its_train():
