@@ -22,8 +22,8 @@ ASSUMPTIONS = (
     "drift or noise",
     "the influent holds each row's reading until the next; a missing or implausible row "
     "holds the one before",
-    "metals form hydroxides as the engine's direct solver gives them; complexes with "
-    "ammonia, cyanide or chelants are not in the simulation",
+    "metals, their complexes and solids are at the engine's equilibrium at every step: "
+    "no slow solid, no ageing",
     "controller tuned by the SIMC rule (Skogestad 2003) at each stage's set-point; the "
     "pump meters between its minimum (1/100 of its maximum) and its maximum, or stops",
 )
