@@ -77,19 +77,11 @@ def _choices(args, residence_min: float):
 
 def _scenario(path: str):
     from .io.scenario import load_scenario
-    from .planning.basis import Flow
+    from .planning.simulate_design import simulation_refusal
     scenario = load_scenario(path)
-    if scenario.train:
-        raise ScenarioError(path, "[[step]]", "simulate runs one dosing point per stage; a "
-                            "treatment train is not simulated")
-    if not isinstance(scenario.basis, Flow):
-        raise ScenarioError(path, "[flow]", "simulate needs a continuous stream: give [flow] "
-                            "m3_per_h instead of [batch]")
-    slow = scenario.reagent.compound.formula in ("Ca(OH)2", "CaO", "Mg(OH)2", "CaCO3")
-    if scenario.reagent.form != "liquid" or slow:
-        raise ScenarioError(path, "reagent", f"{scenario.reagent.name} is a slurry or a solid "
-                            "that dissolves over minutes, which the simulation does not "
-                            "model; simulate with a liquid product")
+    refusal = simulation_refusal(scenario)
+    if refusal:
+        raise ScenarioError(path, *refusal)
     return scenario
 
 

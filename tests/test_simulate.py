@@ -165,7 +165,7 @@ def test_simulate_prints_the_comparison_with_the_cautions(tmp_path):
     r = run_cli("simulate", FOOD, "--hours", "3", "--stages", "1,2", "--tunings",
                 "tight,smooth", "--plot", str(png))
     assert r.returncode == 0, r.stderr
-    for words in ("1 stage, tight", "2 stages, smooth", "every row dosed exactly",
+    for words in ("1 stage, tight", "2 stages, smooth", "dosed exactly (replay)",
                   "WHAT THE SIMULATION ASSUMES", "licensed engineer"):
         assert words in r.stdout
     assert png.read_bytes()[:4] == b"\x89PNG"

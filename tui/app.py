@@ -40,6 +40,7 @@ from .widgets.curve import CurvePlot, TitrationPlot
 from .widgets.dose import DosePanel
 from .widgets.sweep import SweepTable
 from .widgets.train import TrainPanel
+from .widgets.trend import TrendPanel
 from .train_actions import TrainActions
 from .titration_actions import TitrationActions
 from .file_actions import FileActions, read_text
@@ -81,11 +82,12 @@ class Tankside(ViewRendering, FileActions, TrainActions, TitrationActions, App):
     BINDINGS = [
         Binding("ctrl+q", "quit", "quit"),
         Binding("f1", "help", "help"),
-        Binding("f2", "view('dose')", "views", key_display="f2-5,f9"),
+        Binding("f2", "view('dose')", "views", key_display="f2-5,9,10"),
         Binding("f3", "view('curve')", "curve", show=False),
         Binding("f4", "view('sweep')", "sweep", show=False),
         Binding("f5", "view('sheet')", "sheet", show=False),
         Binding("f9", "view('train')", "train", show=False),
+        Binding("f10", "view('trend')", "trend", show=False),
         Binding("ctrl+o", "open", "open"),
         Binding("ctrl+s", "save", "save"),
         Binding("f6", "toggle_units", "units"),
@@ -157,6 +159,8 @@ class Tankside(ViewRendering, FileActions, TrainActions, TitrationActions, App):
                         yield Static(id="sheet-text")
                 with TabPane("Train", id="train"):
                     yield TrainPanel(id="train-panel")
+                with TabPane("Trend", id="trend"):
+                    yield TrendPanel(id="trend-panel")
                 with TabPane("Titration", id="titration"):
                     with VerticalScroll():
                         plot = TitrationPlot(id="titration-plot")
@@ -170,6 +174,8 @@ class Tankside(ViewRendering, FileActions, TrainActions, TitrationActions, App):
 
     def on_mount(self) -> None:
         self._fit_title()
+        # The Titration tab appears once F8 has loaded one: the tabs fit 80 columns.
+        self.query_one(TabbedContent).hide_tab("titration")
         data = self._initial
         if data is None and self.path:
             try:

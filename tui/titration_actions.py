@@ -52,7 +52,9 @@ class TitrationActions:
         plot = self.query_one("#titration-plot", TitrationPlot)
         plot.display = True
         plot.show(curve, report.water, report.scenario.target)
-        self.query_one(TabbedContent).active = "titration"
+        tabs = self.query_one(TabbedContent)
+        tabs.show_tab("titration")          # hidden until a titration is loaded
+        tabs.active = "titration"
         gap = report.gap
         self.status = (f"titration {path}: model {gap:+.0%} against direct scaling"
                        if gap is not None else f"titration {path} loaded")

@@ -25,11 +25,12 @@ from .widgets.curve import CurvePlot
 from .widgets.dose import DosePanel
 from .widgets.sweep import SweepTable
 from .widgets.train import TrainPanel
+from .widgets.trend import TREND_HOURS, TrendPanel
 
 __all__ = ["ViewRendering", "VIEWS"]
 
 #: The views drawn from a plan, by tab id.
-VIEWS = ("dose", "curve", "sweep", "sheet", "train")
+VIEWS = ("dose", "curve", "sweep", "sheet", "train", "trend")
 
 
 class ViewRendering:
@@ -37,6 +38,7 @@ class ViewRendering:
 
     _dirty: set[str]
     _sweep_token: int
+    _trend_token = 0
     sweep = None
     """The last sweep planned for :attr:`plan` (None until it is ready)."""
     last_show_ms = 0.0
@@ -102,6 +104,35 @@ class ViewRendering:
             return False
         return True
 
+    def _draw_trend(self) -> None:
+        """A short simulation of the form's design, run in a worker thread."""
+        from dosing.planning.simulate_design import simulation_refusal
+        panel = self.query_one(TrendPanel)
+        refusal = simulation_refusal(self.scenario)
+        if refusal:
+            panel.say(f"No trend: {refusal[1]}.")
+            return
+        panel.say(f"simulating {TREND_HOURS:g} h of made-up disturbances, 1 and 2 stages...")
+        self._trend_token += 1
+        token, s, plan = self._trend_token, self.scenario, self.plan
+
+        def work() -> None:
+            try:
+                result = trend_simulation(s, plan)
+            except DosingError as err:
+                result = str(err)
+            self.call_from_thread(self._trended, token, result)
+        self.run_worker(work, thread=True, exclusive=True, group="trend")
+
+    def _trended(self, token: int, result) -> None:
+        if token != self._trend_token:
+            return                           # the form has moved on
+        panel = self.query_one(TrendPanel)
+        if isinstance(result, str):
+            panel.say(f"No trend: {result}")
+        else:
+            panel.show(result, self.units)
+
     def _sheet_width(self) -> int:
         """Columns the sheet may use in its pane (78 until the pane is laid out)."""
         width = self.query_one("#views").size.width
@@ -155,3 +186,14 @@ class ViewRendering:
     def on_select_changed(self, event: Select.Changed) -> None:
         if event.select.id == "compare":
             self._start_sweep()
+
+
+def trend_simulation(scenario, plan):
+    """The Trend view's simulation: 1 and 2 stages, tight, with feedforward."""
+    from dosing.planning.simulate_design import DesignChoice, simulate
+    from dosing.planning.simulate_influent import synthetic_influent
+    influent = synthetic_influent(scenario, TREND_HOURS, seed=1)
+    residence = plan.control.stages[0].residence_min if plan.control else 10.0
+    return simulate(scenario, influent,
+                    [DesignChoice(n, "tight", True, residence) for n in (1, 2)],
+                    source="made-up disturbances", control=plan.control)

@@ -35,7 +35,7 @@ from ..errors import InputError
 from .simulate import Design, StageSpec
 
 __all__ = ["DesignChoice", "TUNINGS", "build_design", "PUMP_TURNDOWN", "PUMP_HEADROOM",
-           "Simulation", "simulate"]
+           "Simulation", "simulate", "simulation_refusal"]
 
 #: tau_c as a multiple of the dead time, per tuning name (Skogestad 2003).
 TUNINGS = {"tight": 1.0, "smooth": 3.0}
@@ -158,3 +158,20 @@ def simulate(scenario, influent, choices, *, source: str, rows_held: int = 0,
     return Simulation(scenario.title, source, float(influent.dt_s.sum()) / 3600.0, step_s,
                       int(influent.t_s.size), rows_held, window, scenario.target.ph_aim,
                       scenario.reagent, static_reagent_mol(influent, scenario), tuple(runs))
+
+
+def simulation_refusal(scenario) -> tuple[str, str] | None:
+    """(scenario key, why) when a scenario cannot be simulated, else None."""
+    from .basis import Flow
+    if scenario.train:
+        return "[[step]]", ("simulate runs one dosing point per stage; a treatment train "
+                            "is not simulated")
+    if not isinstance(scenario.basis, Flow):
+        return "[flow]", ("simulate needs a continuous stream: give [flow] m3_per_h "
+                          "instead of [batch]")
+    slow = scenario.reagent.compound.formula in ("Ca(OH)2", "CaO", "Mg(OH)2", "CaCO3")
+    if scenario.reagent.form != "liquid" or slow:
+        return "reagent", (f"{scenario.reagent.name} is a slurry or a solid that dissolves "
+                           "over minutes, which the simulation does not model; simulate "
+                           "with a liquid product")
+    return None

@@ -87,12 +87,13 @@ def render_simulation(sim, units: str = "metric", width: int = 78) -> str:
     u = UNIT_SYSTEMS[units]
     data = simulation_dict(sim)
     lo, hi = sim.window
-    out = [f"SIMULATION  {sim.title}  [{sim.reagent.id}]", "=" * 40]
+    out = wrap(f"SIMULATION  {sim.title}  [{sim.reagent.id}]", width, "")
+    out += ["=" * min(40, width)]
     out += hanging("influent", f"{sim.source}: {sim.rows:,} rows over {fmt(sim.hours)} h"
                    + (f", {sim.rows_held:,} held from the row before" if sim.rows_held
                       else "") + f"; step {fmt(sim.step_s)} s", width, indent=10)
     out += [f"window    pH {fmt(lo)} to {fmt(hi)}, aim {fmt(sim.aim)}", ""]
-    out += _table(sim, data, u)
+    out += _table(sim, data, u, width)
     for d in data["designs"]:
         out += ["", d["name"].upper()]
         for k, st in enumerate(d["stages"], start=1):
@@ -110,19 +111,40 @@ def render_simulation(sim, units: str = "metric", width: int = 78) -> str:
     return "\n".join(out) + "\n"
 
 
-def _table(sim, data, u) -> list[str]:
-    """One line per design: time outside, excursions, reagent."""
-    head = f"  {'design':<32} {'outside':>9} {'events':>6} {'reagent ' + u.mass:>12} {'vs exact':>9}"
-    rows = [head]
+def _table(sim, data, u, width: int = 78) -> list[str]:
+    """One line per design: time outside, excursions, reagent (two lines
+    each where the columns do not fit the width)."""
+    exact = "dosed exactly (replay)"
+    w = max([len(d["name"]) for d in data["designs"]] + [len(exact)])
+    if w + 41 > width:
+        return _narrow_table(data, u, width)
+    rows = [f"  {'design':<{w}} {'outside':>8} {'events':>6} {'reagent ' + u.mass:>11} "
+            f"{'vs exact':>8}"]
     for d in data["designs"]:
         kg = d["reagent_kg_product"]
         reagent = fmt(kg * u.mass_per_kg) if kg is not None else "n/a"
         ratio = f"{d['reagent_vs_static']:.3f}" if d["reagent_vs_static"] else "n/a"
-        rows.append(f"  {d['name'][:32]:<32} {d['outside_fraction']:>8.2%} "
-                    f"{d['excursions']:>6} {reagent:>12} {ratio:>9}")
+        rows.append(f"  {d['name']:<{w}} {d['outside_fraction']:>8.2%} "
+                    f"{d['excursions']:>6} {reagent:>11} {ratio:>8}")
     kg = data["static_reagent_kg_product"]
-    rows.append(f"  {'every row dosed exactly (replay)':<32} {'':>9} {'':>6} "
-                f"{fmt(kg * u.mass_per_kg) if kg is not None else 'n/a':>12} {'1.000':>9}")
+    rows.append(f"  {exact:<{w}} {'':>8} {'':>6} "
+                f"{fmt(kg * u.mass_per_kg) if kg is not None else 'n/a':>11} {'1.000':>8}")
+    return rows
+
+
+def _narrow_table(data, u, width: int) -> list[str]:
+    """The comparison for a narrow pane: each design's name, then its figures."""
+    rows = []
+    for d in data["designs"]:
+        kg = d["reagent_kg_product"]
+        reagent = f"{fmt(kg * u.mass_per_kg)} {u.mass}" if kg is not None else "n/a"
+        ratio = f" ({d['reagent_vs_static']:.3f} of exact)" if d["reagent_vs_static"] else ""
+        rows.append(f"  {d['name']}")
+        rows += wrap(f"outside {d['outside_fraction']:.2%}, {d['excursions']} events, "
+                     f"{reagent}{ratio}", width, "      ")
+    kg = data["static_reagent_kg_product"]
+    if kg is not None:
+        rows += ["  dosed exactly (replay)", f"      {fmt(kg * u.mass_per_kg)} {u.mass}"]
     return rows
 
 

@@ -17,7 +17,7 @@ Change any value on the left: the dose is planned again at once.
 | key | does |
 |---|---|
 | Tab / Shift+Tab | next / previous field |
-| F2 F3 F4 F5 F9 | Dose, Curve, Sweep, Sheet and Train views (or click a tab) |
+| F2 F3 F4 F5 F9 F10 | Dose, Curve, Sweep, Sheet, Train and Trend views (or click a tab) |
 | PgUp / PgDn | scroll the view on the right (wherever the cursor is) |
 | Ctrl+O | open a scenario file |
 | Ctrl+S | save the scenario (TOML, same as `dosing plan` reads) |
@@ -41,6 +41,12 @@ last valid plan stays on screen, marked as such.
 **Sweep** shows the product for tank sizes (or flows) around yours at each
 strength it is sold or made up at, and the product in *compare with*
 beside it (`dosing sweep` prints the same grid, and writes it as CSV).
+
+**Trend** (F10, a continuous stream only) simulates four hours of made-up
+disturbances through one stage and two (tanks, probe, pump and
+controller) and draws the discharge pH of each against the window, with
+the comparison under it; `dosing simulate` runs longer records, logged
+data and more designs.
 
 **F6** switches the units of the fields too: °F, gallons or gpm, lb/gal and
 price per lb; the file keeps SI units.
