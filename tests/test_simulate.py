@@ -262,3 +262,20 @@ def test_the_exact_step_loop_agrees_with_scipy_solve_ivp(feedforward, step, tol)
     run = run_design(inf, design, s.reagent.vector(), True, (6.0, 10.0), step)
     assert np.abs(np.interp(t_ref, run.t_s, run.ph[0]) - ph_ref).max() < tol
     assert np.ptp(ph_ref) > 0.02                      # the loop had something to do
+
+
+def test_designs_run_side_by_side_as_each_alone():
+    # Every tank of every design is solved in one call per step; each
+    # design's run is the one it has alone.
+    from dosing.planning.simulate import run_designs
+    from dosing.planning.simulate_design import build_design
+    s, plan = _food()
+    inf = synthetic_influent(s, 1.5, seed=3)
+    mix0 = mixture_of(inf.state[0], inf.temperature_c[0], inf.activity, inf.unknown_pka)
+    designs = [build_design(DesignChoice(n, t, ff), s, mix0, 1.3, 10.0, plan.control)
+               for n, t, ff in ((1, "tight", True), (2, "smooth", True), (1, "tight", False))]
+    together = run_designs(inf, designs, s.reagent.vector(), True, (6.0, 10.0), 10.0)
+    for design, run in zip(designs, together):
+        alone = run_design(inf, design, s.reagent.vector(), True, (6.0, 10.0), 10.0)
+        assert run.ph == pytest.approx(alone.ph, abs=1e-9)
+        assert run.reagent_mol == pytest.approx(alone.reagent_mol, rel=1e-9)

@@ -43,7 +43,7 @@ from ..chem.columns import N_SYSTEMS
 from ..chem.mixture import ReagentVector
 
 __all__ = ["INVARIANTS", "Influent", "StageSpec", "Design", "Excursion", "DesignRun",
-           "invariants_of", "reagent_invariants", "mixture_of", "run_design"]
+           "invariants_of", "reagent_invariants", "mixture_of", "run_design", "run_designs"]
 
 #: Columns of a tank state: each system's total, strong-ion balance [eq/L]
 #: and the ionic strength of the strong ions [mol/L].
@@ -205,48 +205,84 @@ def _start(design: Design, first: np.ndarray, temp: float, activity, pka, r_inv,
     return np.array(states), ph, integrals
 
 
-def run_design(influent: Influent, design: Design, reagent: ReagentVector, raises_ph: bool,
-               window: tuple[float, float], step_s: float) -> DesignRun:
-    """Run one design over the influent record."""
-    r_inv, v_r = reagent_invariants(reagent), reagent.volume_l
-    n_st = len(design.stages)
-    vol_l = np.array([st.volume_m3 * 1000.0 for st in design.stages])
-    temp0 = float(influent.temperature_c[0])
-    c, ph, integ = _start(design, influent.state[0], temp0, influent.activity,
-                          influent.unknown_pka, r_inv, v_r)
-    measured = ph.copy()
-    delays = [deque([p] * max(0, round(st.delay_s / step_s)))
-              for st, p in zip(design.stages, ph)]
-    run = DesignRun(design, *(np.empty(0),) * 5)
-    run.held_start = c * vol_l[:, None]
-    trace = _Trace()
-    sign = 1.0 if raises_ph else -1.0
+class _Loop:
+    """One design's tanks, probes and controllers as a run goes."""
+
+    def __init__(self, design: Design, influent: Influent, reagent: ReagentVector,
+                 raises_ph: bool, step_s: float):
+        self.design, self.influent = design, influent
+        self.r_inv, self.v_r = reagent_invariants(reagent), reagent.volume_l
+        self.vol_l = np.array([st.volume_m3 * 1000.0 for st in design.stages])
+        self.c, self.ph, self.integ = _start(
+            design, influent.state[0], float(influent.temperature_c[0]), influent.activity,
+            influent.unknown_pka, self.r_inv, self.v_r)
+        self.measured = self.ph.copy()
+        self.delays = [deque([p] * max(0, round(st.delay_s / step_s)))
+                       for st, p in zip(design.stages, self.ph)]
+        self.sign = 1.0 if raises_ph else -1.0
+        self.run = DesignRun(design, *(np.empty(0),) * 5)
+        self.run.held_start = self.c * self.vol_l[:, None]
+        self.trace = _Trace()
+        self.rates = np.zeros(len(design.stages))
+
+    def advance(self, i: int, h: float) -> None:
+        """Controllers and tanks over one step of influent row ``i``."""
+        inf, run = self.influent, self.run
+        q = inf.flow_m3_h[i] * _L_S_PER_M3_H
+        ratio = inf.flow_m3_h[i] / self.design.nominal_flow_m3_h
+        c_in, q_in = inf.state[i], q
+        run.entered += q * c_in * h
+        for k, st in enumerate(self.design.stages):
+            err = self.sign * (st.setpoint_ph - self.measured[k])
+            u, self.integ[k] = _controller(st, err, self.integ[k], ratio, h)
+            self.rates[k] = u
+            run.entered += u * self.r_inv * h
+            self.c[k], mean = tank_step(self.c[k], c_in, q_in, u, self.r_inv, self.v_r,
+                                        self.vol_l[k], h)
+            c_in, q_in = mean, q_in + u * self.v_r
+        run.left += q_in * c_in * h
+        run.reagent_mol += float(self.rates.sum()) * h
+
+    def observe(self, ph: np.ndarray, h: float, t: float) -> None:
+        """The tanks' new pH: probes read it, the trace keeps it."""
+        self.ph = ph
+        _read_probes(self.design, ph, self.measured, self.delays, h)
+        self.trace.add(t, h, ph, self.measured, self.rates)
+
+    def finish(self, window) -> DesignRun:
+        self.run.held_end = self.c * self.vol_l[:, None]
+        return _finish(self.run, self.trace, window)
+
+
+def run_designs(influent: Influent, designs, reagent: ReagentVector, raises_ph: bool,
+                window: tuple[float, float], step_s: float) -> list[DesignRun]:
+    """Run several designs over the same influent record, side by side: each
+    step solves the pH of every tank of every design at once."""
+    loops = [_Loop(d, influent, reagent, raises_ph, step_s) for d in designs]
+    ends = np.cumsum([len(d.stages) for d in designs])
+    spans = list(zip(np.concatenate([[0], ends[:-1]]), ends))
+    ph = np.concatenate([lp.ph for lp in loops])
     t = 0.0
     for i in range(influent.t_s.size):
         n_sub = max(1, round(influent.dt_s[i] / step_s))
         h = influent.dt_s[i] / n_sub
-        q = influent.flow_m3_h[i] * _L_S_PER_M3_H
-        ratio = influent.flow_m3_h[i] / design.nominal_flow_m3_h
         temp = influent.temperature_c[i]
         for _ in range(n_sub):
-            c_in, q_in = influent.state[i], q
-            run.entered += q * influent.state[i] * h
-            rates = np.zeros(n_st)
-            for k, st in enumerate(design.stages):
-                err = sign * (st.setpoint_ph - measured[k])
-                rates[k], integ[k] = _controller(st, err, integ[k], ratio, h)
-                run.entered += rates[k] * r_inv * h
-                c[k], mean = tank_step(c[k], c_in, q_in, rates[k], r_inv, v_r, vol_l[k], h)
-                c_in, q_in = mean, q_in + rates[k] * v_r
-            run.left += q_in * c_in * h
-            ph = solve_ph(mixture_of(c, temp, influent.activity, influent.unknown_pka),
+            for lp in loops:
+                lp.advance(i, h)
+            states = np.concatenate([lp.c for lp in loops])
+            ph = solve_ph(mixture_of(states, temp, influent.activity, influent.unknown_pka),
                           ph_guess=ph)
-            _read_probes(design, ph, measured, delays, h)
             t += h
-            run.reagent_mol += float(rates.sum()) * h
-            trace.add(t, h, ph, measured, rates)
-    run.held_end = c * vol_l[:, None]
-    return _finish(run, trace, window)
+            for lp, (a, b) in zip(loops, spans):
+                lp.observe(ph[a:b], h, t)
+    return [lp.finish(window) for lp in loops]
+
+
+def run_design(influent: Influent, design: Design, reagent: ReagentVector, raises_ph: bool,
+               window: tuple[float, float], step_s: float) -> DesignRun:
+    """Run one design over the influent record."""
+    return run_designs(influent, [design], reagent, raises_ph, window, step_s)[0]
 
 
 def _read_probes(design: Design, ph, measured, delays, h: float) -> None:

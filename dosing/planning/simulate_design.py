@@ -141,7 +141,7 @@ class Simulation:
 def simulate(scenario, influent, choices, *, source: str, rows_held: int = 0,
              step_s: float = 10.0, control=None) -> Simulation:
     """Run each design choice over ``influent`` for a flow scenario."""
-    from .simulate import mixture_of, run_design
+    from .simulate import mixture_of, run_designs
     from .simulate_influent import static_reagent_mol
     if not 1.0 <= step_s <= 600.0:
         raise InputError("step_s", f"{step_s:g} s; allowed: 1 to 600 s")
@@ -150,11 +150,10 @@ def simulate(scenario, influent, choices, *, source: str, rows_held: int = 0,
     q = scenario.basis.m3_per_h
     high = max(float(np.max(influent.flow_m3_h)), (scenario.flow_range_m3_h or (q, q))[1])
     window = (scenario.target.ph_min, scenario.target.ph_max)
-    runs = []
-    for choice in choices:
-        design = build_design(choice, scenario, mix0, high / q, step_s, control)
-        runs.append(run_design(influent, design, scenario.reagent.vector(),
-                               scenario.reagent.raises_ph, window, step_s))
+    designs = [build_design(choice, scenario, mix0, high / q, step_s, control)
+               for choice in choices]
+    runs = run_designs(influent, designs, scenario.reagent.vector(),
+                       scenario.reagent.raises_ph, window, step_s)
     return Simulation(scenario.title, source, float(influent.dt_s.sum()) / 3600.0, step_s,
                       int(influent.t_s.size), rows_held, window, scenario.target.ph_aim,
                       scenario.reagent, static_reagent_mol(influent, scenario), tuple(runs))
