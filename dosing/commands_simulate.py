@@ -45,6 +45,11 @@ def add_parser(sub) -> None:
     s.add_argument("--probe-lag-s", type=float, default=30.0, help="probe lag (default 30 s)")
     s.add_argument("--delay-s", type=float, default=10.0,
                    help="dosing point to probe transport delay (default 10 s)")
+    s.add_argument("--probe-noise-ph", type=float, default=0.0,
+                   help="random noise on each probe reading, standard deviation in pH "
+                   "(default 0)")
+    s.add_argument("--probe-drift-ph-per-day", type=float, default=0.0,
+                   help="calibration drift of the probes, pH per day (default 0)")
     s.add_argument("--json", action="store_true", help="print the comparison as JSON")
     s.add_argument("--plot", metavar="FILE.png", help="write the discharge pH and pump "
                    "rate of each design against the window")
@@ -71,7 +76,8 @@ def _choices(args, residence_min: float):
     if not tunings or not set(tunings) <= set(TUNINGS):
         raise UsageError("--tunings", f"{args.tunings!r}; allowed: {', '.join(TUNINGS)}")
     feeds = (True, False) if args.without_feedforward else (True,)
-    return [DesignChoice(n, t, ff, residence_min, args.probe_lag_s, args.delay_s)
+    return [DesignChoice(n, t, ff, residence_min, args.probe_lag_s, args.delay_s,
+                         args.probe_noise_ph, args.probe_drift_ph_per_day / 24.0)
             for ff in feeds for n in stages for t in tunings]
 
 
@@ -111,6 +117,8 @@ def cmd_simulate(args) -> int:
     step = _range("--step-s", args.step_s, 1.0, 600.0, "s")
     _range("--probe-lag-s", args.probe_lag_s, 0.0, 3600.0, "s")
     _range("--delay-s", args.delay_s, 0.0, 3600.0, "s")
+    _range("--probe-noise-ph", args.probe_noise_ph, 0.0, 1.0, "pH")
+    _range("--probe-drift-ph-per-day", args.probe_drift_ph_per_day, -5.0, 5.0, "pH/day")
     scenario = _scenario(args.scenario)
     plan = make_plan(scenario, sampled=False)
     residence = args.residence_min if args.residence_min is not None else (

@@ -279,3 +279,26 @@ def test_designs_run_side_by_side_as_each_alone():
         alone = run_design(inf, design, s.reagent.vector(), True, (6.0, 10.0), 10.0)
         assert run.ph == pytest.approx(alone.ph, abs=1e-9)
         assert run.reagent_mol == pytest.approx(alone.reagent_mol, rel=1e-9)
+
+
+def test_a_drifting_probe_leads_the_loop_off_by_its_drift():
+    # A steady influent and a probe that drifts 0.4 pH an hour: the loop
+    # holds the reading at the set-point, so the tank ends about 0.4 pH per
+    # hour below it (a ramp the PI loop follows with a small lag).
+    from dosing.planning.simulate_design import build_design
+    s, plan = _food()
+    inf = synthetic_influent(s, 3.0, seed=1)
+    inf = Influent(inf.t_s, inf.dt_s, np.full_like(inf.flow_m3_h, inf.flow_m3_h[0]),
+                   np.repeat(inf.state[:1], inf.t_s.size, axis=0), inf.temperature_c,
+                   inf.held, inf.activity, inf.unknown_pka)
+    mix0 = mixture_of(inf.state[0], inf.temperature_c[0], inf.activity, inf.unknown_pka)
+    choice = DesignChoice(1, "tight", probe_drift_ph_per_h=0.4, probe_noise_ph=0.01)
+    design = build_design(choice, s, mix0, 1.0, 10.0, plan.control)
+    run = run_design(inf, design, s.reagent.vector(), True, (6.0, 10.0), 10.0)
+    assert run.ph[0, -1] == pytest.approx(s.target.ph_aim - 0.4 * 3.0, abs=0.05)
+    # The reading stays near the set-point: a PI loop follows a ramp with a
+    # constant lag, here a few hundredths above it as the drift rises.
+    offset = (run.measured_ph[0][-60:] - s.target.ph_aim).mean()
+    assert 0.0 < offset < 0.05
+    again = run_design(inf, design, s.reagent.vector(), True, (6.0, 10.0), 10.0)
+    assert np.array_equal(again.measured_ph, run.measured_ph)       # seeded noise

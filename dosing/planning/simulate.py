@@ -20,7 +20,8 @@ c) feeds the next stage. Tanks are closed to air and well mixed;
 precipitation is instant.
 
 The probe reads the tank's pH after an optional transport delay through a
-first-order lag. The pump delivers 0 or between its minimum and maximum
+first-order lag, plus a calibration drift growing with time and a seeded
+random noise on each reading (both optional). The pump delivers 0 or between its minimum and maximum
 rate. The controller is PI (a P controller with ``ti_s`` infinite) on the
 pH error, in % of the stage's nominal rate, with an optional ratio
 feedforward from the influent flow and conditional integration (no
@@ -33,6 +34,7 @@ Pure: arrays in, results out (:class:`DesignRun`).
 from __future__ import annotations
 
 import math
+import zlib
 from collections import deque
 from dataclasses import dataclass, field
 
@@ -81,6 +83,8 @@ class StageSpec:
     manual_pct: float = 0.0     #: a fixed output added to the controller's [%]
     delay_s: float = 0.0        #: dosing point to probe
     probe_lag_s: float = 30.0   #: first-order lag of the probe
+    probe_noise_ph: float = 0.0     #: standard deviation of each reading's noise [pH]
+    probe_drift_ph_per_h: float = 0.0   #: calibration drift of the probe [pH/h]
     tuning: str = ""            #: the rule kc and ti come from ("SIMC tight"), or ""
     gain_ph_per_pct: float = 0.0    #: process gain at the set-point [pH per % of rate]
 
@@ -209,14 +213,16 @@ class _Loop:
     """One design's tanks, probes and controllers as a run goes."""
 
     def __init__(self, design: Design, influent: Influent, reagent: ReagentVector,
-                 raises_ph: bool, step_s: float):
+                 raises_ph: bool, step_s: float, seed: int = 0):
         self.design, self.influent = design, influent
         self.r_inv, self.v_r = reagent_invariants(reagent), reagent.volume_l
         self.vol_l = np.array([st.volume_m3 * 1000.0 for st in design.stages])
         self.c, self.ph, self.integ = _start(
             design, influent.state[0], float(influent.temperature_c[0]), influent.activity,
             influent.unknown_pka, self.r_inv, self.v_r)
-        self.measured = self.ph.copy()
+        self.measured = self.ph.copy()      # the probe's lagged view of the tank
+        self.reading = self.ph.copy()       # what it reports: plus drift and noise
+        self.rng = np.random.default_rng(seed)
         self.delays = [deque([p] * max(0, round(st.delay_s / step_s)))
                        for st, p in zip(design.stages, self.ph)]
         self.sign = 1.0 if raises_ph else -1.0
@@ -233,7 +239,7 @@ class _Loop:
         c_in, q_in = inf.state[i], q
         run.entered += q * c_in * h
         for k, st in enumerate(self.design.stages):
-            err = self.sign * (st.setpoint_ph - self.measured[k])
+            err = self.sign * (st.setpoint_ph - self.reading[k])
             u, self.integ[k] = _controller(st, err, self.integ[k], ratio, h)
             self.rates[k] = u
             run.entered += u * self.r_inv * h
@@ -247,7 +253,10 @@ class _Loop:
         """The tanks' new pH: probes read it, the trace keeps it."""
         self.ph = ph
         _read_probes(self.design, ph, self.measured, self.delays, h)
-        self.trace.add(t, h, ph, self.measured, self.rates)
+        for k, st in enumerate(self.design.stages):
+            noise = self.rng.normal(0.0, st.probe_noise_ph) if st.probe_noise_ph > 0 else 0.0
+            self.reading[k] = self.measured[k] + st.probe_drift_ph_per_h * t / 3600.0 + noise
+        self.trace.add(t, h, ph, self.reading, self.rates)
 
     def finish(self, window) -> DesignRun:
         self.run.held_end = self.c * self.vol_l[:, None]
@@ -258,7 +267,10 @@ def run_designs(influent: Influent, designs, reagent: ReagentVector, raises_ph: 
                 window: tuple[float, float], step_s: float) -> list[DesignRun]:
     """Run several designs over the same influent record, side by side: each
     step solves the pH of every tank of every design at once."""
-    loops = [_Loop(d, influent, reagent, raises_ph, step_s) for d in designs]
+    # Each design's probe noise from its own generator, seeded by its name:
+    # a design reads the same noise alone or beside others.
+    loops = [_Loop(d, influent, reagent, raises_ph, step_s, zlib.crc32(d.name.encode()))
+             for d in designs]
     ends = np.cumsum([len(d.stages) for d in designs])
     spans = list(zip(np.concatenate([[0], ends[:-1]]), ends))
     ph = np.concatenate([lp.ph for lp in loops])

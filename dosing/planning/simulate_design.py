@@ -57,6 +57,8 @@ class DesignChoice:
     residence_min: float = 10.0
     probe_lag_s: float = 30.0
     delay_s: float = 10.0
+    probe_noise_ph: float = 0.0
+    probe_drift_ph_per_h: float = 0.0
 
     @property
     def name(self) -> str:
@@ -117,6 +119,8 @@ def build_design(choice: DesignChoice, scenario, mix, flow_max_ratio: float,
             pump_max_mol_s=pump_max, pump_min_mol_s=pump_max / PUMP_TURNDOWN,
             kc_pct_per_ph=kc, ti_s=ti, feedforward=choice.feedforward,
             delay_s=choice.delay_s, probe_lag_s=choice.probe_lag_s,
+            probe_noise_ph=choice.probe_noise_ph,
+            probe_drift_ph_per_h=choice.probe_drift_ph_per_h,
             tuning=f"SIMC {choice.tuning}", gain_ph_per_pct=gain))
     return Design(choice.name, tuple(stages), q_nom)
 

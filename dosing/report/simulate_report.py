@@ -18,8 +18,8 @@ __all__ = ["render_simulation", "simulation_dict", "ASSUMPTIONS"]
 #: What every simulation assumes, said on the sheet and in the JSON.
 ASSUMPTIONS = (
     "each tank well mixed and closed to air; precipitation instant; the reagent mixes at once",
-    "the probe reads through a first-order lag after its transport delay; no fouling, "
-    "drift or noise",
+    "the probe reads through a first-order lag after its transport delay, with the "
+    "drift and noise given (none unless asked for); no fouling",
     "the influent holds each row's reading until the next; a missing or implausible row "
     "holds the one before",
     "metals, their complexes and solids are at the engine's equilibrium at every step: "
@@ -56,6 +56,8 @@ def _design_dict(sim, run) -> dict:
                        "ti_s": st.ti_s, "process_gain_ph_per_percent": st.gain_ph_per_pct,
                        "feedforward": st.feedforward, "probe_lag_s": st.probe_lag_s,
                        "delay_s": st.delay_s, "pump_max_mol_s": st.pump_max_mol_s,
+                       "probe_noise_ph": st.probe_noise_ph,
+                       "probe_drift_ph_per_day": st.probe_drift_ph_per_h * 24.0,
                        "pump_at_max_fraction": at_max / run.total_s,
                        "pump_stopped_fraction": stopped / run.total_s,
                        "ph_min": float(run.ph[k].min()), "ph_max": float(run.ph[k].max())})
@@ -155,6 +157,17 @@ def _stage_text(st: dict, u) -> str:
             f"{fmt(st['kc_percent_per_ph'])} % per pH, Ti {fmt(st['ti_s'])} s (process gain "
             f"{fmt(st['process_gain_ph_per_percent'])} pH per %); "
             f"{'ratio feedforward from the flow; ' if st['feedforward'] else ''}"
+            f"{_probe_text(st)}"
             f"pump at its maximum {st['pump_at_max_fraction']:.1%} of the time, stopped "
             f"{st['pump_stopped_fraction']:.1%}; pH {fmt(st['ph_min'], 3)} to "
             f"{fmt(st['ph_max'], 3)}")
+
+
+def _probe_text(st: dict) -> str:
+    """The probe's drift and noise, when there are any."""
+    parts = []
+    if st["probe_drift_ph_per_day"]:
+        parts.append(f"probe drifting {fmt(st['probe_drift_ph_per_day'])} pH a day")
+    if st["probe_noise_ph"]:
+        parts.append(f"reading noise {fmt(st['probe_noise_ph'])} pH")
+    return "; ".join(parts) + "; " if parts else ""
