@@ -18,14 +18,18 @@ from .report.numbers import require_finite, to_json
 
 __all__ = ["add_parser", "cmd_simulate"]
 
-#: Most integration steps one design may take (about half an hour at 1 ms a step).
-MAX_STEPS = 2_000_000
 
 
 def add_parser(sub) -> None:
     s = sub.add_parser("simulate", help="simulate tanks, probe, pump and controller over "
                        "time and compare designs")
-    s.add_argument("scenario", help="flow scenario: water model, reagent, window")
+    s.add_argument("scenario", nargs="?", help="flow scenario: water model, reagent, window")
+    s.add_argument("--fleet", metavar="FLEET.toml", help="simulate every site of a fleet "
+                   "file (as replay --fleet reads) on Dask, each site's record one task")
+    s.add_argument("--workers", type=int, metavar="N",
+                   help="local Dask workers for --fleet (default: one per core)")
+    s.add_argument("--scheduler", metavar="ADDRESS",
+                   help="run --fleet on this Dask cluster")
     s.add_argument("--data", nargs="+", metavar="FILE", help="logged record (CSV or "
                    "Parquet with timestamp, flow and pH, as replay reads); default: made-up "
                    "disturbances around the scenario's stream")
@@ -105,10 +109,32 @@ def _influent(args, scenario):
     return influent, held, ", ".join(files)
 
 
+def _fleet(args, step: float) -> int:
+    """``--fleet``: every site's record, each one task on Dask."""
+    from .io.fleet import dask_client, load_fleet
+    from .simulate_fleet import check_sites, simulate_sites
+    from .report.simulate_report import render_fleet_simulation
+    if args.scenario or args.data or args.plot:
+        raise UsageError("--fleet", "the fleet file names each site's scenario and data; "
+                         "leave out the scenario, --data and --plot")
+    if args.workers is not None and not 1 <= args.workers <= 256:
+        raise UsageError("--workers", "allowed: 1 to 256")
+    sites = load_fleet(args.fleet)
+    check_sites(args.fleet, sites)
+    choices = _choices(args, args.residence_min)
+    with dask_client(args.scheduler, args.workers) as client:
+        results = simulate_sites(sites, client, choices, step)
+    data = {"fleet": args.fleet, "sites": results}
+    require_finite(data, f"{args.fleet}: fleet simulation")
+    sys.stdout.write(to_json(data) if args.json
+                     else render_fleet_simulation(args.fleet, results, args.units))
+    return 0
+
+
 def cmd_simulate(args) -> int:
     """Handler of ``dosing simulate``."""
     from .planning.job import make_plan
-    from .planning.simulate_design import simulate
+    from .planning.simulate_design import MAX_STEPS, simulate
     from .report.simulate_report import render_simulation, simulation_dict
     if args.plot and not args.plot.lower().endswith(".png"):
         raise ScenarioError(args.plot, "", "give a file name ending in .png")
@@ -119,6 +145,12 @@ def cmd_simulate(args) -> int:
     _range("--delay-s", args.delay_s, 0.0, 3600.0, "s")
     _range("--probe-noise-ph", args.probe_noise_ph, 0.0, 1.0, "pH")
     _range("--probe-drift-ph-per-day", args.probe_drift_ph_per_day, -5.0, 5.0, "pH/day")
+    if args.residence_min is not None:
+        _range("--residence-min", args.residence_min, 0.5, 240.0, "min")
+    if args.fleet:
+        return _fleet(args, step)
+    if not args.scenario:
+        raise UsageError("simulate", "give the flow scenario, or --fleet FLEET.toml")
     scenario = _scenario(args.scenario)
     plan = make_plan(scenario, sampled=False)
     residence = args.residence_min if args.residence_min is not None else (
@@ -131,9 +163,8 @@ def cmd_simulate(args) -> int:
         raise UsageError("--probe-lag-s", "the probe's lag and delay are longer than the "
                          "record: give a longer record or a faster probe")
     if seconds / step > MAX_STEPS:
-        raise UsageError("--step-s", f"the record needs {seconds / step:,.0f} steps per "
-                         f"design, beyond {MAX_STEPS:,}: simulate a part of it, or a longer "
-                         "step")
+        raise UsageError("--step-s", f"the record needs {seconds / step:,.0f} steps, "
+                         f"beyond {MAX_STEPS:,}: simulate a part of it, or a longer step")
     sim = simulate(scenario, influent, choices, source=source, rows_held=held, step_s=step,
                    control=plan.control)
     data = simulation_dict(sim)

@@ -43,6 +43,8 @@ TUNINGS = {"tight": 1.0, "smooth": 3.0}
 PUMP_TURNDOWN = 100.0
 #: Pump maximum over the nominal rate at the highest flow (common practice).
 PUMP_HEADROOM = 2.0
+#: Most integration steps one run may take (about an hour at 1.5 ms a step).
+MAX_STEPS = 2_000_000
 #: Share of the dose in the first of two stages without a control design's split.
 _FIRST_SHARE = 0.9
 
@@ -54,7 +56,7 @@ class DesignChoice:
     stages: int = 1
     tuning: str = "tight"
     feedforward: bool = True
-    residence_min: float = 10.0
+    residence_min: float | None = 10.0     #: None: the site's control design's (fleet)
     probe_lag_s: float = 30.0
     delay_s: float = 10.0
     probe_noise_ph: float = 0.0
@@ -149,6 +151,12 @@ def simulate(scenario, influent, choices, *, source: str, rows_held: int = 0,
     from .simulate_influent import static_reagent_mol
     if not 1.0 <= step_s <= 600.0:
         raise InputError("step_s", f"{step_s:g} s; allowed: 1 to 600 s")
+    seconds = float(influent.dt_s.sum())
+    if seconds / step_s > MAX_STEPS:
+        raise InputError("data", f"the record needs {seconds / step_s:,.0f} steps, beyond "
+                         f"{MAX_STEPS:,}: simulate a part of it, or a longer step")
+    if any(c.probe_lag_s + c.delay_s >= seconds for c in choices):
+        raise InputError("data", "the probe's lag and delay are longer than the record")
     mix0 = mixture_of(influent.state[0], influent.temperature_c[0], influent.activity,
                       influent.unknown_pka)
     q = scenario.basis.m3_per_h

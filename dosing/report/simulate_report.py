@@ -13,7 +13,7 @@ from .numbers import fmt
 from .text import hanging, wrap
 from .units import UNIT_SYSTEMS
 
-__all__ = ["render_simulation", "simulation_dict", "ASSUMPTIONS"]
+__all__ = ["render_simulation", "render_fleet_simulation", "simulation_dict", "ASSUMPTIONS"]
 
 #: What every simulation assumes, said on the sheet and in the JSON.
 ASSUMPTIONS = (
@@ -95,7 +95,7 @@ def render_simulation(sim, units: str = "metric", width: int = 78) -> str:
                    + (f", {sim.rows_held:,} held from the row before" if sim.rows_held
                       else "") + f"; step {fmt(sim.step_s)} s", width, indent=10)
     out += [f"window    pH {fmt(lo)} to {fmt(hi)}, aim {fmt(sim.aim)}", ""]
-    out += _table(sim, data, u, width)
+    out += _table(data, u, width)
     for d in data["designs"]:
         out += ["", d["name"].upper()]
         for k, st in enumerate(d["stages"], start=1):
@@ -113,7 +113,7 @@ def render_simulation(sim, units: str = "metric", width: int = 78) -> str:
     return "\n".join(out) + "\n"
 
 
-def _table(sim, data, u, width: int = 78) -> list[str]:
+def _table(data, u, width: int = 78) -> list[str]:
     """One line per design: time outside, excursions, reagent (two lines
     each where the columns do not fit the width)."""
     exact = "dosed exactly (replay)"
@@ -171,3 +171,28 @@ def _probe_text(st: dict) -> str:
     if st["probe_noise_ph"]:
         parts.append(f"reading noise {fmt(st['probe_noise_ph'])} pH")
     return "; ".join(parts) + "; " if parts else ""
+
+
+def render_fleet_simulation(fleet: str, results: dict, units: str = "metric",
+                            width: int = 78) -> str:
+    """Every site's comparison table, then what the simulation assumes and
+    the cautions once (``results``: site name -> :func:`simulation_dict`)."""
+    u = UNIT_SYSTEMS[units]
+    out = wrap(f"FLEET SIMULATION  {fleet}: {len(results)} sites", width, "")
+    out += ["=" * min(40, width)]
+    cautions: list[str] = []
+    for name, data in results.items():
+        out += ["", f"SITE {name}: {data['title']}"]
+        out += hanging("  influent", f"{data['source']}: {data['rows']:,} rows over "
+                       f"{fmt(data['hours'])} h" + (f", {data['rows_held']:,} held"
+                                                    if data["rows_held"] else ""),
+                       width, indent=12)
+        out += _table(data, u, width)
+        cautions += [c for c in data["cautions"] if c not in cautions]
+    out += ["", "WHAT THE SIMULATION ASSUMES"]
+    for a in ASSUMPTIONS:
+        out += wrap(a, width, "  - ")
+    out += ["", "CAUTIONS"]
+    for c in sorted(cautions, key=lambda c: "final word" in c):
+        out += wrap(c, width, "  - ")
+    return "\n".join(out) + "\n"
