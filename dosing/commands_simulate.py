@@ -31,8 +31,8 @@ def add_parser(sub) -> None:
     s.add_argument("--scheduler", metavar="ADDRESS",
                    help="run --fleet on this Dask cluster")
     s.add_argument("--data", nargs="+", metavar="FILE", help="logged record (CSV or "
-                   "Parquet with timestamp, flow and pH, as replay reads); default: made-up "
-                   "disturbances around the scenario's stream")
+                   "Parquet with timestamp, flow and pH, as replay reads); default: the "
+                   "scenario's [[disturbance]] steps and ramps, or made-up ones")
     s.add_argument("--hours", type=float, default=24.0,
                    help="length of the made-up record (default 24)")
     s.add_argument("--seed", type=int, default=1, help="seed of the made-up record")
@@ -96,11 +96,11 @@ def _scenario(path: str):
 
 
 def _influent(args, scenario):
-    from .planning.simulate_influent import record_influent, synthetic_influent
+    from .planning.simulate_influent import made_influent, record_influent
     if not args.data:
         _range("--hours", args.hours, 0.1, 24.0 * 366, "h")
-        return synthetic_influent(scenario, args.hours, args.seed), 0, \
-            f"made-up disturbances (seed {args.seed})"
+        influent, source = made_influent(scenario, args.hours, args.seed)
+        return influent, 0, source
     import pandas as pd
     from .io.replay_io import iter_chunks, site_files
     files = site_files(args.data, where="data")

@@ -302,3 +302,77 @@ def test_a_drifting_probe_leads_the_loop_off_by_its_drift():
     assert 0.0 < offset < 0.05
     again = run_design(inf, design, s.reagent.vector(), True, (6.0, 10.0), 10.0)
     assert np.array_equal(again.measured_ph, run.measured_ph)       # seeded noise
+
+
+DISTURBED = """title = "Dye flume with a morning surge"
+[effluent]
+ph = 10.4
+temperature_c = 32
+alkalinity_mg_l_as_caco3 = 620
+[flow]
+m3_per_h = 22
+[target]
+ph_min = 6
+ph_max = 9
+ph_aim = 7.5
+[reagent]
+id = "hydrochloric-32"
+
+[[disturbance]]
+at_h = 1.0
+flow_m3_h = 33      # the morning surge
+ramp_h = 0.25
+
+[[disturbance]]
+at_h = 2.0
+ph = 11.2           # a caustic rinse reaches the flume
+"""
+
+
+def test_the_scenario_s_steps_and_ramps_are_the_influent():
+    from dosing.io.scenario import parse_scenario
+    from dosing.planning.simulate_influent import scheduled_influent
+    s = parse_scenario(DISTURBED)
+    inf = scheduled_influent(s, 3.0)
+    t_h = inf.t_s / 3600.0
+
+    def at(hours, series):
+        return series[np.argmin(np.abs(t_h - hours))]
+    assert at(0.5, inf.flow_m3_h) == 22.0
+    assert at(1.1, inf.flow_m3_h) == pytest.approx(26.4)          # 40 % up the ramp
+    assert at(1.5, inf.flow_m3_h) == 33.0
+    before, after = at(1.9, inf.state[:, N_SYSTEMS]), at(2.1, inf.state[:, N_SYSTEMS])
+    assert after > before                       # pH 11.2: more strong base in the water
+    assert make_plan(s, sampled=False).dose_mol_l > 0               # the plan ignores them
+
+
+def test_simulate_runs_the_scenario_s_disturbances(tmp_path):
+    path = tmp_path / "surge.toml"
+    path.write_text(DISTURBED)
+    r = run_cli("simulate", str(path), "--hours", "3", "--stages", "1", "--tunings", "tight")
+    assert r.returncode == 0, r.stderr
+    assert "the scenario's 2 disturbances" in r.stdout
+
+
+def test_the_disturbance_tables_survive_a_save():
+    from dosing.io.scenario import parse_toml, scenario_to_toml
+    data = parse_toml(DISTURBED, "x")
+    assert scenario_to_toml(data, DISTURBED) == DISTURBED          # comments and all
+    data["disturbance"][1]["ph"] = 11.5
+    again = parse_toml(scenario_to_toml(data, DISTURBED), "x")
+    assert again["disturbance"][1]["ph"] == 11.5 and again["disturbance"][0]["ramp_h"] == 0.25
+
+
+@pytest.mark.parametrize("table, word", [
+    ("at_h = 1\nspeed = 3", "disturbance[1].speed"),
+    ("flow_m3_h = 30", "disturbance[1].at_h"),
+    ("at_h = 1", "give flow_m3_h, ph or both"),
+    ("at_h = 1\nph = 15", "disturbance[1].ph"),
+    ("at_h = -1\nph = 5", "disturbance[1].at_h"),
+])
+def test_a_bad_disturbance_is_one_line(tmp_path, table, word):
+    path = tmp_path / "bad.toml"
+    path.write_text(DISTURBED.split("[[disturbance]]")[0] + "[[disturbance]]\n" + table + "\n")
+    r = run_cli("simulate", str(path), "--hours", "1")
+    assert r.returncode == 2 and word in r.stderr
+    assert len(r.stderr.strip().splitlines()) == 1

@@ -191,9 +191,9 @@ class ViewRendering:
 def trend_simulation(scenario, plan):
     """The Trend view's simulation: 1 and 2 stages, tight, with feedforward."""
     from dosing.planning.simulate_design import DesignChoice, simulate
-    from dosing.planning.simulate_influent import synthetic_influent
-    influent = synthetic_influent(scenario, TREND_HOURS, seed=1)
+    from dosing.planning.simulate_influent import made_influent
+    influent, source = made_influent(scenario, TREND_HOURS, seed=1)
     residence = plan.control.stages[0].residence_min if plan.control else 10.0
     return simulate(scenario, influent,
                     [DesignChoice(n, "tight", True, residence) for n in (1, 2)],
-                    source="made-up disturbances", control=plan.control)
+                    source=source, control=plan.control)

@@ -8,9 +8,7 @@ is documented in the README. Parsing uses the standard library's
 :class:`~dosing.errors.ScenarioError` naming the file, the key and what is
 allowed.
 
-This module reads no file itself except in :func:`load_scenario`, which is
-the one place the front ends call; :func:`parse_scenario` takes text and is
-pure.
+Only :func:`load_scenario` reads a file; :func:`parse_scenario` is pure.
 """
 
 from __future__ import annotations
@@ -38,6 +36,7 @@ from ..planning.uncertainty import SPREAD_KEYS, spread_from
 from ..planning.blend import mix_streams
 from ..planning.discharge import METAL_BASES
 from ..planning.train import water_of
+from .disturbance_scenario import read_disturbances
 from .train_scenario import basis_of_blend, read_steps
 
 __all__ = ["Scenario", "PERMIT_KEYS", "parse_scenario", "load_scenario",
@@ -118,8 +117,8 @@ def _finite(v) -> bool:
 
 def _check_types(path: str, data: Mapping[str, Any]) -> None:
     for key, value in data.items():
-        if key == "step":
-            continue                # a train: checked by io.train_scenario
+        if key in ("step", "disturbance"):
+            continue                # checked by io.train_scenario, io.disturbance_scenario
         if key in _TOP:
             if not isinstance(value, _TOP[key]):
                 raise ScenarioError(path, key, "expected text in quotes")
@@ -276,7 +275,8 @@ def build_scenario(data: Mapping[str, Any], path: str = "<scenario>") -> Scenari
         raise ScenarioError(path, scenario_key(err.field), err.reason) from None
     return Scenario(title=data.get("title", Path(path).stem), site=data.get("site", ""),
                     tank=data.get("tank", ""), currency=data.get("currency", "").strip(),
-                    data=data, source=path, **fields)
+                    data=data, source=path,
+                    disturbances=read_disturbances(path, data.get("disturbance")), **fields)
 
 
 def _target(data: Mapping[str, Any]) -> Target:
@@ -434,7 +434,8 @@ def scenario_to_toml(data: Mapping[str, Any], original: str | None = None) -> st
     doc = tomlkit.parse(original.lstrip("\ufeff")) if original else tomlkit.document()
     for key in _TOP:
         _set(doc, key, data.get(key))
-    _set_steps(doc, data.get("step"))
+    for name in ("step", "disturbance"):
+        _set_tables(doc, name, data.get(name))
     for section in _SCHEMA:
         values = data.get(section)
         if values is None:
@@ -451,31 +452,29 @@ def scenario_to_toml(data: Mapping[str, Any], original: str | None = None) -> st
     return tomlkit.dumps(doc)
 
 
-def _set_steps(doc, steps) -> None:
-    """A train's [[step]] list: kept as written when unchanged, else written anew."""
+def _set_tables(doc, name: str, tables) -> None:
+    """A [[step]] or [[disturbance]] list: kept as written when unchanged, else anew."""
+    if tables is None:
+        if name in doc:
+            del doc[name]
+        return
+    if name in doc and _plain(doc[name]) == tables:
+        return
+    doc[name] = _aot(tables)
+
+
+def _aot(tables):
+    """Tables as a TOML array of tables (a blend's [[step.stream]] nested)."""
     import tomlkit
-    if steps is None:
-        if "step" in doc:
-            del doc["step"]
-        return
-    if "step" in doc and _plain(doc["step"]) == steps:
-        return
     aot = tomlkit.aot()
-    for step in steps:
+    for values in tables:
         table = tomlkit.table()
-        for key, value in step.items():
-            if key == "stream":
-                streams = tomlkit.aot()
-                for stream in value:
-                    st = tomlkit.table()
-                    for k, v in stream.items():
-                        st[k] = v
-                    streams.append(st)
-                table["stream"] = streams
-            else:
-                table[key] = value
+        for key, value in values.items():
+            is_aot = isinstance(value, list) and value and all(isinstance(v, dict)
+                                                               for v in value)
+            table[key] = _aot(value) if is_aot else value
         aot.append(table)
-    doc["step"] = aot
+    return aot
 
 
 def _set(container, key: str, value) -> None:

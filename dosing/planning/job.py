@@ -110,6 +110,7 @@ class Scenario:
     readjust: Reagent | None = None        #: product to come back into the window, if named
     metals_basis: str = "total"            #: what the permit's metal caps cap
     currency: str = ""                     #: what prices are in ("": as given, unnamed)
+    disturbances: tuple = ()               #: [[disturbance]] steps and ramps (Disturbance)
 
     def storage_lasts(self, litres_used: float | None, kg_used: float | None) -> float | None:
         """How many periods the storage lasts at the given use per period.

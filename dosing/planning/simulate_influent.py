@@ -23,10 +23,13 @@ import pandas as pd
 
 from ..chem import dose_to_ph
 from ..errors import InputError
+from dataclasses import dataclass
+
 from .replay import ReplayState, _readings, _time_steps, distinct_rows, row_mixture
 from .simulate import Influent, invariants_of
 
-__all__ = ["synthetic_influent", "record_influent", "static_reagent_mol"]
+__all__ = ["synthetic_influent", "record_influent", "static_reagent_mol", "Disturbance",
+           "scheduled_influent", "made_influent"]
 
 #: Flow steps without a scenario flow range: +-30 % (invented disturbances).
 _FLOW_SWING = 0.3
@@ -63,6 +66,56 @@ def synthetic_influent(scenario, hours: float, seed: int, row_s: float = 60.0) -
     return Influent(np.arange(n) * row_s, np.full(n, row_s), flow, state, temp,
                     np.zeros(n, dtype=bool), scenario.water.activity,
                     scenario.water.unknown_pka)
+
+
+@dataclass(frozen=True)
+class Disturbance:
+    """A step (or a ramp) of the influent, from a scenario's [[disturbance]]."""
+
+    at_h: float
+    flow_m3_h: float | None     #: the flow from then on (None: unchanged)
+    ph: float | None            #: the influent pH from then on (None: unchanged)
+    ramp_h: float = 0.0         #: reached over this time (0: a step)
+
+
+def _schedule(t_h: np.ndarray, start: float, changes) -> np.ndarray:
+    """A series that starts at ``start`` and moves to each (at, value, ramp)
+    in turn: a step, or a straight ramp from wherever it stands then."""
+    out = np.full(t_h.size, start)
+    for at, value, ramp in changes:
+        before = float(np.interp(at, t_h, out))
+        if ramp > 0:
+            share = np.clip((t_h - at) / ramp, 0.0, 1.0)
+            out = np.where(t_h >= at, before + (value - before) * share, out)
+        else:
+            out = np.where(t_h >= at, value, out)
+    return out
+
+
+def scheduled_influent(scenario, hours: float, row_s: float = 60.0) -> Influent:
+    """The scenario's stream with its [[disturbance]] steps and ramps."""
+    n = max(2, int(round(hours * 3600.0 / row_s)))
+    t_h = np.arange(n) * row_s / 3600.0
+    ds = scenario.disturbances
+    flow = _schedule(t_h, scenario.basis.m3_per_h,
+                     [(d.at_h, d.flow_m3_h, d.ramp_h) for d in ds if d.flow_m3_h is not None])
+    ph = _schedule(t_h, scenario.water.ph,
+                   [(d.at_h, d.ph, d.ramp_h) for d in ds if d.ph is not None])
+    ph = np.round(ph, 4)                # a ramp's rows share waters to the 4th decimal
+    temp = np.full(n, scenario.water.temperature_c)
+    return Influent(np.arange(n) * row_s, np.full(n, row_s), flow,
+                    _states(scenario, ph, temp, None), temp, np.zeros(n, dtype=bool),
+                    scenario.water.activity, scenario.water.unknown_pka)
+
+
+def made_influent(scenario, hours: float, seed: int) -> tuple[Influent, str]:
+    """The scenario's own [[disturbance]] steps and ramps when it has any,
+    else made-up ones; and the words that say which."""
+    if scenario.disturbances:
+        n = len(scenario.disturbances)
+        return (scheduled_influent(scenario, hours),
+                f"the scenario's {n} disturbance{'s' if n > 1 else ''}")
+    return synthetic_influent(scenario, hours, seed), f"made-up disturbances (seed {seed})"
 
 
 def _states(scenario, ph, temp, alk) -> np.ndarray:
