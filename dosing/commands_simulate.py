@@ -43,8 +43,9 @@ def add_parser(sub) -> None:
                    help="controller tunings to compare: tight, smooth (default both)")
     s.add_argument("--without-feedforward", action="store_true",
                    help="also run each design with feedback only (no flow feedforward)")
-    s.add_argument("--residence-min", type=float, default=None,
-                   help="residence time of each stage's tank in minutes (default: the "
+    s.add_argument("--residence-min", default=None,
+                   help="residence time of each stage's tank in minutes; several "
+                   "separated by commas compare tank sizes (default: the "
                    "control design's)")
     s.add_argument("--probe-lag-s", type=float, default=30.0, help="probe lag (default 30 s)")
     s.add_argument("--delay-s", type=float, default=10.0,
@@ -68,7 +69,21 @@ def _range(option: str, value: float, low: float, high: float, unit: str) -> flo
     return value
 
 
-def _choices(args, residence_min: float):
+def _residences(args) -> list[float] | None:
+    """The tank residence times asked for [min], or None for the default."""
+    if args.residence_min is None:
+        return None
+    try:
+        values = sorted({float(v) for v in str(args.residence_min).split(",") if v.strip()})
+    except ValueError:
+        values = []
+    if not values or not all(0.5 <= v <= 240.0 for v in values):
+        raise UsageError("--residence-min", f"{args.residence_min!r}; allowed: minutes from "
+                         "0.5 to 240, separated by commas")
+    return values
+
+
+def _choices(args, residences: list):
     from .planning.simulate_design import TUNINGS, DesignChoice
     try:
         stages = sorted({int(v) for v in args.stages.split(",") if v.strip()})
@@ -80,9 +95,10 @@ def _choices(args, residence_min: float):
     if not tunings or not set(tunings) <= set(TUNINGS):
         raise UsageError("--tunings", f"{args.tunings!r}; allowed: {', '.join(TUNINGS)}")
     feeds = (True, False) if args.without_feedforward else (True,)
-    return [DesignChoice(n, t, ff, residence_min, args.probe_lag_s, args.delay_s,
-                         args.probe_noise_ph, args.probe_drift_ph_per_day / 24.0)
-            for ff in feeds for n in stages for t in tunings]
+    named = len(residences) > 1         # several tank sizes: each design says its own
+    return [DesignChoice(n, t, ff, r, args.probe_lag_s, args.delay_s,
+                         args.probe_noise_ph, args.probe_drift_ph_per_day / 24.0, named)
+            for r in residences for ff in feeds for n in stages for t in tunings]
 
 
 def _scenario(path: str):
@@ -121,7 +137,7 @@ def _fleet(args, step: float) -> int:
         raise UsageError("--workers", "allowed: 1 to 256")
     sites = load_fleet(args.fleet)
     check_sites(args.fleet, sites)
-    choices = _choices(args, args.residence_min)
+    choices = _choices(args, _residences(args) or [None])
     with dask_client(args.scheduler, args.workers) as client:
         results = simulate_sites(sites, client, choices, step)
     data = {"fleet": args.fleet, "sites": results}
@@ -145,18 +161,15 @@ def cmd_simulate(args) -> int:
     _range("--delay-s", args.delay_s, 0.0, 3600.0, "s")
     _range("--probe-noise-ph", args.probe_noise_ph, 0.0, 1.0, "pH")
     _range("--probe-drift-ph-per-day", args.probe_drift_ph_per_day, -5.0, 5.0, "pH/day")
-    if args.residence_min is not None:
-        _range("--residence-min", args.residence_min, 0.5, 240.0, "min")
+    given = _residences(args)
     if args.fleet:
         return _fleet(args, step)
     if not args.scenario:
         raise UsageError("simulate", "give the flow scenario, or --fleet FLEET.toml")
     scenario = _scenario(args.scenario)
     plan = make_plan(scenario, sampled=False)
-    residence = args.residence_min if args.residence_min is not None else (
-        plan.control.stages[0].residence_min if plan.control else 10.0)
-    _range("--residence-min", residence, 0.5, 240.0, "min")
-    choices = _choices(args, residence)
+    own = plan.control.stages[0].residence_min if plan.control else 10.0
+    choices = _choices(args, given or [own])
     influent, held, source = _influent(args, scenario)
     seconds = float(influent.dt_s.sum())
     if args.probe_lag_s + args.delay_s >= seconds:

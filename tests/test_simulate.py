@@ -221,6 +221,7 @@ def test_a_pump_that_cannot_keep_up_is_a_result(tmp_path):
     ((FOOD, "--stages", "4"), "--stages"),
     ((FOOD, "--tunings", "fast"), "--tunings"),
     ((FOOD, "--residence-min", "0"), "--residence-min"),
+    ((FOOD, "--residence-min", "5,x"), "--residence-min"),
     ((FOOD, "--hours", "0.1", "--probe-lag-s", "600"), "longer than the record"),
     ((FOOD, "--plot", "out.svg"), ".png"),
 ])
@@ -376,3 +377,19 @@ def test_a_bad_disturbance_is_one_line(tmp_path, table, word):
     r = run_cli("simulate", str(path), "--hours", "1")
     assert r.returncode == 2 and word in r.stderr
     assert len(r.stderr.strip().splitlines()) == 1
+
+
+def test_tank_sizes_are_compared_in_one_run(tmp_path):
+    # The caustic rinse reaching the flume at 2 h: a 5-minute tank lets the
+    # discharge out of the window, a 20-minute one holds it (its volume
+    # evens the step out while the loop catches up).
+    path = tmp_path / "surge.toml"
+    path.write_text(DISTURBED)
+    r = run_cli("simulate", str(path), "--hours", "3", "--stages", "1", "--tunings", "tight",
+                "--residence-min", "5,20", "--json")
+    assert r.returncode == 0, r.stderr
+    small, big = json.loads(r.stdout)["designs"]
+    assert (small["name"], big["name"]) == ("1 stage, tight, 5 min", "1 stage, tight, 20 min")
+    assert big["stages"][0]["volume_m3"] == pytest.approx(4 * small["stages"][0]["volume_m3"])
+    assert small["outside_fraction"] > 0 and big["outside_fraction"] == 0
+    assert big["stages"][0]["ph_max"] < small["stages"][0]["ph_max"]

@@ -61,11 +61,13 @@ class DesignChoice:
     delay_s: float = 10.0
     probe_noise_ph: float = 0.0
     probe_drift_ph_per_h: float = 0.0
+    name_residence: bool = False    #: the name says the residence time (sizes compared)
 
     @property
     def name(self) -> str:
         ff = "" if self.feedforward else ", no feedforward"
-        return f"{self.stages} stage{'s' if self.stages > 1 else ''}, {self.tuning}{ff}"
+        size = f", {self.residence_min:g} min" if self.name_residence else ""
+        return f"{self.stages} stage{'s' if self.stages > 1 else ''}, {self.tuning}{ff}{size}"
 
 
 def _shares(n: int, control) -> list[float]:
