@@ -73,6 +73,10 @@ def _plan_parser(sub) -> None:
                    "this tank (how far its doses ran from plan); read only")
     p.add_argument("--units", choices=("metric", "us"), default="metric",
                    help="units of the dose sheet (default metric)")
+    p.add_argument("--simulate-hours", type=float, metavar="H",
+                   help="a flow: also simulate its control design over H hours of the "
+                   "scenario's disturbances (or made-up ones) and say how often the "
+                   "discharge leaves its window")
     p.add_argument("--force", action="store_true", help="replace an existing output "
                    "file this program did not write (never an input, never through a link)")
 

@@ -70,6 +70,8 @@ def _plan_one(scenario, args):
         text = (render_train(scenario, train, args.units) + "\n"
                 + "ONE DOSE ALONE, FOR COMPARISON (it cannot meet the window and the caps)\n"
                 + text)
+    if args.simulate_hours is not None:
+        text, data = _with_simulation(scenario, plan, args, text, data)
     png = None
     if args.plot:
         from .report.plot import plan_figure_png, train_figure_png
@@ -79,6 +81,23 @@ def _plan_one(scenario, args):
                                window="permit window" if scenario.permit else
                                "target window"))
     return text, data, png
+
+
+def _with_simulation(scenario, plan, args, text: str, data: dict):
+    """The sheet and JSON with the control design simulated (``--simulate-hours``)."""
+    from .planning.simulate_design import own_design_simulation, simulation_refusal
+    from .report.simulate_report import control_check_text, simulation_dict
+    refusal = simulation_refusal(scenario)
+    if refusal:
+        raise UsageError("--simulate-hours", refusal[1])
+    if not 0.1 <= args.simulate_hours <= 24.0 * 31:
+        raise UsageError("--simulate-hours", f"{args.simulate_hours:g}; allowed: 0.1 to 744 h")
+    sim = own_design_simulation(scenario, plan, args.simulate_hours)
+    # Above the cautions, which stay last.
+    at = text.rfind("\nCAUTIONS")
+    at = len(text) if at < 0 else at + 1
+    text = text[:at] + control_check_text(sim, args.units) + "\n" + text[at:]
+    return text, data | {"simulated_control": simulation_dict(sim)}
 
 
 def _plan_train(scenario, args):

@@ -393,3 +393,19 @@ def test_tank_sizes_are_compared_in_one_run(tmp_path):
     assert big["stages"][0]["volume_m3"] == pytest.approx(4 * small["stages"][0]["volume_m3"])
     assert small["outside_fraction"] > 0 and big["outside_fraction"] == 0
     assert big["stages"][0]["ph_max"] < small["stages"][0]["ph_max"]
+
+
+def test_a_flow_plan_can_show_its_control_design_simulated(tmp_path):
+    path = tmp_path / "surge.toml"
+    path.write_text(DISTURBED)
+    r = run_cli("plan", str(path), "--simulate-hours", "3")
+    assert r.returncode == 0, r.stderr
+    text = r.stdout
+    assert text.index("SIMULATED CONTROL") < text.index("CAUTIONS")   # cautions stay last
+    j = run_cli("plan", str(path), "--simulate-hours", "3", "--json")
+    sim = json.loads(j.stdout)["simulated_control"]
+    d = sim["designs"][0]
+    assert f"outside the window {d['outside_fraction']:.2%}" in text
+    assert sim["source"] == "the scenario's 2 disturbances"
+    r = run_cli("plan", "scenarios/acid-rinse-caustic.toml", "--simulate-hours", "3")
+    assert r.returncode == 2 and "--simulate-hours" in r.stderr and r.stdout == ""

@@ -35,7 +35,7 @@ from ..errors import InputError
 from .simulate import Design, StageSpec
 
 __all__ = ["DesignChoice", "TUNINGS", "build_design", "PUMP_TURNDOWN", "PUMP_HEADROOM",
-           "Simulation", "simulate", "simulation_refusal"]
+           "Simulation", "simulate", "simulation_refusal", "own_design_simulation"]
 
 #: tau_c as a multiple of the dead time, per tuning name (Skogestad 2003).
 TUNINGS = {"tight": 1.0, "smooth": 3.0}
@@ -188,3 +188,16 @@ def simulation_refusal(scenario) -> tuple[str, str] | None:
                            "over minutes, which the simulation does not model; simulate "
                            "with a liquid product")
     return None
+
+
+def own_design_simulation(scenario, plan, hours: float, seed: int = 1) -> Simulation:
+    """A flow plan's own control design (its stage count and residence time,
+    ratio feedforward, tight tuning) over the scenario's disturbances or
+    made-up ones."""
+    from .simulate_influent import made_influent
+    control = plan.control
+    n = len(control.stages) if control else 1
+    residence = control.stages[0].residence_min if control else 10.0
+    influent, source = made_influent(scenario, hours, seed)
+    return simulate(scenario, influent, [DesignChoice(n, "tight", True, residence)],
+                    source=source, control=control)

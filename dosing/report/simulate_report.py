@@ -13,7 +13,8 @@ from .numbers import fmt
 from .text import hanging, wrap
 from .units import UNIT_SYSTEMS
 
-__all__ = ["render_simulation", "render_fleet_simulation", "simulation_dict", "ASSUMPTIONS"]
+__all__ = ["render_simulation", "render_fleet_simulation", "simulation_dict", "ASSUMPTIONS",
+           "control_check_text"]
 
 #: What every simulation assumes, said on the sheet and in the JSON.
 ASSUMPTIONS = (
@@ -195,4 +196,26 @@ def render_fleet_simulation(fleet: str, results: dict, units: str = "metric",
     out += ["", "CAUTIONS"]
     for c in sorted(cautions, key=lambda c: "final word" in c):
         out += wrap(c, width, "  - ")
+    return "\n".join(out) + "\n"
+
+
+def control_check_text(sim, units: str = "metric", width: int = 78) -> str:
+    """A flow plan's control design simulated, for the foot of its sheet."""
+    u = UNIT_SYSTEMS[units]
+    data = simulation_dict(sim)
+    d = data["designs"][0]
+    out = ["SIMULATED CONTROL (dosing simulate compares more designs)"]
+    out += hanging("  design", f"{d['name']}, over {data['source']}, {fmt(data['hours'])} h",
+                   width, indent=12)
+    w = d["worst_excursion"]
+    text = (f"the discharge is outside the window {d['outside_fraction']:.2%} of the time "
+            f"in {d['excursions']} excursion{'s' if d['excursions'] != 1 else ''}"
+            + (f", the worst to pH {fmt(w['peak_ph'], 3)} for {_minutes(w['duration_s'])}"
+               if w else ""))
+    out += hanging("  result", text, width, indent=12)
+    if d["reagent_kg_product"] is not None and data["static_reagent_kg_product"]:
+        out += hanging("  reagent", f"{fmt(d['reagent_kg_product'] * u.mass_per_kg)} "
+                       f"{u.mass} against {fmt(data['static_reagent_kg_product'] * u.mass_per_kg)}"
+                       f" {u.mass} dosed exactly", width, indent=12)
+    out += hanging("  assumes", "; ".join(ASSUMPTIONS), width, indent=12)
     return "\n".join(out) + "\n"
