@@ -197,9 +197,10 @@ def _start(design: Design, first: np.ndarray, temp: float, activity, pka, r_inv,
     q = design.nominal_flow_m3_h * _L_S_PER_M3_H
     states, c_in = [], first
     for st in design.stages:
-        c, _ = tank_step(c_in, c_in, q, st.nominal_mol_s, r_inv, v_r, st.volume_m3 * 1000, 1e9)
+        out = q + st.nominal_mol_s * v_r            # the balance at rest: in = out
+        c = (q * c_in + st.nominal_mol_s * r_inv) / out
         states.append(c)
-        c_in, q = c, q + st.nominal_mol_s * v_r
+        c_in, q = c, out
     ph = solve_ph(mixture_of(np.array(states), temp, activity, pka))
     integrals = []
     for st in design.stages:
