@@ -55,3 +55,18 @@ def test_the_comparison_fits_the_pane(size):
         lines = str(pane.render()).splitlines()
         assert lines and max(map(len, lines)) <= pane.size.width
     drive(check, FOOD, size, show_timing=False)
+
+
+def test_a_units_change_redraws_the_trend_without_simulating_again():
+    async def check(app, pilot):
+        await pilot.press("f10")
+        await settle(app, pilot)
+        first = app._trend
+        await pilot.press("f6")
+        await settle(app, pilot)
+        assert app._trend is first                         # the same simulation
+        assert " lb" in _text(app)                          # shown in US units
+        app.query_one("#f-effluent--ph").value = "3.7"     # a new stream: simulated anew
+        await settle(app, pilot)
+        assert app._trend is not first and app._trend[0] is app.scenario
+    drive(check, FOOD, (120, 40), show_timing=False)

@@ -39,6 +39,7 @@ class ViewRendering:
     _dirty: set[str]
     _sweep_token: int
     _trend_token = 0
+    _trend = None       #: (scenario, Simulation) last drawn, redrawn for a units change
     sweep = None
     """The last sweep planned for :attr:`plan` (None until it is ready)."""
     last_show_ms = 0.0
@@ -112,6 +113,10 @@ class ViewRendering:
         if refusal:
             panel.say(f"No trend: {refusal[1]}.")
             return
+        done = self._trend
+        if done is not None and done[0] is self.scenario:
+            panel.show(done[1], self.units)      # the same stream: new units only
+            return
         panel.say(f"simulating {TREND_HOURS:g} h of made-up disturbances, 1 and 2 stages...")
         self._trend_token += 1
         token, s, plan = self._trend_token, self.scenario, self.plan
@@ -121,16 +126,17 @@ class ViewRendering:
                 result = trend_simulation(s, plan)
             except DosingError as err:
                 result = str(err)
-            self.call_from_thread(self._trended, token, result)
+            self.call_from_thread(self._trended, token, s, result)
         self.run_worker(work, thread=True, exclusive=True, group="trend")
 
-    def _trended(self, token: int, result) -> None:
-        if token != self._trend_token:
+    def _trended(self, token: int, scenario, result) -> None:
+        if token != self._trend_token or scenario is not self.scenario:
             return                           # the form has moved on
         panel = self.query_one(TrendPanel)
         if isinstance(result, str):
             panel.say(f"No trend: {result}")
         else:
+            self._trend = (scenario, result)
             panel.show(result, self.units)
 
     def _sheet_width(self) -> int:
