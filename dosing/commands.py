@@ -24,7 +24,8 @@ __all__ = ["HANDLERS", "OPTION_OF_FIELD"]
 OPTION_OF_FIELD = {"titrant": "--titrant", "sample_ml": "--sample-ml", "fit": "--fit",
                    "operator": "--operator", "ph_after": "--ph-after", "since": "--since",
                    "dosed": "--dosed", "dosed_l": "--dosed-l", "step_s": "--step-s",
-                   "tuning": "--tunings", "data": "--data"}
+                   "tuning": "--tunings", "data": "--data",
+                   "probe_lag_s": "--probe-lag-s"}
 
 
 def _now() -> str:

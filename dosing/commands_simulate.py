@@ -150,7 +150,7 @@ def _fleet(args, step: float) -> int:
 def cmd_simulate(args) -> int:
     """Handler of ``dosing simulate``."""
     from .planning.job import make_plan
-    from .planning.simulate_design import MAX_STEPS, simulate
+    from .planning.simulate_design import simulate
     from .report.simulate_report import render_simulation, simulation_dict
     if args.plot and not args.plot.lower().endswith(".png"):
         raise ScenarioError(args.plot, "", "give a file name ending in .png")
@@ -171,13 +171,6 @@ def cmd_simulate(args) -> int:
     own = plan.control.stages[0].residence_min if plan.control else 10.0
     choices = _choices(args, given or [own])
     influent, held, source = _influent(args, scenario)
-    seconds = float(influent.dt_s.sum())
-    if args.probe_lag_s + args.delay_s >= seconds:
-        raise UsageError("--probe-lag-s", "the probe's lag and delay are longer than the "
-                         "record: give a longer record or a faster probe")
-    if seconds / step > MAX_STEPS:
-        raise UsageError("--step-s", f"the record needs {seconds / step:,.0f} steps, "
-                         f"beyond {MAX_STEPS:,}: simulate a part of it, or a longer step")
     sim = simulate(scenario, influent, choices, source=source, rows_held=held, step_s=step,
                    control=plan.control)
     data = simulation_dict(sim)

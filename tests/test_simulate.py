@@ -222,7 +222,8 @@ def test_a_pump_that_cannot_keep_up_is_a_result(tmp_path):
     ((FOOD, "--tunings", "fast"), "--tunings"),
     ((FOOD, "--residence-min", "0"), "--residence-min"),
     ((FOOD, "--residence-min", "5,x"), "--residence-min"),
-    ((FOOD, "--hours", "0.1", "--probe-lag-s", "600"), "longer than the record"),
+    ((FOOD, "--hours", "0.1", "--probe-lag-s", "600"), "--probe-lag-s: the probe"),
+    ((FOOD, "--hours", "8000", "--step-s", "1"), "--step-s: the record needs"),
     ((FOOD, "--plot", "out.svg"), ".png"),
 ])
 def test_bad_input_is_one_line(args, word):

@@ -155,10 +155,11 @@ def simulate(scenario, influent, choices, *, source: str, rows_held: int = 0,
         raise InputError("step_s", f"{step_s:g} s; allowed: 1 to 600 s")
     seconds = float(influent.dt_s.sum())
     if seconds / step_s > MAX_STEPS:
-        raise InputError("data", f"the record needs {seconds / step_s:,.0f} steps, beyond "
+        raise InputError("step_s", f"the record needs {seconds / step_s:,.0f} steps, beyond "
                          f"{MAX_STEPS:,}: simulate a part of it, or a longer step")
     if any(c.probe_lag_s + c.delay_s >= seconds for c in choices):
-        raise InputError("data", "the probe's lag and delay are longer than the record")
+        raise InputError("probe_lag_s", "the probe's lag and delay are longer than the "
+                         "record: give a longer record or a faster probe")
     mix0 = mixture_of(influent.state[0], influent.temperature_c[0], influent.activity,
                       influent.unknown_pka)
     q = scenario.basis.m3_per_h
