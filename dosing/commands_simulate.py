@@ -150,7 +150,7 @@ def _fleet(args, step: float) -> int:
 def cmd_simulate(args) -> int:
     """Handler of ``dosing simulate``."""
     from .planning.job import make_plan
-    from .planning.simulate_design import simulate
+    from .planning.simulate_design import design_residence_min, simulate
     from .report.simulate_report import render_simulation, simulation_dict
     if args.plot and not args.plot.lower().endswith(".png"):
         raise ScenarioError(args.plot, "", "give a file name ending in .png")
@@ -168,8 +168,7 @@ def cmd_simulate(args) -> int:
         raise UsageError("simulate", "give the flow scenario, or --fleet FLEET.toml")
     scenario = _scenario(args.scenario)
     plan = make_plan(scenario, sampled=False)
-    own = plan.control.stages[0].residence_min if plan.control else 10.0
-    choices = _choices(args, given or [own])
+    choices = _choices(args, given or [design_residence_min(plan.control)])
     influent, held, source = _influent(args, scenario)
     sim = simulate(scenario, influent, choices, source=source, rows_held=held, step_s=step,
                    control=plan.control)

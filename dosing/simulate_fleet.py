@@ -18,7 +18,7 @@ from typing import Sequence
 import pandas as pd
 
 from .errors import DosingError, ScenarioError
-from .planning.simulate_design import simulate, simulation_refusal
+from .planning.simulate_design import design_residence_min, simulate, simulation_refusal
 from .planning.simulate_influent import record_influent
 from .io.fleet import Site
 from .io.replay_io import iter_chunks
@@ -41,7 +41,7 @@ def simulate_site(site: Site, choices, step_s: float) -> dict:
     from .planning.job import make_plan
     from .report.simulate_report import simulation_dict
     control = make_plan(site.scenario, sampled=False).control
-    residence = control.stages[0].residence_min if control else 10.0
+    residence = design_residence_min(control)
     choices = [c if c.residence_min is not None else replace(c, residence_min=residence)
                for c in choices]
     frame = pd.concat([c for f in site.files for c in iter_chunks(f)], ignore_index=True)

@@ -196,10 +196,5 @@ class ViewRendering:
 
 def trend_simulation(scenario, plan):
     """The Trend view's simulation: 1 and 2 stages, tight, with feedforward."""
-    from dosing.planning.simulate_design import DesignChoice, simulate
-    from dosing.planning.simulate_influent import made_influent
-    influent, source = made_influent(scenario, TREND_HOURS, seed=1)
-    residence = plan.control.stages[0].residence_min if plan.control else 10.0
-    return simulate(scenario, influent,
-                    [DesignChoice(n, "tight", True, residence) for n in (1, 2)],
-                    source=source, control=plan.control)
+    from dosing.planning.simulate_design import own_design_simulation
+    return own_design_simulation(scenario, plan, TREND_HOURS, stages=(1, 2))

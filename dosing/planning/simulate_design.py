@@ -35,7 +35,8 @@ from ..errors import InputError
 from .simulate import Design, StageSpec
 
 __all__ = ["DesignChoice", "TUNINGS", "build_design", "PUMP_TURNDOWN", "PUMP_HEADROOM",
-           "Simulation", "simulate", "simulation_refusal", "own_design_simulation"]
+           "Simulation", "simulate", "simulation_refusal", "own_design_simulation",
+           "design_residence_min"]
 
 #: tau_c as a multiple of the dead time, per tuning name (Skogestad 2003).
 TUNINGS = {"tight": 1.0, "smooth": 3.0}
@@ -191,14 +192,22 @@ def simulation_refusal(scenario) -> tuple[str, str] | None:
     return None
 
 
-def own_design_simulation(scenario, plan, hours: float, seed: int = 1) -> Simulation:
-    """A flow plan's own control design (its stage count and residence time,
-    ratio feedforward, tight tuning) over the scenario's disturbances or
-    made-up ones."""
+def design_residence_min(control) -> float:
+    """Residence time of a stage's tank [min]: the control design's, or
+    10 min without one (common practice for a fast reagent, control.py)."""
+    return control.stages[0].residence_min if control else 10.0
+
+
+def own_design_simulation(scenario, plan, hours: float, seed: int = 1,
+                          stages: tuple[int, ...] | None = None) -> Simulation:
+    """A flow plan's own control design (its stage count, or each of
+    ``stages``; its residence time, ratio feedforward, tight tuning) over
+    the scenario's disturbances or made-up ones."""
     from .simulate_influent import made_influent
     control = plan.control
-    n = len(control.stages) if control else 1
-    residence = control.stages[0].residence_min if control else 10.0
+    counts = stages or ((len(control.stages) if control else 1),)
+    residence = design_residence_min(control)
     influent, source = made_influent(scenario, hours, seed)
-    return simulate(scenario, influent, [DesignChoice(n, "tight", True, residence)],
+    return simulate(scenario, influent, [DesignChoice(n, "tight", True, residence)
+                                         for n in counts],
                     source=source, control=control)
