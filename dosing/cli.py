@@ -67,6 +67,10 @@ def _plan_parser(sub) -> None:
     p.add_argument("scenario", help="scenario file (TOML)")
     p.add_argument("--json", action="store_true", help="print the plan as JSON")
     p.add_argument("--plot", metavar="FILE.png", help="write the titration curve as PNG")
+    p.add_argument("--pdf", metavar="FILE.pdf", help="write the printable one-page sheet "
+                   "as PDF (boxes for the readings, cautions, signature lines)")
+    p.add_argument("--paper", choices=("a4", "letter"), default="a4",
+                   help="paper size of the PDF (default a4)")
     p.add_argument("--figure", choices=("operator", "engineer"), default="operator",
                    help="engineer: the figure also draws the buffer intensity")
     p.add_argument("--db", metavar="PATH", help="compare with the shift log's record of "

@@ -39,13 +39,24 @@ def _cmd_plan(args) -> int:
     if args.plot and not args.plot.lower().endswith(".png"):
         raise ScenarioError(args.plot, "", "the plot is written as PNG; give a "
                             "file name ending in .png")
-    check_outputs([("--plot", args.plot)], [args.scenario, args.db], force=args.force)
+    if args.pdf and not args.pdf.lower().endswith(".pdf"):
+        raise ScenarioError(args.pdf, "", "the sheet is written as PDF; give a file name "
+                            "ending in .pdf")
+    check_outputs([("--plot", args.plot), ("--pdf", args.pdf)], [args.scenario, args.db],
+                  force=args.force)
     scenario = load_scenario(args.scenario)
-    text, data, png = (_plan_train if scenario.train else _plan_one)(scenario, args)
+    text, data, png, (plan, train) = (_plan_train if scenario.train else _plan_one)(
+        scenario, args)
     data = require_finite(data, "plan")
-    if png is not None:
-        write_atomic(args.plot, png)
-        sys.stderr.write(f"dosing: wrote the plot to {args.plot}\n")
+    pdf = None
+    if args.pdf:
+        from .report.print_pdf import print_pdf
+        from .report.print_sheet import print_sheet
+        pdf = print_pdf(print_sheet(scenario, plan, train, args.units, _now()), args.paper)
+    for path, content, what in ((args.plot, png, "plot"), (args.pdf, pdf, "printable sheet")):
+        if content is not None:
+            write_atomic(path, content)
+            sys.stderr.write(f"dosing: wrote the {what} to {path}\n")
     sys.stdout.write(to_json(data) if args.json else text)
     return 0
 
@@ -81,7 +92,7 @@ def _plan_one(scenario, args):
                plan_figure_png(plan, title, args.units, engineer=args.figure == "engineer",
                                window="permit window" if scenario.permit else
                                "target window"))
-    return text, data, png
+    return text, data, png, (plan, train)
 
 
 def _with_simulation(scenario, plan, args, text: str, data: dict):
@@ -115,7 +126,8 @@ def _plan_train(scenario, args):
     if args.plot:
         from .report.plot import train_figure_png
         png = train_figure_png(train, figure_title(scenario, _now()), args.units)
-    return render_train(scenario, train, args.units), train_dict(scenario, train), png
+    return (render_train(scenario, train, args.units), train_dict(scenario, train), png,
+            (None, train))
 
 
 def _numbers(option: str, text: str | None, low: float, high: float, unit: str):

@@ -25,7 +25,7 @@ from .words import bias_words, shown, texts, words
 
 __all__ = ["render_sheet", "render_view", "headline", "dose_lines", "metal_lines",
            "check_lines", "caution_lines", "water_lines", "uncertainty_lines", "log_lines",
-           "control_lines", "staging_lines", "amount_text", "dose_axis", "figure_title",
+           "control_lines", "staging_lines", "trim_rows", "amount_text", "dose_axis", "figure_title",
            "STEEP_PH_PER_PERCENT", "slope_text"]
 
 
@@ -359,24 +359,34 @@ def staging_lines(v: PlanView, units: str = "metric") -> list[str]:
            f"±{st.reading_sd:g}, it lands in the window in {st.p_inside:.0%} of the "
            "plausible waters:",
            f"   {'pH read':<11} add"]
-    up = plan.reagent.raises_ph
-    edge = (f"above {plan.target.ph_max:g}" if up else f"below {plan.target.ph_min:g}")
-    for row, extra in zip(st.trim, v.trim):
-        if extra is None:
-            out.append(f"   {row.ph_read:>5.1f} {'up' if up else 'down':<4}  nothing more "
-                       f"({edge}: stop and call the engineer)")
-            break
-        short = row.ph_read < plan.target.ph_min if up else row.ph_read > plan.target.ph_max
-        out.append(f"   {row.ph_read:>5.1f}       " + (
-            prod(extra) if not row.below_metering else
-            "below what can be metered: finish with a dilute reagent" if short else
-            "below what can be metered: add nothing"))
+    out += [f"   {ph:<11} {add}" for ph, add in trim_rows(v, units)]
     unit, step = st.metering
     out.append(f"Amounts are rounded to {step:g} {'L' if unit == 'litres' else 'kg'}, "
                "what a batch can be metered to. The table is for the first reading only: "
                "if the pH is still short of the window after the trim, add small amounts "
                "and read after each.")
     return out
+
+
+def trim_rows(v: PlanView, units: str = "metric") -> list[tuple[str, str]]:
+    """(pH read, what to add) of a staged dose's trim table; empty when not staged."""
+    plan, st = v.plan, v.plan.staging
+    if st is None:
+        return []
+    up = plan.reagent.raises_ph
+    edge = (f"above {plan.target.ph_max:g}" if up else f"below {plan.target.ph_min:g}")
+    rows = []
+    for row, extra in zip(st.trim, v.trim):
+        if extra is None:
+            rows.append((f"{row.ph_read:>5.1f} {'up' if up else 'down'}",
+                         f"nothing more ({edge}: stop and call the engineer)"))
+            break
+        short = row.ph_read < plan.target.ph_min if up else row.ph_read > plan.target.ph_max
+        rows.append((f"{row.ph_read:>5.1f}", amount_text(v, extra, units)
+                     if not row.below_metering else
+                     "below what can be metered: finish with a dilute reagent" if short else
+                     "below what can be metered: add nothing"))
+    return rows
 
 
 #: Above this pH change per 1 % of the dose the curve is called near-vertical
