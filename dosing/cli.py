@@ -20,7 +20,7 @@ from __future__ import annotations
 import argparse
 import sys
 
-from . import commands, commands_simulate
+from . import commands, commands_simulate, commands_web
 from .errors import DosingError, InputError, UsageError
 from .report.text import printable, printable_stdout
 
@@ -59,6 +59,7 @@ def _parser() -> argparse.ArgumentParser:
     _replay_parser(sub)
     _titration_parser(sub)
     commands_simulate.add_parser(sub)
+    commands_web.add_parsers(sub)
     return ap
 
 

@@ -16,6 +16,7 @@ from .errors import ScenarioError, UsageError
 from .io.files import write_atomic
 from .io.outputs import check_outputs
 from .commands_simulate import cmd_simulate
+from .commands_web import cmd_accounts, cmd_serve
 from .report.numbers import require_finite, to_json
 
 __all__ = ["HANDLERS", "OPTION_OF_FIELD"]
@@ -485,4 +486,5 @@ def _plan_to_record(scenario, dosed_text: str | None, dosed_l_text: str | None =
 #: The handler of each subcommand.
 HANDLERS = {"plan": _cmd_plan, "reagents": _cmd_reagents, "solutes": _cmd_solutes,
             "tui": _cmd_tui, "log": _cmd_log, "replay": _cmd_replay, "sweep": _cmd_sweep,
-            "titration": _cmd_titration, "simulate": cmd_simulate}
+            "titration": _cmd_titration, "simulate": cmd_simulate, "serve": cmd_serve,
+            "accounts": cmd_accounts}

@@ -28,7 +28,7 @@ ENV_VAR = "DOSING_LOG_DB"
 APPLICATION_ID = 0x4E444F53
 
 
-SCHEMA_VERSION = 1
+SCHEMA_VERSION = 2
 
 
 _SQLITE_MAGIC = b"SQLite format 3\x00"
@@ -65,8 +65,55 @@ BEGIN SELECT RAISE(ABORT, 'the shift log is append-only: entries are never delet
 """
 
 
+# Version 2: the site's accounts, their sessions, an append-only audit of
+# sign-ins and records, and reviews of entries (dosing serve).
+_V2 = """
+CREATE TABLE accounts (
+    name      TEXT PRIMARY KEY,
+    role      TEXT NOT NULL CHECK (role IN ('operator', 'engineer', 'viewer')),
+    hash      TEXT NOT NULL,
+    created   TEXT NOT NULL,
+    disabled  INTEGER NOT NULL DEFAULT 0
+);
+CREATE TABLE sessions (
+    token_hash TEXT PRIMARY KEY,
+    account    TEXT NOT NULL REFERENCES accounts (name),
+    csrf       TEXT NOT NULL,
+    created    TEXT NOT NULL,
+    seen       TEXT NOT NULL,
+    ended      INTEGER NOT NULL DEFAULT 0
+);
+CREATE TABLE audit (
+    id       INTEGER PRIMARY KEY AUTOINCREMENT,
+    utc      TEXT NOT NULL,
+    account  TEXT NOT NULL,
+    address  TEXT NOT NULL,
+    action   TEXT NOT NULL,
+    detail   TEXT NOT NULL DEFAULT ''
+);
+CREATE INDEX audit_account ON audit (account, action, utc);
+CREATE INDEX audit_address ON audit (address, action, utc);
+CREATE TRIGGER audit_no_update BEFORE UPDATE ON audit
+BEGIN SELECT RAISE(ABORT, 'the audit is append-only: rows are never changed'); END;
+CREATE TRIGGER audit_no_delete BEFORE DELETE ON audit
+BEGIN SELECT RAISE(ABORT, 'the audit is append-only: rows are never deleted'); END;
+CREATE TABLE reviews (
+    id        INTEGER PRIMARY KEY AUTOINCREMENT,
+    entry     INTEGER NOT NULL REFERENCES entries (id),
+    utc       TEXT NOT NULL,
+    reviewer  TEXT NOT NULL,
+    note      TEXT NOT NULL DEFAULT ''
+);
+CREATE INDEX reviews_entry ON reviews (entry);
+CREATE TRIGGER reviews_no_update BEFORE UPDATE ON reviews
+BEGIN SELECT RAISE(ABORT, 'reviews are append-only: rows are never changed'); END;
+CREATE TRIGGER reviews_no_delete BEFORE DELETE ON reviews
+BEGIN SELECT RAISE(ABORT, 'reviews are append-only: rows are never deleted'); END;
+"""
+
+
 #: (version reached, SQL script) in order. The next schema adds a row here.
-MIGRATIONS: tuple[tuple[int, str], ...] = ((1, _V1),)
+MIGRATIONS: tuple[tuple[int, str], ...] = ((1, _V1), (2, _V2))
 
 
 def _schema_of(db: sqlite3.Connection) -> frozenset:
@@ -100,11 +147,13 @@ class LogFile:
     A log opened for writing is first checked on a read-only connection: a
     file of another program, or one that fails SQLite's ``quick_check``, is
     refused before anything is written. ``lock_wait_s`` is how long a writer
-    waits for another program's write lock before giving up.
+    waits for another program's write lock before giving up. ``shared=True``
+    lets one connection serve several threads in turn (``dosing serve``,
+    which holds a lock around every use).
     """
 
     def __init__(self, path: str | Path | None = None, *, writable: bool = True,
-                 lock_wait_s: float = 30.0):
+                 lock_wait_s: float = 30.0, shared: bool = False):
         self.path = Path(path) if path is not None else default_log_path()
         self.writable = writable
         self.lock_wait_s = lock_wait_s
@@ -119,8 +168,10 @@ class LogFile:
             probe.close()
         self.path.parent.mkdir(parents=True, exist_ok=True)
         try:
+            # shared: one connection used by a server's threads in turn (the
+            # server holds a lock around every use).
             self._db = sqlite3.connect(str(self.path), timeout=lock_wait_s,
-                                       isolation_level=None)
+                                       isolation_level=None, check_same_thread=not shared)
             self._db.text_factory = _text
             self._db.execute(f"PRAGMA busy_timeout = {int(lock_wait_s * 1000)}")
             self._prepare_with_retry(lock_wait_s)
