@@ -19,7 +19,8 @@ from .train_view import STEP_WORDS, StepView, TrainView, train_view
 from .units import NO_CURRENCY, UNIT_SYSTEMS, money_text, product_text
 from .words import words
 
-__all__ = ["render_train", "render_train_view", "step_headline", "step_rows"]
+__all__ = ["render_train", "render_train_view", "step_headline", "step_rows", "total_rows",
+           "discharge_line", "is_headline_warning"]
 
 
 def _amount(v: TrainView, a, units: str) -> str:
@@ -83,6 +84,17 @@ def step_rows(v: TrainView, s: StepView, units: str = "metric") -> list[tuple[st
     return rows
 
 
+def is_headline_warning(w) -> bool:
+    """A train warning shown under the steps' headlines (the rest follow the checks)."""
+    return w.level == "danger" or w.id == "hold" or w.id == "train-proposed"
+
+
+def discharge_line(v: TrainView) -> str:
+    d = v.train.discharge
+    return f"DISCHARGE at pH {d.ph:.2f}: " + ("window and every cap met" if d.met
+                                             else "SOMETHING IS NOT MET, see the checks")
+
+
 def render_train(scenario: Scenario, train: TrainPlan, units: str = "metric",
                  width: int = 78) -> str:
     """The train's sheet as plain text."""
@@ -101,11 +113,9 @@ def render_train_view(v: TrainView, units: str = "metric", width: int = 78) -> s
     out.append("=" * min(width, max(len(head), 40)))
     for s in v.steps:
         out.extend(wrap(step_headline(v, s, units), width, ""))
-    d = v.train.discharge
-    out.extend(wrap(f"DISCHARGE at pH {d.ph:.2f}: " + ("window and every cap met" if d.met
-                    else "SOMETHING IS NOT MET, see the checks"), width, ""))
+    out.extend(wrap(discharge_line(v), width, ""))
     for w in v.warnings:
-        if w.level == "danger" or w.id == "hold" or w.id == "train-proposed":
+        if is_headline_warning(w):
             out.extend(wrap(words(w, units), width, "!! "))
     for s in v.steps:
         out.append("")
@@ -120,8 +130,7 @@ def render_train_view(v: TrainView, units: str = "metric", width: int = 78) -> s
     out.append("DISCHARGE CHECKS")
     for c in v.checks:
         out.extend(wrap(words(c, units), width, " !! " if c.level == "danger" else "    "))
-    rest = [w for w in v.warnings if not (w.level == "danger" or w.id == "hold"
-                                          or w.id == "train-proposed")]
+    rest = [w for w in v.warnings if not is_headline_warning(w)]
     if rest:
         out.append("")
         out.append("WARNINGS")
@@ -134,8 +143,8 @@ def render_train_view(v: TrainView, units: str = "metric", width: int = 78) -> s
     return "\n".join(out) + "\n"
 
 
-def _totals(out: list[str], v: TrainView, units: str, width: int) -> None:
-    """The products over the whole train, their cost, and the sludge."""
+def total_rows(v: TrainView, units: str = "metric") -> list[tuple[str, str]]:
+    """The products over the whole train, their cost, and the sludge, as (label, value) rows."""
     per, cur = v.train.basis.per, v.scenario.currency
     rows = [(p.reagent.name, f"{_amount(v, p.amounts, units)}"
              + ("" if v.flow else f" {per}") + " (step "
@@ -148,6 +157,11 @@ def _totals(out: list[str], v: TrainView, units: str, width: int) -> None:
     if v.cost is not None:
         rows.append(("cost", f"{money_text(v.cost, cur)} {per}, every product"
                      + ("" if cur else f" {NO_CURRENCY}")))
+    return rows
+
+
+def _totals(out: list[str], v: TrainView, units: str, width: int) -> None:
+    rows = total_rows(v, units)
     if rows:
         out.append("")
         out.append("TRAIN TOTALS")

@@ -40,9 +40,10 @@ def log_list(ctx: Ctx) -> Response:
         f, entries, unreadable, latest, tanks, operators = _entries(ctx)
     except InputError as err:
         return ctx.render("error.html", 422, title="Filter refused", message=str(err))
+    from .pages import kg_unit
     corrected = {e.refers_to for e in entries if e.kind == "correction"}
     return ctx.render("log.html", title="Shift log", filters=f, entries=entries[::-1],
-                      latest=latest, corrected=corrected, unreadable=unreadable,
+                      latest=latest, unit={e.id: kg_unit(e) for e in entries}, corrected=corrected, unreadable=unreadable,
                       tanks=tanks, operators=operators, query=ctx.request.url.query)
 
 

@@ -24,6 +24,14 @@ __all__ = ["tanks", "scenarios", "plan_page", "print_page", "pdf_download", "rec
 _UNITS = ("metric", "us")
 
 
+def kg_unit(entry) -> str:
+    """What an entry's kilograms are: kg per batch, kg/h for a flow."""
+    plan = entry.plan or {}
+    flow = "kg_product_per_h" in (plan.get("dose") or {}) or any(
+        "kg_product_per_h" in (s.get("dose") or {}) for s in plan.get("steps") or [])
+    return "kg/h" if flow else "kg"
+
+
 def _now() -> str:
     return datetime.now().strftime("%Y-%m-%d %H:%M")
 
@@ -40,7 +48,7 @@ def tanks(ctx: Ctx) -> Response:
             last = entries[-1]
             bias = log.bias(tank) if ctx.can("bias") else None
             rows.append({"tank": tank, "entry": last, "ph_after": log.latest_ph(last),
-                         "bias": bias_words(bias) if bias else ""})
+                         "bias": bias_words(bias) if bias else "", "unit": kg_unit(last)})
     return ctx.render("tanks.html", title="Tanks", rows=rows,
                       scenarios=ctx.site.scenarios())
 
@@ -83,22 +91,62 @@ def _boxes(ctx: Ctx, source: dict[str, str]) -> dict[str, str]:
 def _sheet_values(p: Planned, units: str, site) -> dict[str, Any]:
     """What the sheet part of the page shows, from the report layer."""
     from ..report import sheet
-    from ..report.train_sheet import render_train
     from ..report.view import plan_view
     from ..report.words import texts
-    out: dict[str, Any] = {"train_text": "", "view": None}
+    out: dict[str, Any] = {"train": None, "view": None}
     if p.train is not None:
-        out["train_text"] = render_train(p.scenario, p.train, units)
+        out["train"] = _train_values(p, units)
     if p.plan is not None:
         v = plan_view(p.scenario, p.plan)
         out.update(view=v, headline=sheet.headline(v, units),
                    breaches=texts(v.breaches, units), dose=sheet.dose_lines(v, units),
                    control=sheet.control_lines(v, units),
-                   staging=sheet.staging_lines(v, units), metals=sheet.metal_lines(v, units),
-                   water=sheet.water_lines(v, units, 100), checks=sheet.check_lines(v, units),
+                   staging=_staging(sheet.staging_lines(v, units)),
+                   trim=sheet.trim_rows(v, units), metals=sheet.metal_lines(v, units),
+                   water=_rows_of(sheet.water_lines(v, units, 1000)),
+                   checks=sheet.check_lines(v, units),
                    warnings=texts(v.warnings, units), cautions=p.plan.cautions)
     out["figure"] = _figure(p, units, site)
     return out
+
+
+def _train_values(p: Planned, units: str) -> dict[str, Any]:
+    """A train's sheet as the page shows it: the same parts as the text sheet."""
+    from ..report import train_sheet as ts
+    from ..report.train_view import train_view
+    from ..report.words import words
+    v = train_view(p.scenario, p.train)
+    return {"proposed": p.train.proposed,
+            "headlines": [ts.step_headline(v, s, units) for s in v.steps],
+            "discharge": ts.discharge_line(v),
+            "top": [words(w, units) for w in v.warnings if ts.is_headline_warning(w)],
+            "steps": [(ts.step_headline(v, s, units), ts.step_rows(v, s, units),
+                       [words(w, units) for w in s.warnings]) for s in v.steps],
+            "totals": ts.total_rows(v, units),
+            "checks": [(c.level, words(c, units)) for c in v.checks],
+            "rest": [words(w, units) for w in v.warnings if not ts.is_headline_warning(w)],
+            "cautions": list(p.train.cautions)}
+
+
+def _staging(lines: list[str]) -> tuple[list[str], list[str]]:
+    """The staged dose's words before its trim table and after it (the
+    table itself is shown from :func:`~dosing.report.sheet.trim_rows`)."""
+    table = [i for i, line in enumerate(lines) if line.startswith("   ")]
+    if not table:
+        return lines, []
+    return lines[:table[0]], lines[table[-1] + 1:]
+
+
+def _rows_of(lines: list[str]) -> list[tuple[str, str]]:
+    """Text-sheet lines ``label  value`` (continuations indented) as (label, value) rows."""
+    rows: list[tuple[str, str]] = []
+    for line in lines:
+        if line.startswith(" ") and rows:
+            rows[-1] = (rows[-1][0], f"{rows[-1][1]}; {line.strip()}")
+        else:
+            label, _, value = line.partition(" ")
+            rows.append((label, value.strip()))
+    return rows
 
 
 def _figure(p: Planned, units: str, site) -> str:
