@@ -307,3 +307,19 @@ def test_audit_table_refuses_changes(site):
             db.execute("DELETE FROM audit")
     with SiteLog(site._log.path, writable=False) as log:
         assert any(a == "signin" for *_, a, _d in log.audit_rows())
+
+
+def test_a_correction_replans_the_recorded_water_and_points_to_the_entry(site):
+    c = client_as(site, "ana")
+    _record(c, dosed="10")
+    r = c.post("/log/1/correct", data={"csrf": token(c.get("/log/1").text), "dosed": "9.5",
+                                       "note": "the drum scale read high"})
+    assert r.status_code == 303 and r.headers["location"] == "/log/2"
+    with site.log() as log:
+        first, second = log.get(1), log.get(2)
+    assert second.kind == "correction" and second.refers_to == 1 and second.dosed_kg == 9.5
+    assert second.planned_kg == pytest.approx(first.planned_kg, rel=1e-9)
+    assert "CORRECTED by entry 2" in c.get("/log/1").text
+    vic = client_as(site, "vic")
+    r = vic.post("/log/1/correct", data={"csrf": token(vic.get("/log/1").text), "dosed": "1"})
+    assert r.status_code == 403 and _entries(site) == 2

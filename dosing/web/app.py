@@ -66,6 +66,7 @@ def create_app(site: Site) -> Starlette:
         Route("/log/{id:int}", page(log_pages.entry_page, "read")),
         Route("/log/{id:int}/follow-up", page(log_pages.follow_up, "record"),
               methods=["POST"]),
+        Route("/log/{id:int}/correct", page(log_pages.correct, "record"), methods=["POST"]),
         Route("/log/{id:int}/review", page(log_pages.review, "review"), methods=["POST"]),
         Route("/audit", page(log_pages.audit_page, "audit")),
         Route("/scenarios/{name}/edit", page(log_pages.edit_scenario, "edit"),

@@ -12,7 +12,7 @@ from starlette.responses import RedirectResponse, Response
 from ..errors import DosingError, InputError, ShiftLogError
 from .auth import Ctx
 
-__all__ = ["log_list", "entry_page", "follow_up", "review", "export_csv", "audit_page",
+__all__ = ["log_list", "entry_page", "follow_up", "correct", "review", "export_csv", "audit_page",
            "edit_scenario"]
 
 
@@ -78,6 +78,25 @@ def follow_up(ctx: Ctx) -> Response:
     except (DosingError, ValueError) as err:
         return entry_page(ctx, str(err), 422)
     return RedirectResponse(f"/log/{entry_id}", 303)
+
+
+def correct(ctx: Ctx) -> Response:
+    """A correction of a decision: the same water planned again from the
+    scenario the entry recorded, with what was really given."""
+    from .pages import record_planned
+    from .site import plan_text
+    entry_id = ctx.request.path_params["id"]
+    try:
+        with ctx.site.log() as log:
+            e = log.get(entry_id)
+        if e.kind == "follow_up" or not e.scenario_toml:
+            raise InputError("entry", f"entry {entry_id} is not a decision; correct the "
+                             "decision it follows up")
+        new = record_planned(ctx, plan_text(f"entry-{entry_id}", e.scenario_toml, None),
+                             corrects=entry_id)
+    except DosingError as err:
+        return entry_page(ctx, str(err), 422)
+    return RedirectResponse(f"/log/{new}", 303)
 
 
 def review(ctx: Ctx) -> Response:

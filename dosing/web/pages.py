@@ -19,7 +19,8 @@ from ..planning.reagents import GENERAL_CAUTION
 from .auth import Ctx
 from .site import FORM_FIELDS, PAIR_FIELDS, Planned, scenario_form
 
-__all__ = ["tanks", "scenarios", "plan_page", "print_page", "pdf_download", "record"]
+__all__ = ["tanks", "scenarios", "plan_page", "print_page", "pdf_download", "record",
+           "record_planned", "kg_unit"]
 
 _UNITS = ("metric", "us")
 
@@ -261,18 +262,26 @@ def _given(ctx: Ctx, planned: Planned) -> tuple[list[float] | None, float | None
 def record(ctx: Ctx) -> Response:
     """Record the decision planned with the form's boxes (planned again here,
     so the record is the plan the server made, not what a page claims)."""
-    from ..report.record import record_of
     planned, error = _planned(ctx, _boxes(ctx, ctx.form))
     if planned is None:
         return ctx.render("error.html", 422, title="Not recorded", message=error)
     try:
-        given, ph_after = _given(ctx, planned)
-        data, dosed = record_of(planned.scenario, planned.plan, planned.train, given)
-        with ctx.site.log() as log:
-            entry_id = log.record_decision(
-                operator=ctx.who, scenario_toml=planned.toml, plan=data, dosed_kg=dosed,
-                ph_after=ph_after, note=ctx.form.get("note", "")[:2000])
-            log.audit(ctx.who, ctx.address, "record", f"entry {entry_id}")
+        entry_id = record_planned(ctx, planned)
     except DosingError as err:
         return ctx.render("error.html", 422, title="Not recorded", message=str(err))
     return RedirectResponse(f"/log/{entry_id}", 303)
+
+
+def record_planned(ctx: Ctx, planned: Planned, corrects: int | None = None) -> int:
+    """Record ``planned`` with what the form says was given, by the one signed
+    in (a correction of entry ``corrects`` if given); returns the new id."""
+    from ..report.record import record_of
+    given, ph_after = _given(ctx, planned)
+    data, dosed = record_of(planned.scenario, planned.plan, planned.train, given)
+    with ctx.site.log() as log:
+        entry_id = log.record_decision(
+            operator=ctx.who, scenario_toml=planned.toml, plan=data, dosed_kg=dosed,
+            ph_after=ph_after, note=ctx.form.get("note", "")[:2000], corrects=corrects)
+        log.audit(ctx.who, ctx.address, "correction" if corrects else "record",
+                  f"entry {entry_id}" + (f" corrects {corrects}" if corrects else ""))
+    return entry_id

@@ -19,7 +19,7 @@ from ..errors import InputError, ScenarioError
 from ..io.site_log import SiteLog
 from ..io.typed import parse_pairs, read_number
 
-__all__ = ["Site", "FORM_FIELDS", "PAIR_FIELDS", "Planned", "scenario_form"]
+__all__ = ["Site", "FORM_FIELDS", "PAIR_FIELDS", "Planned", "scenario_form", "plan_text"]
 
 #: The measurement boxes of the plan form: (form name, scenario key, label, unit).
 FORM_FIELDS = (
@@ -149,19 +149,7 @@ class Site:
 
     def plan(self, name: str, form: Mapping[str, str] | None) -> Planned:
         """Plan scenario ``name`` with the form's measurements (None: as filed)."""
-        from ..io.scenario import build_scenario, parse_toml, scenario_to_toml
-        from ..planning.job import make_plan
-        from ..planning.train_job import make_train
-        text = self.text_of(name)
-        label = f"{name}.toml"
-        data = parse_toml(text, label)
-        if form is not None and "effluent" in data:
-            data = _overlay(data, form)
-        scenario = build_scenario(data, label)
-        plan = None if scenario.train else make_plan(scenario)
-        train = make_train(scenario, plan)
-        toml = text if form is None else scenario_to_toml(data, text)
-        return Planned(name, scenario, toml, plan, train)
+        return plan_text(name, self.text_of(name), form)
 
     def save_scenario(self, name: str, text: str) -> str:
         """Replace a scenario's text after checking it reads as a scenario;
@@ -172,3 +160,20 @@ class Site:
         parse_scenario(text, f"{name}.toml")                # refused before any write
         write_atomic(self.path_of(name), text.encode("utf-8"))
         return old
+
+
+def plan_text(name: str, text: str, form: Mapping[str, str] | None) -> Planned:
+    """Plan a scenario's TOML text (the form's measurements written in, if given)."""
+    from ..io.scenario import build_scenario, parse_toml, scenario_to_toml
+    from ..planning.job import make_plan
+    from ..planning.train_job import make_train
+    label = f"{name}.toml"
+    data = parse_toml(text, label)
+    if form is not None and "effluent" in data:
+        data = _overlay(data, form)
+    scenario = build_scenario(data, label)
+    plan = None if scenario.train else make_plan(scenario)
+    train = make_train(scenario, plan)
+    toml = text if form is None else scenario_to_toml(data, text)
+    return Planned(name, scenario, toml, plan, train)
+
