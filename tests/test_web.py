@@ -323,3 +323,31 @@ def test_a_correction_replans_the_recorded_water_and_points_to_the_entry(site):
     vic = client_as(site, "vic")
     r = vic.post("/log/1/correct", data={"csrf": token(vic.get("/log/1").text), "dosed": "1"})
     assert r.status_code == 403 and _entries(site) == 2
+
+
+# ----------------------------------------------------------------- fuzz --
+from hypothesis import given, strategies as st  # noqa: E402
+
+from tests.test_robustness import _FUZZ  # noqa: E402
+
+_TEXT = st.one_of(st.text(max_size=30), st.sampled_from(
+    ["", "7", "-1", "1e308", "nan", "inf", "2,8", "1,234", "zinc=1e9", "=cmd", "x=1;y",
+     "\x00", "<script>", "9" * 400]))
+
+
+@pytest.fixture(scope="module")
+def fuzz_client(tmp_path_factory):
+    s = make_site(tmp_path_factory.mktemp("fuzz"))
+    yield client_as(s, "ana")
+    s.close()
+
+
+@pytest.mark.fuzz
+@_FUZZ
+@given(boxes=st.fixed_dictionaries({k: _TEXT for k in BOXES}))
+def test_any_typed_measurements_give_a_sheet_or_one_clear_refusal(fuzz_client, boxes):
+    r = fuzz_client.get("/plan/acid-rinse-caustic", params={**boxes, "go": "1"})
+    assert r.status_code in (200, 422), r.status_code
+    assert "Traceback" not in r.text and "NaN" not in r.text and "Infinity" not in r.text
+    if r.status_code == 422:
+        assert r.text.count('class="error"') == 1
