@@ -121,6 +121,9 @@ def _schema_of(db: sqlite3.Connection) -> frozenset:
     normalised); SQLite's own objects left out."""
     rows = db.execute("SELECT type, name, tbl_name, sql FROM sqlite_master "
                       "WHERE name NOT LIKE 'sqlite_%'").fetchall()
+    if any(not isinstance(x, str) for row in rows for x in row if x is not None):
+        # Bytes that are not text where SQLite keeps its schema: damage.
+        raise sqlite3.DatabaseError("the schema itself is damaged")
     return frozenset((t, n, tb, " ".join((sql or "").split())) for t, n, tb, sql in rows)
 
 
