@@ -125,11 +125,28 @@ class Mixture:
                    vec(co2_air_mol_l), activity,
                    None if unknown_pka is None else vec(unknown_pka), shift=shift)
 
+    def memo(self, key, make):
+        """``make()``, made once per mixture and key (a mixture's arrays are
+        never written after it is built, so what is derived from them holds;
+        a taken or replaced mixture starts without)."""
+        memo = self.__dict__.get("_memo")
+        if memo is None:
+            memo = {}
+            object.__setattr__(self, "_memo", memo)
+        if key not in memo:
+            memo[key] = make()
+        return memo[key]
+
     def constants(self, cols=None) -> Constants:
-        """Constants at this mixture's temperatures, fitted pKa applied.
+        """Constants at this mixture's temperatures, fitted pKa applied
+        (worked out once per mixture and set of columns; read-only).
 
         ``cols``: only these columns, in that order (see :func:`constants_at`).
         """
+        key = ("constants", None if cols is None else tuple(int(c) for c in cols))
+        return self.memo(key, lambda: self._constants(cols))
+
+    def _constants(self, cols) -> Constants:
         const = constants_at(self.temperature_c, cols)
         at = (np.array([UNKNOWN]) if cols is None
               else np.flatnonzero(np.asarray(cols) == UNKNOWN))

@@ -237,9 +237,10 @@ class Rows:
 
 def _used(mix: Mixture, extra_cols=()) -> np.ndarray:
     """Columns with a non-zero total (plus ``extra_cols``, and open carbonate)."""
-    used = mix.totals_mol_l.any(axis=0)      # non-zero (NaN counts), no temporary
+    # The scan of every total is made once per mixture.
+    used = mix.memo("nonzero", lambda: mix.totals_mol_l.any(axis=0)).copy()
     used[list(extra_cols)] = True
-    if mix.open_to_air.any():
+    if mix.memo("open", lambda: bool(mix.open_to_air.any())):
         used[CARBONATE] = True
     return np.flatnonzero(used)
 
@@ -261,7 +262,9 @@ def restrict(mix: Mixture, extra_cols=(), *, cap: bool = True) -> Rows:
         core_k = tab.log_k(t[:1] if one else t)
         if mix.shift is not None:
             core_k = tab.shifted(core_k, mix.shift)
-    return Rows(mix.totals_mol_l[:, cols], mix.strong_eq_l, mix.strong_ionic_strength,
+    totals = mix.memo(("totals", tuple(int(c) for c in cols)),
+                      lambda: mix.totals_mol_l[:, cols])
+    return Rows(totals, mix.strong_eq_l, mix.strong_ionic_strength,
                 mix.co2_air_mol_l, const.kw, const.k, const.a, Z[cols], carb,
                 mix.activity, cols, const.log_ks0, SOLID_Z[cols], cap, ca, log_kc,
                 tab, core_k)
