@@ -26,58 +26,64 @@ _LN10 = math.log(10.0)
 
 
 @njit(cache=True, error_model="numpy", inline="always")
+def _powers(t, power):
+    """E^(z^2) for |z| = 0..5 into ``power``, E = 10^t; returns 10^-t.
+
+    The Davies factors of a form's constants telescope: form f carries
+    10^(t z_f^2) / 10^(t z_0^2), so each form is weighted by E^(z_f^2),
+    taken from this table by |z_f| (charges are integers, |z| <= 5).
+    """
+    g1 = math.exp(-_LN10 * t)
+    e = 1.0 / g1
+    e4 = e * e
+    e4 = e4 * e4
+    e8 = e4 * e4
+    power[0], power[1], power[2] = 1.0, e, e4
+    power[3] = e8 * e
+    power[4] = e8 * e8
+    power[5] = power[4] * power[3]
+    return g1
+
+
+@njit(cache=True, error_model="numpy", inline="always")
+def _column(j, ki, inv, k, z, za, power, davies):
+    """Mean charge and mean squared charge of column ``j`` (forms built one
+    from the last: each step's constant times 1/a_H)."""
+    forms = z.shape[1]
+    z0 = z[j, 0]
+    p = power[za[j, 0]] if davies else 1.0
+    tot = p
+    sq = p * z0
+    s2 = p * z0 * z0
+    c = 1.0
+    for f in range(forms - 1):
+        zb = z[j, f + 1]
+        c = c * k[ki, j, f] * inv
+        p = c * power[za[j, f + 1]] if davies else c
+        tot += p
+        sq += p * zb
+        s2 += p * zb * zb
+    r = 1.0 / tot
+    return sq * r, s2 * r
+
+
+@njit(cache=True, error_model="numpy", inline="always")
 def _pass(i, ki, ah, ionic, k, z, kw, a, totals, strong, strong_i, n_r, r_strong, r_vol,
           r_ionic, davies, ceiling, power, za):
-    """One pass at ionic strength ``ionic``: (dose, slope, ionic strength after).
-
-    Fractions form by form (each step's constant times 1/a_H, scaled by the
-    Davies term), their mean charge and mean squared charge, summed over
-    the columns straight into the charge balance and the ionic strength.
-    """
-    mc, forms = z.shape
-    t = 0.0
+    """One pass at ionic strength ``ionic``: (dose, slope, ionic strength after),
+    the columns summed straight into the charge balance and the ionic strength."""
+    g1 = 1.0
     if davies:
         x = max(min(ionic, ceiling), 0.0)
         sx = math.sqrt(x)
-        t = a[ki] * (sx / (1.0 + sx) - 0.3 * x)
-    g1 = math.exp(-_LN10 * t)
-    # The Davies factors of a form's constants telescope: form f carries
-    # 10^(t z_f^2) / 10^(t z_0^2), so each form is weighted by E^(z_f^2),
-    # E = 10^t, taken from a table by |z_f| (charges are integers, |z| <= 5).
-    if davies:
-        e = 1.0 / g1
-        e4 = e * e
-        e4 = e4 * e4
-        e8 = e4 * e4
-        power[0], power[1], power[2] = 1.0, e, e4
-        power[3] = e8 * e
-        power[4] = e8 * e8
-        power[5] = power[4] * power[3]
+        g1 = _powers(a[ki] * (sx / (1.0 + sx) - 0.3 * x), power)
     inv = 1.0 / ah
-    num = strong[i]
-    den = r_strong
-    weak = 0.0
-    weak_r = 0.0
-    for j in range(mc):
-        z0 = z[j, 0]
-        p = power[za[j, 0]] if davies else 1.0
-        tot = p
-        sq = p * z0
-        s2 = p * z0 * z0
-        c = 1.0
-        for f in range(forms - 1):
-            zb = z[j, f + 1]
-            c = c * k[ki, j, f] * inv
-            p = c * power[za[j, f + 1]] if davies else c
-            tot += p
-            sq += p * zb
-            s2 += p * zb * zb
-        r = 1.0 / tot
-        q = sq * r
+    num, den, weak, weak_r = strong[i], r_strong, 0.0, 0.0
+    for j in range(z.shape[0]):
+        q, m2 = _column(j, ki, inv, k, z, za, power, davies)
         num += totals[i, j] * q
         den += n_r[j] * q
         if davies:
-            m2 = s2 * r
             weak += totals[i, j] * m2
             weak_r += n_r[j] * m2
     h = ah / g1
