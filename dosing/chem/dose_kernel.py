@@ -27,14 +27,13 @@ _LN10 = math.log(10.0)
 
 @njit(cache=True, error_model="numpy", inline="always")
 def _powers(t, power):
-    """E^(z^2) for |z| = 0..5 into ``power``, E = 10^t; returns 10^-t.
+    """E^(z^2) for |z| = 0..5 into ``power``, E = 10^t; returns E.
 
     The Davies factors of a form's constants telescope: form f carries
     10^(t z_f^2) / 10^(t z_0^2), so each form is weighted by E^(z_f^2),
     taken from this table by |z_f| (charges are integers, |z| <= 5).
     """
-    g1 = math.exp(-_LN10 * t)
-    e = 1.0 / g1
+    e = math.exp(_LN10 * t)
     e4 = e * e
     e4 = e4 * e4
     e8 = e4 * e4
@@ -42,7 +41,7 @@ def _powers(t, power):
     power[3] = e8 * e
     power[4] = e8 * e8
     power[5] = power[4] * power[3]
-    return g1
+    return e
 
 
 @njit(cache=True, error_model="numpy", inline="always")
@@ -68,16 +67,15 @@ def _column(j, ki, inv, k, z, za, power, davies):
 
 
 @njit(cache=True, error_model="numpy", inline="always")
-def _pass(i, ki, ah, ionic, k, z, kw, a, totals, strong, strong_i, n_r, r_strong, r_vol,
-          r_ionic, davies, ceiling, power, za):
+def _pass(i, ki, ah, inv, ionic, k, z, kw, a, totals, strong, strong_i, n_r, r_strong,
+          r_vol, r_ionic, davies, ceiling, power, za):
     """One pass at ionic strength ``ionic``: (dose, slope, ionic strength after),
     the columns summed straight into the charge balance and the ionic strength."""
-    g1 = 1.0
+    e = 1.0
     if davies:
         x = max(min(ionic, ceiling), 0.0)
         sx = math.sqrt(x)
-        g1 = _powers(a[ki] * (sx / (1.0 + sx) - 0.3 * x), power)
-    inv = 1.0 / ah
+        e = _powers(a[ki] * (sx / (1.0 + sx) - 0.3 * x), power)
     num, den, weak, weak_r = strong[i], r_strong, 0.0, 0.0
     for j in range(z.shape[0]):
         q, m2 = _column(j, ki, inv, k, z, za, power, davies)
@@ -86,8 +84,8 @@ def _pass(i, ki, ah, ionic, k, z, kw, a, totals, strong, strong_i, n_r, r_strong
         if davies:
             weak += totals[i, j] * m2
             weak_r += n_r[j] * m2
-    h = ah / g1
-    oh = kw[ki] / (ah * g1)
+    h = ah * e
+    oh = kw[ki] * inv * e
     w = h - oh
     num += w
     den += r_vol * w
@@ -116,8 +114,9 @@ def _rows(ah, k, z, kw, a, totals, strong, strong_i, n_r, r_strong, r_vol, r_ion
             za[j, f] = int(abs(z[j, f]) + 0.5)
     for i in range(ah.shape[0]):
         ki = 0 if one else i
+        inv = 1.0 / ah[i]
         x_prev = strong_i[i]
-        d, den, x = _pass(i, ki, ah[i], x_prev, k, z, kw, a, totals, strong, strong_i, n_r,
+        d, den, x = _pass(i, ki, ah[i], inv, x_prev, k, z, kw, a, totals, strong, strong_i, n_r,
                           r_strong, r_vol, r_ionic, davies, ceiling, power, za)
         if not davies:
             dose[i], slope[i], ionic_out[i] = d, den, math.nan
@@ -126,7 +125,7 @@ def _rows(ah, k, z, kw, a, totals, strong, strong_i, n_r, r_strong, r_vol, r_ion
         out_d, out_s, out_x = d, den, math.nan     # kept from the first step if unsettled
         first = True
         for _ in range(max_iter):
-            d, den, fx = _pass(i, ki, ah[i], x, k, z, kw, a, totals, strong, strong_i, n_r,
+            d, den, fx = _pass(i, ki, ah[i], inv, x, k, z, kw, a, totals, strong, strong_i, n_r,
                                r_strong, r_vol, r_ionic, davies, ceiling, power, za)
             if first:
                 out_d, out_s, first = d, den, False
