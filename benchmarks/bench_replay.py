@@ -34,8 +34,11 @@ ROOT = Path(__file__).resolve().parents[1]
 SCEN = ROOT / "scenarios" / "flow-metering-pump.toml"
 
 
-def make_log(path: Path, n: int, first: int = 0) -> None:
-    """An invented log of ``n`` one-minute rows, from minute ``first`` of 2025."""
+def make_log(path: Path, n: int, first: int = 0, new_waters: bool = False) -> None:
+    """An invented log of ``n`` one-minute rows, from minute ``first`` of 2025.
+
+    ``new_waters``: pH to 4 decimals and an alkalinity column, so every row
+    is a water of its own (no two rows solve the same)."""
     rng = np.random.default_rng(5 + first)
     step = 1_000_000
     with open(path, "w") as fh:
@@ -46,7 +49,10 @@ def make_log(path: Path, n: int, first: int = 0) -> None:
             day = np.sin(i / 1440 * 2 * np.pi)
             frame = pd.DataFrame({"timestamp": ts.strftime("%Y-%m-%d %H:%M"),
                                   "flow_m3_h": (20 + 5 * day + rng.normal(0, 1, m)).round(3),
-                                  "ph": (10.1 + 0.5 * day + rng.normal(0, 0.1, m)).round(3)})
+                                  "ph": (10.1 + 0.5 * day + rng.normal(0, 0.1, m)).round(
+                                      4 if new_waters else 3)})
+            if new_waters:
+                frame["alkalinity_mg_l"] = (400 + 40 * day + rng.normal(0, 5, m)).round(2)
             frame.to_csv(fh, header=start == 0, index=False)
 
 
@@ -124,7 +130,7 @@ def end_to_end(path: Path, label: str) -> None:
             f"r, _ = run_replay({str(path)!r}, s, keep_hourly=False); "
             f"ts.append(time.perf_counter() - t)\n"
             f"hwm = [l.split()[1] for l in open('/proc/self/status') if l.startswith('VmHWM')]; "
-            f"print(r['rows'], ts[0], min(ts[1:]), hwm[0])")
+            f"print(r.rows, ts[0], min(ts[1:]), hwm[0])")
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
                          check=True).stdout.split()
     rows, cold, warm, rss_kb = int(out[0]), float(out[1]), float(out[2]), int(out[3])
@@ -168,6 +174,12 @@ def main() -> None:
         make_log(year, 525_600)
         end_to_end(year, "one year of minute data")
         whole_commands(year)
+        fresh = Path(d) / "fresh.csv"
+        n_fresh = 5_000_000 if "--big" in sys.argv else 1_000_000
+        make_log(fresh, n_fresh, new_waters=True)
+        end_to_end(fresh, f"{n_fresh:,} rows, every row a new water (pH to 4 decimals, "
+                          "alkalinity)")
+        whole_commands(fresh)
         if "--big" in sys.argv:
             big = Path(d) / "big.csv"
             make_log(big, 5_000_000)

@@ -140,6 +140,34 @@ def per_row_loop(mix: Mixture, caustic, target: float, rows: int) -> float:
         coupled.KERNEL.on = True
 
 
+def minimal_numpy(mix: Mixture, caustic, target: np.ndarray) -> float:
+    """Seconds of a minimal numpy kernel of the same metal-free ideal dose
+    (constants worked out beforehand, as the engine keeps them per mixture):
+    per-row totals, the fractions form by form, the charge balance. The
+    yardstick issue 30 sets the engine against."""
+    from dosing.chem.speciation import restrict
+    cols = np.flatnonzero(mix.totals_mol_l.any(axis=0) | (caustic.totals_mol != 0))
+    rows = restrict(mix, extra_cols=np.flatnonzero(caustic.totals_mol))
+    k, z, kw = rows.k, rows.z, rows.kw
+    tot = np.ascontiguousarray(mix.totals_mol_l[:, cols])
+    n_r = np.asarray(caustic.totals_mol)[cols]
+
+    def run():
+        inv = 10.0 ** target
+        c = np.ones((mix.n, cols.size))
+        s, q = np.ones_like(c), np.tile(z[:, 0], (mix.n, 1))
+        for f in range(k.shape[2]):
+            c = c * k[:, :, f] * inv[:, None]
+            s += c
+            q += c * z[:, f + 1]
+        q /= s
+        w = 1.0 / inv - kw * inv
+        num = mix.strong_eq_l + np.einsum("nm,nm->n", tot, q) + w
+        den = caustic.strong_eq + q @ n_r + caustic.volume_l * w
+        return -num / den
+    return timed(run)
+
+
 def metal_free_and_direct(n: int, caustic, per_row_scalar: float) -> dict:
     """Metal-free waters and metals with hydroxides only (the direct path)."""
     target = np.full(n, 7.5)
@@ -151,6 +179,11 @@ def metal_free_and_direct(n: int, caustic, per_row_scalar: float) -> dict:
         t_dose = timed(lambda: dose_to_ph(mix, caustic, target))
         if not metals:
             base[model.name] = t_dose
+            if model is IDEAL:
+                t_min = minimal_numpy(mix, caustic, target)
+                print(f"minimal numpy kernel (ideal):    {n / t_min:12,.0f} waters/s; the "
+                      f"engine's dose solve is x{t_min / t_dose:.2f} of it (issue 30 asks "
+                      "at least 0.4 and 25 M/s)")
         else:
             print(f"{label}: dose solve keeps {base[model.name] / t_dose:.0%} of the "
                   "metal-free rate (issue 16 asks for at least 33 %)")

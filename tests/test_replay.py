@@ -247,6 +247,30 @@ def test_rows_sharing_a_water_get_the_dose_it_gets_alone(tmp_path):
     np.testing.assert_allclose(rows["dose_mmol_l"], alone * 1000.0, rtol=1e-12)
 
 
+def test_rows_that_are_all_new_waters_skip_the_memory_and_keep_their_doses(tmp_path):
+    # pH to 4 decimals and an alkalinity each: no two rows the same water, so
+    # no memory of waters is kept, and each row's dose is its own, alone.
+    rng = np.random.default_rng(8)
+    n = 1200
+    ph = np.round(rng.uniform(9.0, 11.0, n), 4)
+    alk = np.round(rng.uniform(120.0, 180.0, n), 2)
+    ts = pd.Timestamp("2026-01-01") + pd.to_timedelta(np.arange(n), unit="min")
+    f = tmp_path / "fresh.csv"
+    pd.DataFrame({"timestamp": ts.strftime("%Y-%m-%d %H:%M"), "flow_m3_h": 10.0, "ph": ph,
+                  "alkalinity": alk}).to_csv(f, index=False)
+    s = load_scenario(SCEN)
+    state = replay_mod.ReplayState()
+    rows = pd.concat([replay_mod.plan_rows(c.reset_index(drop=True), s, state)
+                      for c in iter_site_chunks([str(f)], 400)], ignore_index=True)
+    assert len(state.solved) == 0
+    temp = np.full(n, s.water.temperature_c)
+    alone, why = replay_mod._dose_distinct(s, ph, temp, alk)
+    ok = why == 0
+    assert ok.mean() > 0.9
+    np.testing.assert_allclose(rows["dose_mmol_l"].to_numpy()[ok], alone[ok] * 1000.0,
+                               rtol=1e-12)
+
+
 @settings(max_examples=60, deadline=None, derandomize=True)
 @given(arrays(np.float64, st.integers(0, 60), elements=st.sampled_from([1.0, 2.0, np.nan, -0.0])),
        st.integers(0, 3))

@@ -255,6 +255,12 @@ def _dose_for(scenario: Scenario, ph, temp, alk, flag, ok, solved: dict) -> np.n
     a = as_numbers(alk) if alk is not None else None
     cols = [ph, temp] + ([a] if a is not None else [])
     first, inverse = distinct_rows(cols)
+    if first.size > _FRESH_SHARE * inverse.size:
+        # Most rows are waters of their own (readings to many decimals): the
+        # memory of waters seen would cost a lookup a row and save nothing.
+        dose, why = _dose_distinct(scenario, ph[first], temp[first],
+                                   a[first] if a is not None else None)
+        return _shared(dose, why, inverse, flag, ok)
     keys = list(zip(*(c[first].tolist() for c in cols)))
     known = [solved.get(k) for k in keys]
     new = np.array([v is None for v in known], dtype=bool)
@@ -268,6 +274,11 @@ def _dose_for(scenario: Scenario, ph, temp, alk, flag, ok, solved: dict) -> np.n
             solved.clear()
         solved.update(zip((k for k, n in zip(keys, new) if n),
                           zip(dose[new].tolist(), why[new].tolist())))
+    return _shared(dose, why, inverse, flag, ok)
+
+
+def _shared(dose, why, inverse, flag, ok) -> np.ndarray:
+    """Each row's dose from its distinct water's, its flag set in ``flag``."""
     why = why[inverse]
     hit = why != 0
     flag[np.flatnonzero(ok)[hit]] = why[hit]
@@ -276,6 +287,8 @@ def _dose_for(scenario: Scenario, ph, temp, alk, flag, ok, solved: dict) -> np.n
 
 #: Distinct waters kept between chunks (past this the memory is started afresh).
 _SOLVED_MAX = 200_000
+#: Above this share of new waters in a chunk, no memory of waters is kept.
+_FRESH_SHARE = 0.5
 
 
 def distinct_rows(columns: list[np.ndarray]) -> tuple[np.ndarray, np.ndarray]:
