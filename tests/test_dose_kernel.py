@@ -89,3 +89,52 @@ def test_demo_plans_are_the_same_with_and_without_the_compiled_loop(name):
     assert new.ph_end == pytest.approx(ref.ph_end, abs=1e-10)
     if ref.uncertainty is not None:
         assert new.uncertainty.p_outside == ref.uncertainty.p_outside
+
+
+@pytest.mark.parametrize("activity", [IDEAL, DAVIES], ids=["ideal", "davies"])
+@pytest.mark.parametrize("one_temperature", [True, False], ids=["one-T", "many-T"])
+def test_compiled_strong_balance_equals_the_reference(activity, one_temperature):
+    from dosing.chem import strong_balance_at_ph
+    mix = _waters(3000, activity, seed=4, one_temperature=one_temperature)
+    rng = np.random.default_rng(6)
+    ph = rng.uniform(2.0, 12.5, mix.n)
+    extra = rng.uniform(0.0, 0.05, mix.n)
+    known = rng.uniform(-0.01, 0.01, mix.n)
+    kw = dict(activity=activity, extra_ionic_strength=extra, known_strong_eq_l=known)
+    DOSE_KERNEL.on = False
+    try:
+        s0, i0 = strong_balance_at_ph(mix.totals_mol_l, ph, mix.temperature_c, **kw)
+    finally:
+        DOSE_KERNEL.on = True
+    s1, i1 = strong_balance_at_ph(mix.totals_mol_l, ph, mix.temperature_c, **kw)
+    assert np.array_equal(np.isfinite(s0), np.isfinite(s1)) and np.isfinite(s0).all()
+    scale = mix.totals_mol_l.sum(axis=1) + 10.0 ** -ph + 10.0 ** (ph - 14.0)
+    assert np.all(np.abs(s1 - s0) <= 1e-12 * scale)
+    np.testing.assert_allclose(i1, i0, rtol=1e-12, atol=0.0)
+
+
+@pytest.mark.parametrize("activity", [IDEAL, DAVIES], ids=["ideal", "davies"])
+@pytest.mark.parametrize("one_temperature", [True, False], ids=["one-T", "many-T"])
+def test_compiled_carbonate_from_alkalinity_equals_the_reference(activity, one_temperature):
+    from dosing.chem import carbonate_for_alkalinity
+    mix = _waters(3000, activity, seed=9, one_temperature=one_temperature)
+    rng = np.random.default_rng(2)
+    ph = rng.uniform(4.8, 11.5, mix.n)
+    alk = rng.uniform(-0.002, 0.01, mix.n)            # eq/L; negative: an acidity
+    extra = rng.uniform(0.0, 0.05, mix.n)
+    kw = dict(activity=activity, extra_ionic_strength=extra)
+    DOSE_KERNEL.on = False
+    try:
+        c0, k0, i0 = carbonate_for_alkalinity(mix.totals_mol_l, ph, mix.temperature_c, alk,
+                                              4.5, **kw)
+    finally:
+        DOSE_KERNEL.on = True
+    c1, k1, i1 = carbonate_for_alkalinity(mix.totals_mol_l, ph, mix.temperature_c, alk,
+                                          4.5, **kw)
+    assert np.array_equal(np.isfinite(c0), np.isfinite(c1))
+    ok = np.isfinite(c0)
+    assert ok.mean() > 0.9
+    scale = (np.abs(alk) + mix.totals_mol_l.sum(axis=1) + 1e-7) / np.abs(k0)
+    assert np.all(np.abs(c1[ok] - c0[ok]) <= 1e-12 * scale[ok])
+    np.testing.assert_allclose(k1, k0, rtol=1e-12, atol=1e-15)
+    np.testing.assert_allclose(i1[ok], i0[ok], rtol=1e-12, atol=0.0)

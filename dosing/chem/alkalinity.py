@@ -14,8 +14,10 @@ import numpy as np
 from .activity import ActivityModel
 from .columns import CARBONATE, N_SYSTEMS, system_index
 from .mixture import Mixture
-from .solvers import settle
+from .solvers import SETTLE_RTOL, settle
 from .coupled import coupled_balance
+from .fast import compiled_alkalinity, simple_rows
+from .medium import I_CEILING
 from .speciation import Rows, capped_mask, restrict, species_at
 
 __all__ = ["carbonate_for_alkalinity"]
@@ -54,6 +56,8 @@ def carbonate_for_alkalinity(totals_mol_l, ph, temperature_c, alk_eq_l,
     job = _AlkalinityJob.build(totals_mol_l, ph, temperature_c, alk_eq_l, endpoint_ph,
                                activity, extra_ionic_strength, unknown_pka, ferrous_oxidised,
                                shift)
+    if compiled_alkalinity() is not None and simple_rows(job.rows, activity):
+        return _compiled(job, activity, max_iter)
     ionic, ionic_e = job.extra.copy(), job.extra.copy()
     c, coef, new_i, new_ie = job.solve(ionic, ionic_e)
     if activity.ideal:
@@ -74,6 +78,22 @@ def carbonate_for_alkalinity(totals_mol_l, ph, temperature_c, alk_eq_l,
     if job.rows.tab is not None:
         c, new_i = _coupled_carbonate(job, c, coef, new_i, both[n:])
     return c, coef, new_i
+
+
+def _compiled(job: "_AlkalinityJob", activity: ActivityModel, max_iter: int):
+    """(carbonate, coefficient, ionic strength) from the compiled loop."""
+    rows, n = job.rows, job.ph.shape[0]
+    one = rows.k.shape[0] > 1 and rows.k.strides[0] == 0
+    a = np.broadcast_to(rows.a, (n,))
+    k, kw, a = (rows.k[:1], rows.kw[:1], a[:1]) if one else (rows.k, rows.kw, a)
+    c, coef, ionic = np.empty(n), np.empty(n), np.empty(n)
+    f = np.ascontiguousarray
+    compiled_alkalinity().alkalinity_rows(
+        f(job.ph, dtype=float), f(job.ep, dtype=float), f(job.alk, dtype=float),
+        f(job.extra, dtype=float), f(k, dtype=float), f(rows.z, dtype=float),
+        f(kw, dtype=float), f(a, dtype=float), f(rows.totals, dtype=float), rows.carb,
+        not activity.ideal, I_CEILING, SETTLE_RTOL, max_iter, c, coef, ionic)
+    return c, coef, ionic
 
 
 def _coupled_carbonate(job: "_AlkalinityJob", c, coef, ionic, ionic_e, passes: int = 40):

@@ -16,35 +16,12 @@ import numpy as np
 
 from .dose_coupled import dose_coupled
 from .mixture import Mixture, ReagentVector
+from .fast import DOSE_KERNEL, compiled, simple_rows
 from .medium import I_CEILING
 from .solvers import SETTLE_RTOL, settle
 from .speciation import Rows, capped_mask, restrict, species_at
 
-try:                                    # the compiled loop of the simple case
-    from . import dose_kernel as _kernel
-except ImportError:                     # pragma: no cover - numba is a dependency
-    _kernel = None
-
 __all__ = ["dose_to_ph", "DoseStep", "DOSE_KERNEL"]
-
-
-class _Switch:
-    """Whether :func:`dose_to_ph` uses the compiled loop where it applies
-    (tests turn it off to run the numpy reference)."""
-
-    on: bool = True
-
-
-DOSE_KERNEL = _Switch()
-
-
-def _simple(mix: Mixture, rows: Rows) -> bool:
-    """Waters the compiled loop solves: weak acids only (no complex, no
-    solid, no calcite, nothing held by air), ideal or Davies activity."""
-    return (_kernel is not None and DOSE_KERNEL.on and rows.tab is None and rows.ca < 0
-            and not rows.has_solids and mix.activity.charge_only
-            and mix.activity.name in ("ideal", "davies")
-            and not mix.memo("open", lambda: bool(mix.open_to_air.any())))
 
 
 def _compiled(mix: Mixture, rows: Rows, n_r: np.ndarray, reagent: ReagentVector, ah,
@@ -57,7 +34,7 @@ def _compiled(mix: Mixture, rows: Rows, n_r: np.ndarray, reagent: ReagentVector,
                 else (rows.k, rows.kw, np.broadcast_to(rows.a, (n,))))
     dose, slope, ionic = np.empty(n), np.empty(n), np.empty(n)
     f = np.ascontiguousarray
-    _kernel.dose_rows(f(ah, dtype=float), f(k, dtype=float), f(rows.z, dtype=float),
+    compiled().dose_rows(f(ah, dtype=float), f(k, dtype=float), f(rows.z, dtype=float),
                       f(kw, dtype=float), f(a, dtype=float), f(rows.totals, dtype=float),
                       f(mix.strong_eq_l, dtype=float),
                       f(mix.strong_ionic_strength, dtype=float), f(n_r, dtype=float),
@@ -96,7 +73,7 @@ def dose_to_ph(mix: Mixture, reagent: ReagentVector, target_ph,
     tp = np.broadcast_to(np.asarray(target_ph, dtype=float), (mix.n,)).copy()
     n_full = np.asarray(reagent.totals_mol, dtype=float)
     rows = restrict(mix, extra_cols=np.flatnonzero(n_full))
-    if _simple(mix, rows):
+    if compiled() is not None and simple_rows(rows, mix.activity):
         return _compiled(mix, rows, n_full[rows.cols], reagent, 10.0 ** -tp, max_iter)
     job = _DoseJob(mix, rows, n_full[rows.cols], reagent, 10.0 ** -tp)
     s = job.solve(None, max_iter)

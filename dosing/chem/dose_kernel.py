@@ -20,7 +20,7 @@ import math
 import numpy as np
 from numba import njit
 
-__all__ = ["dose_rows"]
+__all__ = ["dose_rows", "strong_rows"]
 
 _LN10 = math.log(10.0)
 
@@ -98,14 +98,45 @@ def _pass(i, ki, ah, inv, ionic, k, z, kw, a, totals, strong, strong_i, n_r, r_s
 
 
 @njit(cache=True, error_model="numpy", inline="always")
-def _rows(ah, k, z, kw, a, totals, strong, strong_i, n_r, r_strong, r_vol, r_ionic,
-          davies, ceiling, rtol, max_iter, dose, slope, ionic_out):
-    """Dose [mol/L] and slope [eq/mol] of every water, written into ``dose``
-    and ``slope`` (and the settled ionic strength into ``ionic_out``).
+def _strong_pass(i, ki, ah, inv, ionic, k, z, kw, a, totals, extra, known, davies, ceiling,
+                 power, za):
+    """One pass of the strong-ion balance at the water's own pH and ionic
+    strength ``ionic``: (S, 0, ionic strength with that S)."""
+    e = 1.0
+    if davies:
+        x = max(min(ionic, ceiling), 0.0)
+        sx = math.sqrt(x)
+        e = _powers(a[ki] * (sx / (1.0 + sx) - 0.3 * x), power)
+    resid, weak = 0.0, 0.0
+    for j in range(z.shape[0]):
+        q, m2 = _column(j, ki, inv, k, z, za, power, davies)
+        resid += totals[i, j] * q
+        weak += totals[i, j] * m2
+    h = ah * e
+    oh = kw[ki] * inv * e
+    sb = -(resid + h - oh)
+    return sb, 0.0, 0.5 * (h + oh + weak) + extra[i] + 0.5 * abs(sb - known[i])
 
-    ``k``, ``kw`` and ``a`` have one row per water, or one for all; ``davies`` false is the
-    ideal solution (no ionic-strength loop).
-    """
+
+@njit(cache=True, error_model="numpy", inline="always")
+def _one_pass(kind, i, ki, ah, inv, x, k, z, kw, a, totals, strong, strong_i, n_r, r_strong,
+              r_vol, r_ionic, extra, known, davies, ceiling, power, za):
+    """The pass of problem ``kind`` (0: the dose, 1: the strong balance)."""
+    if kind == 0:
+        return _pass(i, ki, ah, inv, x, k, z, kw, a, totals, strong, strong_i, n_r, r_strong,
+                     r_vol, r_ionic, davies, ceiling, power, za)
+    return _strong_pass(i, ki, ah, inv, x, k, z, kw, a, totals, extra, known, davies, ceiling,
+                        power, za)
+
+
+@njit(cache=True, error_model="numpy", inline="always")
+def _rows(kind, ah, k, z, kw, a, totals, start, strong, strong_i, n_r, r_strong, r_vol,
+          r_ionic, extra, known, davies, ceiling, rtol, max_iter, v1, v2, ionic_out):
+    """Problem ``kind`` for every water: the values of the pass at which its
+    ionic strength settled into ``v1`` and ``v2`` (``v1`` NaN if it did not),
+    that ionic strength into ``ionic_out``. The fixed point starts from
+    ``start`` and is :func:`dosing.chem.solvers.settle`'s own secant path;
+    the ideal solution takes one pass (its ionic strength is the pass's)."""
     one = k.shape[0] == 1
     power = np.empty(6)
     za = np.empty(z.shape, dtype=np.int64)
@@ -115,18 +146,20 @@ def _rows(ah, k, z, kw, a, totals, strong, strong_i, n_r, r_strong, r_vol, r_ion
     for i in range(ah.shape[0]):
         ki = 0 if one else i
         inv = 1.0 / ah[i]
-        x_prev = strong_i[i]
-        d, den, x = _pass(i, ki, ah[i], inv, x_prev, k, z, kw, a, totals, strong, strong_i, n_r,
-                          r_strong, r_vol, r_ionic, davies, ceiling, power, za)
+        x_prev = start[i]
+        d, den, x = _one_pass(kind, i, ki, ah[i], inv, x_prev, k, z, kw, a, totals, strong,
+                              strong_i, n_r, r_strong, r_vol, r_ionic, extra, known, davies,
+                              ceiling, power, za)
         if not davies:
-            dose[i], slope[i], ionic_out[i] = d, den, math.nan
+            v1[i], v2[i], ionic_out[i] = d, den, x
             continue
         g_prev = x - x_prev
         out_d, out_s, out_x = d, den, math.nan     # kept from the first step if unsettled
         first = True
         for _ in range(max_iter):
-            d, den, fx = _pass(i, ki, ah[i], inv, x, k, z, kw, a, totals, strong, strong_i, n_r,
-                               r_strong, r_vol, r_ionic, davies, ceiling, power, za)
+            d, den, fx = _one_pass(kind, i, ki, ah[i], inv, x, k, z, kw, a, totals, strong,
+                                   strong_i, n_r, r_strong, r_vol, r_ionic, extra, known,
+                                   davies, ceiling, power, za)
             if first:
                 out_d, out_s, first = d, den, False
             g = fx - x
@@ -138,32 +171,56 @@ def _rows(ah, k, z, kw, a, totals, strong, strong_i, n_r, r_strong, r_vol, r_ion
             sec = x - g * (x - x_prev) / (g - g_prev) if g != g_prev else math.nan
             x_prev, g_prev = x, g
             x = sec if (math.isfinite(sec) and sec >= 0.0) else fx
-        dose[i] = out_d if math.isfinite(out_x) else math.nan
-        slope[i], ionic_out[i] = out_s, out_x
+        v1[i] = out_d if math.isfinite(out_x) else math.nan
+        v2[i], ionic_out[i] = out_s, out_x
 
 
 @njit(cache=True, error_model="numpy")
-def _ideal_rows(ah, k, z, kw, a, totals, strong, strong_i, n_r, r_strong, r_vol, r_ionic,
+def _ideal_dose(ah, k, z, kw, a, totals, strong, strong_i, n_r, r_strong, r_vol, r_ionic,
                 ceiling, rtol, max_iter, dose, slope, ionic_out):
-    _rows(ah, k, z, kw, a, totals, strong, strong_i, n_r, r_strong, r_vol, r_ionic, False,
-          ceiling, rtol, max_iter, dose, slope, ionic_out)
+    _rows(0, ah, k, z, kw, a, totals, strong_i, strong, strong_i, n_r, r_strong, r_vol,
+          r_ionic, strong, strong, False, ceiling, rtol, max_iter, dose, slope, ionic_out)
 
 
 @njit(cache=True, error_model="numpy")
-def _davies_rows(ah, k, z, kw, a, totals, strong, strong_i, n_r, r_strong, r_vol, r_ionic,
+def _davies_dose(ah, k, z, kw, a, totals, strong, strong_i, n_r, r_strong, r_vol, r_ionic,
                  ceiling, rtol, max_iter, dose, slope, ionic_out):
-    _rows(ah, k, z, kw, a, totals, strong, strong_i, n_r, r_strong, r_vol, r_ionic, True,
-          ceiling, rtol, max_iter, dose, slope, ionic_out)
+    _rows(0, ah, k, z, kw, a, totals, strong_i, strong, strong_i, n_r, r_strong, r_vol,
+          r_ionic, strong, strong, True, ceiling, rtol, max_iter, dose, slope, ionic_out)
+
+
+@njit(cache=True, error_model="numpy")
+def _ideal_strong(ah, k, z, kw, a, totals, start, extra, known, ceiling, rtol, max_iter,
+                  s_out, spare, ionic_out):
+    _rows(1, ah, k, z, kw, a, totals, start, extra, extra, extra, 0.0, 0.0, 0.0, extra, known,
+          False, ceiling, rtol, max_iter, s_out, spare, ionic_out)
+
+
+@njit(cache=True, error_model="numpy")
+def _davies_strong(ah, k, z, kw, a, totals, start, extra, known, ceiling, rtol, max_iter,
+                   s_out, spare, ionic_out):
+    _rows(1, ah, k, z, kw, a, totals, start, extra, extra, extra, 0.0, 0.0, 0.0, extra, known,
+          True, ceiling, rtol, max_iter, s_out, spare, ionic_out)
 
 
 def dose_rows(ah, k, z, kw, a, totals, strong, strong_i, n_r, r_strong, r_vol, r_ionic,
               davies, ceiling, rtol, max_iter, dose, slope, ionic_out):
     """Dose [mol/L] and slope [eq/mol] of every water, written into ``dose``
-    and ``slope`` (and the settled ionic strength into ``ionic_out``; NaN
-    for the ideal solution). The constants ``k``, ``kw`` and ``a`` have one
-    row per water, or one row for all.
-    The ideal and the Davies loops are compiled apart, each without the
-    other's branches."""
-    run = _davies_rows if davies else _ideal_rows
+    and ``slope`` (and the settled ionic strength into ``ionic_out``). The
+    constants ``k``, ``kw`` and ``a`` have one row per water, or one row for
+    all. The ideal and the Davies loops are compiled apart, each without
+    the other's branches."""
+    run = _davies_dose if davies else _ideal_dose
     run(ah, k, z, kw, a, totals, strong, strong_i, n_r, r_strong, r_vol, r_ionic, ceiling,
         rtol, max_iter, dose, slope, ionic_out)
+
+
+def strong_rows(ah, k, z, kw, a, totals, start, extra, known, davies, ceiling, rtol,
+                max_iter, s_out, ionic_out):
+    """The strong-ion balance S [eq/L] that puts each water at its pH, and
+    its ionic strength [mol/L] (``extra``: known strong ions' ionic strength;
+    ``known``: their net charge; the rest of S counted as monovalent), as
+    :func:`dosing.chem.solvers.strong_balance_at_ph` finds them."""
+    run = _davies_strong if davies else _ideal_strong
+    run(ah, k, z, kw, a, totals, start, extra, known, ceiling, rtol, max_iter, s_out,
+        np.empty_like(s_out), ionic_out)

@@ -15,6 +15,7 @@ import numpy as np
 
 from ..errors import ModelError
 from .activity import ActivityModel
+from .fast import compiled, simple_rows
 from .mixture import Mixture
 from .solve_coupled import ph_coupled
 from .speciation import I_CEILING, Rows, restrict, rows_state
@@ -156,6 +157,10 @@ def strong_balance_at_ph(totals_mol_l, ph, temperature_c, *, activity: ActivityM
     bare = replace(mix, strong_eq_l=np.zeros(mix.n), strong_ionic_strength=np.zeros(mix.n),
                    calcite=calcite)
     rows = restrict(bare, cap=solids)
+    i0 = extra if ionic_guess is None else np.broadcast_to(
+        np.asarray(ionic_guess, dtype=float), ph.shape) + 0.0 * extra
+    if compiled() is not None and simple_rows(rows, activity):
+        return _compiled_strong(rows, ph, i0, extra, known, activity, max_iter)
     # A species-wise model (SIT) needs the strong ions in the water's medium:
     # the view carries the balance found at the last step (the residual is
     # linear in it, so the new balance is the old one minus the residual).
@@ -174,14 +179,29 @@ def strong_balance_at_ph(totals_mol_l, ph, temperature_c, *, activity: ActivityM
 
     # A guess near the answer (a replay's rows are close to the scenario's
     # water) saves steps of the fixed point; the answer does not depend on it.
-    i0 = extra if ionic_guess is None else np.broadcast_to(
-        np.asarray(ionic_guess, dtype=float), ph.shape) + 0.0 * extra
     s, i1 = at(i0)
     if activity.ideal:
         return s, i1
     # Each water keeps S from the step at which its ionic strength settled.
     ionic, (s,) = settle(lambda i: at(i)[::-1], i0, i1, max_iter, payload=True)
     return np.where(np.isfinite(ionic), s, np.nan), ionic
+
+
+def _compiled_strong(rows, ph, i0, extra, known, activity, max_iter):
+    """(S, ionic strength) of :func:`strong_balance_at_ph` from the compiled loop."""
+    n = ph.shape[0]
+    one = rows.k.shape[0] > 1 and rows.k.strides[0] == 0
+    a = np.broadcast_to(rows.a, (n,))
+    k, kw, a = (rows.k[:1], rows.kw[:1], a[:1]) if one else (rows.k, rows.kw, a)
+    s, ionic = np.empty(n), np.empty(n)
+    f = np.ascontiguousarray
+    compiled().strong_rows(f(10.0 ** -ph, dtype=float), f(k, dtype=float), f(rows.z, dtype=float),
+                        f(kw, dtype=float), f(a, dtype=float), f(rows.totals, dtype=float),
+                        f(np.broadcast_to(i0, (n,)), dtype=float),
+                        f(np.broadcast_to(extra, (n,)), dtype=float),
+                        f(np.broadcast_to(known, (n,)), dtype=float), not activity.ideal,
+                        I_CEILING, SETTLE_RTOL, max_iter, s, ionic)
+    return s, ionic
 
 
 #: Relative change of the ionic strength at which :func:`_settle` stops.
