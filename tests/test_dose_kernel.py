@@ -23,6 +23,16 @@ from dosing.planning.reagents import get_reagent
 ROOT = Path(__file__).resolve().parents[1]
 
 
+@pytest.fixture(autouse=True)
+def _compiled_for_any_size():
+    """The loops run from the first water here (in use they start at
+    DOSE_KERNEL.min_rows, where they pay for numba's start)."""
+    before = DOSE_KERNEL.min_rows
+    DOSE_KERNEL.min_rows = 0
+    yield
+    DOSE_KERNEL.min_rows = before
+
+
 def _waters(n: int, activity, seed: int, one_temperature: bool) -> Mixture:
     rng = np.random.default_rng(seed)
     tot = np.zeros((n, N_SYSTEMS))
@@ -76,6 +86,7 @@ def test_a_water_whose_ionic_strength_runs_away_gets_no_number_in_both():
 @pytest.mark.parametrize("name", ["acid-rinse-caustic", "food-acetate-stream", "cip-sulfuric",
                                   "flow-metering-pump"])
 def test_demo_plans_are_the_same_with_and_without_the_compiled_loop(name):
+    # Plans sample 2,000 waters: under min_rows in use, compiled here (fixture).
     from dosing.io.scenario import load_scenario
     from dosing.planning.job import make_plan
     scenario = load_scenario(ROOT / "scenarios" / f"{name}.toml")
@@ -138,3 +149,10 @@ def test_compiled_carbonate_from_alkalinity_equals_the_reference(activity, one_t
     assert np.all(np.abs(c1[ok] - c0[ok]) <= 1e-12 * scale[ok])
     np.testing.assert_allclose(k1, k0, rtol=1e-12, atol=1e-15)
     np.testing.assert_allclose(i1[ok], i0[ok], rtol=1e-12, atol=0.0)
+
+
+def test_small_calls_keep_to_numpy_so_a_command_does_not_pay_numbas_start():
+    from dosing.chem import fast
+    DOSE_KERNEL.min_rows = 20_000
+    assert fast.compiled(19_999) is None and fast.compiled_alkalinity(10) is None
+    assert fast.compiled(20_000) is not None

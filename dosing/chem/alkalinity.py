@@ -56,7 +56,7 @@ def carbonate_for_alkalinity(totals_mol_l, ph, temperature_c, alk_eq_l,
     job = _AlkalinityJob.build(totals_mol_l, ph, temperature_c, alk_eq_l, endpoint_ph,
                                activity, extra_ionic_strength, unknown_pka, ferrous_oxidised,
                                shift)
-    if compiled_alkalinity() is not None and simple_rows(job.rows, activity):
+    if compiled_alkalinity(job.ph.shape[0]) is not None and simple_rows(job.rows, activity):
         return _compiled(job, activity, max_iter)
     ionic, ionic_e = job.extra.copy(), job.extra.copy()
     c, coef, new_i, new_ie = job.solve(ionic, ionic_e)
@@ -88,7 +88,7 @@ def _compiled(job: "_AlkalinityJob", activity: ActivityModel, max_iter: int):
     k, kw, a = (rows.k[:1], rows.kw[:1], a[:1]) if one else (rows.k, rows.kw, a)
     c, coef, ionic = np.empty(n), np.empty(n), np.empty(n)
     f = np.ascontiguousarray
-    compiled_alkalinity().alkalinity_rows(
+    compiled_alkalinity(n).alkalinity_rows(
         f(job.ph, dtype=float), f(job.ep, dtype=float), f(job.alk, dtype=float),
         f(job.extra, dtype=float), f(k, dtype=float), f(rows.z, dtype=float),
         f(kw, dtype=float), f(a, dtype=float), f(rows.totals, dtype=float), rows.carb,

@@ -34,7 +34,7 @@ def _compiled(mix: Mixture, rows: Rows, n_r: np.ndarray, reagent: ReagentVector,
                 else (rows.k, rows.kw, np.broadcast_to(rows.a, (n,))))
     dose, slope, ionic = np.empty(n), np.empty(n), np.empty(n)
     f = np.ascontiguousarray
-    compiled().dose_rows(f(ah, dtype=float), f(k, dtype=float), f(rows.z, dtype=float),
+    compiled(n).dose_rows(f(ah, dtype=float), f(k, dtype=float), f(rows.z, dtype=float),
                       f(kw, dtype=float), f(a, dtype=float), f(rows.totals, dtype=float),
                       f(mix.strong_eq_l, dtype=float),
                       f(mix.strong_ionic_strength, dtype=float), f(n_r, dtype=float),
@@ -73,7 +73,7 @@ def dose_to_ph(mix: Mixture, reagent: ReagentVector, target_ph,
     tp = np.broadcast_to(np.asarray(target_ph, dtype=float), (mix.n,)).copy()
     n_full = np.asarray(reagent.totals_mol, dtype=float)
     rows = restrict(mix, extra_cols=np.flatnonzero(n_full))
-    if compiled() is not None and simple_rows(rows, mix.activity):
+    if compiled(mix.n) is not None and simple_rows(rows, mix.activity):
         return _compiled(mix, rows, n_full[rows.cols], reagent, 10.0 ** -tp, max_iter)
     job = _DoseJob(mix, rows, n_full[rows.cols], reagent, 10.0 ** -tp)
     s = job.solve(None, max_iter)

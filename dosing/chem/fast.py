@@ -17,22 +17,30 @@ __all__ = ["DOSE_KERNEL", "compiled", "compiled_alkalinity", "simple_rows"]
 
 
 class _Switch:
-    """Whether the solvers use the compiled loops where they apply."""
+    """Whether the solvers use the compiled loops where they apply, and from
+    how many waters in one call: below that the numpy path is as quick, and
+    a command that never reaches it does not pay numba's start (about 0.3 s
+    the first time a process calls any compiled function)."""
 
     on: bool = True
+    min_rows: int = 20_000
 
 
 DOSE_KERNEL = _Switch()
 
 
-def compiled():
-    """The compiled kernel module, or None when it is off or missing."""
-    return _kernel if (_kernel is not None and DOSE_KERNEL.on) else None
+def _wanted(n: int) -> bool:
+    return DOSE_KERNEL.on and n >= DOSE_KERNEL.min_rows
 
 
-def compiled_alkalinity():
-    """The compiled alkalinity kernel module, or None when off or missing."""
-    return _alk_kernel if (_alk_kernel is not None and DOSE_KERNEL.on) else None
+def compiled(n: int):
+    """The compiled kernel module for a call on ``n`` waters, or None."""
+    return _kernel if (_kernel is not None and _wanted(n)) else None
+
+
+def compiled_alkalinity(n: int):
+    """The compiled alkalinity kernel module for ``n`` waters, or None."""
+    return _alk_kernel if (_alk_kernel is not None and _wanted(n)) else None
 
 
 def simple_rows(rows, activity) -> bool:

@@ -159,7 +159,7 @@ def strong_balance_at_ph(totals_mol_l, ph, temperature_c, *, activity: ActivityM
     rows = restrict(bare, cap=solids)
     i0 = extra if ionic_guess is None else np.broadcast_to(
         np.asarray(ionic_guess, dtype=float), ph.shape) + 0.0 * extra
-    if compiled() is not None and simple_rows(rows, activity):
+    if compiled(ph.shape[0]) is not None and simple_rows(rows, activity):
         return _compiled_strong(rows, ph, i0, extra, known, activity, max_iter)
     # A species-wise model (SIT) needs the strong ions in the water's medium:
     # the view carries the balance found at the last step (the residual is
@@ -195,7 +195,7 @@ def _compiled_strong(rows, ph, i0, extra, known, activity, max_iter):
     k, kw, a = (rows.k[:1], rows.kw[:1], a[:1]) if one else (rows.k, rows.kw, a)
     s, ionic = np.empty(n), np.empty(n)
     f = np.ascontiguousarray
-    compiled().strong_rows(f(10.0 ** -ph, dtype=float), f(k, dtype=float), f(rows.z, dtype=float),
+    compiled(n).strong_rows(f(10.0 ** -ph, dtype=float), f(k, dtype=float), f(rows.z, dtype=float),
                         f(kw, dtype=float), f(a, dtype=float), f(rows.totals, dtype=float),
                         f(np.broadcast_to(i0, (n,)), dtype=float),
                         f(np.broadcast_to(extra, (n,)), dtype=float),
