@@ -44,13 +44,14 @@ def _waters(n: int, activity, seed: int, one_temperature: bool) -> Mixture:
     return Mixture.build(tot, s, 0.5 * np.abs(s), t, math.nan, activity)
 
 
-def _both(mix, reagent, target):
+def _both(fn, *args, **kw):
+    """(the numpy reference's result, the compiled loop's) of one call."""
     DOSE_KERNEL.on = False
     try:
-        ref = dose_to_ph(mix, reagent, target)
+        ref = fn(*args, **kw)
     finally:
         DOSE_KERNEL.on = True
-    return ref, dose_to_ph(mix, reagent, target)
+    return ref, fn(*args, **kw)
 
 
 @pytest.mark.parametrize("activity", [IDEAL, DAVIES], ids=["ideal", "davies"])
@@ -59,7 +60,7 @@ def _both(mix, reagent, target):
 def test_compiled_dose_equals_the_reference(activity, reagent, one_temperature):
     mix = _waters(3000, activity, seed=11, one_temperature=one_temperature)
     target = np.random.default_rng(5).uniform(3.0, 11.5, mix.n)
-    (d0, s0), (d1, s1) = _both(mix, get_reagent(reagent).vector(), target)
+    (d0, s0), (d1, s1) = _both(dose_to_ph, mix, get_reagent(reagent).vector(), target)
     assert np.array_equal(np.isfinite(d0), np.isfinite(d1))
     ok = np.isfinite(d0)
     assert ok.mean() > 0.9
@@ -76,7 +77,8 @@ def test_a_water_whose_ionic_strength_runs_away_gets_no_number_in_both():
     tot[:, system_index("sulfate")] = [0.01, 0.01]
     mix = Mixture.build(tot, np.array([-2.0, -0.02]), np.array([1.0, 0.01]),
                         np.array([25.0, 25.0]), math.nan, DAVIES)
-    (d0, _), (d1, _) = _both(mix, get_reagent("caustic-50").vector(), np.array([14.5, 7.0]))
+    (d0, _), (d1, _) = _both(dose_to_ph, mix, get_reagent("caustic-50").vector(),
+                             np.array([14.5, 7.0]))
     assert np.array_equal(np.isfinite(d0), np.isfinite(d1))
     assert np.isfinite(d1[1])
     assert d1[1] == pytest.approx(d0[1], rel=1e-12)
@@ -89,13 +91,7 @@ def test_demo_plans_are_the_same_with_and_without_the_compiled_loop(name):
     # Plans sample 2,000 waters: under min_rows in use, compiled here (fixture).
     from dosing.io.scenario import load_scenario
     from dosing.planning.job import make_plan
-    scenario = load_scenario(ROOT / "scenarios" / f"{name}.toml")
-    DOSE_KERNEL.on = False
-    try:
-        ref = make_plan(scenario)
-    finally:
-        DOSE_KERNEL.on = True
-    new = make_plan(scenario)
+    ref, new = _both(make_plan, load_scenario(ROOT / "scenarios" / f"{name}.toml"))
     assert new.dose_mol_l == pytest.approx(ref.dose_mol_l, rel=1e-12)
     assert new.ph_end == pytest.approx(ref.ph_end, abs=1e-10)
     if ref.uncertainty is not None:
@@ -111,13 +107,9 @@ def test_compiled_strong_balance_equals_the_reference(activity, one_temperature)
     ph = rng.uniform(2.0, 12.5, mix.n)
     extra = rng.uniform(0.0, 0.05, mix.n)
     known = rng.uniform(-0.01, 0.01, mix.n)
-    kw = dict(activity=activity, extra_ionic_strength=extra, known_strong_eq_l=known)
-    DOSE_KERNEL.on = False
-    try:
-        s0, i0 = strong_balance_at_ph(mix.totals_mol_l, ph, mix.temperature_c, **kw)
-    finally:
-        DOSE_KERNEL.on = True
-    s1, i1 = strong_balance_at_ph(mix.totals_mol_l, ph, mix.temperature_c, **kw)
+    (s0, i0), (s1, i1) = _both(strong_balance_at_ph, mix.totals_mol_l, ph, mix.temperature_c,
+                               activity=activity, extra_ionic_strength=extra,
+                               known_strong_eq_l=known)
     assert np.array_equal(np.isfinite(s0), np.isfinite(s1)) and np.isfinite(s0).all()
     scale = mix.totals_mol_l.sum(axis=1) + 10.0 ** -ph + 10.0 ** (ph - 14.0)
     assert np.all(np.abs(s1 - s0) <= 1e-12 * scale)
@@ -133,15 +125,9 @@ def test_compiled_carbonate_from_alkalinity_equals_the_reference(activity, one_t
     ph = rng.uniform(4.8, 11.5, mix.n)
     alk = rng.uniform(-0.002, 0.01, mix.n)            # eq/L; negative: an acidity
     extra = rng.uniform(0.0, 0.05, mix.n)
-    kw = dict(activity=activity, extra_ionic_strength=extra)
-    DOSE_KERNEL.on = False
-    try:
-        c0, k0, i0 = carbonate_for_alkalinity(mix.totals_mol_l, ph, mix.temperature_c, alk,
-                                              4.5, **kw)
-    finally:
-        DOSE_KERNEL.on = True
-    c1, k1, i1 = carbonate_for_alkalinity(mix.totals_mol_l, ph, mix.temperature_c, alk,
-                                          4.5, **kw)
+    (c0, k0, i0), (c1, k1, i1) = _both(carbonate_for_alkalinity, mix.totals_mol_l, ph,
+                                       mix.temperature_c, alk, 4.5, activity=activity,
+                                       extra_ionic_strength=extra)
     assert np.array_equal(np.isfinite(c0), np.isfinite(c1))
     ok = np.isfinite(c0)
     assert ok.mean() > 0.9

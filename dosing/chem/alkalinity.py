@@ -16,7 +16,7 @@ from .columns import CARBONATE, N_SYSTEMS, system_index
 from .mixture import Mixture
 from .solvers import SETTLE_RTOL, settle
 from .coupled import coupled_balance
-from .fast import compiled_alkalinity, simple_rows
+from .fast import compiled_alkalinity, kernel_constants, simple_rows
 from .medium import I_CEILING
 from .speciation import Rows, capped_mask, restrict, species_at
 
@@ -83,16 +83,14 @@ def carbonate_for_alkalinity(totals_mol_l, ph, temperature_c, alk_eq_l,
 def _compiled(job: "_AlkalinityJob", activity: ActivityModel, max_iter: int):
     """(carbonate, coefficient, ionic strength) from the compiled loop."""
     rows, n = job.rows, job.ph.shape[0]
-    one = rows.k.shape[0] > 1 and rows.k.strides[0] == 0
-    a = np.broadcast_to(rows.a, (n,))
-    k, kw, a = (rows.k[:1], rows.kw[:1], a[:1]) if one else (rows.k, rows.kw, a)
+    k, kw, a = kernel_constants(rows, n)
     c, coef, ionic = np.empty(n), np.empty(n), np.empty(n)
     f = np.ascontiguousarray
     compiled_alkalinity(n).alkalinity_rows(
         f(job.ph, dtype=float), f(job.ep, dtype=float), f(job.alk, dtype=float),
-        f(job.extra, dtype=float), f(k, dtype=float), f(rows.z, dtype=float),
-        f(kw, dtype=float), f(a, dtype=float), f(rows.totals, dtype=float), rows.carb,
-        not activity.ideal, I_CEILING, SETTLE_RTOL, max_iter, c, coef, ionic)
+        f(job.extra, dtype=float), k, f(rows.z, dtype=float), kw, a,
+        f(rows.totals, dtype=float), rows.carb, not activity.ideal, I_CEILING, SETTLE_RTOL,
+        max_iter, c, coef, ionic)
     return c, coef, ionic
 
 

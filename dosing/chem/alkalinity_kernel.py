@@ -19,7 +19,7 @@ import math
 import numpy as np
 from numba import njit
 
-from .dose_kernel import _column, _powers
+from .dose_kernel import _column, _powers, charge_index, secant
 
 __all__ = ["alkalinity_rows"]
 
@@ -63,20 +63,11 @@ def _solve(i, ki, ah0, ahe, xs, xe, alk, extra, k, z, kw, a, totals, car, davies
 
 
 @njit(cache=True, error_model="numpy", inline="always")
-def _secant(x, x_prev, g, g_prev, fx):
-    sec = x - g * (x - x_prev) / (g - g_prev) if g != g_prev else math.nan
-    return sec if (math.isfinite(sec) and sec >= 0.0) else fx
-
-
-@njit(cache=True, error_model="numpy", inline="always")
 def _rows(ph, ep, alk, extra, k, z, kw, a, totals, car, davies, ceiling, rtol, max_iter,
           c_out, coef_out, i_out):
     one = k.shape[0] == 1
     p0, pe = np.empty(6), np.empty(6)
-    za = np.empty(z.shape, dtype=np.int64)
-    for j in range(z.shape[0]):
-        for f in range(z.shape[1]):
-            za[j, f] = int(abs(z[j, f]) + 0.5)
+    za = charge_index(z)
     for i in range(ph.shape[0]):
         ki = 0 if one else i
         ah0, ahe = 10.0 ** -ph[i], 10.0 ** -ep[i]
@@ -104,9 +95,9 @@ def _rows(ph, ep, alk, extra, k, z, kw, a, totals, car, davies, ceiling, rtol, m
             if not (live_s or live_e):
                 break
             if live_s:
-                xs, ps, gs_prev = _secant(xs, ps, gs, gs_prev, fs), xs, gs
+                xs, ps, gs_prev = secant(xs, ps, gs, gs_prev, fs), xs, gs
             if live_e:
-                xe, pe_, ge_prev = _secant(xe, pe_, ge, ge_prev, fe), xe, ge
+                xe, pe_, ge_prev = secant(xe, pe_, ge, ge_prev, fe), xe, ge
         ok = math.isfinite(out_s) and math.isfinite(out_e)
         c, coef, ni, _ = _solve(i, ki, ah0, ahe, out_s if ok else 0.0, out_e if ok else 0.0,
                                 alk, extra, k, z, kw, a, totals, car, davies, ceiling, p0, pe,

@@ -16,7 +16,7 @@ import numpy as np
 
 from .dose_coupled import dose_coupled
 from .mixture import Mixture, ReagentVector
-from .fast import DOSE_KERNEL, compiled, simple_rows
+from .fast import DOSE_KERNEL, compiled, kernel_constants, simple_rows
 from .medium import I_CEILING
 from .solvers import SETTLE_RTOL, settle
 from .speciation import Rows, capped_mask, restrict, species_at
@@ -28,19 +28,15 @@ def _compiled(mix: Mixture, rows: Rows, n_r: np.ndarray, reagent: ReagentVector,
               max_iter: int):
     """(dose, slope) of :func:`dose_to_ph` from the compiled loop."""
     n = mix.n
-    # Constants of one temperature are views of one row: passed as that row.
-    one = rows.k.shape[0] > 1 and rows.k.strides[0] == 0
-    k, kw, a = ((rows.k[:1], rows.kw[:1], np.broadcast_to(rows.a, (n,))[:1]) if one
-                else (rows.k, rows.kw, np.broadcast_to(rows.a, (n,))))
+    k, kw, a = kernel_constants(rows, n)
     dose, slope, ionic = np.empty(n), np.empty(n), np.empty(n)
     f = np.ascontiguousarray
-    compiled(n).dose_rows(f(ah, dtype=float), f(k, dtype=float), f(rows.z, dtype=float),
-                      f(kw, dtype=float), f(a, dtype=float), f(rows.totals, dtype=float),
-                      f(mix.strong_eq_l, dtype=float),
-                      f(mix.strong_ionic_strength, dtype=float), f(n_r, dtype=float),
-                      float(reagent.strong_eq), float(reagent.volume_l),
-                      float(reagent.ionic_strength), not mix.activity.ideal, I_CEILING,
-                      SETTLE_RTOL, max_iter, dose, slope, ionic)
+    compiled(n).dose_rows(f(ah, dtype=float), k, f(rows.z, dtype=float), kw, a,
+                          f(rows.totals, dtype=float), f(mix.strong_eq_l, dtype=float),
+                          f(mix.strong_ionic_strength, dtype=float), f(n_r, dtype=float),
+                          float(reagent.strong_eq), float(reagent.volume_l),
+                          float(reagent.ionic_strength), not mix.activity.ideal, I_CEILING,
+                          SETTLE_RTOL, max_iter, dose, slope, ionic)
     return dose, slope
 
 

@@ -98,6 +98,24 @@ def _pass(i, ki, ah, inv, ionic, k, z, kw, a, totals, strong, strong_i, n_r, r_s
 
 
 @njit(cache=True, error_model="numpy", inline="always")
+def charge_index(z):
+    """|z| of every form as an index into the table of :func:`_powers`."""
+    za = np.empty(z.shape, dtype=np.int64)
+    for j in range(z.shape[0]):
+        for f in range(z.shape[1]):
+            za[j, f] = int(abs(z[j, f]) + 0.5)
+    return za
+
+
+@njit(cache=True, error_model="numpy", inline="always")
+def secant(x, x_prev, g, g_prev, fx):
+    """The next trial of :func:`dosing.chem.solvers.settle`: the secant root
+    of g(x) = f(x) - x when it is finite and not negative, else f(x)."""
+    sec = x - g * (x - x_prev) / (g - g_prev) if g != g_prev else math.nan
+    return sec if (math.isfinite(sec) and sec >= 0.0) else fx
+
+
+@njit(cache=True, error_model="numpy", inline="always")
 def _strong_pass(i, ki, ah, inv, ionic, k, z, kw, a, totals, extra, known, davies, ceiling,
                  power, za):
     """One pass of the strong-ion balance at the water's own pH and ionic
@@ -139,10 +157,7 @@ def _rows(kind, ah, k, z, kw, a, totals, start, strong, strong_i, n_r, r_strong,
     the ideal solution takes one pass (its ionic strength is the pass's)."""
     one = k.shape[0] == 1
     power = np.empty(6)
-    za = np.empty(z.shape, dtype=np.int64)
-    for j in range(z.shape[0]):
-        for f in range(z.shape[1]):
-            za[j, f] = int(abs(z[j, f]) + 0.5)
+    za = charge_index(z)
     for i in range(ah.shape[0]):
         ki = 0 if one else i
         inv = 1.0 / ah[i]
@@ -168,9 +183,7 @@ def _rows(kind, ah, k, z, kw, a, totals, start, strong, strong_i, n_r, r_strong,
                 break
             if not (math.isfinite(fx) and fx < ceiling):
                 break
-            sec = x - g * (x - x_prev) / (g - g_prev) if g != g_prev else math.nan
-            x_prev, g_prev = x, g
-            x = sec if (math.isfinite(sec) and sec >= 0.0) else fx
+            x, x_prev, g_prev = secant(x, x_prev, g, g_prev, fx), x, g
         v1[i] = out_d if math.isfinite(out_x) else math.nan
         v2[i], ionic_out[i] = out_s, out_x
 

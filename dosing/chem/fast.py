@@ -13,7 +13,7 @@ try:
 except ImportError:                     # pragma: no cover - numba is a dependency
     _kernel = _alk_kernel = None
 
-__all__ = ["DOSE_KERNEL", "compiled", "compiled_alkalinity", "simple_rows"]
+__all__ = ["DOSE_KERNEL", "compiled", "compiled_alkalinity", "simple_rows", "kernel_constants"]
 
 
 class _Switch:
@@ -51,3 +51,15 @@ def simple_rows(rows, activity) -> bool:
     return (rows.tab is None and rows.ca < 0 and not rows.has_solids
             and activity.name in ("ideal", "davies")
             and not bool(np.isfinite(rows.co2).any()))
+
+
+def kernel_constants(rows, n: int):
+    """(k, kw, a) of a solver's view as the compiled loops take them: one row
+    for all waters when the constants are of one temperature (views of one
+    row), else one row per water; contiguous float arrays."""
+    import numpy as np
+    one = rows.k.shape[0] > 1 and rows.k.strides[0] == 0
+    a = np.broadcast_to(rows.a, (n,))
+    k, kw, a = (rows.k[:1], rows.kw[:1], a[:1]) if one else (rows.k, rows.kw, a)
+    f = np.ascontiguousarray
+    return f(k, dtype=float), f(kw, dtype=float), f(a, dtype=float)

@@ -15,7 +15,7 @@ import numpy as np
 
 from ..errors import ModelError
 from .activity import ActivityModel
-from .fast import compiled, simple_rows
+from .fast import compiled, kernel_constants, simple_rows
 from .mixture import Mixture
 from .solve_coupled import ph_coupled
 from .speciation import I_CEILING, Rows, restrict, rows_state
@@ -190,17 +190,15 @@ def strong_balance_at_ph(totals_mol_l, ph, temperature_c, *, activity: ActivityM
 def _compiled_strong(rows, ph, i0, extra, known, activity, max_iter):
     """(S, ionic strength) of :func:`strong_balance_at_ph` from the compiled loop."""
     n = ph.shape[0]
-    one = rows.k.shape[0] > 1 and rows.k.strides[0] == 0
-    a = np.broadcast_to(rows.a, (n,))
-    k, kw, a = (rows.k[:1], rows.kw[:1], a[:1]) if one else (rows.k, rows.kw, a)
+    k, kw, a = kernel_constants(rows, n)
     s, ionic = np.empty(n), np.empty(n)
     f = np.ascontiguousarray
-    compiled(n).strong_rows(f(10.0 ** -ph, dtype=float), f(k, dtype=float), f(rows.z, dtype=float),
-                        f(kw, dtype=float), f(a, dtype=float), f(rows.totals, dtype=float),
-                        f(np.broadcast_to(i0, (n,)), dtype=float),
-                        f(np.broadcast_to(extra, (n,)), dtype=float),
-                        f(np.broadcast_to(known, (n,)), dtype=float), not activity.ideal,
-                        I_CEILING, SETTLE_RTOL, max_iter, s, ionic)
+    compiled(n).strong_rows(f(10.0 ** -ph, dtype=float), k, f(rows.z, dtype=float), kw, a,
+                            f(rows.totals, dtype=float),
+                            f(np.broadcast_to(i0, (n,)), dtype=float),
+                            f(np.broadcast_to(extra, (n,)), dtype=float),
+                            f(np.broadcast_to(known, (n,)), dtype=float), not activity.ideal,
+                            I_CEILING, SETTLE_RTOL, max_iter, s, ionic)
     return s, ionic
 
 
