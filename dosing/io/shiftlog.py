@@ -31,7 +31,7 @@ from .shiftlog_file import (ENV_VAR, MIGRATIONS, SCHEMA_VERSION, LogFile, _is_lo
                             default_log_path)
 
 __all__ = ["ShiftLogError", "Entry", "ShiftLog", "default_log_path", "SCHEMA_VERSION",
-           "MIGRATIONS", "ENV_VAR", "parse_since", "Bias", "BIAS_MIN_ENTRIES"]
+           "MIGRATIONS", "ENV_VAR", "parse_since", "Bias", "BIAS_MIN_ENTRIES", "kg_basis"]
 
 #: Fewest usable decisions on a tank before its bias is estimated (common practice:
 #: fewer say more about chance than about the model).
@@ -358,14 +358,14 @@ class ShiftLog(LogFile):
         import pandas as pd
         rows = [dict(zip(_COLUMNS, (getattr(e, c) for c in _COLUMNS)),
                      local_time=e.local_time, dosed_ratio=e.dosed_ratio,
-                     latest_ph_after=self.latest_ph(e), kg_are=_kg_basis(e),
+                     latest_ph_after=self.latest_ph(e), kg_are=kg_basis(e),
                      cautions=" | ".join((e.plan or {}).get("cautions", [])))
                 for e in self.entries(since_utc=since_utc, tank=tank)]
         return pd.DataFrame(rows, columns=list(_COLUMNS) + [
             "local_time", "dosed_ratio", "latest_ph_after", "kg_are", "cautions"])
 
 
-def _kg_basis(e: Entry) -> str:
+def kg_basis(e: Entry) -> str:
     """What planned_kg and dosed_kg of an entry are: kg per batch, or kg/h
     for a flow (the rate the pump ran at); empty for a follow-up."""
     plan = e.plan or {}

@@ -17,7 +17,7 @@ from starlette.responses import RedirectResponse, Response
 from ..errors import DosingError, InputError
 from ..planning.reagents import GENERAL_CAUTION
 from .auth import Ctx
-from .site import FORM_FIELDS, PAIR_FIELDS, Planned, scenario_form
+from .site import FORM_FIELDS, PAIR_FIELDS, Planned, amount_field, scenario_form
 
 __all__ = ["tanks", "scenarios", "plan_page", "print_page", "pdf_download", "record",
            "record_planned", "kg_unit"]
@@ -27,10 +27,8 @@ _UNITS = ("metric", "us")
 
 def kg_unit(entry) -> str:
     """What an entry's kilograms are: kg per batch, kg/h for a flow."""
-    plan = entry.plan or {}
-    flow = "kg_product_per_h" in (plan.get("dose") or {}) or any(
-        "kg_product_per_h" in (s.get("dose") or {}) for s in plan.get("steps") or [])
-    return "kg/h" if flow else "kg"
+    from ..io.shiftlog import kg_basis
+    return "kg/h" if kg_basis(entry) == "kg per hour" else "kg"
 
 
 def _now() -> str:
@@ -172,10 +170,10 @@ def plan_page(ctx: Ctx) -> Response:
     query = dict(ctx.request.query_params)
     from ..io.scenario import parse_toml
     try:
-        filed = scenario_form(parse_toml(ctx.site.text_of(name), f"{name}.toml"))
+        data = parse_toml(ctx.site.text_of(name), f"{name}.toml")
     except DosingError as err:
         return ctx.render("error.html", 422, title="Scenario unreadable", message=str(err))
-    values = _boxes(ctx, query) if "go" in query else filed
+    values = _boxes(ctx, query) if "go" in query else scenario_form(data)
     units = _units(ctx)
     planned, error = _planned(ctx, values if "go" in query else None)
     sheet = _sheet_values(planned, units, ctx.site) if planned else {}
@@ -183,18 +181,8 @@ def plan_page(ctx: Ctx) -> Response:
     query_text = urlencode({**values, "units": units, "go": "1"})
     return ctx.render("plan.html", 422 if error else 200, title=f"Plan {name}", name=name,
                       values=values, fields=FORM_FIELDS, pairs=PAIR_FIELDS, units=units,
-                      amount=_amount_label(planned, ctx, name), error=error, planned=planned,
+                      amount=amount_field(data)[1:], error=error, planned=planned,
                       query=query_text, final_word=GENERAL_CAUTION, **sheet)
-
-
-def _amount_label(planned: Planned | None, ctx: Ctx, name: str) -> tuple[str, str]:
-    from ..io.scenario import parse_toml
-    from .site import _amount_key
-    try:
-        data = parse_toml(ctx.site.text_of(name), f"{name}.toml")
-    except DosingError:
-        return "tank volume", "m³"
-    return _amount_key(data)[1:]
 
 
 def _print_sheet(ctx: Ctx):

@@ -19,7 +19,8 @@ from ..errors import InputError, ScenarioError
 from ..io.site_log import SiteLog
 from ..io.typed import parse_pairs, read_number
 
-__all__ = ["Site", "FORM_FIELDS", "PAIR_FIELDS", "Planned", "scenario_form", "plan_text"]
+__all__ = ["Site", "FORM_FIELDS", "PAIR_FIELDS", "Planned", "scenario_form", "plan_text",
+           "amount_field"]
 
 #: The measurement boxes of the plan form: (form name, scenario key, label, unit).
 FORM_FIELDS = (
@@ -35,7 +36,7 @@ PAIR_FIELDS = (
 )
 
 
-def _amount_key(data: Mapping[str, Any]) -> tuple[str, str, str]:
+def amount_field(data: Mapping[str, Any]) -> tuple[str, str, str]:
     """(scenario key, label, unit) of the tank volume or the flow."""
     if "flow" in data:
         return "flow.m3_per_h", "flow", "m³/h"
@@ -45,7 +46,7 @@ def _amount_key(data: Mapping[str, Any]) -> tuple[str, str, str]:
 def scenario_form(data: Mapping[str, Any]) -> dict[str, str]:
     """The plan form's boxes filled from a scenario's data (as typed text)."""
     out = {}
-    for name, key, *_ in FORM_FIELDS + (("amount", _amount_key(data)[0]),):
+    for name, key, *_ in FORM_FIELDS + (("amount", amount_field(data)[0]),):
         section, field = key.split(".")
         v = data.get(section, {}).get(field)
         out[name] = "" if v is None else f"{v:g}"
@@ -59,7 +60,7 @@ def scenario_form(data: Mapping[str, Any]) -> dict[str, str]:
 def _overlay(data: dict[str, Any], form: Mapping[str, str]) -> dict[str, Any]:
     """The scenario's data with the form's boxes written in (an empty box
     removes the key); a box that is not a number is an InputError naming it."""
-    amount = _amount_key(data)[0]
+    amount = amount_field(data)[0]
     for name, key, *_ in FORM_FIELDS + (("amount", amount),):
         text = (form.get(name) or "").strip()
         section, field = key.split(".")
