@@ -71,6 +71,12 @@ def test_the_dose_on_paper_is_the_sheets_dose():
         assert re.search(rf"{re.escape(ph)}\s+{re.escape(add)}", text_sheet)
 
 
+def test_a_stream_sets_its_pump_rather_than_doses_a_batch():
+    sheet = _sheet(ROOT / "scenarios" / "flow-metering-pump.toml")
+    assert sheet.steps[0].text.startswith("Set the pump to ") and "/h" in sheet.steps[0].text
+    assert sheet.steps[0].boxes == ("set at", "time")
+
+
 def test_letter_paper_is_letter_sized():
     _, _, size = _pdf_text(print_pdf(_sheet(ROOT / "scenarios" / "flow-metering-pump.toml"),
                                      "letter"))

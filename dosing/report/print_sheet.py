@@ -103,6 +103,9 @@ def _plan_steps(v: PlanView, units: str) -> tuple[tuple[Step, ...], tuple[tuple[
     read = ("pH read", "time")
     if not plan.dose_needed:
         return (Step("No dose: read the pH again before discharge", read),), ()
+    if v.flow:
+        return (Step(f"Set the pump to {amount_text(v, v.dose, units)}", ("set at", "time")),
+                Step("Read the discharge pH once the tank has turned over", read)), ()
     if plan.staging is None:
         return (Step(f"Dose {amount_text(v, v.dose, units)}; mix well", ("given", "time")),
                 Step("Read the pH after mixing", read)), ()
