@@ -25,7 +25,7 @@ from .words import bias_words, shown, texts, words
 
 __all__ = ["render_sheet", "render_view", "headline", "dose_lines", "metal_lines",
            "check_lines", "caution_lines", "water_lines", "uncertainty_lines", "log_lines",
-           "control_lines", "staging_lines", "trim_rows", "amount_text", "dose_axis", "figure_title",
+           "control_lines", "staging_lines", "staging_words", "trim_rows", "water_rows", "amount_text", "dose_axis", "figure_title",
            "STEEP_PH_PER_PERCENT", "slope_text"]
 
 
@@ -147,9 +147,11 @@ def caution_lines(v: PlanView, units: str = "metric") -> list[str]:
             + [f"- {c}" for c in v.plan.cautions])
 
 
-def water_lines(v: PlanView, units: str = "metric", width: int = 78) -> list[str]:
-    """The water as measured and modelled, the reagent and the target (for the engineer)."""
-    out: list[str] = []
+def water_rows(v: PlanView, units: str = "metric") -> list[tuple[str, str]]:
+    """The water as measured and modelled, the reagent and the target (for the
+    engineer), as (label, value) rows; a row with no label continues the one
+    before it."""
+    rows: list[tuple[str, str]] = []
     u, plan, scenario = UNIT_SYSTEMS[units], v.plan, v.scenario
     w = plan.water
     if isinstance(plan.basis, Batch):
@@ -162,22 +164,34 @@ def water_lines(v: PlanView, units: str = "metric", width: int = 78) -> list[str
         measured.append(f"alkalinity {eff['alkalinity_mg_l_as_caco3']:g} mg/L as CaCO3")
     if "acidity_mg_l_as_caco3" in eff:
         measured.append(f"acidity {eff['acidity_mg_l_as_caco3']:g} mg/L as CaCO3")
-    out.extend(hanging("water", f"{amount}; {', '.join(measured)}", width, indent=9))
+    rows.append(("water", f"{amount}; {', '.join(measured)}"))
     solutes = ", ".join(f"{_total_name(w, k)} {fmt(x * 1000, floor=1e-4)}"
                         for k, x in (w.totals_mol_l | w.metals_mol_l).items())
     if solutes:
-        out.extend(wrap(f"modelled totals, mmol/L: {solutes}", width, "         "))
-    out.extend(wrap(f"strong-ion balance {fmt(w.strong_eq_l * 1000)} meq/L, ionic strength "
-                     f"{fmt(w.ionic_strength, floor=1e-4)} mol/L, "
-                     f"{w.activity.label} activity", width, "         "))
+        rows.append(("", f"modelled totals, mmol/L: {solutes}"))
+    rows.append(("", f"strong-ion balance {fmt(w.strong_eq_l * 1000)} meq/L, ionic strength "
+                 f"{fmt(w.ionic_strength, floor=1e-4)} mol/L, {w.activity.label} activity"))
     if plan.air is not None:
-        out.extend(wrap(_air_line(plan.air), width, "         "))
+        rows.append(("", _air_line(plan.air)))
     rho = plan.reagent.density_kg_l
     dens = "" if not rho else (f", {rho:.4g} kg/L at 20 °C" if units != "us" else
                                f", {rho * L_PER_US_GAL / KG_PER_LB:.4g} lb/gal at 68 °F")
-    out.append(f"reagent  {plan.reagent.name} [{plan.reagent.id}]{dens}")
-    out.append(f"target   pH {plan.target.ph_min:g} to {plan.target.ph_max:g}, "
-               f"aim {plan.target.ph_aim:g}")
+    rows.append(("reagent", f"{plan.reagent.name} [{plan.reagent.id}]{dens}"))
+    rows.append(("target", f"pH {plan.target.ph_min:g} to {plan.target.ph_max:g}, "
+                 f"aim {plan.target.ph_aim:g}"))
+    return rows
+
+
+def water_lines(v: PlanView, units: str = "metric", width: int = 78) -> list[str]:
+    """:func:`water_rows` as lines of the text sheet."""
+    out: list[str] = []
+    for label, value in water_rows(v, units):
+        if label == "water":
+            out.extend(hanging(label, value, width, indent=9))
+        elif not label:
+            out.extend(wrap(value, width, " " * 9))
+        else:
+            out.append(f"{label:<9}{value}")
     return out
 
 
@@ -340,32 +354,38 @@ def control_lines(v: PlanView, units: str = "metric") -> list[tuple[str, str]]:
     return rows
 
 
-def staging_lines(v: PlanView, units: str = "metric") -> list[str]:
-    """The staged dose and its trim table, as lines an operator follows with a pen."""
+def staging_words(v: PlanView, units: str = "metric") -> tuple[list[str], list[str]]:
+    """The staged dose's words before its trim table (:func:`trim_rows`) and
+    after it; both empty when the dose is not staged."""
     plan = v.plan
     st = plan.staging
     if st is None:
-        return []
-
-    def prod(a):
-        return product_text(a.kg_product, a.litres_product, units)
-    out = [f"The planned dose leaves the window in {plan.uncertainty.p_outside:.0%} of the "
-           "plausible waters: dose in two steps.",
-           f"1. First dose {prod(v.first)}: it stays short of the aim in "
-           f"{st.confidence:.0%} of them. Mix well, then read the pH (expected "
-           f"{st.ph_first_range[0]:.1f} to {st.ph_first_range[1]:.1f}).",
-           "2. Add what the table gives for the pH read (between two rows, in "
-           f"proportion), mix, read again. Followed, with the pH read to "
-           f"±{st.reading_sd:g}, it lands in the window in {st.p_inside:.0%} of the "
-           "plausible waters:",
-           f"   {'pH read':<11} add"]
-    out += [f"   {ph:<11} {add}" for ph, add in trim_rows(v, units)]
+        return [], []
+    first = product_text(v.first.kg_product, v.first.litres_product, units)
+    before = [f"The planned dose leaves the window in {plan.uncertainty.p_outside:.0%} of the "
+              "plausible waters: dose in two steps.",
+              f"1. First dose {first}: it stays short of the aim in "
+              f"{st.confidence:.0%} of them. Mix well, then read the pH (expected "
+              f"{st.ph_first_range[0]:.1f} to {st.ph_first_range[1]:.1f}).",
+              "2. Add what the table gives for the pH read (between two rows, in "
+              f"proportion), mix, read again. Followed, with the pH read to "
+              f"±{st.reading_sd:g}, it lands in the window in {st.p_inside:.0%} of the "
+              "plausible waters:"]
     unit, step = st.metering
-    out.append(f"Amounts are rounded to {step:g} {'L' if unit == 'litres' else 'kg'}, "
-               "what a batch can be metered to. The table is for the first reading only: "
-               "if the pH is still short of the window after the trim, add small amounts "
-               "and read after each.")
-    return out
+    after = [f"Amounts are rounded to {step:g} {'L' if unit == 'litres' else 'kg'}, "
+             "what a batch can be metered to. The table is for the first reading only: "
+             "if the pH is still short of the window after the trim, add small amounts "
+             "and read after each."]
+    return before, after
+
+
+def staging_lines(v: PlanView, units: str = "metric") -> list[str]:
+    """The staged dose and its trim table, as lines an operator follows with a pen."""
+    before, after = staging_words(v, units)
+    if not before:
+        return []
+    return (before + [f"   {'pH read':<11} add"]
+            + [f"   {ph:<11} {add}" for ph, add in trim_rows(v, units)] + after)
 
 
 def trim_rows(v: PlanView, units: str = "metric") -> list[tuple[str, str]]:

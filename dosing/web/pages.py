@@ -40,16 +40,16 @@ def tanks(ctx: Ctx) -> Response:
     from ..report.words import bias_words
     rows = []
     with ctx.site.log() as log:
-        for tank in log.tanks():
-            entries = [e for e in log.entries(tank=tank) if e.kind != "follow_up"]
-            if not entries:
-                continue
-            last = entries[-1]
+        latest = {}                       # tank -> its last decision or correction
+        for e in log.entries():
+            if e.tank and e.kind != "follow_up":
+                latest[e.tank] = e
+        for tank in sorted(latest):
+            last = latest[tank]
             bias = log.bias(tank) if ctx.can("bias") else None
             rows.append({"tank": tank, "entry": last, "ph_after": log.latest_ph(last),
                          "bias": bias_words(bias) if bias else "", "unit": kg_unit(last)})
-    return ctx.render("tanks.html", title="Tanks", rows=rows,
-                      scenarios=ctx.site.scenarios())
+    return ctx.render("tanks.html", title="Tanks", rows=rows)
 
 
 def scenarios(ctx: Ctx) -> Response:
@@ -100,9 +100,9 @@ def _sheet_values(p: Planned, units: str, site) -> dict[str, Any]:
         out.update(view=v, headline=sheet.headline(v, units),
                    breaches=texts(v.breaches, units), dose=sheet.dose_lines(v, units),
                    control=sheet.control_lines(v, units),
-                   staging=_staging(sheet.staging_lines(v, units)),
+                   staging=sheet.staging_words(v, units),
                    trim=sheet.trim_rows(v, units), metals=sheet.metal_lines(v, units),
-                   water=_rows_of(sheet.water_lines(v, units, 1000)),
+                   water=sheet.water_rows(v, units),
                    checks=sheet.check_lines(v, units),
                    warnings=texts(v.warnings, units), cautions=p.plan.cautions)
     out["figure"] = _figure(p, units, site)
@@ -125,27 +125,6 @@ def _train_values(p: Planned, units: str) -> dict[str, Any]:
             "checks": [(c.level, words(c, units)) for c in v.checks],
             "rest": [words(w, units) for w in v.warnings if not ts.is_headline_warning(w)],
             "cautions": list(p.train.cautions)}
-
-
-def _staging(lines: list[str]) -> tuple[list[str], list[str]]:
-    """The staged dose's words before its trim table and after it (the
-    table itself is shown from :func:`~dosing.report.sheet.trim_rows`)."""
-    table = [i for i, line in enumerate(lines) if line.startswith("   ")]
-    if not table:
-        return lines, []
-    return lines[:table[0]], lines[table[-1] + 1:]
-
-
-def _rows_of(lines: list[str]) -> list[tuple[str, str]]:
-    """Text-sheet lines ``label  value`` (continuations indented) as (label, value) rows."""
-    rows: list[tuple[str, str]] = []
-    for line in lines:
-        if line.startswith(" ") and rows:
-            rows[-1] = (rows[-1][0], f"{rows[-1][1]}; {line.strip()}")
-        else:
-            label, _, value = line.partition(" ")
-            rows.append((label, value.strip()))
-    return rows
 
 
 def _figure(p: Planned, units: str, site) -> str:
