@@ -27,11 +27,13 @@ def _filters(ctx: Ctx) -> tuple[dict[str, str], str | None]:
 def _entries(ctx: Ctx):
     f, since = _filters(ctx)
     with ctx.site.log() as log:
-        entries = [e for e in log.entries(since_utc=since, tank=f["tank"] or None)
-                   if not f["operator"] or e.operator == f["operator"]]
+        every = list(log.entries())           # read once: the list and its operators
         unreadable = list(log.unreadable)
+        entries = [e for e in every if (since is None or e.utc >= since)
+                   and (not f["tank"] or e.tank == f["tank"])
+                   and (not f["operator"] or e.operator == f["operator"])]
         latest = {e.id: log.latest_ph(e) for e in entries}
-        tanks, operators = log.tanks(), sorted({e.operator for e in log.entries()})
+        tanks, operators = log.tanks(), sorted({e.operator for e in every})
     return f, entries, unreadable, latest, tanks, operators
 
 
