@@ -92,15 +92,16 @@ def _layout(sheet: PrintSheet, width: float, size: float) -> _Layout:
     lay.text(sheet.headline, bold=True, scale=1.15)
     for breach in sheet.breaches:
         lay.text(f"PERMIT BREACH: {breach}", bold=True, colour="darkred")
-    sections = (("Measured", lambda: lay.rows(sheet.measured)),
-                ("Dose", lambda: lay.rows(sheet.dose)),
-                ("Record what was done", lambda: lay.boxes(sheet.steps)),
-                ("Trim table: pH read, then add", lambda: lay.rows(sheet.trim, 1.2)),
-                ("Warnings", lambda: [lay.text(w, prefix="! ") for w in sheet.warnings]),
-                ("Cautions", lambda: [lay.text(c, prefix="- ") for c in sheet.cautions]))
-    for title, draw in sections:
-        content = {"Measured": sheet.measured, "Dose": sheet.dose, "Warnings": sheet.warnings,
-                   "Trim table: pH read, then add": sheet.trim}.get(title, True)
+    sections = (("Measured", sheet.measured, lambda: lay.rows(sheet.measured)),
+                ("Dose", sheet.dose, lambda: lay.rows(sheet.dose)),
+                ("Record what was done", sheet.steps, lambda: lay.boxes(sheet.steps)),
+                ("Trim table: pH read, then add", sheet.trim,
+                 lambda: lay.rows(sheet.trim, 1.2)),
+                ("Warnings", sheet.warnings,
+                 lambda: [lay.text(w, prefix="! ") for w in sheet.warnings]),
+                ("Cautions", sheet.cautions,
+                 lambda: [lay.text(c, prefix="- ") for c in sheet.cautions]))
+    for title, content, draw in sections:
         if content:
             lay.heading(title)
             draw()
